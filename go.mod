@@ -1,0 +1,5 @@
+module trajvault
+
+go 1.26.8
+
+require gonum.org/v1/hdf5 v0.0.0-20210714002203-8c5d23bc6946
