@@ -506,3 +506,8 @@ char *tv_dset_read_strings(hid_t loc, const char *path, size_t *total) {
 	H5Dclose(d);
 	return out;
 }
+
+int tv_delete_link(hid_t loc, const char *path) { return H5Ldelete(loc, path, H5P_DEFAULT); }
+int tv_delete_attr(hid_t loc, const char *path, const char *name) {
+	return H5Adelete_by_name(loc, path, name, H5P_DEFAULT);
+}

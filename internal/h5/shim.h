@@ -76,4 +76,7 @@ int tv_dset_read(hid_t loc, const char *path, int memcode, int rank, const hsize
                  const hsize_t *count, void *buf);
 char *tv_dset_read_strings(hid_t loc, const char *path, size_t *total);
 
+int tv_delete_link(hid_t loc, const char *path);
+int tv_delete_attr(hid_t loc, const char *path, const char *name);
+
 #endif

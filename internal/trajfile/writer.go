@@ -1,0 +1,526 @@
+// Package trajfile writes trajectories in the trajvault layout
+// (schema/layout.md): H5MD 1.1 with the units module and the
+// trajvault_electronic module for electronic-state data.
+//
+// The Writer streams frames: memory use is one chunk of frames per element,
+// whatever the length of the run. Output appears atomically: data go to a
+// temporary file beside the target, which is linked into place by Close
+// only if every write succeeded and the target does not exist.
+package trajfile
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+
+	"trajvault/internal/h5"
+)
+
+// Module is the name and version of trajvault's electronic-state module.
+const (
+	ModuleName = "trajvault_electronic"
+	Group      = "all"
+)
+
+// ModuleVersion is written as /h5md/modules/trajvault_electronic@version.
+var ModuleVersion = []int32{1, 0}
+
+// Units are the unit strings (H5MD grammar, internal/units symbols) of the
+// stored numbers. They describe the data as given; the writer converts
+// nothing, so stored values stay exactly those of the source.
+type Units struct {
+	Length, Time, Velocity, Force, Energy, Mass, InverseTime string
+}
+
+// DefaultUnits are the units of most quantum-chemistry logs.
+var DefaultUnits = Units{
+	Length: "angstrom", Time: "fs", Velocity: "angstrom fs-1", Force: "hartree bohr-1",
+	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
+}
+
+// Spec describes the file to write. Zero values of optional parts leave
+// the element out.
+type Spec struct {
+	Author, Email           string
+	Creator, CreatorVersion string
+
+	Species  []int     // atomic numbers, length N
+	Masses   []float64 // length N
+	Boundary []string  // per axis "periodic" or "none"; nil = all none
+	Edges    []float64 // [D], required when any boundary is periodic
+
+	Units Units
+
+	Velocity, Force               bool
+	Kinetic, Potential, Total     bool
+	NStates                       int // > 0 enables the electronic module
+	StateEnergies, ActiveState    bool
+	Populations, Amplitudes, Hops bool
+	Couplings                     bool
+	Integrator, Method            string
+	TimeStep                      float64 // in Units.Time; 0 = not recorded
+	Filters                       h5.Filters
+	ChunkFrames                   int // frames per chunk; 0 = chosen from N
+	Attrs                         map[string]string
+}
+
+// DefaultFilters are lossless and decoded by every HDF5 build: byte
+// shuffle, deflate and a Fletcher-32 checksum per chunk (fixity inside the
+// file, independent of the bag's manifests).
+var DefaultFilters = h5.Filters{Shuffle: true, Deflate: 4, Fletcher32: true}
+
+// Frame is one stored time step. Slices are flat, row-major: Position is
+// N*3 values, StateEnergies S, Amplitudes S*2 (re, im), Couplings S*S.
+type Frame struct {
+	Step                      int64
+	Time                      float64
+	Position                  []float64
+	Velocity, Force           []float64
+	Kinetic, Potential, Total float64
+	StateEnergies             []float64
+	ActiveState               int
+	Populations               []float64
+	Amplitudes                []float64
+	Couplings                 []float64
+}
+
+// Hop is one hop attempt of a surface-hopping run.
+type Hop struct {
+	Step       int64
+	Time       float64
+	From, To   int
+	Frustrated bool
+}
+
+// element is one buffered time-dependent value dataset.
+type element struct {
+	path string
+	row  int
+	buf  []float64
+	ibuf []int64
+	w    *h5.Writer
+}
+
+// Writer writes one trajectory file. Its first error is sticky.
+type Writer struct {
+	spec   Spec
+	final  string
+	tmp    string
+	f      *h5.File
+	n      int
+	chunk  int
+	step   *element
+	time   *element
+	elems  []*element
+	get    []func(*Frame) ([]float64, error)
+	hops   []Hop
+	frames int
+	err    error
+	closed bool
+}
+
+const pgroup = "/particles/" + Group
+
+// Create starts a new trajectory file at path; it fails if path exists.
+func Create(path string, spec Spec) (*Writer, error) {
+	if _, err := os.Lstat(path); err == nil {
+		return nil, fmt.Errorf("%s: already exists; trajvault never overwrites an output (remove it or choose another name)", path)
+	}
+	n := len(spec.Species)
+	if n == 0 || len(spec.Masses) != n {
+		return nil, fmt.Errorf("trajfile: %d species and %d masses; need N > 0 of each", n, len(spec.Masses))
+	}
+	if spec.Units == (Units{}) {
+		spec.Units = DefaultUnits
+	}
+	if spec.Creator == "" {
+		spec.Creator = "trajvault"
+	}
+	if spec.CreatorVersion == "" {
+		spec.CreatorVersion = "dev"
+	}
+	if spec.Author == "" {
+		spec.Author = "unknown"
+	}
+	if spec.Filters == (h5.Filters{}) {
+		spec.Filters = DefaultFilters
+	}
+	if spec.Boundary == nil {
+		spec.Boundary = []string{"none", "none", "none"}
+	}
+	chunk := spec.ChunkFrames
+	if chunk <= 0 {
+		// About 256 KiB of positions per chunk: large enough to compress
+		// well, small enough to read a few frames cheaply.
+		chunk = max(1, min(4096, 256*1024/(8*3*n)))
+	}
+	tmp := filepath.Join(filepath.Dir(path), fmt.Sprintf(".%s.partial-%d", filepath.Base(path), os.Getpid()))
+	os.Remove(tmp)
+	f, err := h5.Create(tmp)
+	if err != nil {
+		return nil, err
+	}
+	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk}
+	w.header()
+	w.layout()
+	if w.err != nil {
+		err := w.err
+		w.Abort()
+		return nil, err
+	}
+	return w, nil
+}
+
+func (w *Writer) do(err error) {
+	if w.err == nil && err != nil {
+		w.err = err
+	}
+}
+
+func (w *Writer) header() {
+	s, f := w.spec, w.f
+	w.do(f.CreateGroup("/h5md/author"))
+	w.do(f.CreateGroup("/h5md/creator"))
+	w.do(f.SetInts("/h5md", "version", []int32{1, 1}, false))
+	w.do(f.SetString("/h5md/author", "name", s.Author))
+	if s.Email != "" {
+		w.do(f.SetString("/h5md/author", "email", s.Email))
+	}
+	w.do(f.SetString("/h5md/creator", "name", s.Creator))
+	w.do(f.SetString("/h5md/creator", "version", s.CreatorVersion))
+	w.do(f.CreateGroup("/h5md/modules/units"))
+	w.do(f.SetInts("/h5md/modules/units", "version", []int32{1, 0}, false))
+	w.do(f.SetString("/h5md/modules/units", "system", "SI"))
+	if s.NStates > 0 {
+		m := "/h5md/modules/" + ModuleName
+		w.do(f.CreateGroup(m))
+		w.do(f.SetInts(m, "version", ModuleVersion, false))
+	}
+	w.do(f.CreateGroup("/parameters"))
+	if s.Integrator != "" {
+		w.do(f.SetString("/parameters", "integrator", s.Integrator))
+	}
+	if s.Method != "" {
+		w.do(f.SetString("/parameters", "method", s.Method))
+	}
+	for _, k := range sortedKeys(s.Attrs) {
+		w.do(f.SetString("/parameters", k, s.Attrs[k]))
+	}
+	if s.TimeStep > 0 {
+		w.scalarFloat("/parameters/time_step", s.TimeStep, s.Units.Time)
+	}
+	if s.NStates > 0 {
+		ww, err := f.CreateDataset("/parameters/n_states", h5.DatasetSpec{Type: h5.Int32})
+		w.do(err)
+		if err == nil {
+			w.do(ww.Write([]int32{int32(s.NStates)}))
+			w.do(ww.Close())
+		}
+	}
+}
+
+func (w *Writer) scalarFloat(path string, v float64, unit string) {
+	ww, err := w.f.CreateDataset(path, h5.DatasetSpec{Type: h5.Float64})
+	w.do(err)
+	if err != nil {
+		return
+	}
+	w.do(ww.Write([]float64{v}))
+	w.do(ww.Close())
+	w.do(w.f.SetString(path, "unit", unit))
+}
+
+func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DType) {
+	ww, err := w.f.CreateDataset(path, h5.DatasetSpec{Type: typ, Dims: dims})
+	w.do(err)
+	if err != nil {
+		return
+	}
+	w.do(ww.Write(data))
+	w.do(ww.Close())
+	if unit != "" {
+		w.do(w.f.SetString(path, "unit", unit))
+	}
+}
+
+// timeDep creates a time-dependent element: the group, its value dataset
+// with rows of the given shape, and step/time (own for position, hard
+// links to position's for the others).
+func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *element {
+	w.do(w.f.CreateGroup(group))
+	dims := append([]int{0}, shape...)
+	maxd := append([]int{h5.Unlimited}, shape...)
+	chunk := append([]int{w.chunk}, shape...)
+	fl := w.spec.Filters
+	if typ != h5.Float64 {
+		fl = h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}
+	}
+	ww, err := w.f.CreateDataset(group+"/value", h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
+	w.do(err)
+	if unit != "" {
+		w.do(w.f.SetString(group+"/value", "unit", unit))
+	}
+	row := 1
+	for _, d := range shape {
+		row *= d
+	}
+	e := &element{path: group + "/value", row: row, w: ww}
+	if w.step == nil {
+		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
+			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
+		w.do(err)
+		tw, err := w.f.CreateDataset(group+"/time", h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
+			Filters: w.spec.Filters})
+		w.do(err)
+		w.do(w.f.SetString(group+"/time", "unit", w.spec.Units.Time))
+		w.step = &element{path: group + "/step", row: 1, w: sw}
+		w.time = &element{path: group + "/time", row: 1, w: tw}
+	} else {
+		w.do(w.f.HardLink(pgroup+"/position/step", group+"/step"))
+		w.do(w.f.HardLink(pgroup+"/position/time", group+"/time"))
+	}
+	w.elems = append(w.elems, e)
+	return e
+}
+
+func (w *Writer) layout() {
+	s, n := w.spec, w.n
+	d := len(s.Boundary)
+	w.do(w.f.CreateGroup(pgroup + "/box"))
+	w.do(w.f.SetInts(pgroup+"/box", "dimension", []int32{int32(d)}, true))
+	w.do(w.f.SetStrings(pgroup+"/box", "boundary", s.Boundary))
+	if len(s.Edges) > 0 {
+		w.fixed(pgroup+"/box/edges", s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
+	}
+	sp := make([]int32, n)
+	for i, z := range s.Species {
+		sp[i] = int32(z)
+	}
+	w.fixed(pgroup+"/species", sp, []int{n}, "", h5.Int32)
+	w.fixed(pgroup+"/mass", s.Masses, []int{n}, s.Units.Mass, h5.Float64)
+
+	add := func(group string, shape []int, typ h5.DType, unit string, get func(*Frame) ([]float64, error)) {
+		w.timeDep(group, shape, typ, unit)
+		w.get = append(w.get, get)
+	}
+	vec := func(name string, pick func(*Frame) []float64) func(*Frame) ([]float64, error) {
+		return func(fr *Frame) ([]float64, error) {
+			v := pick(fr)
+			if len(v) != 3*n {
+				return nil, fmt.Errorf("%s has %d values, want %d (N=%d atoms x 3)", name, len(v), 3*n, n)
+			}
+			return v, nil
+		}
+	}
+	scalar := func(pick func(*Frame) float64) func(*Frame) ([]float64, error) {
+		return func(fr *Frame) ([]float64, error) { return []float64{pick(fr)}, nil }
+	}
+	sized := func(name string, want int, pick func(*Frame) []float64) func(*Frame) ([]float64, error) {
+		return func(fr *Frame) ([]float64, error) {
+			v := pick(fr)
+			if len(v) != want {
+				return nil, fmt.Errorf("%s has %d values, want %d", name, len(v), want)
+			}
+			return v, nil
+		}
+	}
+	add(pgroup+"/position", []int{n, 3}, h5.Float64, s.Units.Length, vec("position", func(f *Frame) []float64 { return f.Position }))
+	if s.Velocity {
+		add(pgroup+"/velocity", []int{n, 3}, h5.Float64, s.Units.Velocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
+	}
+	if s.Force {
+		add(pgroup+"/force", []int{n, 3}, h5.Float64, s.Units.Force, vec("force", func(f *Frame) []float64 { return f.Force }))
+	}
+	if s.Kinetic {
+		add("/observables/kinetic_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Kinetic }))
+	}
+	if s.Potential {
+		add("/observables/potential_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Potential }))
+	}
+	if s.Total {
+		add("/observables/total_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Total }))
+	}
+	ns := s.NStates
+	if ns <= 0 {
+		return
+	}
+	const el = "/observables/electronic"
+	if s.StateEnergies {
+		add(el+"/state_energies", []int{ns}, h5.Float64, s.Units.Energy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
+	}
+	if s.ActiveState {
+		add(el+"/active_state", nil, h5.Int32, "", func(f *Frame) ([]float64, error) {
+			if f.ActiveState < 0 || f.ActiveState >= ns {
+				return nil, fmt.Errorf("active state %d outside 0..%d", f.ActiveState, ns-1)
+			}
+			return []float64{float64(f.ActiveState)}, nil
+		})
+	}
+	if s.Populations {
+		add(el+"/populations", []int{ns}, h5.Float64, "", sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
+	}
+	if s.Amplitudes {
+		add(el+"/amplitudes", []int{ns, 2}, h5.Float64, "", sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
+	}
+	if s.Couplings {
+		add(el+"/couplings", []int{ns, ns}, h5.Float64, s.Units.InverseTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
+	}
+}
+
+// WriteFrame appends one frame. Steps must increase strictly.
+func (w *Writer) WriteFrame(fr *Frame) error {
+	if w.err != nil {
+		return w.err
+	}
+	if w.closed {
+		return errors.New("trajfile: WriteFrame after Close")
+	}
+	if w.frames > 0 && fr.Step <= int64(w.step.ibuf[len(w.step.ibuf)-1]) && len(w.step.ibuf) > 0 {
+		w.err = fmt.Errorf("frame %d: step %d does not follow step %d", w.frames, fr.Step, w.step.ibuf[len(w.step.ibuf)-1])
+		return w.err
+	}
+	for i, get := range w.get {
+		v, err := get(fr)
+		if err != nil {
+			w.err = fmt.Errorf("frame %d (step %d): %w", w.frames, fr.Step, err)
+			return w.err
+		}
+		w.elems[i].buf = append(w.elems[i].buf, v...)
+	}
+	w.step.ibuf = append(w.step.ibuf, fr.Step)
+	w.time.buf = append(w.time.buf, fr.Time)
+	w.frames++
+	if len(w.step.ibuf) >= w.chunk {
+		w.flush()
+	}
+	return w.err
+}
+
+func (w *Writer) flush() {
+	if len(w.step.ibuf) == 0 {
+		return
+	}
+	for _, e := range w.elems {
+		if e.w == nil {
+			continue
+		}
+		if e.path == "/observables/electronic/active_state/value" {
+			iv := make([]int32, len(e.buf))
+			for i, x := range e.buf {
+				iv[i] = int32(x)
+			}
+			w.do(e.w.Append(iv))
+		} else {
+			w.do(e.w.Append(e.buf))
+		}
+		e.buf = e.buf[:0]
+	}
+	w.do(w.step.w.Append(w.step.ibuf))
+	w.do(w.time.w.Append(w.time.buf))
+	w.step.ibuf = w.step.ibuf[:0]
+	w.time.buf = w.time.buf[:0]
+}
+
+// WriteHop records one hop attempt; hops are written by Close.
+func (w *Writer) WriteHop(h Hop) error {
+	if w.err != nil {
+		return w.err
+	}
+	if !w.spec.Hops {
+		w.err = errors.New("trajfile: WriteHop without Spec.Hops")
+		return w.err
+	}
+	if h.From < 0 || h.To < 0 || h.From >= w.spec.NStates || h.To >= w.spec.NStates {
+		w.err = fmt.Errorf("hop at step %d: states %d -> %d outside 0..%d", h.Step, h.From, h.To, w.spec.NStates-1)
+		return w.err
+	}
+	w.hops = append(w.hops, h)
+	return nil
+}
+
+func (w *Writer) writeHops() {
+	const g = "/observables/electronic/hops"
+	nh := len(w.hops)
+	step := make([]int64, nh)
+	tm := make([]float64, nh)
+	from := make([]int32, nh)
+	to := make([]int32, nh)
+	kind := make([]int32, nh)
+	for i, h := range w.hops {
+		step[i], tm[i], from[i], to[i] = h.Step, h.Time, int32(h.From), int32(h.To)
+		if h.Frustrated {
+			kind[i] = 1
+		}
+	}
+	w.do(w.f.CreateGroup(g))
+	w.fixed(g+"/step", step, []int{nh}, "", h5.Int64)
+	w.fixed(g+"/time", tm, []int{nh}, w.spec.Units.Time, h5.Float64)
+	w.fixed(g+"/from_state", from, []int{nh}, "", h5.Int32)
+	w.fixed(g+"/to_state", to, []int{nh}, "", h5.Int32)
+	w.fixed(g+"/kind", kind, []int{nh}, "", h5.Int32)
+	w.do(w.f.SetStrings(g+"/kind", "kind_names", []string{"accepted", "frustrated"}))
+}
+
+// Frames is the number of frames written so far.
+func (w *Writer) Frames() int { return w.frames }
+
+// Close flushes, closes and moves the file into place. On any error the
+// partial file is removed and the target is left untouched.
+func (w *Writer) Close() error {
+	if w.closed {
+		return w.err
+	}
+	w.closed = true
+	if w.frames == 0 {
+		w.do(errors.New("trajfile: no frames written"))
+	}
+	if w.err == nil {
+		w.flush()
+		if w.spec.Hops {
+			w.writeHops()
+		}
+	}
+	for _, e := range append(w.elems, w.step, w.time) {
+		if e != nil && e.w != nil {
+			w.do(e.w.Close())
+		}
+	}
+	w.do(w.f.Close())
+	if w.err == nil {
+		// Link, not rename: link fails if the target appeared meanwhile.
+		if err := os.Link(w.tmp, w.final); err != nil {
+			w.do(fmt.Errorf("%s: cannot move output into place: %w", w.final, err))
+		}
+	}
+	os.Remove(w.tmp)
+	return w.err
+}
+
+// Abort discards the partial file.
+func (w *Writer) Abort() {
+	if w.closed {
+		return
+	}
+	w.closed = true
+	for _, e := range append(w.elems, w.step, w.time) {
+		if e != nil && e.w != nil {
+			e.w.Close()
+		}
+	}
+	w.f.Close()
+	os.Remove(w.tmp)
+}
+
+// finite reports whether every value is a finite number.
+func finite(v []float64) bool {
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
+}
+
+var _ = finite

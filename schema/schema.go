@@ -1,0 +1,147 @@
+// Package schema holds trajvault's documented layout: the machine-readable
+// element list (layout.json, described for people in layout.md), the JSON
+// Schema that checks it, and the JSON Schema of validate's findings.
+package schema
+
+import (
+	"bytes"
+	_ "embed"
+	"encoding/json"
+	"fmt"
+	"regexp"
+	"strings"
+
+	"github.com/santhosh-tekuri/jsonschema/v5"
+)
+
+//go:embed layout.json
+var layoutJSON []byte
+
+//go:embed layout.schema.json
+var layoutSchemaJSON []byte
+
+//go:embed findings.schema.json
+var findingsSchemaJSON []byte
+
+//go:embed layout.md
+var layoutMD []byte
+
+// Element is one documented object of the layout.
+type Element struct {
+	Path     string `json:"path"`  // "/a/b" or "/a/b@attr"; {group} stands for any particle group
+	Kind     string `json:"kind"`  // group, attribute, dataset, time-dependent
+	DType    string `json:"dtype"` // int, float, string
+	Shape    string `json:"shape"` // scalar or [X][Y]..., X a number or a symbol
+	Unit     string `json:"unit"`  // dimension name; "" = no unit
+	Required bool   `json:"required"`
+	Module   bool   `json:"module"` // part of the trajvault_electronic module
+	Doc      string `json:"doc"`
+}
+
+// Object and Attr split Path into object path and attribute name.
+func (e Element) Object() string {
+	if i := strings.IndexByte(e.Path, '@'); i >= 0 {
+		return e.Path[:i]
+	}
+	return e.Path
+}
+
+// Attr is the attribute name, or "" when the element is an object.
+func (e Element) Attr() string {
+	if i := strings.IndexByte(e.Path, '@'); i >= 0 {
+		return e.Path[i+1:]
+	}
+	return ""
+}
+
+var dimRE = regexp.MustCompile(`\[([0-9A-Z]+)\]`)
+
+// Dims returns the shape's dimensions as symbols or numbers; nil for a
+// scalar. For time-dependent elements the first is T.
+func (e Element) Dims() []string {
+	if e.Shape == "scalar" || e.Shape == "" {
+		return nil
+	}
+	var out []string
+	for _, m := range dimRE.FindAllStringSubmatch(e.Shape, -1) {
+		out = append(out, m[1])
+	}
+	return out
+}
+
+// Layout is the parsed layout.json.
+type Layout struct {
+	Name        string            `json:"name"`
+	Version     string            `json:"version"`
+	H5MDVersion []int             `json:"h5md_version"`
+	Module      Module            `json:"module"`
+	Symbols     map[string]string `json:"symbols"`
+	Elements    []Element         `json:"elements"`
+}
+
+// Module names trajvault's electronic-state module.
+type Module struct {
+	Name    string `json:"name"`
+	Version []int  `json:"version"`
+}
+
+// Find returns the element with the given templated path.
+func (l *Layout) Find(path string) (Element, bool) {
+	for _, e := range l.Elements {
+		if e.Path == path {
+			return e, true
+		}
+	}
+	return Element{}, false
+}
+
+var current *Layout
+
+func init() {
+	l, err := parseLayout(layoutJSON)
+	if err != nil {
+		panic("schema: embedded layout.json: " + err.Error())
+	}
+	current = l
+}
+
+// Current is the layout this build checks against.
+func Current() *Layout { return current }
+
+func compile(name string, src []byte) (*jsonschema.Schema, error) {
+	c := jsonschema.NewCompiler()
+	c.Draft = jsonschema.Draft2020
+	if err := c.AddResource(name, bytes.NewReader(src)); err != nil {
+		return nil, err
+	}
+	return c.Compile(name)
+}
+
+func parseLayout(src []byte) (*Layout, error) {
+	sch, err := compile("layout.schema.json", layoutSchemaJSON)
+	if err != nil {
+		return nil, err
+	}
+	var doc any
+	if err := json.Unmarshal(src, &doc); err != nil {
+		return nil, err
+	}
+	if err := sch.Validate(doc); err != nil {
+		return nil, fmt.Errorf("does not match layout.schema.json: %w", err)
+	}
+	var l Layout
+	dec := json.NewDecoder(bytes.NewReader(src))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&l); err != nil {
+		return nil, err
+	}
+	return &l, nil
+}
+
+// FindingsSchema compiles the JSON Schema of `validate --json` output.
+func FindingsSchema() (*jsonschema.Schema, error) {
+	return compile("findings.schema.json", findingsSchemaJSON)
+}
+
+// LayoutMarkdown is layout.md, the human-readable spec.
+func LayoutMarkdown() []byte { return layoutMD }

@@ -1,0 +1,102 @@
+package schema
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/json"
+	"strings"
+	"testing"
+
+	"trajvault/internal/units"
+)
+
+// TestLayoutMatchesMarkdown checks that layout.md's element table and
+// layout.json list the same elements with the same attributes.
+func TestLayoutMatchesMarkdown(t *testing.T) {
+	rows := map[string][]string{}
+	inTable := false
+	sc := bufio.NewScanner(bytes.NewReader(layoutMD))
+	for sc.Scan() {
+		line := sc.Text()
+		if strings.HasPrefix(line, "| Path | Kind |") {
+			inTable = true
+			continue
+		}
+		if inTable && !strings.HasPrefix(line, "|") {
+			break
+		}
+		if !inTable || strings.HasPrefix(line, "|---") {
+			continue
+		}
+		line = strings.ReplaceAll(line, `\|`, "\x00")
+		cells := strings.Split(strings.Trim(line, "|"), "|")
+		for i := range cells {
+			cells[i] = strings.ReplaceAll(strings.TrimSpace(cells[i]), "\x00", "|")
+		}
+		rows[strings.Trim(cells[0], "`")] = cells
+	}
+	if len(rows) == 0 {
+		t.Fatal("no element table found in layout.md")
+	}
+	dash := func(s string) string {
+		if s == "" {
+			return "-"
+		}
+		return s
+	}
+	yes := map[bool]string{true: "yes", false: "no"}
+	for _, e := range current.Elements {
+		r, ok := rows[e.Path]
+		if !ok {
+			t.Errorf("%s: in layout.json, missing from layout.md", e.Path)
+			continue
+		}
+		delete(rows, e.Path)
+		want := []string{"`" + e.Path + "`", e.Kind, dash(e.DType), dash(e.Shape), dash(e.Unit), yes[e.Required], e.Doc}
+		for i := 1; i < len(want); i++ {
+			if r[i] != want[i] {
+				t.Errorf("%s column %d: layout.md %q, layout.json %q", e.Path, i+1, r[i], want[i])
+			}
+		}
+	}
+	for p := range rows {
+		t.Errorf("%s: in layout.md, missing from layout.json", p)
+	}
+}
+
+// TestLayoutSchemaRejects checks that the JSON Schema can fail.
+func TestLayoutSchemaRejects(t *testing.T) {
+	var doc map[string]any
+	json.Unmarshal(layoutJSON, &doc)
+	doc["elements"].([]any)[0].(map[string]any)["kind"] = "table"
+	bad, _ := json.Marshal(doc)
+	if _, err := parseLayout(bad); err == nil {
+		t.Error("layout with an unknown kind passed the schema")
+	}
+	doc["elements"].([]any)[0].(map[string]any)["kind"] = "dataset"
+	bad, _ = json.Marshal(doc)
+	if _, err := parseLayout(bad); err == nil {
+		t.Error("dataset element without dtype/shape passed the schema")
+	}
+}
+
+func TestModule(t *testing.T) {
+	l := Current()
+	if l.Module.Name != "trajvault_electronic" || len(l.Module.Version) != 2 {
+		t.Errorf("module = %+v", l.Module)
+	}
+	if _, err := FindingsSchema(); err != nil {
+		t.Error(err)
+	}
+}
+
+// TestSymbolsDocumented checks that every unit symbol the parser knows is
+// named in layout.md, so the documented table is the real one.
+func TestSymbolsDocumented(t *testing.T) {
+	md := string(layoutMD)
+	for _, s := range units.Symbols {
+		if !strings.Contains(md, "`"+s.Name+"`") && !strings.Contains(md, " "+s.Name+" ") {
+			t.Errorf("unit symbol %q is not documented in layout.md", s.Name)
+		}
+	}
+}
