@@ -1,0 +1,228 @@
+package validate
+
+import (
+	"math"
+
+	"trajvault/internal/h5"
+)
+
+const elGroup = "/observables/electronic"
+
+// electronic checks the trajvault_electronic module (E1-E10).
+func (c *checker) electronic() {
+	if c.f.Kind(elGroup) != h5.Group {
+		return
+	}
+	mod := "/h5md/modules/" + c.layout.Module.Name
+	if c.f.Kind(mod) != h5.Group {
+		c.errorf("E1", mod, "electronic-state data under %s but the module is not declared; add group %s with version=(%d, %d)", elGroup, mod, c.layout.Module.Version[0], c.layout.Module.Version[1])
+	}
+	if c.nStates == 0 && c.f.Kind("/parameters/n_states") == h5.Missing {
+		c.errorf("E2", "/parameters/n_states", "missing; with electronic data, store the number of states as an integer scalar dataset")
+	}
+	b := bindings{}
+	if c.nStates > 0 {
+		b["S"] = c.nStates
+	}
+	elems := map[string]*tdElement{}
+	for _, name := range []string{"state_energies", "active_state", "populations", "amplitudes", "couplings"} {
+		p := elGroup + "/" + name
+		if !c.isElement(p) {
+			if c.f.Kind(p) != h5.Missing {
+				c.errorf("V6", p, "must be a time-dependent element (group with step, time, value)")
+			}
+			continue
+		}
+		e := c.element(p)
+		if e == nil {
+			continue
+		}
+		c.typed(e, p, b)
+		elems[name] = e
+	}
+	S := b["S"]
+	if e := elems["active_state"]; e != nil && S > 0 {
+		c.activeRange(e, S)
+	}
+	if e := elems["populations"]; e != nil {
+		c.populations(e, e.valuePath(), false)
+	}
+	if e := elems["amplitudes"]; e != nil {
+		c.populations(e, e.valuePath(), true)
+	}
+	if e := elems["couplings"]; e != nil {
+		c.antisymmetric(e)
+	}
+	if c.f.Kind(elGroup+"/hops") == h5.Group {
+		c.hops(S, elems["active_state"], b)
+	}
+}
+
+func (c *checker) activeRange(e *tdElement, S int) {
+	v, _, err := c.f.ReadInt64(e.valuePath())
+	if err != nil {
+		return
+	}
+	for i, s := range v {
+		if s < 0 || s >= int64(S) {
+			c.errorf("E4", e.valuePath(), "frame %d: active state %d is outside 0..%d", i, s, S-1)
+			return
+		}
+	}
+}
+
+// populations checks E5 (each in [0,1]) and E6 (rows sum to 1) for
+// populations, or for |c_k|^2 when amp is true.
+func (c *checker) populations(e *tdElement, path string, amp bool) {
+	const tol, sumTol = 1e-9, 1e-4
+	outFrame, sumFrame := -1, -1
+	var outVal, sumVal float64
+	err := c.scan(path, e.value, func(block []float64, row0, rowLen int) {
+		for r := 0; r*rowLen < len(block); r++ {
+			row := block[r*rowLen : (r+1)*rowLen]
+			sum := 0.0
+			for k := 0; k < len(row); k++ {
+				p := row[k]
+				if amp {
+					if k%2 == 1 {
+						continue
+					}
+					p = row[k]*row[k] + row[k+1]*row[k+1]
+				}
+				sum += p
+				if (p < -tol || p > 1+tol) && outFrame < 0 {
+					outFrame, outVal = row0+r, p
+				}
+			}
+			if math.Abs(sum-1) > sumTol && sumFrame < 0 {
+				sumFrame, sumVal = row0+r, sum
+			}
+		}
+	})
+	if err != nil {
+		return
+	}
+	what := "population"
+	if amp {
+		what = "|c_k|^2"
+	}
+	if outFrame >= 0 {
+		c.errorf("E5", path, "frame %d: %s %g outside [0, 1]; the electronic propagation failed or the column is not a population", outFrame, what, outVal)
+	}
+	if sumFrame >= 0 {
+		c.warnf("E6", path, "frame %d: %ss sum to %.8g, not 1 (tolerance 1e-4): the propagator lost norm; check the electronic time step", sumFrame, what, sumVal)
+	}
+}
+
+// antisymmetric checks E9 on couplings[t][j][k].
+func (c *checker) antisymmetric(e *tdElement) {
+	if e.value.Shape.Rank != 3 || e.value.Shape.Dims[1] != e.value.Shape.Dims[2] {
+		return
+	}
+	S := e.value.Shape.Dims[1]
+	bad := -1
+	c.scan(e.valuePath(), e.value, func(block []float64, row0, rowLen int) {
+		for r := 0; r*rowLen < len(block) && bad < 0; r++ {
+			m := block[r*rowLen : (r+1)*rowLen]
+			scale := absMax(m)
+			for j := 0; j < S; j++ {
+				for k := j; k < S; k++ {
+					if math.Abs(m[j*S+k]+m[k*S+j]) > 1e-6*scale {
+						bad = row0 + r
+					}
+				}
+			}
+		}
+	})
+	if bad >= 0 {
+		c.warnf("E9", e.valuePath(), "frame %d: couplings are not antisymmetric (d_jk != -d_kj); store <j|d/dt k> for every pair, or check the phase tracking of the wavefunctions", bad)
+	}
+}
+
+// hops checks the hop table (E7, E8, E10).
+func (c *checker) hops(S int, active *tdElement, b bindings) {
+	g := elGroup + "/hops"
+	cols := map[string][]int64{}
+	for _, name := range []string{"step", "from_state", "to_state", "kind"} {
+		p := g + "/" + name
+		if c.f.Kind(p) != h5.Dataset {
+			c.errorf("E7", p, "missing; the hops table needs step, time, from_state, to_state and kind")
+			return
+		}
+		info, _ := c.f.Info(p)
+		if el, ok := c.layout.Find(p); ok {
+			c.shape(p, el, info, b, false)
+		}
+		v, _, err := c.f.ReadInt64(p)
+		if err != nil {
+			return
+		}
+		cols[name] = v
+	}
+	if c.f.Kind(g+"/time") == h5.Dataset {
+		info, _ := c.f.Info(g + "/time")
+		if el, ok := c.layout.Find(g + "/time"); ok {
+			c.shape(g+"/time", el, info, b, false)
+		}
+		c.unitDim(g+"/time", "time")
+	}
+	n := len(cols["step"])
+	for _, name := range []string{"from_state", "to_state", "kind"} {
+		if len(cols[name]) != n {
+			c.errorf("E7", g+"/"+name, "%d rows but step has %d; every hop column needs one row per attempt", len(cols[name]), n)
+			return
+		}
+	}
+	for i := 0; i < n; i++ {
+		from, to, kind := cols["from_state"][i], cols["to_state"][i], cols["kind"][i]
+		switch {
+		case kind != 0 && kind != 1:
+			c.errorf("E7", g+"/kind", "row %d: kind %d; use 0 (accepted) or 1 (frustrated)", i, kind)
+		case S > 0 && (from < 0 || from >= int64(S) || to < 0 || to >= int64(S)):
+			c.errorf("E7", g, "row %d: hop %d -> %d outside states 0..%d", i, from, to, S-1)
+		case from == to:
+			c.errorf("E7", g, "row %d: hop from state %d to itself", i, from)
+		}
+		if i > 0 && cols["step"][i] < cols["step"][i-1] {
+			c.errorf("E8", g+"/step", "row %d: step %d before step %d; hops must be in time order", i, cols["step"][i], cols["step"][i-1])
+		}
+	}
+	if active == nil || active.fixed || len(active.steps) == 0 {
+		return
+	}
+	steps := active.steps
+	for i, s := range cols["step"] {
+		if s < steps[0] || s > steps[len(steps)-1] {
+			c.errorf("E8", g+"/step", "row %d: hop at step %d outside the run (steps %d..%d)", i, s, steps[0], steps[len(steps)-1])
+			break
+		}
+	}
+	c.hopsMatchActive(cols, active)
+}
+
+// hopsMatchActive checks E10: each change of the active state between two
+// stored frames is explained by an accepted hop in that step interval that
+// ends in the new state.
+func (c *checker) hopsMatchActive(cols map[string][]int64, active *tdElement) {
+	st, _, err := c.f.ReadInt64(active.valuePath())
+	if err != nil || len(st) != len(active.steps) {
+		return
+	}
+	j := 0
+	for i := 1; i < len(st); i++ {
+		if st[i] == st[i-1] {
+			continue
+		}
+		lo, hi := active.steps[i-1], active.steps[i]
+		found := false
+		for ; j < len(cols["step"]) && cols["step"][j] <= hi; j++ {
+			if cols["step"][j] > lo && cols["kind"][j] == 0 && cols["to_state"][j] == st[i] {
+				found = true
+			}
+		}
+		if !found {
+			c.warnf("E10", active.valuePath(), "active state changes %d -> %d between steps %d and %d with no accepted hop logged there; the hops table is incomplete", st[i-1], st[i], lo, hi)
+			return
+		}
+	}
+}
