@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sort"
 
 	"trajvault/internal/h5"
 	"trajvault/internal/units"
@@ -159,19 +160,35 @@ func (c *checker) monotone(path string, n int, at func(int) float64) {
 }
 
 // clock checks V25: time = time[0] + (step - step[0]) dt with one dt.
-// The tolerance, 1 % of dt, accepts times printed with few digits but
-// catches a clock that jumps (a restart with reset time, a changed dt).
+// dt is the median over frame intervals; an interval whose own dt differs
+// from it by more than 1 % (times printed with few digits pass, a reset or
+// changed clock does not) is reported, with where it happens.
 func (c *checker) clock(e *tdElement) {
 	n := len(e.steps)
-	if n < 3 || e.steps[n-1] == e.steps[0] {
+	if n < 3 {
 		return
 	}
-	dt := (e.times[n-1] - e.times[0]) / float64(e.steps[n-1]-e.steps[0])
-	tol := 0.01*math.Abs(dt) + 1e-12*math.Abs(e.times[n-1])
-	for i := 1; i < n-1; i++ {
-		want := e.times[0] + float64(e.steps[i]-e.steps[0])*dt
-		if math.Abs(e.times[i]-want) > tol {
-			c.warnf("V25", e.path+"/time", "time %g at step %d, but the run's average time step (%g per step) predicts %g: the time step changed or the clock was reset; check the log", e.times[i], e.steps[i], dt, want)
+	var rates []float64
+	for i := 1; i < n; i++ {
+		if ds := e.steps[i] - e.steps[i-1]; ds > 0 {
+			rates = append(rates, (e.times[i]-e.times[i-1])/float64(ds))
+		}
+	}
+	if len(rates) == 0 {
+		return
+	}
+	sorted := append([]float64(nil), rates...)
+	sort.Float64s(sorted)
+	dt := sorted[len(sorted)/2]
+	for i := 1; i < n; i++ {
+		ds := e.steps[i] - e.steps[i-1]
+		if ds <= 0 {
+			continue
+		}
+		got := e.times[i] - e.times[i-1]
+		want := float64(ds) * dt
+		if math.Abs(got-want) > 0.01*math.Abs(want)+1e-12*math.Abs(e.times[i]) {
+			c.warnf("V25", e.path+"/time", "between steps %d and %d time advances by %g, but the run's time step (%g per step) gives %g: the time step changed or the clock was reset; check the log", e.steps[i-1], e.steps[i], got, dt, want)
 			return
 		}
 	}
