@@ -34,7 +34,6 @@ func WriteH5(path string, o Options) error {
 	m := Tarnol()
 	var (
 		toAng  = mustFactor("bohr", "angstrom")
-		toFs   = mustFactor("au_time", "fs")
 		toVel  = mustFactor("bohr au_time-1", "angstrom fs-1")
 		toU    = mustFactor("me", "u")
 		toInvF = mustFactor("au_time-1", "fs-1")
@@ -63,7 +62,7 @@ func WriteH5(path string, o Options) error {
 			return
 		}
 		fr := trajfile.Frame{
-			Step: s.N, Time: s.Time * toFs,
+			Step: s.N, Time: float64(s.N) * o.DtFs, // as a log prints it: step times dt
 			Position: scale(s.X, toAng), Velocity: scale(s.V, toVel), Force: append([]float64(nil), s.F...),
 			Kinetic: s.Kinetic, Potential: s.Energies[s.Active], Total: s.Kinetic + s.Energies[s.Active],
 			StateEnergies: s.Energies[:], ActiveState: s.Active,

@@ -1,0 +1,75 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/internal/demo"
+)
+
+type demoOptions struct {
+	trajectories int
+	steps        int
+	seed         uint64
+}
+
+func (o *demoOptions) AddFlags(c *cobra.Command) {
+	c.Flags().IntVar(&o.trajectories, "trajectories", 4, "number of trajectories in the invented ensemble")
+	c.Flags().IntVar(&o.steps, "steps", demo.DefaultOptions.Steps, "integration steps per trajectory")
+	c.Flags().Uint64Var(&o.seed, "seed", 1, "seed of the first trajectory (the others follow)")
+}
+
+func newDemoCommand(g *globals) *cobra.Command {
+	var o demoOptions
+	c := &cobra.Command{
+		Use:   "demo DIR",
+		Short: "Write the invented demo ensemble (a model two-state triatomic) into DIR",
+		Long: `demo runs fewest-switches surface hopping on an invented two-state model
+molecule ("tarnol", the fictional Tarn Valley group's scenario) and writes
+one trajectory file per run into DIR, which must not exist yet. The data
+are for trying trajvault out; they describe no real molecule.
+
+Exit status: 0 success, 2 usage or I/O error.`,
+		Example: "  trajvault demo demo-data",
+		Args:    cobra.ExactArgs(1),
+		PreRunE: func(c *cobra.Command, args []string) error {
+			if o.trajectories < 1 || o.steps < 1 {
+				return &exitError{exitUsage, errors.New("demo: --trajectories and --steps must be positive, e.g. --trajectories 4 --steps 2000")}
+			}
+			return nil
+		},
+		RunE: func(c *cobra.Command, args []string) error { return runDemo(g, o, args[0]) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+func runDemo(g *globals, o demoOptions, dir string) error {
+	if _, err := os.Stat(dir); err == nil {
+		return &exitError{exitUsage, fmt.Errorf("demo: %s already exists; choose a new directory (trajvault never overwrites outputs)", dir)}
+	}
+	tmp := dir + ".partial"
+	os.RemoveAll(tmp)
+	if err := os.MkdirAll(tmp, 0o755); err != nil {
+		return &exitError{exitUsage, err}
+	}
+	for i := 0; i < o.trajectories; i++ {
+		opt := demo.DefaultOptions
+		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
+		path := filepath.Join(tmp, fmt.Sprintf("traj-%03d.h5", i+1))
+		if err := demo.WriteH5(path, opt); err != nil {
+			os.RemoveAll(tmp)
+			return &exitError{exitUsage, fmt.Errorf("demo: %w", err)}
+		}
+	}
+	if err := os.Rename(tmp, dir); err != nil {
+		os.RemoveAll(tmp)
+		return &exitError{exitUsage, err}
+	}
+	fmt.Fprintf(g.stdout, "wrote %d invented demo trajectories to %s\n", o.trajectories, dir)
+	return nil
+}

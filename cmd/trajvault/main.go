@@ -1,0 +1,115 @@
+// Command trajvault turns folders of molecular-dynamics text logs into
+// repository-ready deposits and checks deposits: see README.md.
+//
+// Exit status, for every command: 0 success, 1 findings (a check failed),
+// 2 usage or I/O error.
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"runtime/debug"
+
+	"github.com/spf13/cobra"
+)
+
+// Exit codes: the contract with scripts.
+const (
+	exitOK       = 0
+	exitFindings = 1
+	exitUsage    = 2
+)
+
+// version is set at build time (-ldflags "-X main.version=v1.2.3"); a
+// development build reports the VCS revision when Go recorded it.
+var version = "dev"
+
+func toolVersion() string {
+	if version != "dev" {
+		return version
+	}
+	if bi, ok := debug.ReadBuildInfo(); ok {
+		for _, s := range bi.Settings {
+			if s.Key == "vcs.revision" && len(s.Value) >= 12 {
+				return "dev+" + s.Value[:12]
+			}
+		}
+	}
+	return version
+}
+
+// globals are shared by every command.
+type globals struct {
+	stdout, stderr io.Writer
+	stderrTTY      bool
+}
+
+// exitError carries an exit status out of a command; findingsError is
+// exit 1, anything else 2.
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e *exitError) Error() string { return e.err.Error() }
+
+// errFindings reports that checks ran and found errors; the command has
+// already printed them.
+var errFindings = errors.New("findings")
+
+func newRootCommand(g *globals) *cobra.Command {
+	root := &cobra.Command{
+		Use:   "trajvault",
+		Short: "Package and check molecular-dynamics trajectories as open data",
+		Long: `trajvault reads legacy molecular-dynamics text logs, writes them as
+compressed H5MD files with units and provenance, and checks deposits:
+layout, units and metadata (validate) and the physics of each run.
+
+Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
+		SilenceUsage:  true,
+		SilenceErrors: true,
+		Version:       toolVersion(),
+	}
+	root.SetOut(g.stdout)
+	root.SetErr(g.stderr)
+	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
+		return &exitError{exitUsage, fmt.Errorf("%w (see %s --help)", err, c.CommandPath())}
+	})
+	root.AddCommand(
+		newValidateCommand(g),
+		newInspectCommand(g),
+		newDemoCommand(g),
+	)
+	return root
+}
+
+// run executes the command line and returns the exit status.
+func run(args []string, g *globals) int {
+	root := newRootCommand(g)
+	root.SetArgs(args)
+	err := root.Execute()
+	switch {
+	case err == nil:
+		return exitOK
+	case errors.Is(err, errFindings):
+		return exitFindings
+	}
+	fmt.Fprintf(g.stderr, "trajvault: %v\n", err)
+	var ee *exitError
+	if errors.As(err, &ee) {
+		return ee.code
+	}
+	return exitUsage
+}
+
+func isTerminal(f *os.File) bool {
+	st, err := f.Stat()
+	return err == nil && st.Mode()&os.ModeCharDevice != 0
+}
+
+func main() {
+	g := &globals{stdout: os.Stdout, stderr: os.Stderr, stderrTTY: isTerminal(os.Stderr)}
+	os.Exit(run(os.Args[1:], g))
+}
