@@ -270,9 +270,11 @@ func (c *checker) dataset(path string) {
 		c.errorf("V27", path, "cannot read the dataset description: %v", err)
 		return
 	}
+	foreign := ""
 	for _, fl := range info.Filters {
 		if !fl.Stock() {
-			c.warnf("V28", path, "filter %d (%s) is not built into every HDF5 library; readers need a plugin; repack with deflate, shuffle or scale-offset", fl.ID, fl.Name)
+			foreign = fmt.Sprintf("filter %d (%s)", fl.ID, fl.Name)
+			c.warnf("V28", path, "%s is not built into every HDF5 library; readers need a plugin; repack with deflate, shuffle or scale-offset", foreign)
 		}
 	}
 	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 {
@@ -289,6 +291,10 @@ func (c *checker) dataset(path string) {
 			}
 		}
 	})
+	if err != nil && foreign != "" {
+		c.errorf("V28", path, "cannot decode the data: %s is not available to this HDF5 library; repack the dataset with stock filters", foreign)
+		return
+	}
 	if err != nil {
 		c.errorf("V26", path, "cannot read the data (damaged or truncated file?): %v", err)
 		return

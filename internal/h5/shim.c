@@ -290,21 +290,26 @@ int tv_attr_write(hid_t loc, const char *path, const char *name, int filecode, i
 	return rc;
 }
 
-// string_type builds a UTF-8 string type: variable length, or fixed length
-// sized to the longest of the n packed strings (NUL-terminated).
+// string_type builds a string type: variable length, or fixed length
+// sized to the longest of the n packed strings (NUL-terminated). The
+// character set is ASCII when every byte is ASCII (the H5MD units module
+// asks for ASCII), UTF-8 otherwise.
 static hid_t string_type(const char *packed, int n, int vlen, const char ***ptrs, char **fixed) {
 	hid_t t = H5Tcopy(H5T_C_S1);
 	if (t < 0) return -1;
-	H5Tset_cset(t, H5T_CSET_UTF8);
 	const char **p = calloc((size_t)n + 1, sizeof(char *));
 	size_t maxl = 0;
+	int ascii = 1;
 	const char *q = packed;
 	for (int i = 0; i < n; i++) {
 		p[i] = q;
 		size_t l = strlen(q);
 		if (l > maxl) maxl = l;
+		for (size_t k = 0; k < l; k++)
+			if ((unsigned char)q[k] > 127) ascii = 0;
 		q += l + 1;
 	}
+	H5Tset_cset(t, ascii ? H5T_CSET_ASCII : H5T_CSET_UTF8);
 	if (vlen) {
 		H5Tset_size(t, H5T_VARIABLE);
 		*ptrs = p;

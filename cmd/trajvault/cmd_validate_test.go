@@ -1,0 +1,128 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"trajvault/internal/demo"
+	"trajvault/internal/h5"
+	"trajvault/schema"
+)
+
+func runCLI(args ...string) (int, string, string) {
+	var out, errb bytes.Buffer
+	code := run(args, &globals{stdout: &out, stderr: &errb})
+	return code, out.String(), errb.String()
+}
+
+func demoFile(t *testing.T) string {
+	t.Helper()
+	p := filepath.Join(t.TempDir(), "run.h5")
+	o := demo.DefaultOptions
+	o.Steps = 50
+	if err := demo.WriteH5(p, o); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+func TestValidateExitCodes(t *testing.T) {
+	good := demoFile(t)
+	dir := t.TempDir()
+	raw, _ := os.ReadFile(good)
+	write := func(name string, b []byte) string {
+		p := filepath.Join(dir, name)
+		os.WriteFile(p, b, 0o644)
+		return p
+	}
+	bad := write("bad.h5", raw)
+	f, err := h5.OpenRW(bad)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.DeleteAttr("/particles/all/position/value", "unit")
+	f.Close()
+
+	cases := []struct {
+		name    string
+		args    []string
+		code    int
+		stdout  string // substring
+		stderr  string // substring; must be one line when set
+		oneLine bool
+	}{
+		{"clean", []string{"validate", good}, 0, "ok, 0 errors, 0 warnings", "", false},
+		{"findings", []string{"validate", bad}, 1, "error   V20", "", false},
+		{"empty", []string{"validate", write("empty.h5", nil)}, 2, "", "file is empty", true},
+		{"not hdf5", []string{"validate", write("x.xyz", []byte("1\n\nH 0 0 0\n"))}, 2, "", "not an HDF5 file", true},
+		{"truncated", []string{"validate", write("cut.h5", raw[:len(raw)/2])}, 2, "", "truncated or damaged", true},
+		{"missing", []string{"validate", filepath.Join(dir, "nope.h5")}, 2, "", "no such file", true},
+		{"no args", []string{"validate"}, 2, "", "name at least one file", true},
+		{"bad flag", []string{"validate", "--jsn", good}, 2, "", "unknown flag", true},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			code, out, errs := runCLI(c.args...)
+			if code != c.code {
+				t.Errorf("exit %d, want %d; stdout %q stderr %q", code, c.code, out, errs)
+			}
+			if !strings.Contains(out, c.stdout) {
+				t.Errorf("stdout %q lacks %q", out, c.stdout)
+			}
+			if !strings.Contains(errs, c.stderr) {
+				t.Errorf("stderr %q lacks %q", errs, c.stderr)
+			}
+			if c.oneLine && strings.Count(strings.TrimRight(errs, "\n"), "\n") > 1 {
+				t.Errorf("stderr is not a short message: %q", errs)
+			}
+		})
+	}
+}
+
+func TestValidateJSONMatchesSchema(t *testing.T) {
+	good := demoFile(t)
+	code, out, _ := runCLI("validate", "--json", good)
+	if code != 0 {
+		t.Fatalf("exit %d", code)
+	}
+	sch, err := schema.FindingsSchema()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc any
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	if err := sch.Validate(doc); err != nil {
+		t.Error(err)
+	}
+}
+
+func TestInspect(t *testing.T) {
+	code, out, errs := runCLI("inspect", demoFile(t))
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	for _, want := range []string{"3 atoms (H2O)", "51 frames", "0..6.25 fs, 0.125 fs per step", "2 electronic states", "/particles/all/position/value", "angstrom", "shuffle+deflate+fletcher32"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("inspect output lacks %q:\n%s", want, out)
+		}
+	}
+	code, out, _ = runCLI("inspect", "--json", demoFile(t))
+	var s map[string]any
+	if code != 0 || json.Unmarshal([]byte(out), &s) != nil {
+		t.Errorf("inspect --json: exit %d, %q", code, out)
+	}
+}
+
+func TestDemoRefusesExistingDir(t *testing.T) {
+	dir := t.TempDir()
+	code, _, errs := runCLI("demo", dir)
+	if code != 2 || !strings.Contains(errs, "already exists") {
+		t.Errorf("exit %d, %q", code, errs)
+	}
+}
