@@ -1,6 +1,6 @@
 module trajvault
 
-go 1.26.8
+go 1.22
 
 require (
 	github.com/santhosh-tekuri/jsonschema/v5 v5.3.1

@@ -209,7 +209,7 @@ func (c *checker) unitDim(path, dimName string) {
 		if want == units.Dimensionless {
 			return
 		}
-		c.errorf("V20", path, "no unit attribute on a %s; add one, e.g. unit=%q", dimName, example[dimName])
+		c.errorf("V20", path, "no unit attribute (expected a unit of %s); add one, e.g. unit=%q", dimName, example[dimName])
 		return
 	}
 	a, err := c.f.Attr(path, "unit")

@@ -70,7 +70,7 @@ func runValidate(g *globals, o validateOptions, files []string) error {
 		printReport(g, rep)
 	}
 	if unread > 0 {
-		return &exitError{exitUsage, fmt.Errorf("validate: %d of %d files could not be read", unread, len(files))}
+		return errReported
 	}
 	if failed {
 		return errFindings

@@ -59,6 +59,10 @@ func (e *exitError) Error() string { return e.err.Error() }
 // already printed them.
 var errFindings = errors.New("findings")
 
+// errReported is a usage or I/O failure whose message the command has
+// already printed (one line per file); run only sets exit status 2.
+var errReported = errors.New("reported")
+
 func newRootCommand(g *globals) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "trajvault",
@@ -95,6 +99,8 @@ func run(args []string, g *globals) int {
 		return exitOK
 	case errors.Is(err, errFindings):
 		return exitFindings
+	case errors.Is(err, errReported):
+		return exitUsage
 	}
 	fmt.Fprintf(g.stderr, "trajvault: %v\n", err)
 	var ee *exitError

@@ -119,22 +119,22 @@ func Summarize(path string) (*Summary, error) {
 			}
 		}
 	}
-	seen := map[h5.ObjectID]bool{}
+	// An object reached through several hard links is listed once; shared
+	// step/time datasets under position's name, where they belong.
+	seen := map[h5.ObjectID]int{}
 	var walk func(string)
 	walk = func(p string) {
 		id, _ := f.ObjectID(p)
-		if seen[id] {
+		if i, ok := seen[id]; ok {
+			if i >= 0 && strings.Contains(p, "/position/") {
+				s.Datasets[i].Path = p
+			}
 			return
 		}
-		seen[id] = true
+		seen[id] = -1
 		switch f.Kind(p) {
 		case h5.Group:
 			links, _ := f.Links(p)
-			if p == "/" {
-				// Particles first, so shared step/time datasets are listed
-				// under position, where they belong.
-				sort.SliceStable(links, func(i, j int) bool { return links[i] == "particles" && links[j] != "particles" })
-			}
 			for _, l := range links {
 				walk(strings.TrimSuffix(p, "/") + "/" + l)
 			}
@@ -160,6 +160,7 @@ func Summarize(path string) (*Summary, error) {
 			}
 			s.Logical += d.Logical
 			s.Stored += d.Stored
+			seen[id] = len(s.Datasets)
 			s.Datasets = append(s.Datasets, d)
 		}
 	}

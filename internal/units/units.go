@@ -12,7 +12,7 @@
 // of non-SI units of this field (see Symbols). "A" is the ampere, as in SI;
 // the angstrom is written "angstrom" (or "0.1 nm" in pure SI).
 //
-// Constants are CODATA 2018 (E. Tiesinga et al., Rev. Mod. Phys. 93,
+// Constants are CODATA 2018 (Rev. Mod. Phys. 93,
 // 025010 (2021), doi:10.1103/RevModPhys.93.025010; physics.nist.gov/cuu)
 // and the exact defining constants of the 2019 SI.
 package units
