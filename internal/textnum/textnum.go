@@ -1,0 +1,220 @@
+// Package textnum parses numbers as legacy logs print them and remembers
+// how they were printed, so that they can be stored at exactly the
+// printed precision and printed again digit for digit.
+//
+// Accepted forms (common practice in Fortran and C output): optional sign,
+// digits with an optional decimal point, an optional exponent introduced by
+// E, e, D or d ("1.0D-03"), or by a bare sign after the mantissa when the
+// exponent needs three digits and Fortran drops the letter ("1.0-100").
+package textnum
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"strconv"
+	"strings"
+)
+
+// Format is how a number was printed.
+type Format struct {
+	// Exp is true for exponent notation; then Sig counts significant
+	// digits of the mantissa, else Decimals counts digits after the point.
+	Exp      bool
+	Decimals int
+	Sig      int
+	// ExpChar is the exponent letter as printed ('E', 'e', 'D', 'd'), or
+	// 0 when the letter was dropped.
+	ExpChar byte
+}
+
+// ErrSyntax is returned for a field that is not a number.
+var ErrSyntax = errors.New("not a number")
+
+// Parse parses one field. The value is the float64 nearest to the decimal
+// number written (strconv.ParseFloat after normalising the exponent).
+func Parse(s string) (float64, Format, error) {
+	var f Format
+	if s == "" {
+		return 0, f, ErrSyntax
+	}
+	i := 0
+	if s[0] == '+' || s[0] == '-' {
+		i++
+	}
+	digits, lead, dot, dec := 0, true, false, 0
+	sig := 0
+	start := i
+	for ; i < len(s); i++ {
+		c := s[i]
+		switch {
+		case c >= '0' && c <= '9':
+			digits++
+			if c != '0' {
+				lead = false
+			}
+			if !lead {
+				sig++
+			}
+			if dot {
+				dec++
+			}
+		case c == '.' && !dot:
+			dot = true
+		default:
+			goto mantissaDone
+		}
+	}
+mantissaDone:
+	if digits == 0 {
+		return 0, f, ErrSyntax
+	}
+	mant := s[:i]
+	exp := ""
+	if i < len(s) {
+		c := s[i]
+		switch {
+		case c == 'E' || c == 'e' || c == 'D' || c == 'd':
+			f.ExpChar = c
+			exp = s[i+1:]
+		case (c == '+' || c == '-') && i > start:
+			exp = s[i:] // Fortran drops the letter for 3-digit exponents
+		default:
+			return 0, f, ErrSyntax
+		}
+		if !validExp(exp) {
+			return 0, f, ErrSyntax
+		}
+		f.Exp = true
+		if sig == 0 {
+			sig = 1
+		}
+		f.Sig = sig
+		f.Decimals = dec
+	} else {
+		f.Decimals = dec
+	}
+	norm := mant
+	if f.Exp {
+		norm = mant + "e" + exp
+	}
+	v, err := strconv.ParseFloat(norm, 64)
+	if err != nil {
+		var ne *strconv.NumError
+		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
+			return v, f, fmt.Errorf("%w: %s is out of the float64 range", ErrSyntax, s)
+		}
+		return 0, f, ErrSyntax
+	}
+	return v, f, nil
+}
+
+func validExp(e string) bool {
+	if e != "" && (e[0] == '+' || e[0] == '-') {
+		e = e[1:]
+	}
+	if e == "" {
+		return false
+	}
+	for i := 0; i < len(e); i++ {
+		if e[i] < '0' || e[i] > '9' {
+			return false
+		}
+	}
+	return true
+}
+
+// Merge widens f to cover g: a column's format is the widest of its
+// values, so that every value is reproduced.
+func (f Format) Merge(g Format) Format {
+	if g.Exp && !f.Exp {
+		f.Exp, f.ExpChar = true, g.ExpChar
+	}
+	f.Decimals = max(f.Decimals, g.Decimals)
+	f.Sig = max(f.Sig, g.Sig)
+	if f.ExpChar == 0 {
+		f.ExpChar = g.ExpChar
+	}
+	return f
+}
+
+// String is the form stored in files: "fixed:6" or "exp:10:E"; "exp:N:F"
+// marks Fortran's dropped exponent letter (E for two-digit exponents,
+// none for three digits).
+func (f Format) String() string {
+	if f.Exp {
+		c := "F"
+		if f.ExpChar != 0 {
+			c = string(f.ExpChar)
+		}
+		return fmt.Sprintf("exp:%d:%s", f.Sig, c)
+	}
+	return fmt.Sprintf("fixed:%d", f.Decimals)
+}
+
+// ParseFormat reads the String form back.
+func ParseFormat(s string) (Format, error) {
+	parts := strings.Split(s, ":")
+	switch {
+	case len(parts) == 2 && parts[0] == "fixed":
+		d, err := strconv.Atoi(parts[1])
+		if err != nil || d < 0 || d > 30 {
+			break
+		}
+		return Format{Decimals: d}, nil
+	case len(parts) == 3 && parts[0] == "exp" && len(parts[2]) == 1:
+		n, err := strconv.Atoi(parts[1])
+		if err != nil || n < 1 || n > 30 {
+			break
+		}
+		c := parts[2][0]
+		switch c {
+		case 'F':
+			c = 0
+		case 'E', 'e', 'D', 'd':
+		default:
+			return Format{}, fmt.Errorf("textnum: bad exponent letter in %q", s)
+		}
+		return Format{Exp: true, Sig: n, ExpChar: c}, nil
+	}
+	return Format{}, fmt.Errorf("textnum: bad format %q (want fixed:N or exp:N:E)", s)
+}
+
+// Append formats v in f: fixed notation with Decimals digits after the
+// point, or exponent notation with Sig significant digits and a two-digit
+// (or longer) exponent, using the recorded exponent letter.
+func (f Format) Append(dst []byte, v float64) []byte {
+	if !f.Exp {
+		return strconv.AppendFloat(dst, v, 'f', f.Decimals, 64)
+	}
+	b := strconv.AppendFloat(nil, v, 'e', max(f.Sig-1, 0), 64)
+	if f.ExpChar != 'e' && f.ExpChar != 0 {
+		for i := range b {
+			if b[i] == 'e' {
+				b[i] = f.ExpChar
+			}
+		}
+	} else if f.ExpChar == 0 {
+		// Dropped letter: Fortran writes it only for 2-digit exponents.
+		for i := range b {
+			if b[i] == 'e' {
+				if len(b)-i-2 > 2 {
+					b = append(b[:i], b[i+1:]...)
+				} else {
+					b[i] = 'E'
+				}
+				break
+			}
+		}
+	}
+	return append(dst, b...)
+}
+
+// Step is the resolution of fixed-format values (10^-Decimals), or 0 for
+// exponent notation, where the resolution varies with the value.
+func (f Format) Step() float64 {
+	if f.Exp {
+		return 0
+	}
+	return math.Pow10(-f.Decimals)
+}
