@@ -145,3 +145,11 @@ func FindingsSchema() (*jsonschema.Schema, error) {
 
 // LayoutMarkdown is layout.md, the human-readable spec.
 func LayoutMarkdown() []byte { return layoutMD }
+
+//go:embed recipe.schema.json
+var recipeSchemaJSON []byte
+
+// RecipeSchema compiles the JSON Schema of recipe files.
+func RecipeSchema() (*jsonschema.Schema, error) {
+	return compile("recipe.schema.json", recipeSchemaJSON)
+}

@@ -15,12 +15,18 @@ type demoOptions struct {
 	trajectories int
 	steps        int
 	seed         uint64
+	text         bool
+	stride       int
+	decimals     int
 }
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().IntVar(&o.trajectories, "trajectories", 4, "number of trajectories in the invented ensemble")
 	c.Flags().IntVar(&o.steps, "steps", demo.DefaultOptions.Steps, "integration steps per trajectory")
 	c.Flags().Uint64Var(&o.seed, "seed", 1, "seed of the first trajectory (the others follow)")
+	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
+	c.Flags().IntVar(&o.stride, "stride", 1, "with --text: write every n-th step")
+	c.Flags().IntVar(&o.decimals, "decimals", 8, "with --text: decimals of the positions")
 }
 
 func newDemoCommand(g *globals) *cobra.Command {
@@ -60,8 +66,13 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 	for i := 0; i < o.trajectories; i++ {
 		opt := demo.DefaultOptions
 		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
-		path := filepath.Join(tmp, fmt.Sprintf("traj-%03d.h5", i+1))
-		if err := demo.WriteH5(path, opt); err != nil {
+		var err error
+		if o.text {
+			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals})
+		} else {
+			err = demo.WriteH5(filepath.Join(tmp, fmt.Sprintf("traj-%03d.h5", i+1)), opt)
+		}
+		if err != nil {
 			os.RemoveAll(tmp)
 			return &exitError{exitUsage, fmt.Errorf("demo: %w", err)}
 		}
@@ -70,6 +81,10 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
 	}
-	fmt.Fprintf(g.stdout, "wrote %d invented demo trajectories to %s\n", o.trajectories, dir)
+	kind := "trajectory files"
+	if o.text {
+		kind = "text-log folders"
+	}
+	fmt.Fprintf(g.stdout, "wrote %d invented demo %s to %s\n", o.trajectories, kind, dir)
 	return nil
 }

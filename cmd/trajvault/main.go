@@ -85,6 +85,9 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newValidateCommand(g),
 		newInspectCommand(g),
 		newDemoCommand(g),
+		newScanCommand(g),
+		newConvertCommand(g),
+		newExportCommand(g),
 	)
 	return root
 }

@@ -28,8 +28,11 @@ const (
 type Filters struct {
 	Shuffle bool
 	Deflate int // gzip level 1-9; 0 = off
-	// ScaleOffsetDigits > 0 turns on the scale-offset filter for floats,
-	// keeping that many decimal digits after the point (lossy beyond them).
+	// ScaleOffsetFloat turns on the scale-offset filter for floats in
+	// D-scaling mode, keeping ScaleOffsetDigits decimal digits after the
+	// point: values are stored as round(x 10^D) in the fewest bits that
+	// hold the chunk's range (HDF5 User's Guide, scale-offset filter).
+	ScaleOffsetFloat  bool
 	ScaleOffsetDigits int
 	// ScaleOffsetInt turns on lossless scale-offset for integers.
 	ScaleOffsetInt bool
@@ -163,7 +166,7 @@ func (f *File) CreateDataset(path string, spec DatasetSpec) (*Writer, error) {
 	if spec.Filters.Deflate > 0 {
 		fl.deflate = C.int(spec.Filters.Deflate)
 	}
-	if spec.Filters.ScaleOffsetDigits > 0 {
+	if spec.Filters.ScaleOffsetFloat {
 		fl.scaleoffset, fl.scaleoffset_factor = 0, C.int(spec.Filters.ScaleOffsetDigits)
 	} else if spec.Filters.ScaleOffsetInt {
 		fl.scaleoffset, fl.scaleoffset_factor = 1, 0

@@ -60,7 +60,7 @@ func build(t *testing.T, path string) {
 	must(w.Append([]int64{0, 10, 20}))
 	must(w.Close())
 	w, err = f.CreateDataset("/a/so", DatasetSpec{Type: Float64, Dims: []int{3}, Chunk: []int{3},
-		Filters: Filters{ScaleOffsetDigits: 3}})
+		Filters: Filters{ScaleOffsetFloat: true, ScaleOffsetDigits: 3}})
 	must(err)
 	must(w.Write([]float64{1.0005, 2.25, -3.125}))
 	must(w.Close())

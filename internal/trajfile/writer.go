@@ -11,9 +11,9 @@ package trajfile
 import (
 	"errors"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"trajvault/internal/h5"
 )
@@ -64,6 +64,44 @@ type Spec struct {
 	Filters                       h5.Filters
 	ChunkFrames                   int // frames per chunk; 0 = chosen from N
 	Attrs                         map[string]string
+	// Storage says, per element name (position, velocity, force, time,
+	// kinetic_energy, ..., state_energies, populations), how the numbers
+	// were printed and how to store them; absent = lossless float64.
+	Storage map[string]Storage
+}
+
+// Storage of one element's numbers.
+type Storage struct {
+	// Format is the printed precision (textnum.Format.String()), stored
+	// as the attribute trajvault_format so that export can print the
+	// numbers again digit for digit; "" = not printed text (derived).
+	Format string
+	// Decimals >= 0 stores the values with the scale-offset filter at that
+	// many decimals: exact for numbers printed with at most that many
+	// decimals. -1 stores float64 losslessly (shuffle + deflate).
+	Decimals int
+	// Tolerance > 0 records a lossy storage bound (attribute
+	// trajvault_tolerance, in the element's unit).
+	Tolerance float64
+}
+
+// filtersFor chooses the filters of a float element.
+func (w *Writer) filtersFor(name string) (h5.Filters, Storage, bool) {
+	st, ok := w.spec.Storage[name]
+	fl := w.spec.Filters
+	if ok && st.Decimals >= 0 {
+		fl = h5.Filters{ScaleOffsetFloat: true, ScaleOffsetDigits: st.Decimals, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}
+	}
+	return fl, st, ok
+}
+
+func (w *Writer) storageAttrs(path string, st Storage) {
+	if st.Format != "" {
+		w.do(w.f.SetString(path, "trajvault_format", st.Format))
+	}
+	if st.Tolerance > 0 {
+		w.do(w.f.SetFloats(path, "trajvault_tolerance", []float64{st.Tolerance}, true))
+	}
 }
 
 // DefaultFilters are lossless and decoded by every HDF5 build: byte
@@ -253,14 +291,18 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	dims := append([]int{0}, shape...)
 	maxd := append([]int{h5.Unlimited}, shape...)
 	chunk := append([]int{w.chunk}, shape...)
-	fl := w.spec.Filters
+	name := group[strings.LastIndexByte(group, '/')+1:]
+	fl, st, stored := w.filtersFor(name)
 	if typ != h5.Float64 {
-		fl = h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}
+		fl = h5.Filters{ScaleOffsetInt: true, Deflate: w.spec.Filters.Deflate, Fletcher32: w.spec.Filters.Fletcher32}
 	}
 	ww, err := w.f.CreateDataset(group+"/value", h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
 	w.do(err)
 	if unit != "" {
 		w.do(w.f.SetString(group+"/value", "unit", unit))
+	}
+	if stored {
+		w.storageAttrs(group+"/value", st)
 	}
 	row := 1
 	for _, d := range shape {
@@ -271,10 +313,14 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
 		w.do(err)
+		tfl, tst, tstored := w.filtersFor("time")
 		tw, err := w.f.CreateDataset(group+"/time", h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
-			Filters: w.spec.Filters})
+			Filters: tfl})
 		w.do(err)
 		w.do(w.f.SetString(group+"/time", "unit", w.spec.Units.Time))
+		if tstored {
+			w.storageAttrs(group+"/time", tst)
+		}
 		w.step = &element{path: group + "/step", row: 1, w: sw}
 		w.time = &element{path: group + "/time", row: 1, w: tw}
 	} else {
@@ -512,15 +558,3 @@ func (w *Writer) Abort() {
 	w.f.Close()
 	os.Remove(w.tmp)
 }
-
-// finite reports whether every value is a finite number.
-func finite(v []float64) bool {
-	for _, x := range v {
-		if math.IsNaN(x) || math.IsInf(x, 0) {
-			return false
-		}
-	}
-	return true
-}
-
-var _ = finite

@@ -1,0 +1,123 @@
+package main
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"sort"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/pack"
+)
+
+type convertOptions struct {
+	readFlags
+	out         string
+	dropPartial bool
+	tolerance   []string
+	author      string
+	email       string
+	json        bool
+}
+
+func (o *convertOptions) AddFlags(c *cobra.Command) {
+	o.readFlags.AddFlags(c)
+	c.Flags().StringVarP(&o.out, "output", "o", "", "trajectory file to write (must not exist)")
+	c.Flags().BoolVar(&o.dropPartial, "drop-partial", false, "drop a cut last frame instead of failing (recorded in the file)")
+	c.Flags().StringArrayVar(&o.tolerance, "tolerance", nil, "allow lossy storage of a quantity within an absolute bound, e.g. --tolerance velocity=5e-7 (recorded in the file)")
+	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
+	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
+	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
+}
+
+func newConvertCommand(g *globals) *cobra.Command {
+	var o convertOptions
+	c := &cobra.Command{
+		Use:   "convert SRC... -o OUT.h5",
+		Short: "Convert the text logs of one trajectory into a trajectory file",
+		Long: `convert reads one trajectory - a folder, or its files (an XYZ or extended
+XYZ geometry file and column tables) - and writes it as one HDF5 file in
+the trajvault layout. Numbers are stored at exactly the precision printed
+in the logs (scale-offset filter) or losslessly; export prints them back
+digit for digit. Restarted runs that repeat steps keep the later
+occurrence; a cut last frame is an error unless --drop-partial. What was
+dropped is recorded in the file (/parameters@trajvault_dropped).
+
+Exit status: 0 success, 1 the logs have problems (as scan reports them),
+2 usage or I/O error. No output file appears unless conversion succeeded.`,
+		Example: "  trajvault convert runs/traj-001 -o traj-001.h5\n  trajvault convert geom.xyz energies.dat --unit position=angstrom -o run.h5",
+		Args:    cobra.MinimumNArgs(1),
+		PreRunE: func(c *cobra.Command, args []string) error {
+			if o.out == "" {
+				return &exitError{exitUsage, errors.New("convert: name the output with -o, e.g. -o traj-001.h5")}
+			}
+			return nil
+		},
+		RunE: func(c *cobra.Command, args []string) error { return runConvert(g, o, args) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+func runConvert(g *globals, o convertOptions, args []string) error {
+	opt, err := o.options()
+	if err != nil {
+		return err
+	}
+	tol, err := parseTolerances(o.tolerance)
+	if err != nil {
+		return err
+	}
+	if _, err := os.Stat(o.out); err == nil {
+		return &exitError{exitUsage, fmt.Errorf("convert: %s already exists; trajvault never overwrites outputs", o.out)}
+	}
+	t, err := pack.TrajectoryFrom(args, opt.Recipe)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
+	}
+	rep := pack.Scan(t, opt)
+	if rep.Errors() > 0 && !(o.dropPartial && onlyPartial(rep)) {
+		printScan(g, rep)
+		fmt.Fprintf(g.stderr, "trajvault: convert: %s has problems; nothing written\n", t.Name)
+		return errFindings
+	}
+	author := o.author
+	if author == "" {
+		author = os.Getenv("USER")
+	}
+	opt.DropPartial = o.dropPartial
+	res, err := pack.Convert(rep, o.out, pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol})
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
+	}
+	if o.json {
+		b, _ := json.MarshalIndent(res, "", "  ")
+		fmt.Fprintln(g.stdout, string(b))
+		return nil
+	}
+	fmt.Fprintf(g.stdout, "%s: %d frames, %d hop attempts -> %s\n", t.Name, res.Frames, res.Hops, filepath.Clean(res.Output))
+	var keys []string
+	for k := range res.Storage {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	for _, k := range keys {
+		fmt.Fprintf(g.stdout, "  %-17s %s\n", k, res.Storage[k])
+	}
+	for _, d := range res.Dropped {
+		fmt.Fprintf(g.stdout, "  dropped: %s\n", d)
+	}
+	return nil
+}
+
+func onlyPartial(r *pack.TrajReport) bool {
+	for _, p := range r.Problems {
+		if p.Severity == "error" && p.Code != pack.PTruncated {
+			return false
+		}
+	}
+	return true
+}

@@ -1,0 +1,119 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"sort"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/pack"
+)
+
+type scanOptions struct {
+	readFlags
+	json bool
+}
+
+func (o *scanOptions) AddFlags(c *cobra.Command) {
+	o.readFlags.AddFlags(c)
+	c.Flags().BoolVar(&o.json, "json", false, "print the reports as JSON")
+}
+
+func newScanCommand(g *globals) *cobra.Command {
+	var o scanOptions
+	c := &cobra.Command{
+		Use:   "scan DIR",
+		Short: "Find the trajectories in an ensemble folder of text logs and report their problems",
+		Long: `scan reads every log of every trajectory in DIR once (one trajectory per
+subfolder, or as a recipe says) and prints, per trajectory, its files and
+formats, atoms, frames, steps, time span, electronic states, the printed
+precision of each quantity, and every problem: cut last frames, missing
+files, changing atom counts, clocks going backwards, restarts that repeat
+steps, NaN or Inf, files that disagree on frames, quantities without units.
+
+Exit status: 0 no problems, 1 problems found (notes do not count),
+2 usage or I/O error.`,
+		Example: "  trajvault scan runs/\n  trajvault scan --recipe lab.yaml --json runs/",
+		Args:    cobra.ExactArgs(1),
+		RunE:    func(c *cobra.Command, args []string) error { return runScan(g, o, args[0]) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+func runScan(g *globals, o scanOptions, dir string) error {
+	opt, err := o.options()
+	if err != nil {
+		return err
+	}
+	trajs, err := pack.Discover(dir, opt.Recipe)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
+	}
+	var reps []*pack.TrajReport
+	problems := 0
+	for _, t := range trajs {
+		r := pack.Scan(t, opt)
+		problems += r.Findings()
+		reps = append(reps, r)
+	}
+	if o.json {
+		b, err := json.MarshalIndent(reps, "", "  ")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(g.stdout, string(b))
+	} else {
+		for _, r := range reps {
+			printScan(g, r)
+		}
+		fmt.Fprintf(g.stdout, "%d trajectories, %s\n", len(reps), plural(problems, "problem"))
+	}
+	if problems > 0 {
+		return errFindings
+	}
+	return nil
+}
+
+func printScan(g *globals, r *pack.TrajReport) {
+	fmt.Fprintf(g.stdout, "%s: %d atoms (%s), %d frames, steps %d..%d, time %g..%g %s", r.Name, r.Atoms, r.Formula, r.Frames, r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
+	if r.States > 0 {
+		fmt.Fprintf(g.stdout, ", %d states, %d hop attempts", r.States, r.Hops)
+	}
+	fmt.Fprintln(g.stdout)
+	for _, f := range r.Files {
+		fmt.Fprintf(g.stdout, "  %-6s %s: %d records (%d kept)\n", f.Format, f.File, f.Records, f.Kept)
+	}
+	var qs []string
+	for _, q := range r.Quantities {
+		s := q + " " + r.Precision[q]
+		if u := r.Units[unitKindOf(q)]; u != "" {
+			s += " [" + u + "]"
+		}
+		qs = append(qs, s)
+	}
+	sort.Strings(qs)
+	if len(qs) > 0 {
+		fmt.Fprintf(g.stdout, "  precision: %s\n", strings.Join(qs, "; "))
+	}
+	for _, p := range r.Problems {
+		loc := p.File
+		if p.Line > 0 {
+			loc = fmt.Sprintf("%s:%d", p.File, p.Line)
+		}
+		if loc != "" {
+			loc += ": "
+		}
+		fmt.Fprintf(g.stdout, "  %-7s %-3s %s%s\n", p.Severity, p.Code, loc, p.Message)
+	}
+}
+
+func unitKindOf(q string) string {
+	switch q {
+	case "kinetic_energy", "potential_energy", "total_energy", "state_energy":
+		return "energy"
+	}
+	return q
+}

@@ -1,0 +1,62 @@
+package main
+
+import (
+	"fmt"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/pack"
+)
+
+// readFlags are the options shared by scan and convert.
+type readFlags struct {
+	recipe string
+	units  []string
+	dt     float64
+}
+
+func (o *readFlags) AddFlags(c *cobra.Command) {
+	c.Flags().StringVar(&o.recipe, "recipe", "", "recipe file (YAML) describing the logs; see README, section Recipes")
+	c.Flags().StringArrayVar(&o.units, "unit", nil, "unit of a kind of quantity the logs do not state, e.g. --unit position=angstrom (kinds: position, velocity, force, momentum, mass, time, energy)")
+	c.Flags().Float64Var(&o.dt, "dt", 0, "time per step, in the time unit, when the logs give no times (with --unit time=fs)")
+}
+
+var unitKinds = map[string]bool{"position": true, "velocity": true, "force": true, "momentum": true, "mass": true, "time": true, "energy": true}
+
+func (o *readFlags) options() (pack.Options, error) {
+	opt := pack.Options{Units: map[string]string{}, Dt: o.dt}
+	for _, u := range o.units {
+		k, v, ok := strings.Cut(u, "=")
+		if !ok || !unitKinds[k] || strings.TrimSpace(v) == "" {
+			return opt, &exitError{exitUsage, fmt.Errorf("--unit %q: expected KIND=UNIT with KIND one of position, velocity, force, momentum, mass, time, energy, e.g. --unit position=angstrom", u)}
+		}
+		opt.Units[k] = v
+	}
+	if o.dt < 0 {
+		return opt, &exitError{exitUsage, fmt.Errorf("--dt must be positive, e.g. --dt 0.5 --unit time=fs")}
+	}
+	if o.recipe != "" {
+		rc, err := pack.LoadRecipe(o.recipe)
+		if err != nil {
+			return opt, &exitError{exitUsage, err}
+		}
+		opt.Recipe = rc
+	}
+	return opt, nil
+}
+
+// parseTolerances reads --tolerance QUANTITY=VALUE flags.
+func parseTolerances(list []string) (map[string]float64, error) {
+	out := map[string]float64{}
+	for _, t := range list {
+		k, v, ok := strings.Cut(t, "=")
+		x, err := strconv.ParseFloat(v, 64)
+		if !ok || err != nil || x <= 0 {
+			return nil, &exitError{exitUsage, fmt.Errorf("--tolerance %q: expected QUANTITY=BOUND with a positive bound in the quantity's unit, e.g. --tolerance position=1e-5", t)}
+		}
+		out[k] = x
+	}
+	return out, nil
+}

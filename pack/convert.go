@@ -1,0 +1,471 @@
+package pack
+
+import (
+	"fmt"
+	"io"
+	"math"
+	"sort"
+	"strings"
+
+	"trajvault/internal/elements"
+	"trajvault/internal/textnum"
+	"trajvault/internal/trajfile"
+	"trajvault/internal/units"
+)
+
+// ConvertOptions add to Options what only convert needs.
+type ConvertOptions struct {
+	Options
+	Author, Email string
+	ToolVersion   string
+	// Tolerance allows lossy storage per quantity (element name ->
+	// absolute bound in the element's unit); the bound is recorded.
+	Tolerance map[string]float64
+}
+
+// Result says what convert wrote and dropped.
+type Result struct {
+	Output  string            `json:"output"`
+	Frames  int               `json:"frames"`
+	Hops    int               `json:"hops"`
+	Dropped []string          `json:"dropped"`
+	Storage map[string]string `json:"storage"`
+}
+
+// elementOf maps log quantities to layout element names.
+var elementOf = map[string]string{
+	"position": "position", "velocity": "velocity", "force": "force", "time": "time",
+	"kinetic_energy": "kinetic_energy", "potential_energy": "potential_energy", "total_energy": "total_energy",
+	"state_energy": "state_energies", "population": "populations",
+}
+
+// maxExactScaled bounds |x| 10^D for exact scale-offset storage: well
+// inside float64's 2^53 integers, so x 10^D rounds to the printed integer.
+const maxExactScaled = 1 << 50
+
+// Convert writes one trajectory, scanned by Scan, to out in the layout.
+func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
+	for _, p := range rep.Problems {
+		if p.Severity != "error" {
+			continue
+		}
+		if p.Code == PTruncated && opt.DropPartial {
+			continue
+		}
+		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(p))
+	}
+	var geo *FileReport
+	for _, f := range rep.Files {
+		if f.Format == "xyz" {
+			geo = f
+		}
+	}
+	if geo == nil || geo.Kept == 0 {
+		return nil, fmt.Errorf("%s: no geometry frames", rep.Name)
+	}
+	res := &Result{Output: out, Storage: map[string]string{}}
+	for _, f := range rep.Files {
+		for _, d := range mergeRanges(f.dropped) {
+			res.Dropped = append(res.Dropped, fmt.Sprintf("%s: records %d..%d replaced by a later restart", f.File, d[0]+1, d[1]))
+		}
+		if f.partial >= 0 {
+			res.Dropped = append(res.Dropped, fmt.Sprintf("%s: cut last record %d (--drop-partial)", f.File, f.partial+1))
+		}
+	}
+	spec, err := specFor(rep, opt, res)
+	if err != nil {
+		return nil, err
+	}
+	srcs, _, err := openSources(rep.traj, opt.Options)
+	if err != nil {
+		return nil, err
+	}
+	defer func() {
+		for _, s := range srcs {
+			s.close()
+		}
+	}()
+	w, err := trajfile.Create(out, spec)
+	if err != nil {
+		return nil, err
+	}
+	if err := stream(rep, srcs, w, opt, res); err != nil {
+		w.Abort()
+		return nil, err
+	}
+	for _, s := range srcs {
+		if ls, ok := s.(*logSource); ok {
+			// Event-only logs were not walked with the frames: read them
+			// to the end to collect their hops.
+			for {
+				if _, err := ls.next(); err != nil {
+					if err != io.EOF {
+						w.Abort()
+						return nil, err
+					}
+					break
+				}
+			}
+		}
+		for _, h := range s.hops() {
+			base := rep.stateBase(opt.Options)
+			if !h.hasStep {
+				w.Abort()
+				return nil, fmt.Errorf("%s:%d: hop without a step (no step group and no step line before it)", s.file(), h.line)
+			}
+			// The hop's time on the run's clock: logs give hops by step.
+			t := rep.TimeFirst + float64(h.step-rep.FirstStep)*rep.TimeStep
+			if err := w.WriteHop(trajfile.Hop{Step: h.step, Time: t, From: h.from - base, To: h.to - base, Frustrated: h.frustrated}); err != nil {
+				w.Abort()
+				return nil, fmt.Errorf("%s:%d: %v", s.file(), h.line, err)
+			}
+			res.Hops++
+		}
+	}
+	res.Frames = w.Frames()
+	if err := w.Close(); err != nil {
+		return nil, err
+	}
+	return res, nil
+}
+
+func where(p Problem) string {
+	if p.Line > 0 {
+		return fmt.Sprintf("%s:%d", p.File, p.Line)
+	}
+	if p.File != "" {
+		return p.File
+	}
+	return "trajectory"
+}
+
+func mergeRanges(r [][2]int) [][2]int {
+	if len(r) == 0 {
+		return nil
+	}
+	s := append([][2]int(nil), r...)
+	sort.Slice(s, func(i, j int) bool { return s[i][0] < s[j][0] })
+	out := [][2]int{s[0]}
+	for _, x := range s[1:] {
+		last := &out[len(out)-1]
+		if x[0] <= last[1] {
+			last[1] = max(last[1], x[1])
+		} else {
+			out = append(out, x)
+		}
+	}
+	return out
+}
+
+// specFor builds the writer spec: what elements exist, their units and
+// how each is stored.
+func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, error) {
+	zs := make([]int, len(rep.symbols))
+	masses := make([]float64, len(rep.symbols))
+	for i, s := range rep.symbols {
+		zs[i] = elements.Number(s)
+		if zs[i] == 0 {
+			return trajfile.Spec{}, fmt.Errorf("%s: atom %d has symbol %q, not a chemical element", rep.Name, i+1, s)
+		}
+		m, ok := elements.Mass(zs[i])
+		if rep.masses != nil {
+			m, ok = rep.masses[i], true
+		}
+		if !ok {
+			return trajfile.Spec{}, fmt.Errorf("%s: no standard atomic weight tabulated for %s; give masses in the geometry file (Properties=...:masses:R:1)", rep.Name, s)
+		}
+		masses[i] = m
+	}
+	has := func(q string) bool { _, ok := rep.formats[q]; return ok }
+	u := rep.Units
+	spec := trajfile.Spec{
+		Author: opt.Author, Email: opt.Email, Creator: "trajvault", CreatorVersion: opt.ToolVersion,
+		Species: zs, Masses: masses,
+		Units: trajfile.Units{Length: u["position"], Time: u["time"], Velocity: u["velocity"], Force: u["force"],
+			Energy: u["energy"], Mass: "u", InverseTime: ""},
+		Velocity: has("velocity") || (has("momentum") && u["velocity"] != ""),
+		Force:    has("force"),
+		Kinetic:  has("kinetic_energy"), Potential: has("potential_energy"), Total: has("total_energy"),
+		NStates: rep.States, StateEnergies: has("state_energy"), Populations: has("population"),
+		ActiveState: rep.States > 0 && rep.hasActive(),
+		Hops:        rep.Hops > 0,
+		Storage:     map[string]trajfile.Storage{},
+		Attrs:       map[string]string{},
+	}
+	if rep.masses != nil {
+		spec.Units.Mass = u["mass"]
+		if spec.Units.Mass == "" {
+			return spec, fmt.Errorf("%s: the geometry file gives masses but no unit for them; give --unit mass=u", rep.Name)
+		}
+	}
+	if has("momentum") && !has("velocity") && u["velocity"] == "" {
+		return spec, fmt.Errorf("%s: the geometry gives momenta; they are divided by the masses (in u) to give velocities: state the unit of the result with --unit velocity=...", rep.Name)
+	}
+	if spec.NStates > 0 && !spec.StateEnergies && !spec.Populations && !spec.ActiveState {
+		spec.NStates = 0
+	}
+	if rep.States > 0 && rep.Hops > 0 && !spec.ActiveState {
+		spec.ActiveState = false
+	}
+	if spec.Units.Time == "" {
+		spec.Units.Time = opt.Units["time"]
+	}
+	for q, fm := range rep.formats {
+		el, ok := elementOf[q]
+		if !ok {
+			continue
+		}
+		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
+		if !fm.Exp && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
+			st.Decimals = fm.Decimals
+		}
+		if tol, ok := opt.Tolerance[el]; ok && tol > 0 {
+			d := int(math.Ceil(-math.Log10(2 * tol)))
+			if d < 0 {
+				d = 0
+			}
+			if fm.Exp || d < fm.Decimals {
+				st.Decimals = d
+				st.Tolerance = 0.5 * math.Pow10(-d)
+				st.Format = textnum.Format{Decimals: d}.String()
+			}
+		}
+		spec.Storage[el] = st
+		switch {
+		case st.Tolerance > 0:
+			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals, lossy within %g", st.Decimals, st.Tolerance)
+		case st.Decimals >= 0:
+			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals (as printed, exact)", st.Decimals)
+		default:
+			res.Storage[el] = "float64, lossless"
+		}
+	}
+	if has("momentum") && !has("velocity") {
+		spec.Storage["velocity"] = trajfile.Storage{Decimals: -1} // derived: lossless
+		res.Storage["velocity"] = "float64, lossless (momenta / masses)"
+	}
+	if !has("time") && opt.Dt > 0 {
+		spec.Storage["time"] = trajfile.Storage{Decimals: -1}
+	}
+	var files []string
+	for _, f := range rep.Files {
+		files = append(files, f.File)
+	}
+	spec.Attrs["trajvault_sources"] = strings.Join(files, "\n")
+	if len(res.Dropped) > 0 {
+		spec.Attrs["trajvault_dropped"] = strings.Join(res.Dropped, "\n")
+	}
+	if rep.TimeStep > 0 {
+		spec.TimeStep = rep.TimeStep
+	}
+	return spec, nil
+}
+
+func (t *TrajReport) hasActive() bool {
+	for _, f := range t.Files {
+		if f.active {
+			return true
+		}
+	}
+	return false
+}
+
+// keptIter yields the kept records of one source in order.
+type keptIter struct {
+	src     source
+	rep     *FileReport
+	idx     int
+	dropped [][2]int
+}
+
+func newKeptIter(s source, fr *FileReport) *keptIter {
+	return &keptIter{src: s, rep: fr, dropped: mergeRanges(fr.dropped)}
+}
+
+func (k *keptIter) next() (*record, error) {
+	for {
+		if k.rep.partial >= 0 && k.idx >= k.rep.partial {
+			return nil, io.EOF
+		}
+		rec, err := k.src.next()
+		if err != nil {
+			return nil, err
+		}
+		i := k.idx
+		k.idx++
+		for len(k.dropped) > 0 && i >= k.dropped[0][1] {
+			k.dropped = k.dropped[1:]
+		}
+		if len(k.dropped) > 0 && i >= k.dropped[0][0] {
+			continue
+		}
+		return rec, nil
+	}
+}
+
+// stream is the second pass: it walks the geometry frames and joins the
+// other files' records to them by step (or by order when there are no
+// steps), writing one frame at a time.
+func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptions, res *Result) error {
+	var geo *keptIter
+	var others []*keptIter
+	for i, s := range srcs {
+		it := newKeptIter(s, rep.Files[i])
+		if rep.Files[i].Format == "xyz" {
+			geo = it
+		} else if rep.Files[i].Kept > 0 { // event-only logs add no frames
+			others = append(others, it)
+		}
+	}
+	base := rep.stateBase(opt.Options)
+	S := rep.States
+	pending := make([]*record, len(others))
+	fr := &trajfile.Frame{}
+	for n := 0; ; n++ {
+		g, err := geo.next()
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		*fr = trajfile.Frame{ActiveState: 0}
+		merged := *g
+		key := int64(n)
+		if g.hasStep {
+			key = g.step
+		}
+		for i, it := range others {
+			var r *record
+			if it.rep.hasSteps && geo.rep.hasSteps {
+				for {
+					if pending[i] == nil {
+						p, err := it.next()
+						if err == io.EOF {
+							return fmt.Errorf("%s: ends before step %d of the geometry", it.src.file(), key)
+						}
+						if err != nil {
+							return err
+						}
+						pending[i] = p
+					}
+					if pending[i].step >= key {
+						break
+					}
+					pending[i] = nil
+				}
+				if pending[i].step != key {
+					return fmt.Errorf("%s: no record for step %d", it.src.file(), key)
+				}
+				r, pending[i] = pending[i], nil
+			} else {
+				p, err := it.next()
+				if err != nil {
+					return fmt.Errorf("%s: fewer records than geometry frames: %v", it.src.file(), err)
+				}
+				r = p
+			}
+			mergeRecord(&merged, r)
+		}
+		if merged.hasStep {
+			key = merged.step
+		}
+		fr.Step = key
+		switch {
+		case merged.hasTime:
+			fr.Time = merged.time
+		case opt.Dt > 0:
+			fr.Time = float64(key) * opt.Dt
+		default:
+			return fmt.Errorf("%s: frame %d has no time", rep.Name, n)
+		}
+		f := g.frame
+		if c := columnFor(f, "position", rep); c != nil {
+			fr.Position = c.Values
+		}
+		if c := columnFor(f, "velocity", rep); c != nil {
+			fr.Velocity = c.Values
+		} else if c := columnFor(f, "momentum", rep); c != nil {
+			v := make([]float64, len(c.Values))
+			for i := range v {
+				v[i] = c.Values[i] / rep.massU(i/3, opt)
+			}
+			fr.Velocity = v
+		}
+		if c := columnFor(f, "force", rep); c != nil {
+			fr.Force = c.Values
+		}
+		fr.Kinetic, fr.Potential, fr.Total = merged.scalar[0], merged.scalar[1], merged.scalar[2]
+		if S > 0 {
+			fr.StateEnergies = shiftStates(merged.stateE, base, S)
+			fr.Populations = shiftStates(merged.pop, base, S)
+			fr.ActiveState = merged.active - base
+		}
+		if err := w.WriteFrame(fr); err != nil {
+			return fmt.Errorf("%s:%d: %w", geo.src.file(), g.line, err)
+		}
+	}
+}
+
+// massU is atom i's mass in u, for turning momenta into velocities.
+func (t *TrajReport) massU(i int, opt ConvertOptions) float64 {
+	if t.masses != nil {
+		f, err := units.Factor(t.Units["mass"], "u")
+		if err == nil {
+			return t.masses[i] * f
+		}
+	}
+	m, _ := elements.Mass(elements.Number(t.symbols[i]))
+	return m
+}
+
+func columnFor(f *Frame, q string, rep *TrajReport) *Column {
+	src := rep.Files[0].src
+	xs, _ := src.(*xyzSource)
+	for _, c := range f.Columns {
+		if xs != nil && xs.columnQuantity(c.Name) == q {
+			return c
+		}
+	}
+	return nil
+}
+
+func shiftStates(v []float64, base, S int) []float64 {
+	if len(v) == 0 {
+		return nil
+	}
+	out := make([]float64, S)
+	for k := range out {
+		i := k + base
+		if i < len(v) {
+			out[k] = v[i]
+		} else {
+			out[k] = math.NaN()
+		}
+	}
+	return out
+}
+
+// mergeRecord copies into dst what r has and dst lacks.
+func mergeRecord(dst, r *record) {
+	if r.hasStep && !dst.hasStep {
+		dst.step, dst.hasStep = r.step, true
+	}
+	if r.hasTime && !dst.hasTime {
+		dst.time, dst.hasTime = r.time, true
+	}
+	for i := range r.hasScalar {
+		if r.hasScalar[i] && !dst.hasScalar[i] {
+			dst.scalar[i], dst.hasScalar[i] = r.scalar[i], true
+		}
+	}
+	if len(r.stateE) > 0 && len(dst.stateE) == 0 {
+		dst.stateE = r.stateE
+	}
+	if len(r.pop) > 0 && len(dst.pop) == 0 {
+		dst.pop = r.pop
+	}
+	if r.hasActive && !dst.hasActive {
+		dst.active, dst.hasActive = r.active, true
+	}
+}

@@ -1,0 +1,91 @@
+package pack
+
+import (
+	"bufio"
+	"bytes"
+	"io"
+)
+
+// lineReader yields lines without their terminator (LF or CRLF), drops a
+// UTF-8 byte-order mark at the start, and counts lines from 1.
+type lineReader struct {
+	br   *bufio.Reader
+	line int
+	buf  []byte
+}
+
+func newLineReader(r io.Reader) *lineReader {
+	return &lineReader{br: bufio.NewReaderSize(r, 1<<20)}
+}
+
+// next returns the next line; the slice is valid until the next call.
+// io.EOF means no more lines.
+func (l *lineReader) next() ([]byte, error) {
+	l.buf = l.buf[:0]
+	for {
+		chunk, err := l.br.ReadSlice('\n')
+		l.buf = append(l.buf, chunk...)
+		if err == bufio.ErrBufferFull {
+			continue
+		}
+		if err == io.EOF && len(l.buf) == 0 {
+			return nil, io.EOF
+		}
+		if err != nil && err != io.EOF {
+			return nil, err
+		}
+		break
+	}
+	l.line++
+	b := bytes.TrimSuffix(l.buf, []byte("\n"))
+	b = bytes.TrimSuffix(b, []byte("\r"))
+	if l.line == 1 {
+		b = bytes.TrimPrefix(b, []byte("\xef\xbb\xbf"))
+	}
+	return b, nil
+}
+
+// field is one whitespace- or delimiter-separated field with its 1-based
+// column.
+type field struct {
+	text string
+	col  int
+}
+
+// splitFields splits on runs of spaces and tabs, or on sep when sep != 0
+// (CSV/TSV: no quoting is supported in numeric tables; quoted fields are
+// handled only in extended XYZ comment lines).
+func splitFields(b []byte, sep byte, out []field) []field {
+	out = out[:0]
+	if sep != 0 {
+		start := 0
+		for i := 0; i <= len(b); i++ {
+			if i == len(b) || b[i] == sep {
+				f := bytes.TrimSpace(b[start:i])
+				off := start + bytes.Index(b[start:i], f)
+				if len(f) == 0 {
+					off = start
+				}
+				out = append(out, field{string(f), off + 1})
+				start = i + 1
+			}
+		}
+		return out
+	}
+	i := 0
+	for i < len(b) {
+		for i < len(b) && (b[i] == ' ' || b[i] == '\t') {
+			i++
+		}
+		if i == len(b) {
+			break
+		}
+		j := i
+		for j < len(b) && b[j] != ' ' && b[j] != '\t' {
+			j++
+		}
+		out = append(out, field{string(b[i:j]), i + 1})
+		i = j
+	}
+	return out
+}

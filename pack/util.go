@@ -1,0 +1,5 @@
+package pack
+
+import "sort"
+
+func sortStrings(s []string) { sort.Strings(s) }

@@ -1,0 +1,300 @@
+package pack
+
+import (
+	"fmt"
+	"io"
+	"strconv"
+	"strings"
+
+	"trajvault/internal/textnum"
+)
+
+// Column is one per-atom property of a frame, flattened row-major (N x
+// Width), with the widest printed format of its values.
+type Column struct {
+	Name   string
+	Width  int
+	Values []float64
+	Format textnum.Format
+}
+
+// Frame is one frame of an XYZ or extended XYZ file.
+type Frame struct {
+	Line    int // line of the atom-count line
+	Symbols []string
+	// Columns holds the numeric per-atom properties: "pos" always, and for
+	// extended XYZ every numeric property of Properties= (e.g. "velo",
+	// "forces", "momenta", "masses").
+	Columns []*Column
+	Comment string
+	// Info holds the key=value pairs of an extended XYZ comment line.
+	Info map[string]string
+	// InfoFormats records how numeric Info values were printed.
+	InfoFormats map[string]textnum.Format
+	Extended    bool
+}
+
+// Column returns the named column, or nil.
+func (f *Frame) Column(name string) *Column {
+	for _, c := range f.Columns {
+		if c.Name == name {
+			return c
+		}
+	}
+	return nil
+}
+
+// XYZReader reads multi-frame XYZ and extended XYZ files one frame at a
+// time, in memory proportional to one frame.
+//
+// XYZ: a line with the atom count N, a comment line, then N lines
+// "symbol x y z". Extended XYZ (common practice, the format written by
+// general-purpose tools such as python3-ase) puts key=value pairs on the
+// comment line; Properties=name:type:count:... describes the per-atom
+// columns (types S string, R real, I integer, L logical).
+type XYZReader struct {
+	file   string
+	lr     *lineReader
+	fields []field
+	frames int
+	lastN  int
+}
+
+// NewXYZReader reads from r; file names the input in errors.
+func NewXYZReader(r io.Reader, file string) *XYZReader {
+	return &XYZReader{file: file, lr: newLineReader(r)}
+}
+
+func (x *XYZReader) errAt(line, col int, err error) error {
+	return &ParseError{File: x.file, Line: line, Column: col, Err: err}
+}
+
+// Next returns the next frame, io.EOF after the last one, or an error; a
+// file cut inside a frame gives a *ParseError wrapping ErrTruncated.
+func (x *XYZReader) Next() (*Frame, error) {
+	var b []byte
+	var err error
+	for { // skip blank lines between frames
+		b, err = x.lr.next()
+		if err != nil {
+			return nil, err // io.EOF: clean end
+		}
+		if strings.TrimSpace(string(b)) != "" {
+			break
+		}
+	}
+	countLine := x.lr.line
+	x.fields = splitFields(b, 0, x.fields)
+	if len(x.fields) != 1 {
+		return nil, x.errAt(countLine, 1, detail(ErrHeader, "expected the atom count alone on the line, found %q", strings.TrimSpace(string(b))))
+	}
+	n, perr := strconv.Atoi(x.fields[0].text)
+	if perr != nil || n < 1 {
+		return nil, x.errAt(countLine, x.fields[0].col, detail(ErrHeader, "expected a positive atom count, found %q", x.fields[0].text))
+	}
+	if x.lastN != 0 && n != x.lastN {
+		return nil, x.errAt(countLine, x.fields[0].col, detail(ErrAtomCount, "frame %d has %d atoms, earlier frames %d; one file must hold one system", x.frames+1, n, x.lastN))
+	}
+	comment, err := x.lr.next()
+	if err == io.EOF {
+		return nil, x.errAt(countLine, 0, detail(ErrTruncated, "frame %d: no comment line after the atom count", x.frames+1))
+	} else if err != nil {
+		return nil, err
+	}
+	fr := &Frame{Line: countLine, Comment: string(comment), Symbols: make([]string, 0, n)}
+	props, err := x.parseComment(fr)
+	if err != nil {
+		return nil, err
+	}
+	cols := make([]*Column, 0, len(props))
+	for _, p := range props {
+		if p.kind == 'R' || p.kind == 'I' {
+			c := &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, n*p.count)}
+			cols = append(cols, c)
+		}
+	}
+	fr.Columns = cols
+	width := 0
+	for _, p := range props {
+		width += p.count
+	}
+	for i := 0; i < n; i++ {
+		b, err := x.lr.next()
+		if err == io.EOF {
+			return nil, x.errAt(x.lr.line, 0, detail(ErrTruncated, "frame %d (count line %d) has %d of %d atom lines", x.frames+1, countLine, i, n))
+		} else if err != nil {
+			return nil, err
+		}
+		x.fields = splitFields(b, 0, x.fields)
+		if len(x.fields) < width {
+			col := len(b) + 1
+			return nil, x.errAt(x.lr.line, col, detail(ErrFieldCount, "expected %d fields (%s), found %d; a short line usually means the file was cut", width, describe(props), len(x.fields)))
+		}
+		if len(x.fields) > width && fr.Extended {
+			return nil, x.errAt(x.lr.line, x.fields[width].col, detail(ErrFieldCount, "expected %d fields (%s), found %d", width, describe(props), len(x.fields)))
+		}
+		k, ci := 0, 0
+		for _, p := range props {
+			if p.kind != 'R' && p.kind != 'I' {
+				if p.name == "species" {
+					fr.Symbols = append(fr.Symbols, x.fields[k].text)
+				}
+				k += p.count
+				continue
+			}
+			c := cols[ci]
+			ci++
+			for j := 0; j < p.count; j++ {
+				f := x.fields[k]
+				v, fm, err := textnum.Parse(f.text)
+				if err != nil {
+					cause := ErrNumber
+					if nonFinite(f.text) {
+						cause = ErrNonFinite
+					}
+					return nil, x.errAt(x.lr.line, f.col, detail(cause, "%s component %d of atom %d: expected a number, found %q", p.name, j+1, i+1, f.text))
+				}
+				c.Values = append(c.Values, v)
+				if len(c.Values) == 1 {
+					c.Format = fm
+				} else {
+					c.Format = c.Format.Merge(fm)
+				}
+				k++
+			}
+		}
+	}
+	x.frames++
+	x.lastN = n
+	return fr, nil
+}
+
+type property struct {
+	name  string
+	kind  byte
+	count int
+}
+
+func describe(props []property) string {
+	var parts []string
+	for _, p := range props {
+		parts = append(parts, fmt.Sprintf("%s x%d", p.name, p.count))
+	}
+	return strings.Join(parts, ", ")
+}
+
+var plainXYZ = []property{{"species", 'S', 1}, {"pos", 'R', 3}}
+
+// parseComment reads extended-XYZ key=value pairs when the comment line
+// has them, and returns the per-atom properties.
+func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
+	kv, ok := parseKeyValues(fr.Comment)
+	if !ok || len(kv) == 0 {
+		return plainXYZ, nil
+	}
+	// A plain comment such as "t = 5 fs" is not extended XYZ: require
+	// Properties= or at least every token to be key=value.
+	fr.Info = map[string]string{}
+	fr.InfoFormats = map[string]textnum.Format{}
+	for _, p := range kv {
+		fr.Info[p[0]] = p[1]
+		if v := p[1]; v != "" {
+			if _, fm, err := textnum.Parse(v); err == nil {
+				fr.InfoFormats[p[0]] = fm
+			}
+		}
+	}
+	fr.Extended = true
+	spec, ok := fr.Info["Properties"]
+	if !ok {
+		return plainXYZ, nil
+	}
+	parts := strings.Split(spec, ":")
+	if len(parts)%3 != 0 {
+		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties=%s: expected name:type:count triples", spec))
+	}
+	var props []property
+	for i := 0; i < len(parts); i += 3 {
+		n, err := strconv.Atoi(parts[i+2])
+		t := strings.ToUpper(parts[i+1])
+		if err != nil || n < 1 || len(t) != 1 || !strings.Contains("SRIL", t) {
+			return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties entry %s:%s:%s: expected type S, R, I or L and a positive count", parts[i], parts[i+1], parts[i+2]))
+		}
+		props = append(props, property{parts[i], t[0], n})
+	}
+	if props[0].name != "species" && props[0].kind == 'S' {
+		props[0].name = "species"
+	}
+	hasPos := false
+	for _, p := range props {
+		hasPos = hasPos || (p.name == "pos" && p.count == 3)
+	}
+	if !hasPos {
+		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties has no pos:R:3 column"))
+	}
+	return props, nil
+}
+
+// parseKeyValues splits `a=1 b="x y" flag` into pairs; ok is false when
+// the line is not of that form (then it is a free-text comment).
+func parseKeyValues(s string) ([][2]string, bool) {
+	var out [][2]string
+	i := 0
+	for i < len(s) {
+		for i < len(s) && (s[i] == ' ' || s[i] == '\t') {
+			i++
+		}
+		if i == len(s) {
+			break
+		}
+		j := i
+		for j < len(s) && s[j] != '=' && s[j] != ' ' && s[j] != '\t' {
+			j++
+		}
+		key := s[i:j]
+		if key == "" || !validKey(key) {
+			return nil, false
+		}
+		if j == len(s) || s[j] != '=' {
+			out = append(out, [2]string{key, "T"})
+			i = j
+			continue
+		}
+		j++ // '='
+		if j < len(s) && (s[j] == '"' || s[j] == '\'' || s[j] == '{') {
+			closing := s[j]
+			if closing == '{' {
+				closing = '}'
+			}
+			k := strings.IndexByte(s[j+1:], closing)
+			if k < 0 {
+				return nil, false
+			}
+			out = append(out, [2]string{key, s[j+1 : j+1+k]})
+			i = j + 1 + k + 1
+			continue
+		}
+		k := j
+		for k < len(s) && s[k] != ' ' && s[k] != '\t' {
+			k++
+		}
+		out = append(out, [2]string{key, s[j:k]})
+		i = k
+	}
+	// Bare words only (no '=' at all) are a free-text comment.
+	for _, p := range out {
+		if p[1] != "T" || strings.Contains(s, p[0]+"=T") {
+			return out, true
+		}
+	}
+	return nil, false
+}
+
+func validKey(k string) bool {
+	for i, r := range k {
+		if !(r == '_' || r == '-' || r == '.' || (r >= 'a' && r <= 'z') || (r >= 'A' && r <= 'Z') || (i > 0 && r >= '0' && r <= '9')) {
+			return false
+		}
+	}
+	return true
+}
