@@ -21,7 +21,7 @@ type Recipe struct {
 	Version      int         `yaml:"recipe" json:"recipe"`
 	Description  string      `yaml:"description" json:"description,omitempty"`
 	Trajectories string      `yaml:"trajectories" json:"trajectories,omitempty"`
-	StateBase    int         `yaml:"state_base" json:"state_base,omitempty"`
+	StateBase    *int        `yaml:"state_base" json:"state_base,omitempty"`
 	Units        Units       `yaml:"units" json:"units,omitempty"`
 	Geometry     *GeoSpec    `yaml:"geometry" json:"geometry,omitempty"`
 	Tables       []TableSpec `yaml:"tables" json:"tables,omitempty"`

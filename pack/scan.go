@@ -38,6 +38,7 @@ const (
 	PUnknownFile = "P10" // file not used
 	PNoGeometry  = "P11" // no geometry
 	PNoTime      = "P12" // no times
+	PConflict    = "P13" // two files give the same quantity
 )
 
 // FileReport describes one source file after the first pass.
@@ -50,16 +51,18 @@ type FileReport struct {
 	LastStep  *int64            `json:"last_step,omitempty"`
 	Formats   map[string]string `json:"precision"`
 
-	src      source
-	keys     keySeq // kept (index, step); steps are indices when the file has none
-	hasSteps bool
-	dropped  [][2]int
-	partial  int // record index of a cut last frame (-1 none)
-	fmts     map[string]textnum.Format
-	units    map[string]string
-	maxAbs   map[string]float64
-	states   int
-	active   bool
+	src       source
+	keys      keySeq // kept (index, step); steps are indices when the file has none
+	hasSteps  bool
+	dropped   [][2]int
+	partial   int // record index of a cut last frame (-1 none)
+	fmts      map[string]textnum.Format
+	units     map[string]string
+	maxAbs    map[string]float64
+	states    int // per-state columns: highest index + 1, as written
+	minState  int // lowest per-state index with a value (-1 none)
+	maxActive int
+	active    bool
 	// times of the first and last kept records, when the file has times
 	hasTime             bool
 	timeFirst, timeLast float64
@@ -85,6 +88,7 @@ type TrajReport struct {
 	Problems   []Problem         `json:"problems"`
 
 	traj    *Trajectory
+	base    int
 	symbols []string
 	masses  []float64
 	formats map[string]textnum.Format
@@ -208,7 +212,7 @@ func Scan(t *Trajectory, opt Options) *TrajReport {
 }
 
 func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport {
-	fr := &FileReport{File: s.file(), Format: kind, src: s, partial: -1, maxAbs: map[string]float64{}}
+	fr := &FileReport{File: s.file(), Format: kind, src: s, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
@@ -279,6 +283,13 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			}
 		}
 		fr.states = max(fr.states, len(rec.stateE), len(rec.pop))
+		for _, v := range [][]float64{rec.stateE, rec.pop} {
+			for k, x := range v {
+				if !math.IsNaN(x) && (fr.minState < 0 || k < fr.minState) {
+					fr.minState = k
+				}
+			}
+		}
 		if rec.hasTime {
 			if !fr.hasTime {
 				fr.timeFirst, fr.hasTime = rec.time, true
@@ -287,7 +298,7 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 		}
 		if rec.hasActive {
 			fr.active = true
-			fr.states = max(fr.states, rec.active+1-rep.stateBase(opt))
+			fr.maxActive = max(fr.maxActive, rec.active)
 		}
 		key := int64(idx)
 		if rec.hasStep {
@@ -353,11 +364,14 @@ func atEOF(s source) bool {
 
 func unwrapMsg(err error) string { return err.Error() }
 
+// stateBase is how the logs number electronic states: as the recipe
+// says, else 1 when no per-state column or group has index 0 (detected
+// and reported as a note), else 0.
 func (t *TrajReport) stateBase(opt Options) int {
-	if opt.Recipe != nil {
-		return opt.Recipe.StateBase
+	if opt.Recipe != nil && opt.Recipe.StateBase != nil {
+		return *opt.Recipe.StateBase
 	}
-	return 0
+	return t.base
 }
 
 // unitFor resolves the unit of a kind: the files, then the recipe, then
@@ -400,10 +414,38 @@ func (t *TrajReport) combine(opt Options) {
 		for q, v := range f.maxAbs {
 			t.maxAbs[q] = math.Max(t.maxAbs[q], v)
 		}
-		t.States = max(t.States, f.states-t.stateBase(opt))
 	}
-	if t.States < 0 {
-		t.States = 0
+	givers := map[string][]string{}
+	for _, f := range t.Files {
+		for q := range f.fmts {
+			if q != "step" && q != "time" {
+				givers[q] = append(givers[q], f.File)
+			}
+		}
+	}
+	var given []string
+	for q := range givers {
+		given = append(given, q)
+	}
+	sort.Strings(given)
+	for _, q := range given {
+		if g := givers[q]; len(g) > 1 {
+			t.add(PConflict, "warning", g[1], 0, "%s is also given by %s; the first file's values are used (map the column to ignore in a recipe to silence this)", q, g[0])
+		}
+	}
+	minState := -1
+	for _, f := range t.Files {
+		if f.minState >= 0 && (minState < 0 || f.minState < minState) {
+			minState = f.minState
+		}
+	}
+	if minState == 1 && (opt.Recipe == nil || opt.Recipe.StateBase == nil) {
+		t.base = 1
+		t.add(PUnknownFile, "note", "", 0, "states are numbered from 1 in the logs (no state 0 found); set state_base in a recipe if that is wrong")
+	}
+	base := t.stateBase(opt)
+	for _, f := range t.Files {
+		t.States = max(t.States, f.states-base, f.maxActive+1-base)
 	}
 	for q, fm := range t.formats {
 		t.Precision[q] = fm.String()
