@@ -21,6 +21,12 @@ type ConvertOptions struct {
 	// Tolerance allows lossy storage per quantity (element name ->
 	// absolute bound in the element's unit); the bound is recorded.
 	Tolerance map[string]float64
+	// BitExact stores every value as the float64 nearest to the printed
+	// decimal (lossless filters only). By default numbers are stored with
+	// the scale-offset filter at their printed decimals: digit-exact when
+	// printed at that precision, but a reader may see the last bit differ
+	// (HDF5 decodes k/10^D + min in floating point).
+	BitExact bool
 }
 
 // Result says what convert wrote and dropped.
@@ -216,17 +222,19 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 			continue
 		}
 		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
-		if !fm.Exp && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
+		if !fm.Exp && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
 			st.Decimals = fm.Decimals
 		}
 		if tol, ok := opt.Tolerance[el]; ok && tol > 0 {
-			d := int(math.Ceil(-math.Log10(2 * tol)))
-			if d < 0 {
-				d = 0
+			// Fewest decimals whose rounding error, half a unit in the
+			// last place plus float noise, stays within the bound.
+			d := max(0, int(math.Ceil(-math.Log10(2*tol))))
+			for 0.5*math.Pow10(-d)*(1+1e-9) > tol {
+				d++
 			}
 			if fm.Exp || d < fm.Decimals {
 				st.Decimals = d
-				st.Tolerance = 0.5 * math.Pow10(-d)
+				st.Tolerance = tol
 				st.Format = textnum.Format{Decimals: d}.String()
 			}
 		}

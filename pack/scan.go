@@ -510,7 +510,13 @@ func (t *TrajReport) combine(opt Options) {
 	// Units for every quantity present.
 	need := map[string]bool{"position": true}
 	for _, q := range t.Quantities {
-		if k := unitKind(q); unitDims[k] != (units.Dim{}) {
+		k := unitKind(q)
+		if k == "momentum" {
+			// Momenta are stored as velocities (p/m, masses in u): the
+			// unit asked for is that of the result.
+			k = "velocity"
+		}
+		if unitDims[k] != (units.Dim{}) {
 			need[k] = true
 		}
 	}

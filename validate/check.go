@@ -277,6 +277,13 @@ func (c *checker) dataset(path string) {
 			c.warnf("V28", path, "%s is not built into every HDF5 library; readers need a plugin; repack with deflate, shuffle or scale-offset", foreign)
 		}
 	}
+	if c.f.HasAttr(path, "trajvault_tolerance") {
+		if a, err := c.f.Attr(path, "trajvault_tolerance"); err == nil && len(a.Floats) == 1 {
+			c.warnf("V29", path, "stored lossily: values are within +-%g (in the dataset's unit) of the source, as the writer states; export cannot give back more digits", a.Floats[0])
+		} else {
+			c.errorf("V29", path, "trajvault_tolerance must be one float, the absolute bound of the lossy storage")
+		}
+	}
 	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 {
 		return
 	}

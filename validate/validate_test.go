@@ -210,6 +210,9 @@ func TestRules(t *testing.T) {
 		{"V27", Error, "time step not scalar", func(t *testing.T, f *h5.File) {
 			rewrite(t, f, "/parameters/time_step", h5.Float64, func(v []float64, d []int) ([]float64, []int) { return []float64{v[0], v[0]}, []int{2} })
 		}},
+		{"V29", Warning, "lossy storage stated", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetFloats(pg+"/velocity/value", "trajvault_tolerance", []float64{5e-7}, true))
+		}},
 		{"E1", Error, "module undeclared", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/h5md/modules/trajvault_electronic")) }},
 		{"E2", Error, "n_states missing", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/parameters/n_states")) }},
 		{"E3", Error, "n_states disagrees", func(t *testing.T, f *h5.File) {

@@ -17,6 +17,7 @@ type convertOptions struct {
 	readFlags
 	out         string
 	dropPartial bool
+	bitExact    bool
 	tolerance   []string
 	author      string
 	email       string
@@ -27,6 +28,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	o.readFlags.AddFlags(c)
 	c.Flags().StringVarP(&o.out, "output", "o", "", "trajectory file to write (must not exist)")
 	c.Flags().BoolVar(&o.dropPartial, "drop-partial", false, "drop a cut last frame instead of failing (recorded in the file)")
+	c.Flags().BoolVar(&o.bitExact, "bit-exact", false, "store each number as the float64 nearest to its printed decimal (larger files); default: scale-offset at the printed decimals, digit-exact")
 	c.Flags().StringArrayVar(&o.tolerance, "tolerance", nil, "allow lossy storage of a quantity within an absolute bound, e.g. --tolerance velocity=5e-7 (recorded in the file)")
 	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
@@ -89,7 +91,7 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 		author = os.Getenv("USER")
 	}
 	opt.DropPartial = o.dropPartial
-	res, err := pack.Convert(rep, o.out, pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol})
+	res, err := pack.Convert(rep, o.out, pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol, BitExact: o.bitExact})
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
