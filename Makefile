@@ -7,7 +7,12 @@ PYTHON ?= /usr/bin/python3
 export TRAJVAULT_PYTHON := $(PYTHON)
 export CGO_ENABLED := 1
 
-.PHONY: all build demo test deps-build deps-test vet fmt-check clean
+.PHONY: all build demo test deps-build deps-test vet fmt-check fuzz bench clean
+
+# Fuzz targets: package:Target. make test runs each for FUZZTIME_TEST.
+FUZZ_TARGETS := ./pack:FuzzXYZ ./pack:FuzzTable ./pack:FuzzLog ./internal/textnum:FuzzParse
+FUZZTIME_TEST ?= 4s
+FUZZTIME ?= 5m
 
 all: build
 
@@ -36,6 +41,21 @@ vet: deps-build
 
 test: deps-test fmt-check vet
 	$(GO) test -count=1 ./...
+	@for t in $(FUZZ_TARGETS); do \
+		echo "fuzz $$t ($(FUZZTIME_TEST))"; \
+		$(GO) test $${t%%:*} -run '^$$' -fuzz "^$${t##*:}\$$" -fuzztime $(FUZZTIME_TEST) >/dev/null || exit 1; \
+	done
+
+# fuzz: run every fuzz target longer (FUZZTIME=5m by default).
+fuzz: deps-test
+	@for t in $(FUZZ_TARGETS); do \
+		echo "fuzz $$t ($(FUZZTIME))"; \
+		$(GO) test $${t%%:*} -run '^$$' -fuzz "^$${t##*:}\$$" -fuzztime $(FUZZTIME) || exit 1; \
+	done
+
+# bench: conversion speed and size against general-purpose compressors.
+bench: build
+	bench/run.sh
 
 clean:
 	rm -rf bin demo .tools

@@ -45,6 +45,12 @@ func (l *lineReader) next() ([]byte, error) {
 	return b, nil
 }
 
+// atEOF reports whether no bytes are left.
+func (l *lineReader) atEOF() bool {
+	_, err := l.br.Peek(1)
+	return err != nil
+}
+
 // field is one whitespace- or delimiter-separated field with its 1-based
 // column.
 type field struct {

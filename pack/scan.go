@@ -7,7 +7,6 @@ import (
 	"math"
 	"os"
 	"sort"
-	"strings"
 
 	"trajvault/internal/elements"
 	"trajvault/internal/textnum"
@@ -21,6 +20,7 @@ type Problem struct {
 	Severity string `json:"severity"` // error, warning or note
 	File     string `json:"file,omitempty"`
 	Line     int    `json:"line,omitempty"`
+	Column   int    `json:"column,omitempty"`
 	Message  string `json:"message"`
 }
 
@@ -63,6 +63,7 @@ type FileReport struct {
 	minState  int // lowest per-state index with a value (-1 none)
 	maxActive int
 	active    bool
+	failed    bool // reading stopped at an error (other problems follow from it)
 	// times of the first and last kept records, when the file has times
 	hasTime             bool
 	timeFirst, timeLast float64
@@ -224,25 +225,26 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			break
 		}
 		if err != nil {
-			var pe *ParseError
-			line := 0
-			if errors.As(err, &pe) {
-				line = pe.Line
-			}
+			code, msg := PUnreadable, err.Error()
 			switch {
 			case errors.Is(err, ErrTruncated):
-				rep.add(PTruncated, "error", s.file(), line, "%v; convert with --drop-partial to drop it", unwrapMsg(err))
-				fr.partial = idx
-			case errors.Is(err, ErrFieldCount) && atEOF(s):
-				rep.add(PTruncated, "error", s.file(), line, "last row is cut: %v; convert with --drop-partial to drop it", unwrapMsg(err))
+				code, msg = PTruncated, msg+"; convert with --drop-partial to drop it"
 				fr.partial = idx
 			case errors.Is(err, ErrNonFinite):
-				rep.add(PNonFinite, "error", s.file(), line, "%v", unwrapMsg(err))
+				code = PNonFinite
 			case errors.Is(err, ErrAtomCount):
-				rep.add(PAtomCount, "error", s.file(), line, "%v", unwrapMsg(err))
-			default:
-				rep.add(PUnreadable, "error", s.file(), line, "%v", unwrapMsg(err))
+				code = PAtomCount
 			}
+			p := Problem{Code: code, Severity: "error", File: s.file(), Message: msg}
+			var pe *ParseError
+			if errors.As(err, &pe) {
+				p.Line, p.Column, p.Message = pe.Line, pe.Column, pe.Err.Error()
+				if code == PTruncated {
+					p.Message += "; convert with --drop-partial to drop it"
+				}
+			}
+			rep.Problems = append(rep.Problems, p)
+			fr.failed = code != PTruncated
 			break
 		}
 		if rec.frame != nil {
@@ -344,25 +346,6 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 	rep.Hops += len(s.hops())
 	return fr
 }
-
-// atEOF reports whether a table source has no more lines.
-func atEOF(s source) bool {
-	ts, ok := s.(*tableSource)
-	if !ok {
-		return false
-	}
-	for {
-		b, err := ts.t.lr.next()
-		if err != nil {
-			return true
-		}
-		if strings.TrimSpace(string(b)) != "" {
-			return false
-		}
-	}
-}
-
-func unwrapMsg(err error) string { return err.Error() }
 
 // stateBase is how the logs number electronic states: as the recipe
 // says, else 1 when no per-state column or group has index 0 (detected
@@ -477,7 +460,7 @@ func (t *TrajReport) combine(opt Options) {
 		}
 	}
 	for _, f := range t.Files {
-		if f == geo || f == clock || f.Kept == 0 {
+		if f == geo || f == clock || f.Kept == 0 || f.failed || geo.failed {
 			continue
 		}
 		if f.hasSteps && clock.hasSteps {

@@ -45,7 +45,7 @@ func NewTableReader(r io.Reader, file string) (*TableReader, error) {
 	for {
 		b, err := t.lr.next()
 		if err == io.EOF {
-			return nil, &ParseError{File: file, Line: t.lr.line, Err: detail(ErrHeader, "no data rows")}
+			return nil, &ParseError{File: file, Line: max(t.lr.line, 1), Err: detail(ErrHeader, "no data rows")}
 		} else if err != nil {
 			return nil, err
 		}
@@ -151,6 +151,8 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 		col := len(b) + 1
 		if len(t.fields) > len(t.Columns) {
 			col = t.fields[len(t.Columns)].col
+		} else if t.lr.atEOF() && t.pending == nil {
+			return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrTruncated, "the last row has %d of %d fields", len(t.fields), len(t.Columns))}
 		}
 		return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrFieldCount, "expected %d fields (%s), found %d; a short last line usually means the file was cut", len(t.Columns), t.names(), len(t.fields))}
 	}

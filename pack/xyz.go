@@ -128,6 +128,9 @@ func (x *XYZReader) Next() (*Frame, error) {
 		x.fields = splitFields(b, 0, x.fields)
 		if len(x.fields) < width {
 			col := len(b) + 1
+			if x.lr.atEOF() {
+				return nil, x.errAt(x.lr.line, col, detail(ErrTruncated, "frame %d (count line %d): the last atom line has %d of %d fields", x.frames+1, countLine, len(x.fields), width))
+			}
 			return nil, x.errAt(x.lr.line, col, detail(ErrFieldCount, "expected %d fields (%s), found %d; a short line usually means the file was cut", width, describe(props), len(x.fields)))
 		}
 		if len(x.fields) > width && fr.Extended {

@@ -103,6 +103,9 @@ func printScan(g *globals, r *pack.TrajReport) {
 		if p.Line > 0 {
 			loc = fmt.Sprintf("%s:%d", p.File, p.Line)
 		}
+		if p.Column > 0 {
+			loc = fmt.Sprintf("%s:%d", loc, p.Column)
+		}
 		if loc != "" {
 			loc += ": "
 		}

@@ -1,0 +1,101 @@
+package pack
+
+import (
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+)
+
+func testdata(parts ...string) string {
+	_, self, _, _ := runtime.Caller(0)
+	return filepath.Join(append([]string{filepath.Dir(self), "..", "testdata"}, parts...)...)
+}
+
+var posUnit = Options{Units: map[string]string{"position": "angstrom"}}
+
+// TestScanPlanted: each folder of testdata/ensembles/problems plants one
+// problem, named by the folder's prefix (p5-... plants P5); scan must
+// report it.
+func TestScanPlanted(t *testing.T) {
+	trajs, err := Discover(testdata("ensembles", "problems"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(trajs) < 12 {
+		t.Fatalf("found %d fixtures", len(trajs))
+	}
+	for _, tr := range trajs {
+		want := strings.ToUpper(strings.SplitN(tr.Name, "-", 2)[0])
+		t.Run(tr.Name, func(t *testing.T) {
+			rep := Scan(tr, posUnit)
+			found := false
+			for _, p := range rep.Problems {
+				if p.Code == want {
+					found = true
+					t.Logf("%s %s:%d %s", p.Code, filepath.Base(p.File), p.Line, p.Message)
+				}
+			}
+			if !found {
+				t.Errorf("want %s, got %+v", want, rep.Problems)
+			}
+		})
+	}
+	rc, err := LoadRecipe(testdata("ensembles", "p2-missing", "recipe.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	trajs, err = Discover(testdata("ensembles", "p2-missing"), rc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep := Scan(trajs[0], Options{Recipe: rc}); !hasCode(rep, PMissing) {
+		t.Errorf("want P2, got %+v", rep.Problems)
+	}
+}
+
+func hasCode(r *TrajReport, code string) bool {
+	for _, p := range r.Problems {
+		if p.Code == code {
+			return true
+		}
+	}
+	return false
+}
+
+func TestScanClean(t *testing.T) {
+	trajs, err := Discover(testdata("ensembles", "clean"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, tr := range trajs {
+		rep := Scan(tr, posUnit)
+		if rep.Findings() != 0 {
+			t.Errorf("%s: %+v", tr.Name, rep.Problems)
+		}
+		if rep.Frames != 6 || rep.Atoms != 3 || rep.LastStep != 50 || rep.TimeLast != 25 {
+			t.Errorf("%s: %d frames %d atoms steps ..%d time ..%g", tr.Name, rep.Frames, rep.Atoms, rep.LastStep, rep.TimeLast)
+		}
+	}
+}
+
+// TestParseErrorsLocate: bad input names file, line and column.
+func TestParseErrorsLocate(t *testing.T) {
+	p := testdata("ensembles", "problems", "p9-bad-number", "energies.dat")
+	f, _ := os.Open(p)
+	defer f.Close()
+	tr, err := NewTableReader(f, p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	row := make([]float64, len(tr.Columns))
+	var perr error
+	for perr == nil {
+		_, perr = tr.Next(row)
+	}
+	pe, ok := perr.(*ParseError)
+	if !ok || pe.Line != 3 || pe.Column != 21 || !strings.Contains(pe.Error(), `found "x.00110000"`) {
+		t.Errorf("error = %v", perr)
+	}
+}
