@@ -143,20 +143,21 @@ type element struct {
 
 // Writer writes one trajectory file. Its first error is sticky.
 type Writer struct {
-	spec   Spec
-	final  string
-	tmp    string
-	f      *h5.File
-	n      int
-	chunk  int
-	step   *element
-	time   *element
-	elems  []*element
-	get    []func(*Frame) ([]float64, error)
-	hops   []Hop
-	frames int
-	err    error
-	closed bool
+	spec     Spec
+	final    string
+	tmp      string
+	f        *h5.File
+	n        int
+	chunk    int
+	step     *element
+	time     *element
+	elems    []*element
+	get      []func(*Frame) ([]float64, error)
+	hops     []Hop
+	frames   int
+	lastStep int64
+	err      error
+	closed   bool
 }
 
 const pgroup = "/particles/" + Group
@@ -423,10 +424,11 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 	if w.closed {
 		return errors.New("trajfile: WriteFrame after Close")
 	}
-	if w.frames > 0 && fr.Step <= int64(w.step.ibuf[len(w.step.ibuf)-1]) && len(w.step.ibuf) > 0 {
-		w.err = fmt.Errorf("frame %d: step %d does not follow step %d", w.frames, fr.Step, w.step.ibuf[len(w.step.ibuf)-1])
+	if w.frames > 0 && fr.Step <= w.lastStep {
+		w.err = fmt.Errorf("frame %d: step %d does not follow step %d; steps must increase", w.frames, fr.Step, w.lastStep)
 		return w.err
 	}
+	w.lastStep = fr.Step
 	for i, get := range w.get {
 		v, err := get(fr)
 		if err != nil {

@@ -1,0 +1,93 @@
+package main
+
+import (
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"testing"
+
+	"trajvault/internal/h5"
+)
+
+func repo(parts ...string) string {
+	_, self, _, _ := runtime.Caller(0)
+	return filepath.Join(append([]string{filepath.Dir(self), "..", ".."}, parts...)...)
+}
+
+// TestTextToDepositFile runs the job end to end on the invented demo logs:
+// demo --text, scan, convert, validate (clean), export (digit for digit),
+// and an independent read of the converted file with h5py.
+func TestTextToDepositFile(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "logs")
+	recipe := repo("testdata", "recipes", "tarnol.yaml")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "2", "--steps", "300", dir); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	code, out, errs := runCLI("scan", "--recipe", recipe, dir)
+	if code != 0 || !strings.Contains(out, "2 trajectories, 0 problems") {
+		t.Fatalf("scan: exit %d\n%s%s", code, out, errs)
+	}
+	h5path := filepath.Join(t.TempDir(), "traj-001.h5")
+	code, out, errs = runCLI("convert", "--recipe", recipe, filepath.Join(dir, "traj-001"), "-o", h5path)
+	if code != 0 {
+		t.Fatalf("convert: exit %d\n%s%s", code, out, errs)
+	}
+	if code, out, _ = runCLI("convert", "--recipe", recipe, filepath.Join(dir, "traj-001"), "-o", h5path); code != 2 {
+		t.Errorf("second convert over an existing output: exit %d", code)
+	}
+	code, out, _ = runCLI("validate", h5path)
+	if code != 0 || !strings.Contains(out, "ok, 0 errors, 0 warnings") {
+		t.Fatalf("validate: %s", out)
+	}
+	exp := filepath.Join(t.TempDir(), "back")
+	if code, _, errs := runCLI("export", h5path, "-o", exp); code != 0 {
+		t.Fatalf("export: %s", errs)
+	}
+	src, _ := os.ReadFile(filepath.Join(dir, "traj-001", "geom.xyz"))
+	back, _ := os.ReadFile(filepath.Join(exp, "traj.xyz"))
+	if norm(src) != norm(back) {
+		t.Error("exported XYZ differs from the source log (after collapsing spaces)")
+	}
+
+	// h5py (Debian python3-h5py) reads the converted positions to the
+	// same bytes trajvault reads.
+	py := os.Getenv("TRAJVAULT_PYTHON")
+	if py == "" {
+		py = "/usr/bin/python3"
+	}
+	raw, err := exec.Command(py, repo("testdata", "interop", "h5py_dump.py"), h5path).Output()
+	if err != nil {
+		t.Fatalf("h5py: %v", err)
+	}
+	var dump struct {
+		Objects map[string]struct {
+			SHA256 string `json:"sha256"`
+		} `json:"objects"`
+	}
+	json.Unmarshal(raw, &dump)
+	f, err := h5.Open(h5path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	for _, p := range []string{"/particles/all/position/value", "/observables/electronic/populations/value", "/particles/all/position/time"} {
+		v, _, _ := f.ReadFloat64(p)
+		b := make([]byte, 8*len(v))
+		for i, x := range v {
+			binary.LittleEndian.PutUint64(b[8*i:], math.Float64bits(x))
+		}
+		sum := sha256.Sum256(b)
+		if got := hex.EncodeToString(sum[:]); got != dump.Objects[p].SHA256 {
+			t.Errorf("%s: h5py reads other bytes", p)
+		}
+	}
+}
+
+func norm(b []byte) string { return strings.Join(strings.Fields(string(b)), " ") }
