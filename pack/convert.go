@@ -21,6 +21,10 @@ type ConvertOptions struct {
 	// Tolerance allows lossy storage per quantity (element name ->
 	// absolute bound in the element's unit); the bound is recorded.
 	Tolerance map[string]float64
+	// SeriesFrames sets the time-series chunking of per-atom elements
+	// (trajfile.Spec.SeriesFrames); 0 = DefaultSeriesFrames, -1 = chunks
+	// of whole frames.
+	SeriesFrames int
 	// BitExact stores every value as the float64 nearest to the printed
 	// decimal (lossless filters only). By default numbers are stored with
 	// the scale-offset filter at their printed decimals: digit-exact when
@@ -36,6 +40,21 @@ type Result struct {
 	Hops    int               `json:"hops"`
 	Dropped []string          `json:"dropped"`
 	Storage map[string]string `json:"storage"`
+}
+
+// DefaultSeriesFrames is the time-series chunk length, chosen by
+// measurement (bench/results.md): long enough that per-chunk overhead is
+// small, short enough that an atom's range within a chunk stays small.
+const DefaultSeriesFrames = 1024
+
+func seriesFrames(n int) int {
+	switch {
+	case n < 0:
+		return 0
+	case n == 0:
+		return DefaultSeriesFrames
+	}
+	return n
 }
 
 // elementOf maps log quantities to layout element names.
@@ -193,10 +212,11 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		Force:    has("force"),
 		Kinetic:  has("kinetic_energy"), Potential: has("potential_energy"), Total: has("total_energy"),
 		NStates: rep.States, StateEnergies: has("state_energy"), Populations: has("population"),
-		ActiveState: rep.States > 0 && rep.hasActive(),
-		Hops:        rep.Hops > 0,
-		Storage:     map[string]trajfile.Storage{},
-		Attrs:       map[string]string{},
+		ActiveState:  rep.States > 0 && rep.hasActive(),
+		Hops:         rep.Hops > 0,
+		Storage:      map[string]trajfile.Storage{},
+		SeriesFrames: seriesFrames(opt.SeriesFrames),
+		Attrs:        map[string]string{},
 	}
 	if rep.masses != nil {
 		spec.Units.Mass = u["mass"]
@@ -311,10 +331,40 @@ func (k *keptIter) next() (*record, error) {
 	}
 }
 
-// stream is the second pass: it walks the geometry frames and joins the
-// other files' records to them by step (or by order when there are no
-// steps), writing one frame at a time.
+// stream is the second pass: frames are assembled one at a time and
+// written as they come.
 func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptions, res *Result) error {
+	// Parsing runs in this goroutine and HDF5 writing (compression) in
+	// another, so one conversion keeps two cores busy.
+	type item struct {
+		fr   *trajfile.Frame
+		line int
+	}
+	ch := make(chan item, 256)
+	werr := make(chan error, 1)
+	go func() {
+		var err error
+		for it := range ch {
+			if err == nil {
+				if e := w.WriteFrame(it.fr); e != nil {
+					err = fmt.Errorf("%s:%d: %w", rep.Files[0].File, it.line, e)
+				}
+			}
+		}
+		werr <- err
+	}()
+	perr := produce(rep, srcs, opt, func(fr *trajfile.Frame, line int) { ch <- item{fr, line} })
+	close(ch)
+	if err := <-werr; err != nil {
+		return err
+	}
+	return perr
+}
+
+// produce walks the geometry frames and joins the other files' records
+// to them by step (or by order when there are no steps), handing each
+// assembled frame to emit.
+func produce(rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*trajfile.Frame, int)) error {
 	var geo *keptIter
 	var others []*keptIter
 	for i, s := range srcs {
@@ -328,7 +378,6 @@ func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptio
 	base := rep.stateBase(opt.Options)
 	S := rep.States
 	pending := make([]*record, len(others))
-	fr := &trajfile.Frame{}
 	for n := 0; ; n++ {
 		g, err := geo.next()
 		if err == io.EOF {
@@ -337,7 +386,7 @@ func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptio
 		if err != nil {
 			return err
 		}
-		*fr = trajfile.Frame{ActiveState: 0}
+		fr := &trajfile.Frame{}
 		merged := *g
 		key := int64(n)
 		if g.hasStep {
@@ -409,9 +458,7 @@ func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptio
 			fr.Populations = shiftStates(merged.pop, base, S)
 			fr.ActiveState = merged.active - base
 		}
-		if err := w.WriteFrame(fr); err != nil {
-			return fmt.Errorf("%s:%d: %w", geo.src.file(), g.line, err)
-		}
+		emit(fr, g.line)
 	}
 }
 

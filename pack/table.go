@@ -190,7 +190,7 @@ func (t *TableReader) names() string {
 // table is documented in README.md; names are compared case-insensitively
 // with '_', '-' and spaces removed.
 func Vocabulary(name string) (string, int) {
-	n := strings.ToLower(strings.NewReplacer("_", "", "-", "", " ", "", ".", "").Replace(name))
+	n := strings.ToLower(nameNoise.Replace(name))
 	switch n {
 	case "step", "nstep", "istep", "steps":
 		return "step", -1
@@ -217,5 +217,7 @@ func Vocabulary(name string) (string, int) {
 	}
 	return "", -1
 }
+
+var nameNoise = strings.NewReplacer("_", "", "-", "", " ", "", ".", "")
 
 var stateCol = regexp.MustCompile(`^([a-z]+?)s?(\d+)$`)

@@ -6,7 +6,9 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"runtime"
 	"sort"
+	"sync"
 
 	"github.com/spf13/cobra"
 
@@ -22,6 +24,7 @@ type convertOptions struct {
 	author      string
 	email       string
 	json        bool
+	jobs        int
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -33,16 +36,20 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
+	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
 }
 
 func newConvertCommand(g *globals) *cobra.Command {
 	var o convertOptions
 	c := &cobra.Command{
 		Use:   "convert SRC... -o OUT.h5",
-		Short: "Convert the text logs of one trajectory into a trajectory file",
+		Short: "Convert the text logs of a trajectory (or of an ensemble) into trajectory files",
 		Long: `convert reads one trajectory - a folder, or its files (an XYZ or extended
 XYZ geometry file and column tables) - and writes it as one HDF5 file in
-the trajvault layout. Numbers are stored at exactly the precision printed
+the trajvault layout. Given an ensemble folder (one subfolder per
+trajectory, or as the recipe says), it writes one file per trajectory into
+the folder named by -o, --jobs at a time; all or nothing: if any
+trajectory has problems, nothing is written. Numbers are stored at exactly the precision printed
 in the logs (scale-offset filter) or losslessly; export prints them back
 digit for digit. Restarted runs that repeat steps keep the later
 occurrence; a cut last frame is an error unless --drop-partial. What was
@@ -75,6 +82,11 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 	}
 	if _, err := os.Stat(o.out); err == nil {
 		return &exitError{exitUsage, fmt.Errorf("convert: %s already exists; trajvault never overwrites outputs", o.out)}
+	}
+	if len(args) == 1 {
+		if trajs, err := pack.Discover(args[0], opt.Recipe); err == nil && (len(trajs) > 1 || filepath.Clean(trajs[0].Dir) != filepath.Clean(args[0])) {
+			return convertEnsemble(g, o, opt, tol, trajs)
+		}
 	}
 	t, err := pack.TrajectoryFrom(args, opt.Recipe)
 	if err != nil {
@@ -122,4 +134,79 @@ func onlyPartial(r *pack.TrajReport) bool {
 		}
 	}
 	return true
+}
+
+// convertEnsemble converts every trajectory of an ensemble folder into
+// o.out/<name>.h5, o.jobs at a time. Parsing runs in parallel; HDF5 calls
+// are serialised by the HDF5 layer.
+func convertEnsemble(g *globals, o convertOptions, opt pack.Options, tol map[string]float64, trajs []*pack.Trajectory) error {
+	reps := make([]*pack.TrajReport, len(trajs))
+	parallel(len(trajs), o.jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
+	bad := 0
+	for _, r := range reps {
+		if r.Errors() > 0 && !(o.dropPartial && onlyPartial(r)) {
+			printScan(g, r)
+			bad++
+		}
+	}
+	if bad > 0 {
+		fmt.Fprintf(g.stderr, "trajvault: convert: %d of %d trajectories have problems; nothing written\n", bad, len(trajs))
+		return errFindings
+	}
+	tmp := o.out + ".partial"
+	os.RemoveAll(tmp)
+	if err := os.MkdirAll(tmp, 0o755); err != nil {
+		return &exitError{exitUsage, err}
+	}
+	author := o.author
+	if author == "" {
+		author = os.Getenv("USER")
+	}
+	opt.DropPartial = o.dropPartial
+	results := make([]*pack.Result, len(trajs))
+	errs := make([]error, len(trajs))
+	parallel(len(trajs), o.jobs, func(i int) {
+		results[i], errs[i] = pack.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), pack.ConvertOptions{
+			Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol, BitExact: o.bitExact})
+	})
+	for _, err := range errs {
+		if err != nil {
+			os.RemoveAll(tmp)
+			return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
+		}
+	}
+	if err := os.Rename(tmp, o.out); err != nil {
+		os.RemoveAll(tmp)
+		return &exitError{exitUsage, err}
+	}
+	if o.json {
+		b, _ := json.MarshalIndent(results, "", "  ")
+		fmt.Fprintln(g.stdout, string(b))
+		return nil
+	}
+	frames := 0
+	for _, r := range results {
+		frames += r.Frames
+	}
+	fmt.Fprintf(g.stdout, "%d trajectories, %d frames -> %s/\n", len(results), frames, filepath.Clean(o.out))
+	return nil
+}
+
+// parallel calls fn(0..n-1) with at most jobs calls at once.
+func parallel(n, jobs int, fn func(int)) {
+	if jobs < 1 {
+		jobs = 1
+	}
+	sem := make(chan struct{}, jobs)
+	var wg sync.WaitGroup
+	for i := 0; i < n; i++ {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func(i int) {
+			defer wg.Done()
+			defer func() { <-sem }()
+			fn(i)
+		}(i)
+	}
+	wg.Wait()
 }

@@ -18,6 +18,7 @@ type demoOptions struct {
 	text         bool
 	stride       int
 	decimals     int
+	molecules    int
 }
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
@@ -27,6 +28,7 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
 	c.Flags().IntVar(&o.stride, "stride", 1, "with --text: write every n-th step")
 	c.Flags().IntVar(&o.decimals, "decimals", 8, "with --text: decimals of the positions")
+	c.Flags().IntVar(&o.molecules, "molecules", 1, "with --text: copies of the molecule in the geometry (for benchmarks of larger systems)")
 }
 
 func newDemoCommand(g *globals) *cobra.Command {
@@ -68,7 +70,7 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
 		var err error
 		if o.text {
-			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals})
+			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals, Molecules: o.molecules})
 		} else {
 			err = demo.WriteH5(filepath.Join(tmp, fmt.Sprintf("traj-%03d.h5", i+1)), opt)
 		}

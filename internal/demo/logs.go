@@ -12,6 +12,10 @@ type LogOptions struct {
 	Options
 	Stride   int // write every Stride-th step
 	Decimals int // decimals of positions
+	// Molecules > 1 adds spectator copies of the molecule (own seeds,
+	// 10 angstrom apart) to the geometry, for benchmarks of larger
+	// systems; observables stay those of the first molecule.
+	Molecules int
 }
 
 // WriteLogs runs one demo trajectory and writes it as the fictional
@@ -57,6 +61,19 @@ func WriteLogs(dir string, o LogOptions) error {
 	fmt.Fprintf(ev, "tarnol surface hopping event log (invented demo data)\n")
 	syms := []string{"O", "H", "H"}
 	pd := o.Decimals
+	// Spectators: run first, keep their stored frames (9 floats each).
+	var spect [][]float64
+	for k := 1; k < o.Molecules; k++ {
+		var xs []float64
+		m.Run(o.Seed*1000+uint64(k), o.Steps, dtAu, o.Temp, func(s *Step) {
+			if s.N%int64(o.Stride) == 0 {
+				xs = append(xs, s.X...)
+			}
+		})
+		spect = append(spect, xs)
+	}
+	natoms := 3 * max(o.Molecules, 1)
+	frame := 0
 	m.Run(o.Seed, o.Steps, dtAu, o.Temp, func(s *Step) {
 		if s.HopTo >= 0 {
 			kind := "accepted"
@@ -70,11 +87,20 @@ func WriteLogs(dir string, o LogOptions) error {
 			return
 		}
 		t := float64(s.N) * o.DtFs
-		fmt.Fprintf(geom, "3\nstep=%d time=%.4f\n", s.N, t)
+		fmt.Fprintf(geom, "%d\nstep=%d time=%.4f\n", natoms, s.N, t)
 		for i := 0; i < 3; i++ {
 			fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f\n", syms[i],
 				pd+6, pd, s.X[3*i]*toAng, pd+6, pd, s.X[3*i+1]*toAng, pd+6, pd, s.X[3*i+2]*toAng)
 		}
+		for k, xs := range spect {
+			off := 10.0 * float64(k+1)
+			x := xs[9*frame : 9*frame+9]
+			for i := 0; i < 3; i++ {
+				fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f\n", syms[i],
+					pd+6, pd, x[3*i]*toAng+off, pd+6, pd, x[3*i+1]*toAng, pd+6, pd, x[3*i+2]*toAng)
+			}
+		}
+		frame++
 		e := s.Energies[s.Active]
 		fmt.Fprintf(en, "%8d %10.4f %16.10f %16.10f %16.10f %2d\n", s.N, t, s.Kinetic, e, s.Kinetic+e, s.Active+1)
 		p0 := real(s.C[0])*real(s.C[0]) + imag(s.C[0])*imag(s.C[0])

@@ -68,6 +68,14 @@ type Spec struct {
 	// kinetic_energy, ..., state_energies, populations), how the numbers
 	// were printed and how to store them; absent = lossless float64.
 	Storage map[string]Storage
+	// SeriesFrames > 0 chunks per-atom elements (position, velocity,
+	// force) as time series: one chunk holds SeriesFrames frames of one
+	// coordinate of one atom. With scale-offset this stores each chunk in
+	// the bits its own small range needs (an atom moves little within a
+	// chunk), at the cost of reading many chunks for one frame. The writer
+	// then buffers SeriesFrames frames (memory SeriesFrames x N x 3 x 8
+	// bytes per element, independent of the run's length).
+	SeriesFrames int
 }
 
 // Storage of one element's numbers.
@@ -190,6 +198,9 @@ func Create(path string, spec Spec) (*Writer, error) {
 		spec.Boundary = []string{"none", "none", "none"}
 	}
 	chunk := spec.ChunkFrames
+	if spec.SeriesFrames > 0 {
+		chunk = spec.SeriesFrames
+	}
 	if chunk <= 0 {
 		// About 256 KiB of positions per chunk: large enough to compress
 		// well, small enough to read a few frames cheaply.
@@ -292,6 +303,9 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	dims := append([]int{0}, shape...)
 	maxd := append([]int{h5.Unlimited}, shape...)
 	chunk := append([]int{w.chunk}, shape...)
+	if w.spec.SeriesFrames > 0 && len(shape) == 2 && typ == h5.Float64 {
+		chunk = []int{w.spec.SeriesFrames, 1, 1}
+	}
 	name := group[strings.LastIndexByte(group, '/')+1:]
 	fl, st, stored := w.filtersFor(name)
 	if typ != h5.Float64 {
