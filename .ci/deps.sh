@@ -4,6 +4,7 @@
 #
 #   .ci/deps.sh build   C library and pkg-config for the cgo HDF5 layer
 #   .ci/deps.sh test    also the independent readers used by the tests
+#   .ci/deps.sh bench   also the compressors the benchmark compares with
 #   .ci/deps.sh go      print the path of a Go toolchain, fetching one from
 #                       the Go module proxy when none is installed
 set -euo pipefail
@@ -50,6 +51,7 @@ find_go() {
 case "${1:-}" in
 build) apt_install libhdf5-dev pkg-config gcc ;;
 test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase ;;
+bench) apt_install libhdf5-dev pkg-config gcc zstd xz-utils gzip time ;;
 go) find_go ;;
-*) echo "usage: $0 build|test|go" >&2; exit 2 ;;
+*) echo "usage: $0 build|test|bench|go" >&2; exit 2 ;;
 esac

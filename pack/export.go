@@ -111,6 +111,26 @@ func (q *quantityData) rows(f *h5.File, start, n int) error {
 	if q == nil {
 		return nil
 	}
+	if q.shape.Rank == 0 {
+		// H5MD fixed mode: value i = offset + i increment.
+		inc, _, err := f.ReadFloat64(q.path)
+		if err != nil || len(inc) != 1 {
+			return fmt.Errorf("export: %s: cannot read the fixed-mode increment", q.path)
+		}
+		off := 0.0
+		if a, err := f.Attr(q.path, "offset"); err == nil {
+			if len(a.Floats) == 1 {
+				off = a.Floats[0]
+			} else if len(a.Ints) == 1 {
+				off = float64(a.Ints[0])
+			}
+		}
+		q.buf = q.buf[:0]
+		for i := start; i < start+n; i++ {
+			q.buf = append(q.buf, off+float64(i)*inc[0])
+		}
+		return nil
+	}
 	var err error
 	q.buf, err = f.ReadRows(q.path, q.shape, start, n)
 	return err
@@ -228,7 +248,7 @@ func exportCSV(f *h5.File, out string) error {
 	w := bufio.NewWriterSize(fh, 1<<20)
 	var b []byte
 	for i, q := range cols {
-		width := q.shape.Len() / max(q.shape.Dims[0], 1)
+		width := q.width()
 		for k := 0; k < width; k++ {
 			if i > 0 || k > 0 {
 				b = append(b, ',')
@@ -247,7 +267,7 @@ func exportCSV(f *h5.File, out string) error {
 	}
 	b = append(b, '\n')
 	w.Write(b)
-	T := step.shape.Dims[0]
+	T := tm.frames(f, g)
 	for start := 0; start < T; start += exportBlock {
 		cnt := min(exportBlock, T-start)
 		for _, q := range cols {
@@ -259,7 +279,7 @@ func exportCSV(f *h5.File, out string) error {
 		for t := 0; t < cnt; t++ {
 			b = b[:0]
 			for i, q := range cols {
-				width := q.shape.Len() / max(q.shape.Dims[0], 1)
+				width := q.width()
 				for k := 0; k < width; k++ {
 					if i > 0 || k > 0 {
 						b = append(b, ',')
@@ -281,4 +301,21 @@ func exportCSV(f *h5.File, out string) error {
 		return err
 	}
 	return fh.Close()
+}
+
+// width is the number of values per frame.
+func (q *quantityData) width() int {
+	if q.shape.Rank == 0 {
+		return 1
+	}
+	return q.shape.Len() / max(q.shape.Dims[0], 1)
+}
+
+// frames is the number of frames, from the position values.
+func (q *quantityData) frames(f *h5.File, g string) int {
+	info, err := f.Info(g + "/position/value")
+	if err != nil || info.Shape.Rank == 0 {
+		return 0
+	}
+	return info.Shape.Dims[0]
 }

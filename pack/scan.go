@@ -10,6 +10,7 @@ import (
 
 	"trajvault/internal/elements"
 	"trajvault/internal/textnum"
+	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 )
 
@@ -64,6 +65,13 @@ type FileReport struct {
 	maxActive int
 	active    bool
 	failed    bool // reading stopped at an error (other problems follow from it)
+	// uniform sampling: every record at step s0 + k stride and time
+	// t0 + k dt (to a quarter of the printed last digit)
+	uniform  bool
+	stride   int64
+	dt, t0   float64
+	s0       int64
+	nUniform int
 	// times of the first and last kept records, when the file has times
 	hasTime             bool
 	timeFirst, timeLast float64
@@ -90,6 +98,7 @@ type TrajReport struct {
 
 	traj    *Trajectory
 	base    int
+	clock   *trajfile.FixedClock
 	symbols []string
 	masses  []float64
 	formats map[string]textnum.Format
@@ -323,6 +332,7 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			rep.add(PTime, "error", s.file(), rec.line, "time %g after %g while the step advances: the clock goes backwards; check the log", rec.time, prevTime)
 		}
 		fr.keys.push(idx, key)
+		fr.checkUniform(rec, key, s.formats()["time"])
 		if rec.hasTime {
 			prevTime, prevStep, havePrev = rec.time, rec.step, true
 		}
@@ -490,6 +500,11 @@ func (t *TrajReport) combine(opt Options) {
 	if t.LastStep > t.FirstStep {
 		t.TimeStep = (t.TimeLast - t.TimeFirst) / float64(t.LastStep-t.FirstStep)
 	}
+	// A uniformly sampled clock (no restarts, one stride, linear times)
+	// is stored in H5MD fixed mode.
+	if tf := t.timeFile(geo); tf != nil && tf == clock && tf.uniform && tf.nUniform == tf.Kept && len(tf.dropped) == 0 && tf.Kept > 1 {
+		t.clock = &trajfile.FixedClock{StepOffset: tf.s0, StepIncrement: tf.stride, TimeOffset: tf.t0, TimeIncrement: tf.dt}
+	}
 	// Units for every quantity present.
 	need := map[string]bool{"position": true}
 	for _, q := range t.Quantities {
@@ -532,4 +547,48 @@ func (t *TrajReport) combine(opt Options) {
 var exampleUnit = map[string]string{
 	"position": "angstrom", "velocity": "angstrom fs-1", "force": "hartree bohr-1", "momentum": "u angstrom fs-1",
 	"mass": "u", "time": "fs", "energy": "hartree",
+}
+
+// checkUniform follows whether the records so far are uniformly sampled
+// in step and time, so that the clock can be stored in H5MD fixed mode.
+func (fr *FileReport) checkUniform(rec *record, key int64, tf textnum.Format) {
+	if !rec.hasTime || tf.Exp {
+		fr.uniform = false
+		fr.nUniform = -1
+		return
+	}
+	switch fr.nUniform {
+	case -1:
+		return
+	case 0:
+		fr.s0, fr.t0, fr.uniform = key, rec.time, true
+	case 1:
+		fr.stride, fr.dt = key-fr.s0, rec.time-fr.t0
+		if fr.stride <= 0 || fr.dt <= 0 {
+			fr.uniform, fr.nUniform = false, -1
+			return
+		}
+	default:
+		k := int64(fr.nUniform)
+		want := fr.t0 + float64(k)*fr.dt
+		if key != fr.s0+k*fr.stride || math.Abs(rec.time-want) > 0.25*tf.Step() {
+			fr.uniform, fr.nUniform = false, -1
+			return
+		}
+	}
+	fr.nUniform++
+}
+
+// timeFile is the file whose times the frames take: the geometry's, else
+// the first other file with times.
+func (t *TrajReport) timeFile(geo *FileReport) *FileReport {
+	if geo.hasTime {
+		return geo
+	}
+	for _, f := range t.Files {
+		if f.hasTime {
+			return f
+		}
+	}
+	return nil
 }

@@ -187,7 +187,7 @@ func (c *checker) hops(S int, active *tdElement, b bindings) {
 			c.errorf("E8", g+"/step", "row %d: step %d before step %d; hops must be in time order", i, cols["step"][i], cols["step"][i-1])
 		}
 	}
-	if active == nil || active.fixed || len(active.steps) == 0 {
+	if active == nil || len(active.steps) == 0 {
 		return
 	}
 	steps := active.steps

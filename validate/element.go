@@ -87,6 +87,19 @@ func (c *checker) element(path string) *tdElement {
 		st, _, err := c.f.ReadInt64(path + "/step")
 		if err == nil && len(st) == 1 && st[0] <= 0 {
 			c.errorf("V9", path+"/step", "fixed-mode step increment is %d; it must be positive", st[0])
+			return e
+		}
+		// Expand the fixed clock so the checks below (hops within the
+		// run, state changes matched by hops) work in both modes.
+		if err == nil && len(st) == 1 {
+			off := int64(0)
+			if a, err := c.f.Attr(path+"/step", "offset"); err == nil && len(a.Ints) == 1 {
+				off = a.Ints[0]
+			}
+			e.steps = make([]int64, e.T)
+			for i := range e.steps {
+				e.steps[i] = off + int64(i)*st[0]
+			}
 		}
 		return e
 	case 1:

@@ -12,6 +12,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"trajvault/internal/h5"
 	"trajvault/pack"
 )
 
@@ -25,6 +26,8 @@ type convertOptions struct {
 	email       string
 	json        bool
 	jobs        int
+	explicit    bool
+	compat      string
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -37,6 +40,8 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
+	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
+	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
 func newConvertCommand(g *globals) *cobra.Command {
@@ -62,6 +67,9 @@ Exit status: 0 success, 1 the logs have problems (as scan reports them),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("convert: name the output with -o, e.g. -o traj-001.h5")}
+			}
+			if _, ok := compatFormats[o.compat]; !ok {
+				return &exitError{exitUsage, fmt.Errorf("convert: --hdf5-compat %q: use 1.10, 1.8 or earliest", o.compat)}
 			}
 			return nil
 		},
@@ -98,12 +106,7 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 		fmt.Fprintf(g.stderr, "trajvault: convert: %s has problems; nothing written\n", t.Name)
 		return errFindings
 	}
-	author := o.author
-	if author == "" {
-		author = os.Getenv("USER")
-	}
-	opt.DropPartial = o.dropPartial
-	res, err := pack.Convert(rep, o.out, pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol, BitExact: o.bitExact})
+	res, err := pack.Convert(rep, o.out, o.packOptions(opt, tol))
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
@@ -125,6 +128,22 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 		fmt.Fprintf(g.stdout, "  dropped: %s\n", d)
 	}
 	return nil
+}
+
+var compatFormats = map[string]h5.Format{"1.10": h5.Format110, "1.8": h5.Format18, "earliest": h5.FormatEarliest}
+
+// packOptions are the conversion settings common to one trajectory and
+// ensembles.
+func (o *convertOptions) packOptions(opt pack.Options, tol map[string]float64) pack.ConvertOptions {
+	author := o.author
+	if author == "" {
+		author = os.Getenv("USER")
+	}
+	opt.DropPartial = o.dropPartial
+	file := pack.DefaultFile
+	file.Format = compatFormats[o.compat]
+	return pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
+		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file}
 }
 
 func onlyPartial(r *pack.TrajReport) bool {
@@ -158,16 +177,11 @@ func convertEnsemble(g *globals, o convertOptions, opt pack.Options, tol map[str
 	if err := os.MkdirAll(tmp, 0o755); err != nil {
 		return &exitError{exitUsage, err}
 	}
-	author := o.author
-	if author == "" {
-		author = os.Getenv("USER")
-	}
-	opt.DropPartial = o.dropPartial
+	copt := o.packOptions(opt, tol)
 	results := make([]*pack.Result, len(trajs))
 	errs := make([]error, len(trajs))
 	parallel(len(trajs), o.jobs, func(i int) {
-		results[i], errs[i] = pack.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), pack.ConvertOptions{
-			Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(), Tolerance: tol, BitExact: o.bitExact})
+		results[i], errs[i] = pack.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), copt)
 	})
 	for _, err := range errs {
 		if err != nil {

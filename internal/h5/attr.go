@@ -219,7 +219,7 @@ func pack(ss []string) (*C.char, error) {
 }
 
 func (f *File) checkWritable(op, path string) error {
-	if f.f == nil {
+	if !f.open {
 		return &Error{Op: op + " (file closed)", Path: path}
 	}
 	if !f.writable {
@@ -276,6 +276,14 @@ func (f *File) SetInts(path, name string, values []int32, scalar bool) error {
 		return &Error{Op: "write empty attribute", Path: path, Name: name}
 	}
 	return f.setNum(path, name, C.TV_T_I32, unsafe.Pointer(&values[0]), len(values), scalar)
+}
+
+// SetInt64s writes an int64 attribute (scalar or 1-D).
+func (f *File) SetInt64s(path, name string, values []int64, scalar bool) error {
+	if len(values) == 0 {
+		return &Error{Op: "write empty attribute", Path: path, Name: name}
+	}
+	return f.setNum(path, name, C.TV_T_I64, unsafe.Pointer(&values[0]), len(values), scalar)
 }
 
 // SetFloats writes a float64 attribute (scalar or 1-D).

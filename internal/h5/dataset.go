@@ -69,12 +69,8 @@ func (f *File) CreateGroup(path string) error {
 		case Group:
 			continue
 		case Missing:
-			g, err := f.f.CreateGroup(cur)
-			if err != nil {
-				return &Error{Op: "create group", Path: cur}
-			}
-			if err := g.Close(); err != nil {
-				return &Error{Op: "close group", Path: cur}
+			if err := f.createGroup(cur); err != nil {
+				return err
 			}
 		default:
 			return &Error{Op: "create group (a non-group object is in the way)", Path: cur}
@@ -467,4 +463,25 @@ func (f *File) ReadStrings(path string) ([]string, error) {
 	}
 	defer C.free(unsafe.Pointer(s))
 	return unpack(C.GoBytes(unsafe.Pointer(s), C.int(total)), info.Shape.Len()), nil
+}
+
+// createGroup makes one group: through gonum for files it opened, through
+// the shim for files the shim created.
+func (f *File) createGroup(path string) error {
+	if f.f != nil {
+		g, err := f.f.CreateGroup(path)
+		if err != nil {
+			return &Error{Op: "create group", Path: path}
+		}
+		if err := g.Close(); err != nil {
+			return &Error{Op: "close group", Path: path}
+		}
+		return nil
+	}
+	p := cstr(path)
+	defer C.free(unsafe.Pointer(p))
+	if C.tv_group_create(f.raw, p) < 0 {
+		return &Error{Op: "create group", Path: path}
+	}
+	return nil
 }

@@ -21,7 +21,7 @@ func OpenRW(path string) (*File, error) {
 	if err != nil {
 		return nil, &OpenError{File: path, Err: ErrDamaged}
 	}
-	return &File{f: f, path: path, writable: true}, nil
+	return &File{f: f, path: path, writable: true, open: true}, nil
 }
 
 // Delete removes the link at path (the object goes when its last link does).

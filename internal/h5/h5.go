@@ -86,9 +86,12 @@ func (e *Error) Error() string {
 	return fmt.Sprintf("hdf5: %s %s failed", e.Op, e.Path)
 }
 
-// File is an open HDF5 file.
+// File is an open HDF5 file: opened through gonum's binding, or created
+// by the shim (which sets file-format properties gonum does not expose).
 type File struct {
-	f        *hdf5.File
+	f        *hdf5.File // nil for files made by Create
+	raw      C.hid_t    // the shim's file id, when f is nil
+	open     bool
 	path     string
 	writable bool
 }
@@ -150,7 +153,48 @@ func Open(path string) (*File, error) {
 	if err != nil {
 		return nil, &OpenError{File: path, Err: ErrDamaged}
 	}
-	return &File{f: f, path: path}, nil
+	return &File{f: f, path: path, open: true}, nil
+}
+
+// Format selects the oldest HDF5 library whose file format a new file may
+// use. Newer formats are smaller (compact groups, compact chunk indexes)
+// but unreadable by older libraries.
+type Format int
+
+const (
+	// FormatEarliest is readable by every HDF5 library.
+	FormatEarliest Format = 0
+	// Format18 is readable by HDF5 1.8 (2008) and later: groups are stored
+	// compactly in object headers.
+	Format18 Format = 18
+	// Format110 is readable by HDF5 1.10 (2016) and later: chunk indexes
+	// are extensible arrays.
+	Format110 Format = 110
+)
+
+// CreateOptions tune a new file.
+type CreateOptions struct {
+	Format Format
+	// IstoreK is the half-rank of chunk B-tree nodes (0 = library
+	// default, 32); small values save space in files with few chunks.
+	IstoreK int
+}
+
+// CreateWith makes a new file with the given options; it fails if path
+// exists.
+func CreateWith(path string, o CreateOptions) (*File, error) {
+	lock()
+	defer unlock()
+	if _, err := os.Lstat(path); err == nil {
+		return nil, &OpenError{File: path, Err: os.ErrExist}
+	}
+	p := cstr(path)
+	defer C.free(unsafe.Pointer(p))
+	id := C.tv_create(p, C.int(o.Format), C.int(o.IstoreK))
+	if id < 0 {
+		return nil, &OpenError{File: path, Err: errors.New("cannot create HDF5 file")}
+	}
+	return &File{raw: id, path: path, writable: true, open: true}, nil
 }
 
 // Create makes a new file; it fails if path exists (outputs are never
@@ -165,7 +209,7 @@ func Create(path string) (*File, error) {
 	if err != nil {
 		return nil, &OpenError{File: path, Err: errors.New("cannot create HDF5 file")}
 	}
-	return &File{f: f, path: path, writable: true}, nil
+	return &File{f: f, path: path, writable: true, open: true}, nil
 }
 
 // Name is the file name given to Open or Create.
@@ -173,20 +217,31 @@ func (f *File) Name() string { return f.path }
 
 // Close releases the file. It is safe to call twice.
 func (f *File) Close() error {
-	if f == nil || f.f == nil {
+	if f == nil || !f.open {
 		return nil
 	}
 	lock()
 	defer unlock()
-	err := f.f.Close()
-	f.f = nil
-	if err != nil {
+	f.open = false
+	var failed bool
+	if f.f != nil {
+		failed = f.f.Close() != nil
+		f.f = nil
+	} else {
+		failed = C.tv_close_file(f.raw) < 0
+	}
+	if failed {
 		return &Error{Op: "close file", Path: f.path}
 	}
 	return nil
 }
 
-func (f *File) id() C.hid_t { return C.hid_t(f.f.ID()) }
+func (f *File) id() C.hid_t {
+	if f.f != nil {
+		return C.hid_t(f.f.ID())
+	}
+	return f.raw
+}
 
 // cstr converts s for C; the caller frees it.
 func cstr(s string) *C.char { return C.CString(s) }

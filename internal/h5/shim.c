@@ -516,3 +516,32 @@ int tv_delete_link(hid_t loc, const char *path) { return H5Ldelete(loc, path, H5
 int tv_delete_attr(hid_t loc, const char *path, const char *name) {
 	return H5Adelete_by_name(loc, path, name, H5P_DEFAULT);
 }
+
+// tv_create creates a new file (failing if it exists). libver_low 18 or
+// 110 sets the oldest HDF5 version whose file format may be used
+// (H5Pset_libver_bounds): 1.8 brings compact groups stored in object
+// headers; 0 keeps the library default (earliest). istore_k > 0 sets the
+// half-rank of chunk-index B-tree nodes (H5Pset_istore_k); small values
+// keep files with few chunks small.
+hid_t tv_create(const char *path, int libver_low, int istore_k) {
+	hid_t fapl = H5Pcreate(H5P_FILE_ACCESS);
+	hid_t fcpl = H5Pcreate(H5P_FILE_CREATE);
+	hid_t f = -1;
+	if (fapl < 0 || fcpl < 0) goto done;
+	if (libver_low == 18 && H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_LATEST) < 0) goto done;
+	if (libver_low == 110 && H5Pset_libver_bounds(fapl, H5F_LIBVER_V110, H5F_LIBVER_LATEST) < 0) goto done;
+	if (istore_k > 0 && H5Pset_istore_k(fcpl, (unsigned)istore_k) < 0) goto done;
+	f = H5Fcreate(path, H5F_ACC_EXCL, fcpl, fapl);
+done:
+	if (fapl >= 0) H5Pclose(fapl);
+	if (fcpl >= 0) H5Pclose(fcpl);
+	return f;
+}
+
+int tv_close_file(hid_t f) { return H5Fclose(f); }
+
+int tv_group_create(hid_t loc, const char *path) {
+	hid_t g = H5Gcreate2(loc, path, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+	if (g < 0) return -1;
+	return H5Gclose(g);
+}

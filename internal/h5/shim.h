@@ -79,4 +79,8 @@ char *tv_dset_read_strings(hid_t loc, const char *path, size_t *total);
 int tv_delete_link(hid_t loc, const char *path);
 int tv_delete_attr(hid_t loc, const char *path, const char *name);
 
+hid_t tv_create(const char *path, int libver_low, int istore_k);
+int tv_close_file(hid_t f);
+int tv_group_create(hid_t loc, const char *path);
+
 #endif

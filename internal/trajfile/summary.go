@@ -196,14 +196,23 @@ func group(f *h5.File, p, name string) GroupSummary {
 			g.Stride = steps[1] - steps[0]
 		}
 	} else if err == nil && shape.Rank == 0 && len(steps) == 1 {
+		// H5MD fixed mode: offset + i increment.
+		var off int64
+		if a, err := f.Attr(p+"/position/step", "offset"); err == nil && len(a.Ints) == 1 {
+			off = a.Ints[0]
+		}
 		g.Stride = steps[0]
-		g.LastStep = steps[0] * int64(max(g.Frames-1, 0))
+		g.FirstStep, g.LastStep = off, off+steps[0]*int64(max(g.Frames-1, 0))
 	}
 	times, tshape, err := f.ReadFloat64(p + "/position/time")
 	if err == nil && tshape.Rank == 1 && len(times) > 0 {
 		g.TimeFirst, g.TimeLast = times[0], times[len(times)-1]
 	} else if err == nil && tshape.Rank == 0 && len(times) == 1 {
-		g.TimeLast = times[0] * float64(max(g.Frames-1, 0))
+		var off float64
+		if a, err := f.Attr(p+"/position/time", "offset"); err == nil && len(a.Floats) == 1 {
+			off = a.Floats[0]
+		}
+		g.TimeFirst, g.TimeLast = off, off+times[0]*float64(max(g.Frames-1, 0))
 	}
 	g.TimeUnit = attrString(f, p+"/position/time", "unit")
 	if g.LastStep > g.FirstStep {

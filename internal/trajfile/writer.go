@@ -11,6 +11,7 @@ package trajfile
 import (
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"strings"
@@ -76,6 +77,18 @@ type Spec struct {
 	// then buffers SeriesFrames frames (memory SeriesFrames x N x 3 x 8
 	// bytes per element, independent of the run's length).
 	SeriesFrames int
+	// File sets the HDF5 file format and chunk-index shape (h5.CreateWith).
+	File h5.CreateOptions
+	// Clock, when set, stores step and time in H5MD fixed mode: frame i is
+	// at step StepOffset + i StepIncrement and time TimeOffset + i
+	// TimeIncrement. WriteFrame checks every frame against it.
+	Clock *FixedClock
+}
+
+// FixedClock is a uniformly sampled frame clock (H5MD fixed mode).
+type FixedClock struct {
+	StepOffset, StepIncrement int64
+	TimeOffset, TimeIncrement float64
 }
 
 // Storage of one element's numbers.
@@ -208,7 +221,7 @@ func Create(path string, spec Spec) (*Writer, error) {
 	}
 	tmp := filepath.Join(filepath.Dir(path), fmt.Sprintf(".%s.partial-%d", filepath.Base(path), os.Getpid()))
 	os.Remove(tmp)
-	f, err := h5.Create(tmp)
+	f, err := h5.CreateWith(tmp, spec.File)
 	if err != nil {
 		return nil, err
 	}
@@ -324,7 +337,29 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		row *= d
 	}
 	e := &element{path: group + "/value", row: row, w: ww}
-	if w.step == nil {
+	if w.step == nil && w.spec.Clock != nil {
+		c := w.spec.Clock
+		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64})
+		w.do(err)
+		if err == nil {
+			w.do(sw.Write([]int64{c.StepIncrement}))
+			w.do(sw.Close())
+		}
+		w.do(w.f.SetInt64s(group+"/step", "offset", []int64{c.StepOffset}, true))
+		tw, err := w.f.CreateDataset(group+"/time", h5.DatasetSpec{Type: h5.Float64})
+		w.do(err)
+		if err == nil {
+			w.do(tw.Write([]float64{c.TimeIncrement}))
+			w.do(tw.Close())
+		}
+		w.do(w.f.SetFloats(group+"/time", "offset", []float64{c.TimeOffset}, true))
+		w.do(w.f.SetString(group+"/time", "unit", w.spec.Units.Time))
+		if _, tst, ok := w.filtersFor("time"); ok {
+			w.storageAttrs(group+"/time", tst)
+		}
+		w.step = &element{path: group + "/step", row: 1}
+		w.time = &element{path: group + "/time", row: 1}
+	} else if w.step == nil {
 		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
 		w.do(err)
@@ -438,6 +473,14 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 	if w.closed {
 		return errors.New("trajfile: WriteFrame after Close")
 	}
+	if c := w.spec.Clock; c != nil {
+		i := int64(w.frames)
+		wantT := c.TimeOffset + float64(i)*c.TimeIncrement
+		if fr.Step != c.StepOffset+i*c.StepIncrement || math.Abs(fr.Time-wantT) > 1e-9*math.Max(math.Abs(c.TimeIncrement), math.Abs(wantT)) {
+			w.err = fmt.Errorf("frame %d: step %d time %g do not follow the fixed clock (step %d, time %g)", w.frames, fr.Step, fr.Time, c.StepOffset+i*c.StepIncrement, wantT)
+			return w.err
+		}
+	}
 	if w.frames > 0 && fr.Step <= w.lastStep {
 		w.err = fmt.Errorf("frame %d: step %d does not follow step %d; steps must increase", w.frames, fr.Step, w.lastStep)
 		return w.err
@@ -479,8 +522,10 @@ func (w *Writer) flush() {
 		}
 		e.buf = e.buf[:0]
 	}
-	w.do(w.step.w.Append(w.step.ibuf))
-	w.do(w.time.w.Append(w.time.buf))
+	if w.step.w != nil { // explicit mode
+		w.do(w.step.w.Append(w.step.ibuf))
+		w.do(w.time.w.Append(w.time.buf))
+	}
 	w.step.ibuf = w.step.ibuf[:0]
 	w.time.buf = w.time.buf[:0]
 }

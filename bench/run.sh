@@ -1,0 +1,70 @@
+#!/usr/bin/env bash
+# bench/run.sh: how fast and how small trajvault converts an ensemble of
+# text logs, against general-purpose compressors of the same text.
+#
+# Parameters (environment): TRAJ trajectories, STEPS steps each, MOLECULES
+# copies of the 3-atom demo molecule (atoms = 3 x MOLECULES), DECIMALS of
+# the positions, JOBS parallel conversions. The logs are the invented demo
+# scenario (trajvault demo --text), generated before timing starts.
+#
+# Writes the table to stdout and to bench/results.md (replaced each run).
+set -euo pipefail
+cd "$(dirname "$0")/.."
+TRAJ=${TRAJ:-4}
+STEPS=${STEPS:-20000}
+MOLECULES=${MOLECULES:-10}
+DECIMALS=${DECIMALS:-8}
+JOBS=${JOBS:-$(nproc)}
+BIN=bin/trajvault
+.ci/deps.sh bench
+[ -x "$BIN" ] || { echo "bench: build first (make build)" >&2; exit 2; }
+
+work=$(mktemp -d)
+trap 'rm -rf "$work"' EXIT
+echo "bench: generating $TRAJ trajectories x $STEPS steps x $((3 * MOLECULES)) atoms" >&2
+"$BIN" demo --text --trajectories "$TRAJ" --steps "$STEPS" --molecules "$MOLECULES" --decimals "$DECIMALS" "$work/logs" >/dev/null
+text=$(du -sb "$work/logs" | cut -f1)
+
+# measure NAME OUTFILE CMD...: wall seconds and peak RSS (GNU time), bytes.
+rows=()
+measure() {
+	local name=$1 out=$2
+	shift 2
+	sync
+	/usr/bin/time -f "%e %M" -o "$work/time" "$@"
+	read -r wall rss <"$work/time"
+	local bytes
+	bytes=$(du -sb "$out" | cut -f1)
+	rows+=("$name;$wall;$rss;$bytes")
+	echo "bench: $name: ${wall}s, $bytes bytes" >&2
+}
+
+measure "trajvault convert (--jobs $JOBS)" "$work/h5" \
+	"$BIN" convert --jobs "$JOBS" --recipe testdata/recipes/tarnol.yaml "$work/logs" -o "$work/h5"
+"$BIN" validate "$work"/h5/*.h5 >/dev/null
+measure "tar | gzip -6" "$work/logs.tar.gz" sh -c "tar -C '$work' -cf - logs | gzip -6 > '$work/logs.tar.gz'"
+measure "tar | zstd -19" "$work/logs.tar.zst" sh -c "tar -C '$work' -cf - logs | zstd -q -19 > '$work/logs.tar.zst'"
+measure "tar | xz -9" "$work/logs.tar.xz" sh -c "tar -C '$work' -cf - logs | xz -9 > '$work/logs.tar.xz'"
+
+cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
+{
+	echo "# Benchmark: text logs to trajectory files"
+	echo
+	echo "Made by \`make bench\` (bench/run.sh) on $(date -u +%Y-%m-%d)."
+	echo "Machine: $(nproc) cores ($cpu), $(awk '/MemTotal/ {printf "%.0f GiB", $2/1048576}' /proc/meminfo), $(uname -sr);"
+	echo "$($(.ci/deps.sh go) version | cut -d' ' -f3), HDF5 $(dpkg-query -W -f='${Version}' libhdf5-dev 2>/dev/null),"
+	echo "gzip $(gzip --version | head -1 | grep -o '[0-9][0-9.]*' | head -1), zstd $(zstd --version | grep -o 'v[0-9][0-9.]*' | head -1), xz $(xz --version | head -1 | grep -o '[0-9][0-9.]*' | head -1)."
+	echo
+	echo "Input: the invented demo ensemble, $TRAJ trajectories x $((STEPS + 1)) frames x $((3 * MOLECULES)) atoms,"
+	echo "positions printed with $DECIMALS decimals, plus energy, state and event logs: $text bytes of text."
+	echo "trajvault stores every number exactly at its printed precision (export gives the text back digit for digit);"
+	echo "the compressors are lossless on the text. Peak RSS is that of the largest single process."
+	echo
+	echo "| method | wall s | MB/s of text | output bytes | ratio to text | peak RSS MiB |"
+	echo "|---|---:|---:|---:|---:|---:|"
+	for r in "${rows[@]}"; do
+		IFS=';' read -r name wall rss bytes <<<"$r"
+		awk -v n="$name" -v w="$wall" -v r="$rss" -v b="$bytes" -v t="$text" \
+			'BEGIN { printf "| %s | %.2f | %.1f | %d | %.3f | %.1f |\n", n, w, t/1e6/(w>0?w:0.01), b, b/t, r/1024 }'
+	done
+} | tee bench/results.md
