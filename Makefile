@@ -25,12 +25,18 @@ deps-test:
 build: deps-build
 	$(GO) build -o $(BIN) ./cmd/trajvault
 
-# demo: generate the invented demo ensemble, validate and inspect it.
+# demo: the main job on the invented demo ensemble: legacy text logs are
+# scanned, converted to trajectory files, validated, inspected and
+# exported back to text.
+RECIPE := testdata/recipes/tarnol.yaml
 demo: build
 	rm -rf demo
-	$(BIN) demo demo/runs
-	$(BIN) validate demo/runs/*.h5
-	$(BIN) inspect demo/runs/traj-001.h5
+	$(BIN) demo --text demo/logs
+	$(BIN) scan --recipe $(RECIPE) demo/logs
+	$(BIN) convert --recipe $(RECIPE) demo/logs -o demo/h5
+	$(BIN) validate demo/h5/*.h5
+	$(BIN) inspect demo/h5/traj-001.h5
+	$(BIN) export demo/h5/traj-001.h5 -o demo/export --format extxyz
 
 fmt-check:
 	@out="$$($(dir $(GO))gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))"; \

@@ -46,6 +46,23 @@ measure "tar | gzip -6" "$work/logs.tar.gz" sh -c "tar -C '$work' -cf - logs | g
 measure "tar | zstd -19" "$work/logs.tar.zst" sh -c "tar -C '$work' -cf - logs | zstd -q -19 > '$work/logs.tar.zst'"
 measure "tar | xz -9" "$work/logs.tar.xz" sh -c "tar -C '$work' -cf - logs | xz -9 > '$work/logs.tar.xz'"
 
+# Chunk-length sweep on one trajectory: the measurement behind the
+# default --chunk-frames.
+sweep=()
+for n in -1 256 512 1024 2048 4096; do
+	rm -f "$work/sweep.h5"
+	/usr/bin/time -f "%e" -o "$work/time" "$BIN" convert --chunk-frames "$n" --recipe testdata/recipes/tarnol.yaml "$work/logs/traj-001" -o "$work/sweep.h5" >/dev/null
+	sweep+=("$n;$(cat "$work/time");$(stat -c %s "$work/sweep.h5")")
+done
+compat=()
+for c in 1.10 1.8 earliest; do
+	rm -f "$work/compat.h5"
+	"$BIN" convert --hdf5-compat "$c" --recipe testdata/recipes/tarnol.yaml "$work/logs/traj-001" -o "$work/compat.h5" >/dev/null
+	compat+=("$c;$(stat -c %s "$work/compat.h5")")
+done
+one=$(du -sb "$work/logs/traj-001" | cut -f1)
+onexz=$(tar -C "$work/logs" -cf - traj-001 | xz -9 | wc -c)
+
 cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 {
 	echo "# Benchmark: text logs to trajectory files"
@@ -66,5 +83,25 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 		IFS=';' read -r name wall rss bytes <<<"$r"
 		awk -v n="$name" -v w="$wall" -v r="$rss" -v b="$bytes" -v t="$text" \
 			'BEGIN { printf "| %s | %.2f | %.1f | %d | %.3f | %.1f |\n", n, w, t/1e6/(w>0?w:0.01), b, b/t, r/1024 }'
+	done
+	echo
+	echo "## Chunk length of per-atom time series (one trajectory, $one bytes of text; tar | xz -9: $onexz bytes)"
+	echo
+	echo "| --chunk-frames | wall s | output bytes |"
+	echo "|---:|---:|---:|"
+	for r in "${sweep[@]}"; do
+		IFS=';' read -r n wall bytes <<<"$r"
+		label=$n
+		[ "$n" = -1 ] && label="-1 (whole frames)"
+		echo "| $label | $wall | $bytes |"
+	done
+	echo
+	echo "## HDF5 file format (same trajectory)"
+	echo
+	echo "| --hdf5-compat | output bytes |"
+	echo "|---|---:|"
+	for r in "${compat[@]}"; do
+		IFS=';' read -r c bytes <<<"$r"
+		echo "| $c | $bytes |"
 	done
 } | tee bench/results.md

@@ -99,3 +99,38 @@ func TestParseErrorsLocate(t *testing.T) {
 		t.Errorf("error = %v", perr)
 	}
 }
+
+// TestConvertRestartAndPartial: a restart keeps the later occurrence and
+// records the dropped records; a cut last frame converts only with
+// DropPartial, which is recorded too.
+func TestConvertRestartAndPartial(t *testing.T) {
+	tr, _ := TrajectoryFrom([]string{testdata("ensembles", "problems", "p5-restart")}, nil)
+	rep := Scan(tr, posUnit)
+	out := filepath.Join(t.TempDir(), "r.h5")
+	res, err := Convert(rep, out, ConvertOptions{Options: posUnit})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Frames != 6 || len(res.Dropped) != 2 {
+		t.Errorf("frames %d, dropped %v", res.Frames, res.Dropped)
+	}
+	steps := readAll(t, out, "/particles/all/position/step")
+	if len(steps) != 6 || steps[2] != 20 || steps[3] != 30 {
+		t.Errorf("steps %v", steps)
+	}
+
+	tr, _ = TrajectoryFrom([]string{testdata("ensembles", "problems", "p1-truncated-frame")}, nil)
+	rep = Scan(tr, posUnit)
+	if _, err := Convert(rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: posUnit}); err == nil {
+		t.Error("a cut frame converted without DropPartial")
+	}
+	o := posUnit
+	o.DropPartial = true
+	res, err = Convert(rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: o})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if res.Frames != 5 || len(res.Dropped) != 1 || !strings.Contains(res.Dropped[0], "drop-partial") {
+		t.Errorf("frames %d dropped %v", res.Frames, res.Dropped)
+	}
+}

@@ -28,6 +28,7 @@ type convertOptions struct {
 	jobs        int
 	explicit    bool
 	compat      string
+	series      int
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -41,6 +42,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
+	c.Flags().IntVar(&o.series, "chunk-frames", pack.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
 	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
@@ -143,7 +145,7 @@ func (o *convertOptions) packOptions(opt pack.Options, tol map[string]float64) p
 	file := pack.DefaultFile
 	file.Format = compatFormats[o.compat]
 	return pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
-		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file}
+		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series}
 }
 
 func onlyPartial(r *pack.TrajReport) bool {
