@@ -33,7 +33,7 @@ demo: build
 	rm -rf demo
 	$(BIN) demo --text demo/logs
 	$(BIN) scan --recipe $(RECIPE) demo/logs
-	$(BIN) convert --recipe $(RECIPE) demo/logs -o demo/h5
+	$(BIN) convert --recipe $(RECIPE) --author "Tarn Valley photophysics group (fictional)" demo/logs -o demo/h5
 	$(BIN) validate demo/h5/*.h5
 	$(BIN) inspect demo/h5/traj-001.h5
 	$(BIN) export demo/h5/traj-001.h5 -o demo/export --format extxyz

@@ -51,6 +51,7 @@ type FileReport struct {
 	FirstStep *int64            `json:"first_step,omitempty"`
 	LastStep  *int64            `json:"last_step,omitempty"`
 	Formats   map[string]string `json:"precision"`
+	Hops      int               `json:"hops,omitempty"`
 
 	src       source
 	keys      keySeq // kept (index, step); steps are indices when the file has none
@@ -353,7 +354,8 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 	if kind == "xyz" {
 		rep.Atoms = atoms
 	}
-	rep.Hops += len(s.hops())
+	fr.Hops = len(s.hops())
+	rep.Hops += fr.Hops
 	return fr
 }
 

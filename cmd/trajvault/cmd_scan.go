@@ -84,7 +84,14 @@ func printScan(g *globals, r *pack.TrajReport) {
 	}
 	fmt.Fprintln(g.stdout)
 	for _, f := range r.Files {
-		fmt.Fprintf(g.stdout, "  %-6s %s: %d records (%d kept)\n", f.Format, f.File, f.Records, f.Kept)
+		switch {
+		case f.Format == "log" && f.Records == 0:
+			fmt.Fprintf(g.stdout, "  %-6s %s: %d hop events\n", f.Format, f.File, f.Hops)
+		case f.Records != f.Kept:
+			fmt.Fprintf(g.stdout, "  %-6s %s: %d records, %d kept\n", f.Format, f.File, f.Records, f.Kept)
+		default:
+			fmt.Fprintf(g.stdout, "  %-6s %s: %d records\n", f.Format, f.File, f.Records)
+		}
 	}
 	var qs []string
 	for _, q := range r.Quantities {
