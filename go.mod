@@ -1,6 +1,6 @@
 module trajvault
 
-go 1.22
+go 1.24.0
 
 require (
 	github.com/santhosh-tekuri/jsonschema/v5 v5.3.1
@@ -11,5 +11,6 @@ require (
 require (
 	github.com/inconshreveable/mousetrap v1.1.0 // indirect
 	github.com/spf13/pflag v1.0.9 // indirect
+	gonum.org/v1/gonum v0.17.0 // indirect
 	gopkg.in/yaml.v3 v3.0.1 // indirect
 )

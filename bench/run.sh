@@ -81,8 +81,9 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 	echo "|---|---:|---:|---:|---:|---:|"
 	for r in "${rows[@]}"; do
 		IFS=';' read -r name wall rss bytes <<<"$r"
-		awk -v n="$name" -v w="$wall" -v r="$rss" -v b="$bytes" -v t="$text" \
-			'BEGIN { printf "| %s | %.2f | %.1f | %d | %.3f | %.1f |\n", n, w, t/1e6/(w>0?w:0.01), b, b/t, r/1024 }'
+		printf '| %s ' "${name//|/\\|}"
+		awk -v w="$wall" -v r="$rss" -v b="$bytes" -v t="$text" \
+			'BEGIN { printf "| %.2f | %.1f | %d | %.3f | %.1f |\n", w, t/1e6/(w>0?w:0.01), b, b/t, r/1024 }'
 	done
 	echo
 	echo "## Chunk length of per-atom time series (one trajectory, $one bytes of text; tar | xz -9: $onexz bytes)"

@@ -25,7 +25,7 @@ func (e *ParseError) Unwrap() error { return e.Err }
 
 // Causes of ParseErrors, for errors.Is.
 var (
-	ErrTruncated  = errors.New("file ends inside a frame (the writing job was probably killed)")
+	ErrTruncated  = errors.New("file ends inside a record (the writing job was probably killed)")
 	ErrFieldCount = errors.New("wrong number of fields")
 	ErrNumber     = errors.New("not a number")
 	ErrHeader     = errors.New("bad header")
