@@ -1,0 +1,429 @@
+// Package audit checks the physics of stored trajectories: energy
+// conservation and force noise, the time step, electronic populations and
+// hops, momentum, zero-point-energy leakage, and, across an ensemble, the
+// internal consistency of surface-hopping populations.
+//
+// An audit is evidence about the stored numbers, not a certificate that
+// the simulation behind them is sound. Formulas and sources are in each
+// check's doc comment; thresholds are Settings with documented defaults.
+package audit
+
+import (
+	"fmt"
+	"math"
+	"sort"
+
+	"trajvault/internal/trajfile"
+	"trajvault/internal/units"
+)
+
+// Verdict of one check.
+type Verdict string
+
+const (
+	OK      Verdict = "ok"
+	Warn    Verdict = "warn"
+	Fail    Verdict = "fail"
+	Unknown Verdict = "unknown" // the data cannot tell
+	NA      Verdict = "n/a"     // the file lacks what the check needs
+)
+
+func (v Verdict) rank() int {
+	return map[Verdict]int{NA: 0, OK: 1, Unknown: 2, Warn: 3, Fail: 4}[v]
+}
+
+// Check is the outcome of one check: a verdict, the numbers behind it and
+// a one-line explanation.
+type Check struct {
+	Name    string             `json:"check"`
+	Verdict Verdict            `json:"verdict"`
+	Summary string             `json:"summary"`
+	Values  map[string]float64 `json:"values"`
+}
+
+// Settings are the thresholds; DefaultSettings documents the defaults.
+type Settings struct {
+	// Energy conservation (common practice in surface-hopping studies:
+	// discard a trajectory whose total energy moves more than about
+	// 0.1-0.5 eV from its start or jumps by more than about 0.1-0.25 eV in
+	// one step; from memory of the literature, so these are settings).
+	EnergyWarnEV, EnergyFailEV float64
+	JumpWarnEV, JumpFailEV     float64
+	// NoiseWarn is the force-noise level (hartree/bohr) above which long
+	// runs heat up noticeably (common practice: gradient errors should
+	// stay below about 1e-5 hartree/bohr).
+	NoiseWarn float64
+	// Time step: fail above T/10, warn above T/20 of the shortest period
+	// (common practice; textbooks on molecular simulation).
+	StepFailFraction, StepWarnFraction float64
+	// Normalisation tolerance of sum |c_k|^2 (1e-6 for unitary
+	// propagators, 1e-4 for Runge-Kutta types; suggested in the notes).
+	NormTolerance float64
+	// Temperature (K) that sets the momentum-drift scale k_B T.
+	Temperature float64
+	// MomentumWarnFraction of k_B T for changes of translational or
+	// rotational kinetic energy.
+	MomentumWarnFraction float64
+	// ZPE: a pair is below its zero-point level when the window-averaged
+	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; warn when that
+	// holds for more than ZPEWarnFraction of the run.
+	ZPEMargin, ZPEWarnFraction float64
+	// ZPEPairs lists atom pairs (0-based) to watch; empty = every X-H pair
+	// closer than 1.3 angstrom in the first frame.
+	ZPEPairs [][2]int
+	// ConsistencyFailFraction: fraction of times at which the two ensemble
+	// population estimators differ by more than 3 binomial standard
+	// deviations before the ensemble fails the check.
+	ConsistencyFailFraction float64
+}
+
+// DefaultSettings are the documented defaults.
+var DefaultSettings = Settings{
+	EnergyWarnEV: 0.1, EnergyFailEV: 0.5, JumpWarnEV: 0.1, JumpFailEV: 0.25,
+	NoiseWarn:        1e-5,
+	StepFailFraction: 0.1, StepWarnFraction: 0.05,
+	NormTolerance: 1e-4,
+	Temperature:   300, MomentumWarnFraction: 0.01,
+	ZPEMargin: 0.1, ZPEWarnFraction: 0.2,
+	ConsistencyFailFraction: 0.1,
+}
+
+// Result is the audit of one trajectory.
+type Result struct {
+	File    string  `json:"file"`
+	Frames  int     `json:"frames"`
+	Atoms   int     `json:"atoms"`
+	Verdict Verdict `json:"verdict"`
+	Checks  []Check `json:"checks"`
+
+	// Series kept for the ensemble checks and the report.
+	Times     []float64   `json:"-"` // fs
+	EnergyDev []float64   `json:"-"` // eV, E(t) - E(0)
+	Active    []int64     `json:"-"`
+	Pops      [][]float64 `json:"-"` // per frame, |c_k|^2
+}
+
+var (
+	hartreeEV = mustFactor("hartree", "eV")
+	auFs      = mustFactor("au_time", "fs")
+	kB        = units.BoltzmannSI / units.HartreeJoule // hartree/K, CODATA 2018
+)
+
+func mustFactor(a, b string) float64 {
+	f, err := units.Factor(a, b)
+	if err != nil {
+		panic(err)
+	}
+	return f
+}
+
+// File audits one trajectory file.
+func File(path string, s Settings) (*Result, error) {
+	r, err := trajfile.OpenReader(path)
+	if err != nil {
+		return nil, err
+	}
+	defer r.Close()
+	a := &auditor{r: r, s: s, res: &Result{File: path, Frames: r.T, Atoms: r.N}}
+	if err := a.run(); err != nil {
+		return nil, fmt.Errorf("%s: %w", path, err)
+	}
+	a.res.Verdict = worst(a.res.Checks)
+	return a.res, nil
+}
+
+func worst(cs []Check) Verdict {
+	v := NA
+	for _, c := range cs {
+		if c.Verdict.rank() > v.rank() {
+			v = c.Verdict
+		}
+	}
+	return v
+}
+
+type auditor struct {
+	r   *trajfile.Reader
+	s   Settings
+	res *Result
+
+	etot, kin []float64 // hartree per frame
+	sumV2     float64   // <sum |v|^2>, au
+	hasVel    bool
+	hasForce  bool
+}
+
+func (a *auditor) add(name string, v Verdict, vals map[string]float64, format string, args ...any) {
+	a.res.Checks = append(a.res.Checks, Check{Name: name, Verdict: v, Summary: fmt.Sprintf(format, args...), Values: vals})
+}
+
+func (a *auditor) run() error {
+	r := a.r
+	a.res.Times = make([]float64, r.T)
+	for i, t := range r.Times {
+		a.res.Times[i] = t * auFs
+	}
+	a.hasVel = r.Has("/particles/all/velocity")
+	a.hasForce = r.Has("/particles/all/force")
+	if err := a.loadEnergy(); err != nil {
+		return err
+	}
+	if err := a.scanFrames(); err != nil {
+		return err
+	}
+	a.energy()
+	a.noise()
+	a.electronic()
+	return nil
+}
+
+// loadEnergy builds E_tot: stored total energy, else K + V (K from the
+// stored kinetic energy or from velocities and masses).
+func (a *auditor) loadEnergy() error {
+	r := a.r
+	if r.Has("/observables/kinetic_energy") {
+		k, _, err := r.Values("/observables/kinetic_energy", "hartree")
+		if err != nil {
+			return err
+		}
+		a.kin = k
+	}
+	switch {
+	case r.Has("/observables/total_energy"):
+		e, _, err := r.Values("/observables/total_energy", "hartree")
+		if err != nil {
+			return err
+		}
+		a.etot = e
+	case r.Has("/observables/potential_energy"):
+		v, _, err := r.Values("/observables/potential_energy", "hartree")
+		if err != nil {
+			return err
+		}
+		a.etot = v // kinetic added in scanFrames when missing
+	}
+	return nil
+}
+
+// frameBlock is the number of frames read per call when streaming.
+const frameBlock = 2048
+
+// scanFrames streams positions, velocities and forces once for the
+// checks that need per-atom data: kinetic energy (when not stored),
+// <sum v^2>, the time-step estimator, momentum and ZPE leakage.
+func (a *auditor) scanFrames() error {
+	r := a.r
+	needKin := a.kin == nil && a.hasVel
+	if needKin {
+		a.kin = make([]float64, r.T)
+	}
+	var tau *tauCollector
+	var mom *momentumTracker
+	var zpe *zpeTracker
+	var sumV2 float64
+	for start := 0; start < r.T; start += frameBlock {
+		n := min(frameBlock, r.T-start)
+		x, err := r.Frames("/particles/all/position", "bohr", start, n)
+		if err != nil {
+			return err
+		}
+		var v, f []float64
+		if a.hasVel {
+			if v, err = r.Frames("/particles/all/velocity", "bohr au_time-1", start, n); err != nil {
+				return err
+			}
+		}
+		if a.hasForce {
+			if f, err = r.Frames("/particles/all/force", "hartree bohr-1", start, n); err != nil {
+				return err
+			}
+		}
+		for t := 0; t < n; t++ {
+			xs := x[t*3*r.N : (t+1)*3*r.N]
+			if start == 0 && t == 0 {
+				tau = newTauCollector(nearPairs(xs, r.N, 3/0.529177210903), 2_000_000)
+				if a.hasVel {
+					mom = newMomentumTracker(r.Masses)
+					zpe = newZPETracker(a.s, r, xs)
+				}
+			}
+			if a.hasForce {
+				fs := f[t*3*r.N : (t+1)*3*r.N]
+				acc := make([]float64, len(fs))
+				for i := range fs {
+					acc[i] = fs[i] / r.Masses[i/3]
+				}
+				tau.add(xs, acc)
+			}
+			if a.hasVel {
+				vs := v[t*3*r.N : (t+1)*3*r.N]
+				k, s2 := 0.0, 0.0
+				for i, vi := range vs {
+					k += 0.5 * r.Masses[i/3] * vi * vi
+					s2 += vi * vi
+				}
+				sumV2 += s2
+				if needKin {
+					a.kin[start+t] = k
+				}
+				mom.add(xs, vs)
+				zpe.add(xs, vs)
+			}
+		}
+	}
+	if needKin && a.etot != nil && !r.Has("/observables/total_energy") {
+		for i := range a.etot {
+			a.etot[i] += a.kin[i]
+		}
+	}
+	if a.hasVel {
+		a.sumV2 = sumV2 / float64(r.T)
+	}
+	a.timeStep(tau)
+	a.momentum(mom)
+	a.zpeCheck(zpe)
+	return nil
+}
+
+// frameInterval is the time between stored frames (au_time), the median
+// of the differences.
+func (a *auditor) frameInterval() float64 {
+	t := a.r.Times
+	if len(t) < 2 {
+		return 0
+	}
+	d := make([]float64, 0, len(t)-1)
+	for i := 1; i < len(t); i++ {
+		d = append(d, t[i]-t[i-1])
+	}
+	sort.Float64s(d)
+	return d[len(d)/2]
+}
+
+// integrationStep is the stored time step, else the frame interval
+// divided by the step stride.
+func (a *auditor) integrationStep() float64 {
+	if a.r.TimeStep > 0 {
+		return a.r.TimeStep
+	}
+	st := a.r.Steps
+	if len(st) > 1 && st[1] > st[0] {
+		return a.frameInterval() / float64(st[1]-st[0])
+	}
+	return a.frameInterval()
+}
+
+// energy: conservation of E_tot = K + V(active state).
+func (a *auditor) energy() {
+	if a.etot == nil {
+		a.add("energy", NA, nil, "no total or potential energy stored")
+		return
+	}
+	st := energyStats(a.r.Times, a.etot, a.kin)
+	dev := st.MaxDeviation * hartreeEV
+	jump := st.MaxJump * hartreeEV
+	a.res.EnergyDev = make([]float64, len(a.etot))
+	for i, e := range a.etot {
+		a.res.EnergyDev[i] = (e - a.etot[0]) * hartreeEV
+	}
+	ps := 1000 / auFs // au_time per ps
+	vals := map[string]float64{
+		"max_deviation_eV": dev, "max_jump_eV": jump, "jump_frame": float64(st.JumpFrame),
+		"drift_eV_per_ps": st.Drift * ps * hartreeEV, "drift_eV_per_atom_ps": st.Drift * ps * hartreeEV / float64(max(a.r.N, 1)),
+		"oscillation_rel": st.Oscillation, "peak_to_peak_eV": st.PeakToPeak * hartreeEV,
+	}
+	v := OK
+	switch {
+	case dev > a.s.EnergyFailEV || jump > a.s.JumpFailEV:
+		v = Fail
+	case dev > a.s.EnergyWarnEV || jump > a.s.JumpWarnEV:
+		v = Warn
+	}
+	a.add("energy", v, vals, "total energy moves at most %.3g eV from its start, largest step jump %.3g eV (frame %d), drift %.3g eV/ps",
+		dev, jump, st.JumpFrame, vals["drift_eV_per_ps"])
+}
+
+// noise: the force-noise estimate from the energy structure function.
+func (a *auditor) noise() {
+	if a.etot == nil || !a.hasVel {
+		a.add("force-noise", NA, nil, "needs total energy and velocities")
+		return
+	}
+	delta := a.frameInterval()
+	dt := a.integrationStep()
+	invMass := 0.0
+	for _, m := range a.r.Masses {
+		invMass += 3 / (2 * m)
+	}
+	// Start the lags after the fastest motion has decorrelated the bounded
+	// Verlet term: one period of the fastest mode, in frames.
+	kmin := 1
+	for _, c := range a.res.Checks {
+		if c.Name == "time-step" && c.Values["period_fs"] > 0 {
+			kmin = max(1, int(math.Ceil(c.Values["period_fs"]/auFs/delta)))
+		}
+	}
+	f := fitNoise(a.etot, kmin, dt, delta, a.sumV2, invMass)
+	if !f.Fitted {
+		a.add("force-noise", Unknown, nil, "the run is too short to measure force noise: it needs at least 8 periods of the fastest motion (%d frames each)", kmin)
+		return
+	}
+	vals := map[string]float64{
+		"sigma_F_hartree_per_bohr": f.SigmaF, "bounded_sigma_w_eV": f.SigmaW * hartreeEV,
+		"random_walk_eV2_per_frame": f.S2 * hartreeEV * hartreeEV, "drift_rate_eV_per_ps": f.Rate * hartreeEV * 1000 / auFs,
+		"heating_from_noise_eV_per_ps": f.HeatingRate * hartreeEV * 1000 / auFs,
+	}
+	if !f.Determined {
+		vals["upper_bound_hartree_per_bohr"] = f.UpperBound
+		v := Unknown
+		if f.UpperBound < a.s.NoiseWarn {
+			v = OK
+		}
+		a.add("force-noise", v, vals, "no random walk above the bounded integrator error: the run is too short to measure force noise; sigma_F < %.2g hartree/bohr", f.UpperBound)
+		return
+	}
+	v := OK
+	if f.SigmaF >= a.s.NoiseWarn {
+		v = Warn
+	}
+	sys := ""
+	// Systematic when the fitted drift over the run exceeds both the
+	// heating the noise causes and three random-walk spreads.
+	run := a.r.Times[len(a.r.Times)-1] - a.r.Times[0]
+	walk := math.Sqrt(f.S2 * float64(len(a.etot)))
+	if f.Rate*run > 3*walk && f.Rate > 10*f.HeatingRate {
+		sys = "; the drift is larger than the noise explains: systematic (gradients inconsistent with energies, or the step too large)"
+	}
+	a.add("force-noise", v, vals, "energy random walk implies force noise sigma_F = %.2g hartree/bohr per component%s", f.SigmaF, sys)
+}
+
+// timeStep compares the integration step with the shortest period.
+func (a *auditor) timeStep(c *tauCollector) {
+	if c == nil || !a.hasForce {
+		a.add("time-step", NA, nil, "needs positions and forces")
+		return
+	}
+	st := c.stats(a.frameInterval())
+	if st.Samples == 0 {
+		a.add("time-step", Unknown, nil, "no pair motion resolved")
+		return
+	}
+	dt := a.integrationStep()
+	vals := map[string]float64{
+		"tau_fs": st.Tau * auFs, "period_fs": st.Period * auFs, "wavenumber_cm-1": st.Wavenumber,
+		"time_step_fs": dt * auFs, "suggested_step_fs": 0.1 * st.Tau * auFs, "step_over_period": dt / st.Period,
+	}
+	if !st.Reliable {
+		a.add("time-step", Unknown, vals, "frames are stored %.3g fs apart, too far for the %.3g fs period seen; store frames more often to check the step", a.frameInterval()*auFs, st.Period*auFs)
+		return
+	}
+	v := OK
+	switch {
+	case dt > a.s.StepFailFraction*st.Period:
+		v = Fail
+	case dt > a.s.StepWarnFraction*st.Period:
+		v = Warn
+	}
+	a.add("time-step", v, vals, "fastest motion %.0f cm-1 (period %.3g fs); step %.3g fs = T/%.0f (T/20 or less is safe; about %.2g fs suggested)",
+		st.Wavenumber, st.Period*auFs, dt*auFs, st.Period/dt, 0.1*st.Tau*auFs)
+}

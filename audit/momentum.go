@@ -1,0 +1,111 @@
+package audit
+
+import (
+	"math"
+
+	"gonum.org/v1/gonum/mat"
+)
+
+// momentumTracker follows total linear momentum P = sum m v and angular
+// momentum L about the centre of mass, as energies: E_trans = P^2/2M and
+// E_rot = L^T I^-1 L / 2. Both stay constant for an isolated molecule;
+// rescaling velocities along raw coupling vectors at hops can break that
+// (J. Phys. Chem. Lett. 11, 1135 (2020), doi:10.1021/acs.jpclett.9b03585).
+type momentumTracker struct {
+	m           []float64
+	M           float64
+	trans, rot  []float64
+	linearMolec bool
+}
+
+func newMomentumTracker(m []float64) *momentumTracker {
+	t := &momentumTracker{m: m}
+	for _, x := range m {
+		t.M += x
+	}
+	return t
+}
+
+func (t *momentumTracker) add(x, v []float64) {
+	n := len(t.m)
+	var P, R, V [3]float64
+	for i := 0; i < n; i++ {
+		for k := 0; k < 3; k++ {
+			P[k] += t.m[i] * v[3*i+k]
+			R[k] += t.m[i] * x[3*i+k] / t.M
+		}
+	}
+	for k := range V {
+		V[k] = P[k] / t.M
+	}
+	var L [3]float64
+	I := mat.NewSymDense(3, nil)
+	for i := 0; i < n; i++ {
+		var r, u [3]float64
+		for k := 0; k < 3; k++ {
+			r[k] = x[3*i+k] - R[k]
+			u[k] = v[3*i+k] - V[k]
+		}
+		L[0] += t.m[i] * (r[1]*u[2] - r[2]*u[1])
+		L[1] += t.m[i] * (r[2]*u[0] - r[0]*u[2])
+		L[2] += t.m[i] * (r[0]*u[1] - r[1]*u[0])
+		r2 := r[0]*r[0] + r[1]*r[1] + r[2]*r[2]
+		for a := 0; a < 3; a++ {
+			for b := a; b < 3; b++ {
+				d := 0.0
+				if a == b {
+					d = r2
+				}
+				I.SetSym(a, b, I.At(a, b)+t.m[i]*(d-r[a]*r[b]))
+			}
+		}
+	}
+	t.trans = append(t.trans, (P[0]*P[0]+P[1]*P[1]+P[2]*P[2])/(2*t.M))
+	// E_rot with the pseudo-inverse on the non-degenerate axes (a linear
+	// molecule has one zero moment).
+	var eig mat.EigenSym
+	erot := 0.0
+	if eig.Factorize(I, true) {
+		vals := eig.Values(nil)
+		var vecs mat.Dense
+		eig.VectorsTo(&vecs)
+		top := math.Max(math.Abs(vals[0]), math.Max(math.Abs(vals[1]), math.Abs(vals[2])))
+		for k := 0; k < 3; k++ {
+			if vals[k] <= 1e-8*top {
+				continue
+			}
+			proj := L[0]*vecs.At(0, k) + L[1]*vecs.At(1, k) + L[2]*vecs.At(2, k)
+			erot += proj * proj / (2 * vals[k])
+		}
+	}
+	t.rot = append(t.rot, erot)
+}
+
+func spread(v []float64) float64 {
+	if len(v) == 0 {
+		return 0
+	}
+	lo, hi := v[0], v[0]
+	for _, x := range v {
+		lo, hi = math.Min(lo, x), math.Max(hi, x)
+	}
+	return hi - lo
+}
+
+// momentum reports the change of E_trans and E_rot against k_B T.
+func (a *auditor) momentum(t *momentumTracker) {
+	if t == nil {
+		a.add("momentum", NA, nil, "needs velocities")
+		return
+	}
+	kt := kB * a.s.Temperature
+	dT, dR := spread(t.trans), spread(t.rot)
+	vals := map[string]float64{"translational_change_eV": dT * hartreeEV, "rotational_change_eV": dR * hartreeEV,
+		"kT_eV": kt * hartreeEV, "translational_over_kT": dT / kt, "rotational_over_kT": dR / kt}
+	v := OK
+	if dT > a.s.MomentumWarnFraction*kt || dR > a.s.MomentumWarnFraction*kt {
+		v = Warn
+	}
+	a.add("momentum", v, vals, "translational energy changes by %.2g eV, rotational by %.2g eV (%.2g and %.2g of k_B T at %.0f K)",
+		dT*hartreeEV, dR*hartreeEV, dT/kt, dR/kt, a.s.Temperature)
+}

@@ -1,0 +1,141 @@
+package audit
+
+import (
+	"math"
+
+	"trajvault/internal/trajfile"
+)
+
+// zpeTracker watches the kinetic energy along atom-pair bonds, the
+// Hessian-free local-pair picture of zero-point-energy leakage
+// (J. Chem. Theory Comput. 18, 4109 (2022), doi:10.1021/acs.jctc.2c00208).
+// For pair ij with unit vector r_hat and reduced mass mu,
+//
+//	K_ij = 1/2 mu ((v_i - v_j) . r_hat)^2
+//
+// A harmonic mode's mean kinetic energy is half its energy, so a pair
+// holding its zero-point energy 1/2 hbar omega averages K_ij = ZPE/2 over
+// whole periods; a pair whose window-averaged K_ij stays below that has
+// leaked zero-point energy (derived; omega from the pair's own motion).
+type zpeTracker struct {
+	pairs [][2]int
+	mu    []float64
+	kin   [][]float64 // per pair, per frame
+}
+
+func newZPETracker(s Settings, r *trajfile.Reader, x []float64) *zpeTracker {
+	z := &zpeTracker{}
+	pairs := s.ZPEPairs
+	if len(pairs) == 0 {
+		const xhCutoff = 1.3 / 0.529177210903 // bohr
+		for _, p := range nearPairs(x, r.N, xhCutoff) {
+			if (r.Species[p[0]] == 1) != (r.Species[p[1]] == 1) { // X-H
+				pairs = append(pairs, p)
+			}
+		}
+	}
+	for _, p := range pairs {
+		mi, mj := r.Masses[p[0]], r.Masses[p[1]]
+		z.pairs = append(z.pairs, p)
+		z.mu = append(z.mu, mi*mj/(mi+mj))
+		z.kin = append(z.kin, nil)
+	}
+	return z
+}
+
+func (z *zpeTracker) add(x, v []float64) {
+	for p, ij := range z.pairs {
+		i, j := ij[0], ij[1]
+		var r [3]float64
+		rn := 0.0
+		for k := 0; k < 3; k++ {
+			r[k] = x[3*i+k] - x[3*j+k]
+			rn += r[k] * r[k]
+		}
+		rn = math.Sqrt(rn)
+		proj := 0.0
+		for k := 0; k < 3; k++ {
+			proj += (v[3*i+k] - v[3*j+k]) * r[k] / rn
+		}
+		z.kin[p] = append(z.kin[p], 0.5*z.mu[p]*proj*proj)
+	}
+}
+
+// pairOmega estimates a pair's angular frequency from its bond kinetic
+// energy, which for harmonic motion oscillates at twice the bond
+// frequency: the rate of upward crossings of its mean gives the period of
+// K_ij, pi/omega. Needs no forces.
+func pairOmega(k []float64, dt float64) float64 {
+	// K_ij oscillates at twice the bond frequency; count its rises
+	// through its mean.
+	m := mean(k)
+	cross := 0
+	for i := 1; i < len(k); i++ {
+		if k[i-1] < m && k[i] >= m {
+			cross++
+		}
+	}
+	if cross == 0 {
+		return 0
+	}
+	period := float64(len(k)-1) * dt / float64(cross) // of K_ij
+	return math.Pi / period                           // bond omega = 2 pi / (2 period)
+}
+
+// zpeCheck reports, per pair, the fraction of time its window-averaged
+// bond kinetic energy is below (1 - margin) ZPE/2.
+func (a *auditor) zpeCheck(z *zpeTracker) {
+	if z == nil || len(z.pairs) == 0 {
+		a.add("zpe-leakage", NA, nil, "no X-H pairs (or velocities) to watch")
+		return
+	}
+	dt := a.frameInterval()
+	worstFrac, worstPair, firstBelow := 0.0, -1, -1.0
+	for p := range z.pairs {
+		k := z.kin[p]
+		omega := pairOmega(k, dt)
+		if omega == 0 {
+			continue
+		}
+		zpe := 0.5 * omega                              // hbar = 1 in atomic units
+		w := max(1, int(math.Ceil(2*math.Pi/omega/dt))) // one local period
+		if w >= len(k) {
+			continue
+		}
+		thr := (1 - a.s.ZPEMargin) * zpe / 2
+		sum := 0.0
+		for i := 0; i < w; i++ {
+			sum += k[i]
+		}
+		below, total := 0, 0
+		first := -1.0
+		for i := w; i <= len(k); i++ {
+			avg := sum / float64(w)
+			total++
+			if avg < thr {
+				below++
+				if first < 0 {
+					first = a.res.Times[i-w]
+				}
+			}
+			if i < len(k) {
+				sum += k[i] - k[i-w]
+			}
+		}
+		frac := float64(below) / float64(total)
+		if frac > worstFrac || worstPair < 0 {
+			worstFrac, worstPair, firstBelow = frac, p, first
+		}
+	}
+	if worstPair < 0 {
+		a.add("zpe-leakage", Unknown, nil, "pair motion too slow or too short to resolve a period")
+		return
+	}
+	ij := z.pairs[worstPair]
+	vals := map[string]float64{"fraction_below": worstFrac, "first_below_fs": firstBelow, "atom_i": float64(ij[0]), "atom_j": float64(ij[1]), "pairs": float64(len(z.pairs))}
+	v := OK
+	if worstFrac > a.s.ZPEWarnFraction {
+		v = Warn
+	}
+	a.add("zpe-leakage", v, vals, "worst X-H pair (atoms %d-%d) has less than its zero-point kinetic energy %.0f %% of the time", ij[0], ij[1], 100*worstFrac)
+}
