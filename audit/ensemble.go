@@ -150,6 +150,6 @@ func (rep *Report) consistency(s Settings) {
 		v = Warn
 	}
 	rep.Ensemble = append(rep.Ensemble, Check{Name: "internal-consistency", Verdict: v,
-		Summary: fmt.Sprintf("active-state fractions and mean |c|^2 of %d trajectories differ by more than 3 binomial sigma at %.0f %% of times (worst %.1f sigma at %.3g fs)", N, 100*frac, worst, worstT),
-		Values:  map[string]float64{"trajectories": float64(N), "fraction_exceeded": frac, "worst_in_sigma": worst, "worst_time_fs": worstT}})
+		Summary: fmt.Sprintf("active-state fractions and mean |c|^2 of %d trajectories differ by more than 3 binomial sigma at %.0f %% of times (worst gap %.1f times that level, at %.3g fs)", N, 100*frac, worst, worstT),
+		Values:  map[string]float64{"trajectories": float64(N), "fraction_exceeded": frac, "worst_over_3sigma": worst, "worst_time_fs": worstT}})
 }

@@ -31,6 +31,7 @@ func WriteLogs(dir string, o LogOptions) error {
 		return err
 	}
 	m := Tarnol()
+	m.Faults = o.Faults
 	toAng := mustFactor("bohr", "angstrom")
 	dtAu := o.DtFs * mustFactor("fs", "au_time")
 	files := map[string]*bufio.Writer{}
@@ -77,9 +78,12 @@ func WriteLogs(dir string, o LogOptions) error {
 	m.Run(o.Seed, o.Steps, dtAu, o.Temp, func(s *Step) {
 		if s.HopTo >= 0 {
 			kind := "accepted"
-			from := 1 - s.HopTo
+			from := s.Active
+			if s.Active == s.HopTo {
+				from = 1 - s.HopTo
+			}
 			if s.Frustrated {
-				kind, from = "frustrated", s.Active
+				kind = "frustrated"
 			}
 			fmt.Fprintf(ev, "[step %7d] switch %d -> %d %s\n", s.N, from+1, s.HopTo+1, kind)
 		}

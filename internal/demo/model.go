@@ -28,12 +28,34 @@ import (
 
 // Model holds the parameters of the invented two-state triatomic.
 type Model struct {
-	Mass  [3]float64 // electron masses
-	K     [3]float64 // spring constants of pairs (0,1), (0,2), (1,2), Eh/bohr^2
-	RestA [3]float64 // bohr
-	RestB [3]float64 // bohr
-	Eps   float64    // Eh
-	Vc    float64    // Eh
+	Mass   [3]float64 // electron masses
+	K      [3]float64 // spring constants of pairs (0,1), (0,2), (1,2), Eh/bohr^2
+	RestA  [3]float64 // bohr
+	RestB  [3]float64 // bohr
+	Eps    float64    // Eh
+	Vc     float64    // Eh
+	Faults Faults
+}
+
+// Faults inject errors of known size, so that the audit can be tested
+// against them. The zero value is a correct run.
+type Faults struct {
+	// ForceNoise adds Gaussian noise of this standard deviation
+	// (hartree/bohr, per component per step) to the forces that move the
+	// nuclei; energies stay exact.
+	ForceNoise float64
+	// NoRescaleEvery makes every n-th accepted hop keep the velocities, so
+	// that K + V jumps by the gap (Step.Planted marks them).
+	NoRescaleEvery int
+	// MislogDownhillEvery logs every n-th accepted downhill hop as
+	// frustrated (Step.Planted marks them).
+	MislogDownhillEvery int
+	// DropHops never executes allowed hops: the active state stays while
+	// the amplitudes evolve, so the two population estimators disagree.
+	DropHops bool
+	// AmplitudeScale multiplies the stored amplitudes (0 = 1): values
+	// other than 1 break the normalisation.
+	AmplitudeScale float64
 }
 
 var pairs = [3][2]int{{0, 1}, {0, 2}, {1, 2}}
@@ -113,7 +135,8 @@ type Step struct {
 	C          [2]complex128
 	Coupling   float64 // T_01, 1/au_time
 	HopTo      int     // -1 none
-	Frustrated bool
+	Frustrated bool    // as logged
+	Planted    bool    // a fault injected at this hop
 }
 
 // Run integrates one trajectory of nsteps steps of dt (au_time) from a
@@ -147,6 +170,7 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 	c := [2]complex128{0, 1}
 	s := m.Eval(x)
 	st := &Step{X: x, V: v, HopTo: -1}
+	planted := false
 	record := func(n int64, coupling float64, hop int, frustrated bool) {
 		st.N, st.Time = n, float64(n)*dt
 		st.F = make([]float64, 9)
@@ -160,23 +184,42 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 			}
 		}
 		st.Energies, st.Active, st.C, st.Coupling = s.E, active, c, coupling
-		st.HopTo, st.Frustrated = hop, frustrated
+		if sc := m.Faults.AmplitudeScale; sc != 0 && sc != 1 {
+			st.C = [2]complex128{c[0] * complex(sc, 0), c[1] * complex(sc, 0)}
+		}
+		st.HopTo, st.Frustrated, st.Planted = hop, frustrated, planted
 		emit(st)
+		planted = false
 	}
+	noise := func() float64 {
+		if m.Faults.ForceNoise == 0 {
+			return 0
+		}
+		return m.Faults.ForceNoise * rng.NormFloat64()
+	}
+	grad := make([]float64, 9)
+	setGrad := func() {
+		for k := range grad {
+			grad[k] = s.Grad[active][k] + noise()
+		}
+	}
+	setGrad()
+	accepted, downhill := 0, 0
 	record(0, 0, -1, false)
 	for n := 1; n <= nsteps; n++ {
 		// Velocity Verlet on the active surface.
 		for i := 0; i < 3; i++ {
 			for k := 0; k < 3; k++ {
-				v[3*i+k] -= 0.5 * dt * s.Grad[active][3*i+k] / m.Mass[i]
+				v[3*i+k] -= 0.5 * dt * grad[3*i+k] / m.Mass[i]
 				x[3*i+k] += dt * v[3*i+k]
 			}
 		}
 		old := s
 		s = m.Eval(x)
+		setGrad()
 		for i := 0; i < 3; i++ {
 			for k := 0; k < 3; k++ {
-				v[3*i+k] -= 0.5 * dt * s.Grad[active][3*i+k] / m.Mass[i]
+				v[3*i+k] -= 0.5 * dt * grad[3*i+k] / m.Mass[i]
 			}
 		}
 		// Electronic step: exact 2x2 propagators on substeps, energies
@@ -207,14 +250,45 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 		hop, frustrated := -1, false
 		if rng.Float64() < g {
 			hop = other
-			if m.rescale(v, s.DDiab[:], s.E[other]-s.E[active]) {
-				active = other
-			} else {
+			dV := s.E[other] - s.E[active]
+			allowed := m.rescaleCheck(v, s.DDiab[:], dV)
+			switch {
+			case !allowed:
 				frustrated = true
+			case m.Faults.DropHops:
+				hop = -1 // the hop is lost: not executed, not logged
+			default:
+				accepted++
+				if n := m.Faults.NoRescaleEvery; n > 0 && accepted%n == 0 {
+					planted = true // velocities kept: K + V jumps by dV
+				} else {
+					m.rescale(v, s.DDiab[:], dV)
+				}
+				if dV < 0 {
+					downhill++
+					if n := m.Faults.MislogDownhillEvery; n > 0 && downhill%n == 0 && !planted {
+						planted, frustrated = true, true // executed, logged as frustrated
+					}
+				}
+				active = other
 			}
+			setGrad()
 		}
 		record(int64(n), t01, hop, frustrated)
 	}
+}
+
+// rescaleCheck reports whether a hop with potential change dV is
+// energetically allowed along u (b^2 >= 4 a dV), without changing v.
+func (m *Model) rescaleCheck(v, u []float64, dV float64) bool {
+	var a, b float64
+	for i := 0; i < 3; i++ {
+		for k := 0; k < 3; k++ {
+			a += u[3*i+k] * u[3*i+k] / (2 * m.Mass[i])
+			b += v[3*i+k] * u[3*i+k]
+		}
+	}
+	return a > 0 && b*b-4*a*dV >= 0
 }
 
 // rescale changes velocities along u (mass-weighted) so that kinetic plus

@@ -9,6 +9,7 @@ import (
 
 // Options size a demo trajectory.
 type Options struct {
+	Faults Faults
 	Seed   uint64
 	Steps  int     // integration steps
 	DtFs   float64 // time step in fs
@@ -32,6 +33,7 @@ func mustFactor(from, to string) float64 {
 // writer, in the units a typical log would use.
 func WriteH5(path string, o Options) error {
 	m := Tarnol()
+	m.Faults = o.Faults
 	var (
 		toAng  = mustFactor("bohr", "angstrom")
 		toVel  = mustFactor("bohr au_time-1", "angstrom fs-1")
@@ -72,7 +74,7 @@ func WriteH5(path string, o Options) error {
 		}
 		if s.HopTo >= 0 {
 			from := s.Active
-			if !s.Frustrated {
+			if s.Active == s.HopTo { // executed: it came from the other state
 				from = 1 - s.HopTo
 			}
 			ferr = w.WriteHop(trajfile.Hop{Step: s.N, Time: fr.Time, From: from, To: s.HopTo, Frustrated: s.Frustrated})

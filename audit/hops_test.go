@@ -1,0 +1,125 @@
+package audit
+
+import (
+	"fmt"
+	"path/filepath"
+	"testing"
+
+	"trajvault/internal/demo"
+)
+
+// demoRun writes one trajectory of the demo model with faults.
+func demoRun(t *testing.T, seed uint64, steps int, f demo.Faults) string {
+	t.Helper()
+	p := filepath.Join(t.TempDir(), fmt.Sprintf("d%d.h5", seed))
+	o := demo.DefaultOptions
+	o.Seed, o.Steps, o.Faults = seed, steps, f
+	if err := demo.WriteH5(p, o); err != nil {
+		t.Fatal(err)
+	}
+	return p
+}
+
+// planted counts the faults the generator injected at hops.
+func planted(seed uint64, steps int, f demo.Faults) int {
+	m := demo.Tarnol()
+	m.Faults = f
+	n := 0
+	m.Run(seed, steps, demo.DefaultOptions.DtFs*fsAu, demo.DefaultOptions.Temp, func(s *demo.Step) {
+		if s.Planted {
+			n++
+		}
+	})
+	return n
+}
+
+// TestHopsEnergyBookkeeping: accepted hops of a correct run conserve
+// K + V; hops planted to keep the velocities, and downhill hops logged as
+// frustrated, are caught - exactly those.
+func TestHopsEnergyBookkeeping(t *testing.T) {
+	const steps = 2000
+	for seed := uint64(1); seed <= 3; seed++ {
+		res, err := File(demoRun(t, seed, steps, demo.Faults{}), DefaultSettings)
+		if err != nil {
+			t.Fatal(err)
+		}
+		h := check(t, res, "hops")
+		if h.Verdict != OK || h.Values["accepted"] == 0 {
+			t.Errorf("seed %d: correct run judged %s: %s", seed, h.Verdict, h.Summary)
+		}
+	}
+	cases := []struct {
+		name  string
+		f     demo.Faults
+		value string
+	}{
+		{"velocities not rescaled", demo.Faults{NoRescaleEvery: 3}, "accepted_violating_energy"},
+		{"downhill hops logged frustrated", demo.Faults{MislogDownhillEvery: 2}, "frustrated_but_allowed"},
+	}
+	for _, c := range cases {
+		want := planted(2, steps, c.f)
+		if want == 0 {
+			t.Fatalf("%s: nothing planted; pick another seed", c.name)
+		}
+		res, err := File(demoRun(t, 2, steps, c.f), DefaultSettings)
+		if err != nil {
+			t.Fatal(err)
+		}
+		h := check(t, res, "hops")
+		if got := int(h.Values[c.value]); got != want || h.Verdict != Fail {
+			t.Errorf("%s: %s = %d, planted %d (%s)", c.name, c.value, got, want, h.Summary)
+		}
+		if c.value == "accepted_violating_energy" && h.Values["frustrated_but_allowed"] != 0 {
+			t.Errorf("%s: frustrated hops flagged too", c.name)
+		}
+	}
+}
+
+// TestUnnormalisedAmplitudes: amplitudes scaled by 1.01 break the norm by
+// 2 %, which the populations check fails.
+func TestUnnormalisedAmplitudes(t *testing.T) {
+	res, err := File(demoRun(t, 4, 300, demo.Faults{AmplitudeScale: 1.01}), DefaultSettings)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if v := check(t, res, "populations"); v.Verdict != Fail {
+		t.Errorf("2 %% norm error judged %s: %s", v.Verdict, v.Summary)
+	}
+}
+
+// TestInternalConsistency: an ensemble whose hops follow the amplitudes
+// passes; one that drops its hops (active states never follow the
+// amplitudes) is flagged.
+func TestInternalConsistency(t *testing.T) {
+	const n, steps = 16, 1500
+	build := func(f demo.Faults) *Report {
+		var paths []string
+		for i := 0; i < n; i++ {
+			paths = append(paths, demoRun(t, uint64(100+i), steps, f))
+		}
+		rep, err := Ensemble(paths, DefaultSettings, 2)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return rep
+	}
+	find := func(rep *Report) Check {
+		for _, c := range rep.Ensemble {
+			if c.Name == "internal-consistency" {
+				return c
+			}
+		}
+		t.Fatal("no internal-consistency check")
+		return Check{}
+	}
+	good := find(build(demo.Faults{}))
+	t.Logf("correct: %s %s", good.Verdict, good.Summary)
+	if good.Verdict == Fail {
+		t.Errorf("a correct ensemble failed: %s", good.Summary)
+	}
+	bad := find(build(demo.Faults{DropHops: true}))
+	t.Logf("dropped hops: %s %s", bad.Verdict, bad.Summary)
+	if bad.Verdict != Fail {
+		t.Errorf("dropped hops not flagged: %s", bad.Summary)
+	}
+}
