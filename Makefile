@@ -31,12 +31,14 @@ build: deps-build
 RECIPE := testdata/recipes/tarnol.yaml
 demo: build
 	rm -rf demo
-	$(BIN) demo --text demo/logs
+	$(BIN) demo --text --trajectories 8 --steps 10000 demo/logs
 	$(BIN) scan --recipe $(RECIPE) demo/logs
 	$(BIN) convert --recipe $(RECIPE) --author "Tarn Valley photophysics group (fictional)" demo/logs -o demo/h5
 	$(BIN) validate demo/h5/*.h5
 	$(BIN) inspect demo/h5/traj-001.h5
 	$(BIN) export demo/h5/traj-001.h5 -o demo/export --format extxyz
+	$(BIN) audit --report demo/audit.html demo/h5
+	@echo "demo: logs in demo/logs, trajectory files in demo/h5, audit report in demo/audit.html"
 
 fmt-check:
 	@out="$$($(dir $(GO))gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))"; \

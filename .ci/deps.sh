@@ -3,13 +3,14 @@
 # missing. Used by the Makefile (make demo, make test) and by CI.
 #
 #   .ci/deps.sh build   C library and pkg-config for the cgo HDF5 layer
-#   .ci/deps.sh test    also the independent readers used by the tests
+#   .ci/deps.sh test    also the independent readers used by the tests and
+#                       Chromium, which renders the audit report in a test
 #   .ci/deps.sh bench   also the compressors the benchmark compares with
 #   .ci/deps.sh go      print the path of a Go toolchain, fetching one from
 #                       the Go module proxy when none is installed
 set -euo pipefail
 
-GO_FALLBACK=1.22.12 # used only when no Go is installed
+GO_FALLBACK=1.24.9 # used only when no Go is installed; at least the go.mod version
 
 sudo_() {
 	if [ "$(id -u)" = 0 ]; then "$@"; else sudo "$@"; fi
@@ -50,7 +51,7 @@ find_go() {
 
 case "${1:-}" in
 build) apt_install libhdf5-dev pkg-config gcc ;;
-test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase ;;
+test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase chromium ;;
 bench) apt_install libhdf5-dev pkg-config gcc zstd xz-utils gzip time ;;
 go) find_go ;;
 *) echo "usage: $0 build|test|bench|go" >&2; exit 2 ;;

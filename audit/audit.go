@@ -365,7 +365,7 @@ func (a *auditor) noise() {
 	}
 	f := fitNoise(a.etot, kmin, dt, delta, a.sumV2, invMass)
 	if !f.Fitted {
-		a.add("force-noise", Unknown, nil, "the run is too short to measure force noise: it needs at least 8 periods of the fastest motion (%d frames each)", kmin)
+		a.add("force-noise", Unknown, nil, "the run is too short to measure force noise: it needs at least 80 periods of the fastest motion (%d frames each)", kmin)
 		return
 	}
 	vals := map[string]float64{
@@ -394,7 +394,7 @@ func (a *auditor) noise() {
 	if f.Rate*run > 3*walk && f.Rate > 10*f.HeatingRate {
 		sys = "; the drift is larger than the noise explains: systematic (gradients inconsistent with energies, or the step too large)"
 	}
-	a.add("force-noise", v, vals, "energy random walk implies force noise sigma_F = %.2g hartree/bohr per component%s", f.SigmaF, sys)
+	a.add("force-noise", v, vals, "the total energy random-walks as force noise sigma_F = %.2g hartree/bohr per component would (noisy gradients, or integration errors where surfaces change fast)%s", f.SigmaF, sys)
 }
 
 // timeStep compares the integration step with the shortest period.

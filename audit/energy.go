@@ -108,7 +108,9 @@ func fitNoise(e []float64, kmin int, dtInt, delta, sumV2, invMass float64) Noise
 	n := len(e)
 	kmin = max(kmin, 1)
 	kmax := n / 10 // longer lags rest on few independent samples
-	if kmax < 2*kmin || sumV2 <= 0 || dtInt <= 0 {
+	// Lags must span a decade beyond the decorrelation of the bounded
+	// term, or a bounded but slow fluctuation passes for a random walk.
+	if kmax < 8*kmin || sumV2 <= 0 || dtInt <= 0 {
 		return f
 	}
 	var ks, ds []float64
@@ -131,7 +133,9 @@ func fitNoise(e []float64, kmin int, dtInt, delta, sumV2, invMass float64) Noise
 	f.S2 = b
 	f.Rate = math.Sqrt(c) / delta
 	kLast := ks[len(ks)-1]
-	f.Determined = b*kLast > a && b > 0
+	// A random walk must dominate the longest lag and the data must grow
+	// across the lags (a fitted slope alone can come from a bounded term).
+	f.Determined = b > 0 && b*kLast > 2*a && ds[len(ds)-1] > 2*ds[0]
 	f.SigmaF = math.Sqrt(b / (dtInt * delta * sumV2))
 	if !f.Determined {
 		// Whatever random walk hides under the bounded term at the

@@ -8,14 +8,18 @@ import (
 
 // momentumTracker follows total linear momentum P = sum m v and angular
 // momentum L about the centre of mass, as energies: E_trans = P^2/2M and
-// E_rot = L^T I^-1 L / 2. Both stay constant for an isolated molecule;
+// E_rot = L^T I0^-1 L / 2 with the inertia tensor I0 of the first frame
+// (fixed, so that vibration, which changes the instantaneous tensor,
+// does not count; E_rot changes only when L does). Both stay constant for
+// an isolated molecule;
 // rescaling velocities along raw coupling vectors at hops can break that
 // (J. Phys. Chem. Lett. 11, 1135 (2020), doi:10.1021/acs.jpclett.9b03585).
 type momentumTracker struct {
-	m           []float64
-	M           float64
-	trans, rot  []float64
-	linearMolec bool
+	m          []float64
+	M          float64
+	trans, rot []float64
+	vals       []float64 // eigenvalues of I0
+	vecs       *mat.Dense
 }
 
 func newMomentumTracker(m []float64) *momentumTracker {
@@ -39,7 +43,10 @@ func (t *momentumTracker) add(x, v []float64) {
 		V[k] = P[k] / t.M
 	}
 	var L [3]float64
-	I := mat.NewSymDense(3, nil)
+	var I *mat.SymDense
+	if t.vecs == nil {
+		I = mat.NewSymDense(3, nil)
+	}
 	for i := 0; i < n; i++ {
 		var r, u [3]float64
 		for k := 0; k < 3; k++ {
@@ -49,6 +56,9 @@ func (t *momentumTracker) add(x, v []float64) {
 		L[0] += t.m[i] * (r[1]*u[2] - r[2]*u[1])
 		L[1] += t.m[i] * (r[2]*u[0] - r[0]*u[2])
 		L[2] += t.m[i] * (r[0]*u[1] - r[1]*u[0])
+		if I == nil {
+			continue
+		}
 		r2 := r[0]*r[0] + r[1]*r[1] + r[2]*r[2]
 		for a := 0; a < 3; a++ {
 			for b := a; b < 3; b++ {
@@ -61,22 +71,25 @@ func (t *momentumTracker) add(x, v []float64) {
 		}
 	}
 	t.trans = append(t.trans, (P[0]*P[0]+P[1]*P[1]+P[2]*P[2])/(2*t.M))
+	if t.vecs == nil {
+		var eig mat.EigenSym
+		if !eig.Factorize(I, true) {
+			return
+		}
+		t.vals = eig.Values(nil)
+		t.vecs = &mat.Dense{}
+		eig.VectorsTo(t.vecs)
+	}
 	// E_rot with the pseudo-inverse on the non-degenerate axes (a linear
 	// molecule has one zero moment).
-	var eig mat.EigenSym
 	erot := 0.0
-	if eig.Factorize(I, true) {
-		vals := eig.Values(nil)
-		var vecs mat.Dense
-		eig.VectorsTo(&vecs)
-		top := math.Max(math.Abs(vals[0]), math.Max(math.Abs(vals[1]), math.Abs(vals[2])))
-		for k := 0; k < 3; k++ {
-			if vals[k] <= 1e-8*top {
-				continue
-			}
-			proj := L[0]*vecs.At(0, k) + L[1]*vecs.At(1, k) + L[2]*vecs.At(2, k)
-			erot += proj * proj / (2 * vals[k])
+	top := math.Max(math.Abs(t.vals[0]), math.Max(math.Abs(t.vals[1]), math.Abs(t.vals[2])))
+	for k := 0; k < 3; k++ {
+		if t.vals[k] <= 1e-8*top {
+			continue
 		}
+		proj := L[0]*t.vecs.At(0, k) + L[1]*t.vecs.At(1, k) + L[2]*t.vecs.At(2, k)
+		erot += proj * proj / (2 * t.vals[k])
 	}
 	t.rot = append(t.rot, erot)
 }

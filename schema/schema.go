@@ -153,3 +153,11 @@ var recipeSchemaJSON []byte
 func RecipeSchema() (*jsonschema.Schema, error) {
 	return compile("recipe.schema.json", recipeSchemaJSON)
 }
+
+//go:embed audit.schema.json
+var auditSchemaJSON []byte
+
+// AuditSchema compiles the JSON Schema of `audit --json` output.
+func AuditSchema() (*jsonschema.Schema, error) {
+	return compile("audit.schema.json", auditSchemaJSON)
+}

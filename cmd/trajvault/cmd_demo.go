@@ -19,6 +19,10 @@ type demoOptions struct {
 	stride       int
 	decimals     int
 	molecules    int
+	forceNoise   float64
+	unrescaled   int
+	restart      int
+	truncate     bool
 }
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
@@ -28,6 +32,10 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
 	c.Flags().IntVar(&o.stride, "stride", 1, "with --text: write every n-th step")
 	c.Flags().IntVar(&o.decimals, "decimals", 8, "with --text: decimals of the positions")
+	c.Flags().Float64Var(&o.forceNoise, "force-noise", 0, "fault: Gaussian force noise (hartree/bohr per component per step)")
+	c.Flags().IntVar(&o.unrescaled, "unrescaled-hops", 0, "fault: every n-th accepted hop keeps the velocities (energy not conserved)")
+	c.Flags().IntVar(&o.restart, "restart-overlap", 0, "fault, with --text: repeat this many frames at mid-run, as a restart does")
+	c.Flags().BoolVar(&o.truncate, "truncate-last", false, "fault, with --text: cut the last frame of the geometry file")
 	c.Flags().IntVar(&o.molecules, "molecules", 1, "with --text: copies of the molecule in the geometry (for benchmarks of larger systems)")
 }
 
@@ -68,9 +76,10 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 	for i := 0; i < o.trajectories; i++ {
 		opt := demo.DefaultOptions
 		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
+		opt.Faults = demo.Faults{ForceNoise: o.forceNoise, NoRescaleEvery: o.unrescaled}
 		var err error
 		if o.text {
-			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals, Molecules: o.molecules})
+			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals, Molecules: o.molecules, RestartOverlap: o.restart, TruncateLast: o.truncate})
 		} else {
 			err = demo.WriteH5(filepath.Join(tmp, fmt.Sprintf("traj-%03d.h5", i+1)), opt)
 		}

@@ -107,7 +107,7 @@ func TestInspect(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"3 atoms (H2O)", "51 frames", "0..6.25 fs, 0.125 fs per step", "2 electronic states", "/particles/all/position/value", "angstrom", "shuffle+deflate+fletcher32"} {
+	for _, want := range []string{"3 atoms (H2O)", "51 frames", "0..2.5 fs, 0.05 fs per step", "2 electronic states", "/particles/all/position/value", "angstrom", "shuffle+deflate+fletcher32"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("inspect output lacks %q:\n%s", want, out)
 		}

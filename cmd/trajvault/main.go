@@ -88,6 +88,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newScanCommand(g),
 		newConvertCommand(g),
 		newExportCommand(g),
+		newAuditCommand(g),
 	)
 	return root
 }

@@ -2,6 +2,9 @@ package demo
 
 import (
 	"math"
+	"os"
+	"path/filepath"
+	"strings"
 	"testing"
 )
 
@@ -32,4 +35,27 @@ func TestRunConservesEnergy(t *testing.T) {
 		t.Errorf("total energy drifts by %g Eh", maxDev)
 	}
 	t.Logf("max |E-E0| = %.3g Eh, accepted hops: %d", maxDev, hops)
+}
+
+// TestLogFaults: the restart and truncation knobs write what scan must
+// find: repeated steps and a cut last frame.
+func TestLogFaults(t *testing.T) {
+	dir := t.TempDir()
+	o := LogOptions{Options: DefaultOptions, Decimals: 6, RestartOverlap: 5, TruncateLast: true}
+	o.Steps = 100
+	if err := WriteLogs(dir, o); err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(filepath.Join(dir, "geom.xyz"))
+	text := string(b)
+	if n := strings.Count(text, "step=50 "); n != 2 {
+		t.Errorf("step 50 written %d times, want 2 (restart overlap)", n)
+	}
+	if strings.HasSuffix(text, "\n") {
+		t.Error("last frame not cut")
+	}
+	e, _ := os.ReadFile(filepath.Join(dir, "energies.dat"))
+	if n := strings.Count(string(e), "\n      50 "); n != 2 {
+		t.Errorf("energies: step 50 written %d times", n)
+	}
 }

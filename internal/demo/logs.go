@@ -3,8 +3,10 @@ package demo
 import (
 	"bufio"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
+	"strings"
 )
 
 // LogOptions size the invented text logs.
@@ -12,6 +14,12 @@ type LogOptions struct {
 	Options
 	Stride   int // write every Stride-th step
 	Decimals int // decimals of positions
+	// RestartOverlap > 0 repeats that many stored frames of every log at
+	// mid-run, as a run restarted from an earlier checkpoint writes them.
+	RestartOverlap int
+	// TruncateLast cuts the geometry file inside its last atom line, as
+	// a job killed while writing leaves it.
+	TruncateLast bool
 	// Molecules > 1 adds spectator copies of the molecule (own seeds,
 	// 10 angstrom apart) to the geometry, for benchmarks of larger
 	// systems; observables stay those of the first molecule.
@@ -33,6 +41,7 @@ func WriteLogs(dir string, o LogOptions) error {
 	m := Tarnol()
 	m.Faults = o.Faults
 	toAng := mustFactor("bohr", "angstrom")
+	toVel := mustFactor("bohr au_time-1", "angstrom fs-1")
 	dtAu := o.DtFs * mustFactor("fs", "au_time")
 	files := map[string]*bufio.Writer{}
 	var closers []*os.File
@@ -69,12 +78,21 @@ func WriteLogs(dir string, o LogOptions) error {
 		m.Run(o.Seed*1000+uint64(k), o.Steps, dtAu, o.Temp, func(s *Step) {
 			if s.N%int64(o.Stride) == 0 {
 				xs = append(xs, s.X...)
+				xs = append(xs, s.V...)
+				xs = append(xs, s.F...)
 			}
 		})
 		spect = append(spect, xs)
 	}
 	natoms := 3 * max(o.Molecules, 1)
 	frame := 0
+	// Restart: keep the text of the last RestartOverlap frames of each
+	// file and write it again once, half-way through the run.
+	type chunk struct{ geom, en, st string }
+	var recent []chunk
+	restartAt := (o.Steps / o.Stride / 2) * o.Stride
+	var gbuf, ebuf, sbuf strings.Builder
+	realGeom, realEn, realSt := geom, en, st
 	m.Run(o.Seed, o.Steps, dtAu, o.Temp, func(s *Step) {
 		if s.HopTo >= 0 {
 			kind := "accepted"
@@ -90,18 +108,51 @@ func WriteLogs(dir string, o LogOptions) error {
 		if s.N%int64(o.Stride) != 0 {
 			return
 		}
+		if o.RestartOverlap > 0 {
+			gbuf.Reset()
+			ebuf.Reset()
+			sbuf.Reset()
+			geom, en, st = bufWriter(&gbuf), bufWriter(&ebuf), bufWriter(&sbuf)
+			defer func() {
+				geom.Flush()
+				en.Flush()
+				st.Flush()
+				c := chunk{gbuf.String(), ebuf.String(), sbuf.String()}
+				realGeom.WriteString(c.geom)
+				realEn.WriteString(c.en)
+				realSt.WriteString(c.st)
+				recent = append(recent, c)
+				if len(recent) > o.RestartOverlap {
+					recent = recent[1:]
+				}
+				if int(s.N) == restartAt {
+					for _, r := range recent {
+						realGeom.WriteString(r.geom)
+						realEn.WriteString(r.en)
+						realSt.WriteString(r.st)
+					}
+				}
+				geom, en, st = realGeom, realEn, realSt
+			}()
+		}
 		t := float64(s.N) * o.DtFs
-		fmt.Fprintf(geom, "%d\nstep=%d time=%.4f\n", natoms, s.N, t)
+		// The first molecule carries velocities and forces (extended XYZ
+		// columns); spectators only positions, with zeros elsewhere.
+		fmt.Fprintf(geom, "%d\nProperties=species:S:1:pos:R:3:velo:R:3:forces:R:3 step=%d time=%.4f\n", natoms, s.N, t)
 		for i := 0; i < 3; i++ {
-			fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f\n", syms[i],
+			fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f", syms[i],
 				pd+6, pd, s.X[3*i]*toAng, pd+6, pd, s.X[3*i+1]*toAng, pd+6, pd, s.X[3*i+2]*toAng)
+			fmt.Fprintf(geom, " %.10f %.10f %.10f %.10f %.10f %.10f\n",
+				s.V[3*i]*toVel, s.V[3*i+1]*toVel, s.V[3*i+2]*toVel, s.F[3*i], s.F[3*i+1], s.F[3*i+2])
 		}
 		for k, xs := range spect {
 			off := 10.0 * float64(k+1)
-			x := xs[9*frame : 9*frame+9]
+			x := xs[27*frame : 27*frame+27]
 			for i := 0; i < 3; i++ {
-				fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f\n", syms[i],
+				fmt.Fprintf(geom, "%-2s %*.*f %*.*f %*.*f", syms[i],
 					pd+6, pd, x[3*i]*toAng+off, pd+6, pd, x[3*i+1]*toAng, pd+6, pd, x[3*i+2]*toAng)
+				fmt.Fprintf(geom, " %.10f %.10f %.10f %.10f %.10f %.10f\n",
+					x[9+3*i]*toVel, x[9+3*i+1]*toVel, x[9+3*i+2]*toVel, x[18+3*i], x[18+3*i+1], x[18+3*i+2])
 			}
 		}
 		frame++
@@ -111,6 +162,15 @@ func WriteLogs(dir string, o LogOptions) error {
 		fmt.Fprintf(st, "%d,%.10f,%.10f,%.8f,%.8f\n", s.N, s.Energies[0], s.Energies[1], p0, 1-p0)
 	})
 	var ferr error
+	if o.TruncateLast {
+		// Drop the tail of the last atom line.
+		realGeom.Flush()
+		f := closers[0]
+		if st, err := f.Stat(); err == nil && st.Size() > 20 {
+			ferr = f.Truncate(st.Size() - 20)
+			f.Seek(0, 2)
+		}
+	}
 	for _, w := range files {
 		if err := w.Flush(); err != nil && ferr == nil {
 			ferr = err
@@ -123,3 +183,5 @@ func WriteLogs(dir string, o LogOptions) error {
 	}
 	return ferr
 }
+
+func bufWriter(w io.Writer) *bufio.Writer { return bufio.NewWriter(w) }

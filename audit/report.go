@@ -1,0 +1,195 @@
+package audit
+
+import (
+	"bytes"
+	"fmt"
+	"html/template"
+	"image/color"
+	"io"
+	"path/filepath"
+	"strings"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+)
+
+// palette for states and trajectories (colour-blind safe, common
+// practice).
+var palette = []color.RGBA{
+	{0, 114, 178, 255}, {213, 94, 0, 255}, {0, 158, 115, 255}, {204, 121, 167, 255},
+	{86, 180, 233, 255}, {230, 159, 0, 255}, {240, 228, 66, 255}, {0, 0, 0, 255},
+}
+
+func svg(p *plot.Plot) (template.HTML, error) {
+	w, err := p.WriterTo(16*vg.Centimeter, 9*vg.Centimeter, "svg")
+	if err != nil {
+		return "", err
+	}
+	var b bytes.Buffer
+	if _, err := w.WriteTo(&b); err != nil {
+		return "", err
+	}
+	s := b.String()
+	if i := strings.Index(s, "<svg"); i > 0 {
+		s = s[i:] // drop the XML prolog to inline the drawing
+	}
+	return template.HTML(s), nil
+}
+
+func line(xs, ys []float64) plotter.XYs {
+	pts := make(plotter.XYs, 0, len(xs))
+	stride := max(1, len(xs)/2000) // enough points for the eye
+	for i := 0; i < len(xs) && i < len(ys); i += stride {
+		pts = append(pts, plotter.XY{X: xs[i], Y: ys[i]})
+	}
+	return pts
+}
+
+func (rep *Report) populationPlot() (*plot.Plot, error) {
+	p := plot.New()
+	p.Title.Text = "Ensemble populations: active-state fraction (solid) and mean |c|^2 (dashed)"
+	p.X.Label.Text = "time / fs"
+	p.Y.Label.Text = "population"
+	for k := range rep.ByActive {
+		col := palette[k%len(palette)]
+		a, err := plotter.NewLine(line(rep.Times, rep.ByActive[k]))
+		if err != nil {
+			return nil, err
+		}
+		a.Color = col
+		c, err := plotter.NewLine(line(rep.Times, rep.ByAmpSq[k]))
+		if err != nil {
+			return nil, err
+		}
+		c.Color = col
+		c.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+		p.Add(a, c)
+		p.Legend.Add(fmt.Sprintf("state %d", k), a)
+	}
+	return p, nil
+}
+
+func (rep *Report) energyPlot() (*plot.Plot, error) {
+	p := plot.New()
+	p.Title.Text = "Total-energy deviation E(t) - E(0) per trajectory"
+	p.X.Label.Text = "time / fs"
+	p.Y.Label.Text = "deviation / eV"
+	for i, t := range rep.Trajectories {
+		if t.EnergyDev == nil {
+			continue
+		}
+		l, err := plotter.NewLine(line(t.Times, t.EnergyDev))
+		if err != nil {
+			return nil, err
+		}
+		l.Color = palette[i%len(palette)]
+		p.Add(l)
+	}
+	return p, nil
+}
+
+func (rep *Report) stepPlot() (*plot.Plot, error) {
+	p := plot.New()
+	p.Title.Text = "Time step / shortest period per trajectory (T/20 safe, T/10 limit)"
+	p.X.Label.Text = "trajectory"
+	p.Y.Label.Text = "dt / T"
+	var pts plotter.XYs
+	for i, t := range rep.Trajectories {
+		for _, c := range t.Checks {
+			if c.Name == "time-step" && c.Values["step_over_period"] > 0 {
+				pts = append(pts, plotter.XY{X: float64(i + 1), Y: c.Values["step_over_period"]})
+			}
+		}
+	}
+	if len(pts) == 0 {
+		return nil, nil
+	}
+	s, err := plotter.NewScatter(pts)
+	if err != nil {
+		return nil, err
+	}
+	s.Color = palette[0]
+	p.Add(s)
+	for _, lim := range []float64{0.05, 0.1} {
+		l, err := plotter.NewLine(plotter.XYs{{X: 0.5, Y: lim}, {X: float64(len(rep.Trajectories)) + 0.5, Y: lim}})
+		if err != nil {
+			return nil, err
+		}
+		l.Color = palette[1]
+		l.Dashes = []vg.Length{vg.Points(2), vg.Points(2)}
+		p.Add(l)
+	}
+	p.Y.Min = 0
+	return p, nil
+}
+
+var reportTmpl = template.Must(template.New("r").Parse(`<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8"><title>trajvault audit</title>
+<style>
+body{font-family:sans-serif;max-width:60rem;margin:2rem auto;color:#222}
+table{border-collapse:collapse;margin:1rem 0}td,th{border:1px solid #ccc;padding:.3rem .6rem;text-align:left;vertical-align:top}
+.fail{color:#b00020;font-weight:bold}.warn{color:#a15c00;font-weight:bold}.ok{color:#216e39}
+.caution{background:#fff6e0;border-left:4px solid #e0a000;padding:.6rem 1rem}
+figure{margin:1.5rem 0}
+</style></head><body>
+<h1>Physics audit of {{len .R.Trajectories}} trajectories</h1>
+<p class="caution">{{.R.Caution}} Thresholds are settings; the numbers behind every verdict are in the JSON output.</p>
+<p>Overall verdict: <span class="{{.R.Verdict}}">{{.R.Verdict}}</span>; {{.R.Flagged}} trajectories flagged.</p>
+<h2>Ensemble</h2>
+<table><tr><th>check</th><th>verdict</th><th>finding</th></tr>
+{{range .R.Ensemble}}<tr><td>{{.Name}}</td><td class="{{.Verdict}}">{{.Verdict}}</td><td>{{.Summary}}</td></tr>
+{{end}}</table>
+{{range .Figures}}<figure>{{.}}</figure>
+{{end}}
+<h2>Flagged trajectories</h2>
+{{if .Flagged}}<table><tr><th>trajectory</th><th>check</th><th>verdict</th><th>reason</th></tr>
+{{range .Flagged}}<tr><td>{{.File}}</td><td>{{.Check}}</td><td class="{{.Verdict}}">{{.Verdict}}</td><td>{{.Summary}}</td></tr>
+{{end}}</table>{{else}}<p>None.</p>{{end}}
+<h2>All trajectories</h2>
+<table><tr><th>trajectory</th><th>frames</th><th>atoms</th><th>verdict</th></tr>
+{{range .R.Trajectories}}<tr><td>{{.File}}</td><td>{{.Frames}}</td><td>{{.Atoms}}</td><td class="{{.Verdict}}">{{.Verdict}}</td></tr>
+{{end}}</table>
+<p>Written by trajvault {{.Version}}.</p>
+</body></html>
+`))
+
+type flaggedRow struct {
+	File, Check, Summary string
+	Verdict              Verdict
+}
+
+// WriteHTML writes the report as one self-contained HTML file: inline SVG
+// plots, no external assets.
+func (rep *Report) WriteHTML(w io.Writer, version string) error {
+	var figs []template.HTML
+	for _, mk := range []func() (*plot.Plot, error){rep.populationPlot, rep.energyPlot, rep.stepPlot} {
+		if mk == nil {
+			continue
+		}
+		p, err := mk()
+		if err != nil {
+			return err
+		}
+		if p == nil {
+			continue
+		}
+		s, err := svg(p)
+		if err != nil {
+			return err
+		}
+		figs = append(figs, s)
+	}
+	if rep.Times == nil {
+		figs = figs[1:] // no population data: drop the empty population plot
+	}
+	var flagged []flaggedRow
+	for _, t := range rep.Trajectories {
+		for _, c := range t.Checks {
+			if c.Verdict == Fail || c.Verdict == Warn {
+				flagged = append(flagged, flaggedRow{File: filepath.Base(t.File), Check: c.Name, Summary: c.Summary, Verdict: c.Verdict})
+			}
+		}
+	}
+	return reportTmpl.Execute(w, map[string]any{"R": rep, "Figures": figs, "Flagged": flagged, "Version": version})
+}

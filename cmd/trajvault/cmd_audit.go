@@ -1,0 +1,188 @@
+package main
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/audit"
+)
+
+type auditOptions struct {
+	json        bool
+	report      string
+	noFail      bool
+	jobs        int
+	temperature float64
+	energyWarn  float64
+	energyFail  float64
+}
+
+func (o *auditOptions) AddFlags(c *cobra.Command) {
+	d := audit.DefaultSettings
+	c.Flags().BoolVar(&o.json, "json", false, "print the audit as JSON (schema/audit.schema.json)")
+	c.Flags().StringVar(&o.report, "report", "", "write a self-contained HTML report with plots to this file (must not exist)")
+	c.Flags().BoolVar(&o.noFail, "no-fail", false, "exit 0 even when checks fail")
+	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories audited at once")
+	c.Flags().Float64Var(&o.temperature, "temperature", d.Temperature, "temperature (K) setting the momentum-drift scale k_B T")
+	c.Flags().Float64Var(&o.energyWarn, "energy-warn", d.EnergyWarnEV, "warn when the total energy moves more than this from its start (eV)")
+	c.Flags().Float64Var(&o.energyFail, "energy-fail", d.EnergyFailEV, "fail when the total energy moves more than this from its start (eV)")
+}
+
+func newAuditCommand(g *globals) *cobra.Command {
+	var o auditOptions
+	c := &cobra.Command{
+		Use:   "audit PATH...",
+		Short: "Check the physics of stored runs: energy, time step, populations, hops, momentum, ZPE",
+		Long: `audit reads trajectory files (or every .h5 file in the folders given) and
+checks the physics in the stored numbers: energy conservation and force
+noise, the time step against the fastest motion, electronic populations
+and fewest-switches hops, total momentum, zero-point-energy leakage of X-H
+bonds, and, across the ensemble, whether active-state fractions agree with
+the mean |c|^2. Each check gives ok, warn, fail, unknown (the data cannot
+tell) or n/a (the file lacks what it needs), the numbers behind it and one
+line of explanation.
+
+An audit is evidence about the stored numbers, not a certificate that the
+simulation behind them is sound.
+
+Exit status: 0 no failed check (or --no-fail), 1 a check failed,
+2 usage or I/O error.`,
+		Example: "  trajvault audit runs/*.h5\n  trajvault audit --report audit.html deposit/h5",
+		Args: func(c *cobra.Command, args []string) error {
+			if len(args) == 0 {
+				return &exitError{exitUsage, errors.New("audit: name trajectory files or folders, e.g. trajvault audit runs/")}
+			}
+			return nil
+		},
+		RunE: func(c *cobra.Command, args []string) error { return runAudit(g, o, args) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+// h5Files expands folders into their .h5 files, sorted.
+func h5Files(args []string) ([]string, error) {
+	var out []string
+	for _, a := range args {
+		st, err := os.Stat(a)
+		if err != nil {
+			return nil, err
+		}
+		if !st.IsDir() {
+			out = append(out, a)
+			continue
+		}
+		m, _ := filepath.Glob(filepath.Join(a, "*.h5"))
+		sort.Strings(m)
+		if len(m) == 0 {
+			return nil, fmt.Errorf("%s: no .h5 files", a)
+		}
+		out = append(out, m...)
+	}
+	return out, nil
+}
+
+func runAudit(g *globals, o auditOptions, args []string) error {
+	if o.report != "" {
+		if _, err := os.Stat(o.report); err == nil {
+			return &exitError{exitUsage, fmt.Errorf("audit: %s already exists; trajvault never overwrites outputs", o.report)}
+		}
+	}
+	files, err := h5Files(args)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
+	}
+	s := audit.DefaultSettings
+	s.Temperature, s.EnergyWarnEV, s.EnergyFailEV = o.temperature, o.energyWarn, o.energyFail
+	rep, err := audit.Ensemble(files, s, o.jobs)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
+	}
+	if o.report != "" {
+		if err := writeAtomically(o.report, func(f *os.File) error { return rep.WriteHTML(f, toolVersion()) }); err != nil {
+			return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
+		}
+	}
+	if o.json {
+		b, err := json.MarshalIndent(rep, "", "  ")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(g.stdout, string(b))
+	} else {
+		printAudit(g, rep)
+		if o.report != "" {
+			fmt.Fprintf(g.stdout, "report: %s\n", o.report)
+		}
+	}
+	if rep.Verdict == audit.Fail && !o.noFail {
+		return errFindings
+	}
+	return nil
+}
+
+// writeAtomically writes path through a temporary file in the same folder.
+func writeAtomically(path string, fill func(*os.File) error) error {
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".partial-*")
+	if err != nil {
+		return err
+	}
+	defer os.Remove(tmp.Name())
+	if err := fill(tmp); err != nil {
+		tmp.Close()
+		return err
+	}
+	if err := tmp.Close(); err != nil {
+		return err
+	}
+	if err := os.Chmod(tmp.Name(), 0o644); err != nil {
+		return err
+	}
+	return os.Link(tmp.Name(), path)
+}
+
+// printAudit prints lines of at most 80 columns.
+func printAudit(g *globals, rep *audit.Report) {
+	for _, t := range rep.Trajectories {
+		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict, filepath.Base(t.File), t.Frames)
+		fmt.Fprintln(g.stdout, line)
+		for _, c := range t.Checks {
+			if c.Verdict == audit.Fail || c.Verdict == audit.Warn || c.Verdict == audit.Unknown {
+				wrap(g, fmt.Sprintf("%s %s: %s", c.Verdict, c.Name, c.Summary), "      ")
+			}
+		}
+	}
+	fmt.Fprintln(g.stdout, "ensemble:")
+	for _, c := range rep.Ensemble {
+		wrap(g, fmt.Sprintf("%-5s %s: %s", c.Verdict, c.Name, c.Summary), "  ")
+	}
+	fmt.Fprintf(g.stdout, "%d of %d trajectories flagged; verdict %s\n", rep.Flagged, len(rep.Trajectories), rep.Verdict)
+	wrap(g, audit.Caution, "")
+}
+
+// wrap prints s in lines of at most 80 columns, indented.
+func wrap(g *globals, s, indent string) {
+	const width = 80
+	line := indent
+	for _, w := range strings.Fields(s) {
+		if len(line)+len(w)+1 > width && strings.TrimSpace(line) != "" {
+			fmt.Fprintln(g.stdout, line)
+			line = indent + "  "
+		}
+		if strings.TrimSpace(line) != "" {
+			line += " "
+		}
+		line += w
+	}
+	if strings.TrimSpace(line) != "" {
+		fmt.Fprintln(g.stdout, line)
+	}
+}
