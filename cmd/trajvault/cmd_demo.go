@@ -23,6 +23,8 @@ type demoOptions struct {
 	unrescaled   int
 	restart      int
 	truncate     bool
+	dt           float64
+	ampScale     float64
 }
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
@@ -32,6 +34,8 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
 	c.Flags().IntVar(&o.stride, "stride", 1, "with --text: write every n-th step")
 	c.Flags().IntVar(&o.decimals, "decimals", 8, "with --text: decimals of the positions")
+	c.Flags().Float64Var(&o.dt, "dt", demo.DefaultOptions.DtFs, "integration step in fs (a step too large for the model is a fault the audit sees)")
+	c.Flags().Float64Var(&o.ampScale, "amplitude-scale", 1, "fault: scale the stored amplitudes (1.01 breaks the normalisation by 2 %)")
 	c.Flags().Float64Var(&o.forceNoise, "force-noise", 0, "fault: Gaussian force noise (hartree/bohr per component per step)")
 	c.Flags().IntVar(&o.unrescaled, "unrescaled-hops", 0, "fault: every n-th accepted hop keeps the velocities (energy not conserved)")
 	c.Flags().IntVar(&o.restart, "restart-overlap", 0, "fault, with --text: repeat this many frames at mid-run, as a restart does")
@@ -53,8 +57,8 @@ Exit status: 0 success, 2 usage or I/O error.`,
 		Example: "  trajvault demo demo-data",
 		Args:    cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
-			if o.trajectories < 1 || o.steps < 1 {
-				return &exitError{exitUsage, errors.New("demo: --trajectories and --steps must be positive, e.g. --trajectories 4 --steps 2000")}
+			if o.trajectories < 1 || o.steps < 1 || o.dt <= 0 {
+				return &exitError{exitUsage, errors.New("demo: --trajectories, --steps and --dt must be positive, e.g. --trajectories 4 --steps 2000 --dt 0.05")}
 			}
 			return nil
 		},
@@ -76,7 +80,8 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 	for i := 0; i < o.trajectories; i++ {
 		opt := demo.DefaultOptions
 		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
-		opt.Faults = demo.Faults{ForceNoise: o.forceNoise, NoRescaleEvery: o.unrescaled}
+		opt.DtFs = o.dt
+		opt.Faults = demo.Faults{ForceNoise: o.forceNoise, NoRescaleEvery: o.unrescaled, AmplitudeScale: o.ampScale}
 		var err error
 		if o.text {
 			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals, Molecules: o.molecules, RestartOverlap: o.restart, TruncateLast: o.truncate})
