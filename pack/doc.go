@@ -1,9 +1,11 @@
-// Package pack turns a folder of legacy text logs into a deposit: it reads
-// XYZ, extended XYZ, column tables and recipe-described logs, writes
-// trajectory files in the trajvault layout (internal/trajfile) and, with
-// provenance, the BagIt bag, RO-Crate and DataCite metadata.
+// Package pack turns folders of legacy text logs into trajectory files in
+// the trajvault layout: generic readers (XYZ, extended XYZ, column tables,
+// recipe-described line logs) that stream one record at a time and report
+// bad input with file, line and column; Discover, which finds the
+// trajectories of an ensemble; Scan, a first pass that records printed
+// precision, restarts and problems; Convert, a second pass that writes
+// numbers exactly at their printed precision; and Export, back to text.
 //
-// Status: the readers and the bag are the next issues; today the package
-// only fixes its place in the dependency order
-// (cmd -> pack/validate -> schema/provenance -> internal).
+// The deposit bundle (provenance, BagIt, RO-Crate, DataCite) is not built
+// yet.
 package pack

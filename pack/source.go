@@ -5,6 +5,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"sort"
 	"strconv"
 	"strings"
 
@@ -213,7 +214,7 @@ func sortedInfoKeys(m map[string]string) []string {
 			keys = append(keys, k)
 		}
 	}
-	sortStrings(keys)
+	sort.Strings(keys)
 	return keys
 }
 

@@ -1,8 +1,6 @@
 package validate
 
 import (
-	"fmt"
-
 	"trajvault/internal/h5"
 )
 
@@ -220,5 +218,3 @@ func (c *checker) uniqueIDs(e *tdElement) {
 		}
 	}
 }
-
-var _ = fmt.Sprint

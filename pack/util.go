@@ -1,5 +1,0 @@
-package pack
-
-import "sort"
-
-func sortStrings(s []string) { sort.Strings(s) }
