@@ -2,6 +2,8 @@ package audit
 
 import (
 	"fmt"
+	"math"
+	"math/rand/v2"
 	"path/filepath"
 	"testing"
 
@@ -121,5 +123,33 @@ func TestInternalConsistency(t *testing.T) {
 	t.Logf("dropped hops: %s %s", bad.Verdict, bad.Summary)
 	if bad.Verdict != Fail {
 		t.Errorf("dropped hops not flagged: %s", bad.Summary)
+	}
+}
+
+// TestConsistencyByConstruction: trajectories whose active states are
+// drawn, frame by frame, with the probabilities |c_k|^2 agree with the
+// mean |c_k|^2 within binomial noise by construction, and pass.
+func TestConsistencyByConstruction(t *testing.T) {
+	const n, frames = 50, 2000
+	rng := rand.New(rand.NewPCG(7, 8))
+	rep := &Report{}
+	for i := 0; i < n; i++ {
+		r := &Result{}
+		for f := 0; f < frames; f++ {
+			p1 := 0.5 + 0.45*math.Cos(float64(f)/300) // a smooth population curve
+			r.Times = append(r.Times, float64(f))
+			r.Pops = append(r.Pops, []float64{1 - p1, p1})
+			s := int64(0)
+			if rng.Float64() < p1 {
+				s = 1
+			}
+			r.Active = append(r.Active, s)
+		}
+		rep.Trajectories = append(rep.Trajectories, r)
+	}
+	rep.consistency(DefaultSettings)
+	c := rep.Ensemble[0]
+	if c.Verdict != OK {
+		t.Errorf("consistent ensemble judged %s: %s", c.Verdict, c.Summary)
 	}
 }
