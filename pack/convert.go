@@ -6,12 +6,14 @@ import (
 	"math"
 	"sort"
 	"strings"
+	"time"
 
 	"trajvault/internal/elements"
 	"trajvault/internal/h5"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
+	"trajvault/provenance"
 )
 
 // ConvertOptions add to Options what only convert needs.
@@ -31,6 +33,8 @@ type ConvertOptions struct {
 	// ExplicitClock stores step and time as one entry per frame even when
 	// the sampling is uniform (default: H5MD fixed mode then).
 	ExplicitClock bool
+	// CommandLine is recorded in the provenance.
+	CommandLine []string
 	// BitExact stores every value as the float64 nearest to the printed
 	// decimal (lossless filters only). By default numbers are stored with
 	// the scale-offset filter at their printed decimals: digit-exact when
@@ -124,6 +128,8 @@ func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 			s.close()
 		}
 	}()
+	started := time.Now().UTC()
+	hashes := hashSources(rep, opt)
 	w, err := trajfile.Create(out, spec)
 	if err != nil {
 		return nil, err
@@ -162,10 +168,67 @@ func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 		}
 	}
 	res.Frames = w.Frames()
+	h := <-hashes
+	if h.err != nil {
+		w.Abort()
+		return nil, fmt.Errorf("hashing sources: %w", h.err)
+	}
+	rec := provenance.Record{
+		Tool: "trajvault", ToolVersion: opt.ToolVersion, CommandLine: opt.CommandLine,
+		Started: started.Format(time.RFC3339), Finished: time.Now().UTC().Format(time.RFC3339),
+		Sources: h.sources, Units: rep.Units, ConstantSet: provenance.ConstantSet,
+		Storage: res.Storage, Dropped: res.Dropped,
+	}
+	if opt.Recipe != nil {
+		rec.Recipe = opt.Recipe.Text
+	}
+	if _, ok := rep.formats["momentum"]; ok {
+		rec.Conversions = append(rec.Conversions, "velocity = momentum / mass, masses in u (standard atomic weights unless the file gives masses)")
+	}
+	js, err := rec.JSON()
+	if err == nil {
+		err = w.SetParameter("trajvault_provenance", string(js))
+	}
+	if err != nil {
+		w.Abort()
+		return nil, err
+	}
 	if err := w.Close(); err != nil {
 		return nil, err
 	}
 	return res, nil
+}
+
+type hashResult struct {
+	sources []provenance.Source
+	err     error
+}
+
+// hashSources computes the SHA-256 of every source file (and the recipe)
+// in a goroutine, while the conversion runs.
+func hashSources(rep *TrajReport, opt ConvertOptions) <-chan hashResult {
+	ch := make(chan hashResult, 1)
+	var files [][2]string
+	for _, f := range rep.Files {
+		files = append(files, [2]string{f.File, map[string]string{"xyz": "geometry", "table": "table", "log": "log"}[f.Format]})
+	}
+	if opt.Recipe != nil && opt.Recipe.Path != "" {
+		files = append(files, [2]string{opt.Recipe.Path, "recipe"})
+	}
+	go func() {
+		var out hashResult
+		for _, f := range files {
+			s, err := provenance.HashFile(f[0])
+			if err != nil {
+				out.err = err
+				break
+			}
+			s.Role = f[1]
+			out.sources = append(out.sources, s)
+		}
+		ch <- out
+	}()
+	return ch
 }
 
 func where(p Problem) string {

@@ -28,6 +28,10 @@ type Recipe struct {
 	Logs         []LogSpec   `yaml:"logs" json:"logs,omitempty"`
 
 	comment []*regexp.Regexp
+	// Path and Text are the recipe file and its content, embedded in the
+	// provenance of every converted file.
+	Path string `yaml:"-" json:"-"`
+	Text string `yaml:"-" json:"-"`
 }
 
 // Units of the quantities in the logs, by kind; "" = not given.
@@ -99,6 +103,7 @@ func LoadRecipe(path string) (*Recipe, error) {
 	if err := r.compile(); err != nil {
 		return nil, fmt.Errorf("%s: %v", path, err)
 	}
+	r.Path, r.Text = path, string(raw)
 	return &r, nil
 }
 

@@ -1,11 +1,18 @@
 package pack
 
 import (
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"runtime"
 	"strings"
 	"testing"
+
+	"trajvault/internal/demo"
+	"trajvault/internal/h5"
+	"trajvault/provenance"
 )
 
 func testdata(parts ...string) string {
@@ -132,5 +139,48 @@ func TestConvertRestartAndPartial(t *testing.T) {
 	}
 	if res.Frames != 5 || len(res.Dropped) != 1 || !strings.Contains(res.Dropped[0], "drop-partial") {
 		t.Errorf("frames %d dropped %v", res.Frames, res.Dropped)
+	}
+}
+
+// TestProvenanceRecorded: the converted file carries its provenance: the
+// SHA-256 of every source and of the recipe, the embedded recipe text,
+// units, storage and the constant set.
+func TestProvenanceRecorded(t *testing.T) {
+	rc, err := LoadRecipe(testdata("recipes", "tarnol.yaml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := filepath.Join(t.TempDir(), "traj-001")
+	o := demo.LogOptions{Options: demo.DefaultOptions, Decimals: 8}
+	o.Steps = 200
+	if err := demo.WriteLogs(dir, o); err != nil {
+		t.Fatal(err)
+	}
+	out := convertDir(t, dir, ConvertOptions{Options: Options{Recipe: rc}, ToolVersion: "test", CommandLine: []string{"trajvault", "convert"}})
+	f, err := h5.Open(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	a, err := f.Attr("/parameters", "trajvault_provenance")
+	if err != nil || len(a.Strings) != 1 {
+		t.Fatalf("no provenance: %v", err)
+	}
+	var rec provenance.Record
+	if err := json.Unmarshal([]byte(a.Strings[0]), &rec); err != nil {
+		t.Fatal(err)
+	}
+	if len(rec.Sources) != 5 || rec.Recipe == "" || !strings.Contains(rec.ConstantSet, "CODATA 2018") || rec.Units["position"] != "angstrom" {
+		t.Errorf("record: %+v", rec)
+	}
+	for _, s := range rec.Sources {
+		b, err := os.ReadFile(s.Path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		sum := sha256.Sum256(b)
+		if hex.EncodeToString(sum[:]) != s.SHA256 || int64(len(b)) != s.Bytes {
+			t.Errorf("%s: recorded %s, file %x", s.Path, s.SHA256, sum)
+		}
 	}
 }

@@ -1,6 +1,7 @@
-// Package provenance records how a deposit was made: method and settings,
-// the code version, the constant set used for unit conversions (CODATA
-// 2018) and a checksum of every source file.
-//
-// Status: planned with the deposit bundle; nothing is implemented yet.
+// Package provenance records how a trajectory file was made: the tool and
+// its version, the command line, when, the SHA-256 of every source file,
+// the recipe used (embedded), what was dropped and why, how each quantity
+// is stored, and the constant set behind unit conversions. The record is
+// stored as JSON in each file (/parameters@trajvault_provenance) so that
+// anyone can verify, years later, which logs a file came from.
 package provenance

@@ -145,7 +145,8 @@ func (o *convertOptions) packOptions(opt pack.Options, tol map[string]float64) p
 	file := pack.DefaultFile
 	file.Format = compatFormats[o.compat]
 	return pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
-		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series}
+		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series,
+		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
 }
 
 func onlyPartial(r *pack.TrajReport) bool {

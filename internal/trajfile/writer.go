@@ -570,6 +570,19 @@ func (w *Writer) writeHops() {
 	w.do(w.f.SetStrings(g+"/kind", "kind_names", []string{"accepted", "frustrated"}))
 }
 
+// SetParameter writes a string attribute on /parameters, e.g. the
+// provenance record once the conversion knows it; before Close.
+func (w *Writer) SetParameter(name, value string) error {
+	if w.err != nil {
+		return w.err
+	}
+	if w.closed {
+		return errors.New("trajfile: SetParameter after Close")
+	}
+	w.do(w.f.SetString("/parameters", name, value))
+	return w.err
+}
+
 // Frames is the number of frames written so far.
 func (w *Writer) Frames() int { return w.frames }
 
