@@ -1,0 +1,282 @@
+package bagit
+
+import (
+	"fmt"
+	"io"
+	"regexp"
+	"sort"
+	"strconv"
+	"strings"
+
+	"golang.org/x/text/unicode/norm"
+)
+
+// Finding is one problem with a bag. Codes are stable (README, bundle
+// rules).
+type Finding struct {
+	Code     string `json:"code"`
+	Severity string `json:"severity"` // error or warning
+	Path     string `json:"path"`
+	Message  string `json:"message"`
+}
+
+// Result of checking a bag. Complete and Valid follow RFC 8493 sec. 3.
+type Result struct {
+	Complete bool
+	Valid    bool
+	Info     Info
+	Payload  []string // payload files present
+	Findings []Finding
+}
+
+// Options of Check.
+type Options struct {
+	// OnPayload, when set, sees every payload file's content once while
+	// it is hashed (e.g. to validate trajectory files); it may read any
+	// part of r.
+	OnPayload func(name string, size int64, r io.Reader) error
+}
+
+var (
+	hexRE      = regexp.MustCompile(`^[0-9a-fA-F]+$`)
+	manifestRE = regexp.MustCompile(`^(tag)?manifest-([a-z0-9]+)\.txt$`)
+	oxumRE     = regexp.MustCompile(`^(\d+)\.(\d+)$`)
+)
+
+type manifest struct {
+	alg   string
+	tag   bool
+	name  string
+	lines map[string]string // path -> digest
+}
+
+// Check reads a bag from src and verifies it: required files, manifest
+// syntax and path safety, completeness, every checksum, Payload-Oxum and
+// tag manifests. It opens only entries that src listed, never a path
+// taken from manifest text.
+func Check(src Source, opt Options) *Result {
+	res := &Result{}
+	add := func(code, sev, path, format string, args ...any) {
+		res.Findings = append(res.Findings, Finding{Code: code, Severity: sev, Path: path, Message: fmt.Sprintf(format, args...)})
+	}
+	entries := src.Entries()
+	byName := map[string]Entry{}
+	var payload []string
+	seenFold := map[string]string{}
+	for _, e := range entries {
+		byName[e.Name] = e
+		switch e.Kind {
+		case Symlink:
+			add("B10", "error", e.Name, "symbolic link (to %q) in the bag; bags hold regular files, and links are never followed", e.Target)
+			continue
+		case Other:
+			add("B10", "error", e.Name, "special file in the bag; bags hold regular files")
+			continue
+		case Dir:
+			continue
+		}
+		if r := SafePath(e.Name); r != "" {
+			add("B4", "error", e.Name, "unsafe entry name (%s); not read", r)
+			continue
+		}
+		if strings.HasPrefix(e.Name, "data/") {
+			payload = append(payload, e.Name)
+			// Portability (RFC 8493 sec. 6): names equal up to case or
+			// Unicode normalisation collide on some file systems.
+			k := strings.ToLower(norm.NFC.String(e.Name))
+			if other, ok := seenFold[k]; ok {
+				add("B12", "warning", e.Name, "differs from %s only by case or Unicode normalisation; it collides on some file systems", other)
+			}
+			seenFold[k] = e.Name
+		}
+	}
+	sort.Strings(payload)
+	res.Payload = payload
+
+	// bagit.txt
+	decl, err := src.ReadSmall("bagit.txt", 4096)
+	switch {
+	case err != nil:
+		add("B1", "error", "bagit.txt", "missing: every bag starts with bagit.txt declaring BagIt-Version 1.0")
+	default:
+		text := strings.ReplaceAll(string(decl), "\r\n", "\n")
+		if strings.HasPrefix(text, "\ufeff") {
+			add("B1", "error", "bagit.txt", "starts with a byte-order mark; RFC 8493 forbids it")
+			text = strings.TrimPrefix(text, "\ufeff")
+		}
+		if strings.TrimSpace(text) != strings.TrimSpace(Declaration) {
+			add("B1", "error", "bagit.txt", "must read exactly %q", Declaration)
+		}
+	}
+	// bag-info.txt (optional)
+	if b, err := src.ReadSmall("bag-info.txt", smallLimit); err == nil {
+		info, perr := ParseInfo(string(b))
+		if perr != nil {
+			add("B11", "error", "bag-info.txt", "%v", perr)
+		}
+		res.Info = info
+	}
+	// manifests
+	var mans []*manifest
+	names := make([]string, 0, len(entries))
+	for _, e := range entries {
+		names = append(names, e.Name)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		m := manifestRE.FindStringSubmatch(n)
+		if m == nil || byName[n].Kind != File {
+			continue
+		}
+		alg := m[2]
+		if Algorithms[alg] == nil {
+			add("B3", "warning", n, "algorithm %q is not checked by this tool (sha512, sha256, md5 are)", alg)
+			continue
+		}
+		b, err := src.ReadSmall(n, 1<<30)
+		if err != nil {
+			add("B3", "error", n, "cannot read: %v", err)
+			continue
+		}
+		mf := &manifest{alg: alg, tag: m[1] == "tag", name: n, lines: map[string]string{}}
+		for i, line := range strings.Split(strings.TrimSuffix(strings.ReplaceAll(string(b), "\r\n", "\n"), "\n"), "\n") {
+			if line == "" {
+				continue
+			}
+			sum, p, ok := strings.Cut(strings.TrimLeft(line, " "), " ")
+			p = DecodePath(strings.TrimLeft(p, " \t*"))
+			if !ok || !hexRE.MatchString(sum) || p == "" {
+				add("B3", "error", n, "line %d: expected \"<hex checksum> <path>\"", i+1)
+				continue
+			}
+			if r := SafePath(p); r != "" {
+				add("B4", "error", n, "line %d: %q: %s; not followed", i+1, p, r)
+				continue
+			}
+			if !mf.tag && !strings.HasPrefix(p, "data/") {
+				add("B3", "error", n, "line %d: %q is outside data/; payload manifests list payload files only", i+1, p)
+				continue
+			}
+			if mf.tag && (strings.HasPrefix(p, "data/") || manifestRE.MatchString(p) && strings.HasPrefix(p, "tagmanifest-")) {
+				add("B9", "error", n, "line %d: %q may not be in a tag manifest", i+1, p)
+				continue
+			}
+			if _, dup := mf.lines[p]; dup {
+				add("B3", "error", n, "line %d: %q listed twice", i+1, p)
+			}
+			mf.lines[p] = strings.ToLower(sum)
+		}
+		mans = append(mans, mf)
+	}
+	var payloadMans []*manifest
+	for _, m := range mans {
+		if !m.tag {
+			payloadMans = append(payloadMans, m)
+		}
+	}
+	if len(payloadMans) == 0 {
+		add("B2", "error", ".", "no payload manifest (manifest-sha512.txt or manifest-sha256.txt)")
+	}
+	// Completeness: every listed file exists, every payload file listed.
+	complete := len(payloadMans) > 0 && !hasCode(res, "B1")
+	for _, m := range mans {
+		for p := range m.lines {
+			if e, ok := byName[p]; !ok || e.Kind != File {
+				add("B5", "error", p, "listed in %s but missing from the bag", m.name)
+				complete = false
+			}
+		}
+	}
+	for _, m := range payloadMans {
+		for _, p := range payload {
+			if _, ok := m.lines[p]; !ok {
+				add("B6", "error", p, "payload file not listed in %s", m.name)
+				complete = false
+			}
+		}
+	}
+	// Payload-Oxum: a quick pre-check of octets and file count.
+	var octets int64
+	for _, p := range payload {
+		octets += byName[p].Size
+	}
+	for _, ox := range res.Info.Get("Payload-Oxum") {
+		m := oxumRE.FindStringSubmatch(ox)
+		if m == nil {
+			add("B8", "error", "bag-info.txt", "Payload-Oxum %q: expected octets.files", ox)
+			continue
+		}
+		o, _ := strconv.ParseInt(m[1], 10, 64)
+		n, _ := strconv.Atoi(m[2])
+		if o != octets || n != len(payload) {
+			add("B8", "error", "bag-info.txt", "Payload-Oxum says %d bytes in %d files, the payload has %d bytes in %d files", o, n, octets, len(payload))
+		}
+	}
+	// Validity: stream every file once, all algorithms at once.
+	want := map[string]map[string]string{} // path -> alg -> digest
+	for _, m := range mans {
+		for p, s := range m.lines {
+			if want[p] == nil {
+				want[p] = map[string]string{}
+			}
+			want[p][m.alg] = s
+		}
+	}
+	valid := complete
+	err = src.Each(func(name string, r io.Reader) error {
+		e, ok := byName[name]
+		if !ok || e.Kind != File || SafePath(name) != "" {
+			return nil
+		}
+		algs := []string{}
+		for a := range want[name] {
+			algs = append(algs, a)
+		}
+		sort.Strings(algs)
+		if len(algs) == 0 && opt.OnPayload == nil {
+			return nil
+		}
+		pr, pw := io.Pipe()
+		done := make(chan error, 1)
+		if opt.OnPayload != nil && strings.HasPrefix(name, "data/") {
+			go func() {
+				err := opt.OnPayload(name, e.Size, pr)
+				io.Copy(io.Discard, pr)
+				done <- err
+			}()
+		} else {
+			go func() { _, err := io.Copy(io.Discard, pr); done <- err }()
+		}
+		got, _, err := sums(io.TeeReader(r, pw), algs)
+		pw.CloseWithError(err)
+		if herr := <-done; herr != nil {
+			add("B7", "warning", name, "content check failed: %v", herr)
+		}
+		if err != nil {
+			return err
+		}
+		for _, a := range algs {
+			if got[a] != want[name][a] {
+				add("B7", "error", name, "%s checksum differs from the manifest: the file changed or is damaged", a)
+				valid = false
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		add("B13", "error", src.Name(), "reading stopped: %v", err)
+		valid = false
+	}
+	res.Complete = complete
+	res.Valid = valid && complete && !hasCode(res, "B4") && !hasCode(res, "B10")
+	return res
+}
+
+func hasCode(r *Result, code string) bool {
+	for _, f := range r.Findings {
+		if f.Code == code && f.Severity == "error" {
+			return true
+		}
+	}
+	return false
+}
