@@ -193,3 +193,27 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 	}
 	return reportTmpl.Execute(w, map[string]any{"R": rep, "Figures": figs, "Flagged": flagged, "Version": version})
 }
+
+// PopulationSVG is the ensemble population plot alone (for dataset
+// cards); nil when the ensemble has no electronic data.
+func (rep *Report) PopulationSVG() ([]byte, error) {
+	if rep.Times == nil {
+		return nil, nil
+	}
+	p, err := rep.populationPlot()
+	if err != nil {
+		return nil, err
+	}
+	s, err := svg(p)
+	return []byte(s), err
+}
+
+// EnergySVG is the total-energy deviation plot alone.
+func (rep *Report) EnergySVG() ([]byte, error) {
+	p, err := rep.energyPlot()
+	if err != nil {
+		return nil, err
+	}
+	s, err := svg(p)
+	return []byte(s), err
+}

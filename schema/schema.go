@@ -5,7 +5,7 @@ package schema
 
 import (
 	"bytes"
-	_ "embed"
+	"embed"
 	"encoding/json"
 	"fmt"
 	"regexp"
@@ -160,4 +160,41 @@ var auditSchemaJSON []byte
 // AuditSchema compiles the JSON Schema of `audit --json` output.
 func AuditSchema() (*jsonschema.Schema, error) {
 	return compile("audit.schema.json", auditSchemaJSON)
+}
+
+//go:embed deposit.schema.json
+var depositSchemaJSON []byte
+
+// DepositSchema compiles the JSON Schema of deposit.yaml.
+func DepositSchema() (*jsonschema.Schema, error) {
+	return compile("deposit.schema.json", depositSchemaJSON)
+}
+
+//go:embed profiles/*.json
+var profilesFS embed.FS
+
+// Profiles are the built-in funder profiles, JSON Schemas applied to a
+// bundle's datacite.json.
+var Profiles = []string{"minimal", "fair", "eu-grant"}
+
+// Profile compiles a built-in profile by name, or a user's JSON Schema
+// file when name is a path ending in .json.
+func Profile(name string) (*jsonschema.Schema, error) {
+	c := jsonschema.NewCompiler()
+	c.Draft = jsonschema.Draft2020
+	for _, p := range Profiles {
+		b, _ := profilesFS.ReadFile("profiles/" + p + ".json")
+		if err := c.AddResource("https://trajvault.invalid/schema/profiles/"+p+".json", bytes.NewReader(b)); err != nil {
+			return nil, err
+		}
+	}
+	if strings.HasSuffix(name, ".json") {
+		return c.Compile(name)
+	}
+	for _, p := range Profiles {
+		if p == name {
+			return c.Compile("https://trajvault.invalid/schema/profiles/" + p + ".json")
+		}
+	}
+	return nil, fmt.Errorf("unknown profile %q (built in: %s; or a JSON Schema file)", name, strings.Join(Profiles, ", "))
 }

@@ -26,6 +26,12 @@ func File(path string, opt Options) (*Report, error) {
 		return nil, err
 	}
 	defer f.Close()
+	return Opened(f, path, opt), nil
+}
+
+// Opened validates an already opened file (e.g. one read from an archive
+// into memory); name is what the report calls it.
+func Opened(f *h5.File, path string, opt Options) *Report {
 	c := &checker{
 		f:      f,
 		layout: schema.Current(),
@@ -38,7 +44,7 @@ func File(path string, opt Options) (*Report, error) {
 	}
 	c.run()
 	c.rep.finish()
-	return c.rep, nil
+	return c.rep
 }
 
 // maxPerRulePath caps repeated findings of one rule on one path; the last

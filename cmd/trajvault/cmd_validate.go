@@ -11,23 +11,31 @@ import (
 )
 
 type validateOptions struct {
-	json bool
+	json    bool
+	profile string
 }
 
 func (o *validateOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print the report as JSON (schema/findings.schema.json); one object per line for several files")
+	c.Flags().StringVar(&o.profile, "profile", "minimal", "for bundles: funder profile checked on datacite.json: minimal, fair, eu-grant, or a JSON Schema file")
 }
 
 func newValidateCommand(g *globals) *cobra.Command {
 	var o validateOptions
 	c := &cobra.Command{
-		Use:   "validate FILE.h5 [FILE.h5...]",
-		Short: "Check trajectory files against H5MD 1.1 and the trajvault layout",
+		Use:   "validate FILE.h5|BUNDLE [...]",
+		Short: "Check trajectory files, or whole deposit bundles",
 		Long: `validate checks each file against the H5MD 1.1 rules and the trajvault
 layout (schema/layout.md): structure, types and shapes, units, monotone
 steps and times, finite values, and the electronic-state module. Every
 finding has a stable code (V1.., E1..), a severity, the HDF5 path and what
 to do about it.
+
+Given a bundle - a BagIt folder, or a .tar.zst or .zip of one, read
+without unpacking - it checks completeness and validity per RFC 8493
+(every checksum), paths that would leave the bag, every trajectory file,
+the RO-Crate and DataCite metadata and a funder profile (--profile).
+Bundle findings have codes B (bag) and M (metadata).
 
 A clean report says the file is well-formed and labelled, not that the
 simulation behind it is sound.
@@ -50,7 +58,13 @@ Exit status: 0 no errors (warnings allowed), 1 errors found,
 func runValidate(g *globals, o validateOptions, files []string) error {
 	failed, unread := false, 0
 	for _, path := range files {
-		rep, err := validate.File(path, validate.Options{ToolVersion: toolVersion()})
+		var rep *validate.Report
+		var err error
+		if validate.IsBundle(path) {
+			rep, err = validate.Bundle(path, validate.BundleOptions{ToolVersion: toolVersion(), Profile: o.profile})
+		} else {
+			rep, err = validate.File(path, validate.Options{ToolVersion: toolVersion()})
+		}
 		if err != nil {
 			fmt.Fprintf(g.stderr, "trajvault: validate: %v\n", err)
 			unread++

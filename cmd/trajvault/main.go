@@ -89,6 +89,8 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newConvertCommand(g),
 		newExportCommand(g),
 		newAuditCommand(g),
+		newPackCommand(g),
+		newInitCommand(g),
 	)
 	return root
 }

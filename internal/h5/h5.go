@@ -12,7 +12,7 @@
 // "/particles/all/position/value".
 package h5
 
-// #cgo LDFLAGS: -lhdf5
+// #cgo LDFLAGS: -lhdf5 -lhdf5_hl
 // #cgo linux,!arm64 CFLAGS: -I/usr/lib/x86_64-linux-gnu/hdf5/serial/include
 // #cgo linux,!arm64 LDFLAGS: -L/usr/lib/x86_64-linux-gnu/hdf5/serial/
 // #cgo linux,arm64 CFLAGS: -I/usr/lib/aarch64-linux-gnu/hdf5/serial/include
@@ -94,6 +94,7 @@ type File struct {
 	open     bool
 	path     string
 	writable bool
+	image    unsafe.Pointer // C copy of an in-memory file, freed on Close
 }
 
 // signature is the HDF5 format signature; the superblock may sit at byte 0,
@@ -154,6 +155,26 @@ func Open(path string) (*File, error) {
 		return nil, &OpenError{File: path, Err: ErrDamaged}
 	}
 	return &File{f: f, path: path, open: true}, nil
+}
+
+// OpenImage opens an HDF5 file held in memory (e.g. read from an archive
+// without unpacking it), read-only. img must stay unchanged until Close.
+func OpenImage(name string, img []byte) (*File, error) {
+	if len(img) == 0 {
+		return nil, &OpenError{File: name, Err: ErrEmpty}
+	}
+	if len(img) < len(signature) || !bytes.Equal(img[:len(signature)], signature) {
+		return nil, &OpenError{File: name, Err: ErrNotHDF5}
+	}
+	lock()
+	defer unlock()
+	cbuf := C.CBytes(img) // C memory: HDF5 keeps the pointer
+	id := C.tv_open_image(cbuf, C.size_t(len(img)))
+	if id < 0 {
+		C.free(cbuf)
+		return nil, &OpenError{File: name, Err: ErrDamaged}
+	}
+	return &File{raw: id, path: name, open: true, image: cbuf}, nil
 }
 
 // Format selects the oldest HDF5 library whose file format a new file may
@@ -229,6 +250,10 @@ func (f *File) Close() error {
 		f.f = nil
 	} else {
 		failed = C.tv_close_file(f.raw) < 0
+	}
+	if f.image != nil {
+		C.free(f.image)
+		f.image = nil
 	}
 	if failed {
 		return &Error{Op: "close file", Path: f.path}

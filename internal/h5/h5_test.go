@@ -265,3 +265,25 @@ func TestOpenErrors(t *testing.T) {
 		t.Errorf("Create over an existing file: %v", err)
 	}
 }
+
+func TestOpenImage(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "img.h5")
+	build(t, path)
+	raw, _ := os.ReadFile(path)
+	base := OpenObjects()
+	f, err := OpenImage("img.h5", raw)
+	if err != nil {
+		t.Fatal(err)
+	}
+	x, _, err := f.ReadFloat64("/a/b/x")
+	if err != nil || len(x) != 6 || x[5] != 6 {
+		t.Errorf("x = %v %v", x, err)
+	}
+	f.Close()
+	if n := OpenObjects(); n != base {
+		t.Errorf("leak: %d open, want %d", n, base)
+	}
+	if _, err := OpenImage("t.h5", raw[:len(raw)/2]); !errors.Is(err, ErrDamaged) {
+		t.Errorf("truncated image: %v", err)
+	}
+}

@@ -545,3 +545,9 @@ int tv_group_create(hid_t loc, const char *path) {
 	if (g < 0) return -1;
 	return H5Gclose(g);
 }
+
+// tv_open_image opens an HDF5 file held in memory, read-only (the
+// library copies nothing: the caller keeps buf alive until close).
+hid_t tv_open_image(void *buf, size_t size) {
+	return H5LTopen_file_image(buf, size, H5LT_FILE_IMAGE_DONT_COPY | H5LT_FILE_IMAGE_DONT_RELEASE);
+}

@@ -6,6 +6,7 @@
 
 #include <stdlib.h>
 #include <hdf5.h>
+#include <hdf5_hl.h>
 
 #define TV_MAXRANK 8
 
@@ -82,5 +83,7 @@ int tv_delete_attr(hid_t loc, const char *path, const char *name);
 hid_t tv_create(const char *path, int libver_low, int istore_k);
 int tv_close_file(hid_t f);
 int tv_group_create(hid_t loc, const char *path);
+
+hid_t tv_open_image(void *buf, size_t size);
 
 #endif

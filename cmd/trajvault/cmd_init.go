@@ -1,0 +1,121 @@
+package main
+
+import (
+	"bytes"
+	"fmt"
+	"os"
+	"strings"
+	"text/template"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/pack"
+)
+
+type initOptions struct {
+	out      string
+	check    bool
+	title    string
+	desc     string
+	license  string
+	creators []string
+	contact  string
+	method   string
+	program  string
+}
+
+func (o *initOptions) AddFlags(c *cobra.Command) {
+	c.Flags().StringVarP(&o.out, "output", "o", "deposit.yaml", "file to write (must not exist)")
+	c.Flags().BoolVar(&o.check, "check", false, "check an existing deposit.yaml instead of writing one")
+	c.Flags().StringVar(&o.title, "title", "TITLE OF THE DATA SET", "title")
+	c.Flags().StringVar(&o.desc, "description", "What was simulated, why, and what the files hold.", "description")
+	c.Flags().StringVar(&o.license, "license", "CC-BY-4.0", "SPDX licence identifier (CC-BY-4.0 suggested, or CC0-1.0)")
+	c.Flags().StringArrayVar(&o.creators, "creator", nil, "creator as \"Family, Given|ORCID|Affiliation\" (repeatable; ORCID and affiliation optional)")
+	c.Flags().StringVar(&o.contact, "contact", "", "contact as \"Name|email\"")
+	c.Flags().StringVar(&o.method, "method", "fewest-switches surface hopping", "dynamics method")
+	c.Flags().StringVar(&o.program, "program", "PROGRAM|VERSION", "simulation program as \"name|version\"")
+}
+
+func newInitCommand(g *globals) *cobra.Command {
+	var o initOptions
+	c := &cobra.Command{
+		Use:   "init [-o deposit.yaml]",
+		Short: "Write a commented deposit.yaml template, or check one",
+		Long: `init writes deposit.yaml, the description of a deposit that pack turns into
+RO-Crate and DataCite metadata and the dataset card: title, description,
+licence (SPDX), creators with ORCID and affiliation, funding, and the
+simulation record (method, electronic structure, states, time step,
+initial conditions, program and version). Fill in what the flags did not.
+With --check it validates an existing file and names every field that is
+wrong and what is expected.
+
+Exit status: 0 success (or a valid file), 1 the file has problems,
+2 usage or I/O error.`,
+		Example: "  trajvault init --title \"Photodissociation of tarnol\" --creator \"Doe, Jane|0000-0002-1825-0097|Tarn Valley University\"\n  trajvault init --check deposit.yaml",
+		Args:    cobra.NoArgs,
+		RunE:    func(c *cobra.Command, args []string) error { return runInit(g, o) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+func runInit(g *globals, o initOptions) error {
+	if o.check {
+		if _, err := pack.LoadDeposit(o.out); err != nil {
+			if de, ok := err.(*pack.DepositError); ok {
+				fmt.Fprintln(g.stdout, de.Error())
+				return errFindings
+			}
+			return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
+		}
+		fmt.Fprintf(g.stdout, "%s: ok\n", o.out)
+		return nil
+	}
+	if _, err := os.Stat(o.out); err == nil {
+		return &exitError{exitUsage, fmt.Errorf("init: %s already exists; check it with --check, or choose -o", o.out)}
+	}
+	type creator struct{ Name, ORCID, Affiliation string }
+	data := map[string]any{"Title": o.title, "Description": o.desc, "License": o.license, "Method": o.method}
+	var cs []creator
+	for _, c := range o.creators {
+		p := strings.Split(c, "|")
+		cr := creator{Name: strings.TrimSpace(p[0])}
+		if len(p) > 1 {
+			cr.ORCID = strings.TrimSpace(p[1])
+		}
+		if len(p) > 2 {
+			cr.Affiliation = strings.TrimSpace(p[2])
+		}
+		cs = append(cs, cr)
+	}
+	if len(cs) == 0 {
+		cs = []creator{{Name: "Family, Given"}}
+	}
+	data["Creators"] = cs
+	cn, ce := cs[0].Name, "name@example.org"
+	if o.contact != "" {
+		p := strings.SplitN(o.contact, "|", 2)
+		cn = p[0]
+		if len(p) > 1 {
+			ce = p[1]
+		}
+	}
+	data["ContactName"], data["ContactEmail"] = cn, ce
+	pn := strings.SplitN(o.program, "|", 2)
+	data["ProgramName"], data["ProgramVersion"] = pn[0], ""
+	if len(pn) > 1 {
+		data["ProgramVersion"] = pn[1]
+	}
+	var b bytes.Buffer
+	if err := template.Must(template.New("d").Parse(pack.DepositTemplate)).Execute(&b, data); err != nil {
+		return err
+	}
+	if err := writeAtomically(o.out, func(f *os.File) error { _, err := f.Write(b.Bytes()); return err }); err != nil {
+		return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
+	}
+	fmt.Fprintf(g.stdout, "wrote %s; fill in the rest, then: trajvault init --check -o %s\n", o.out, o.out)
+	if _, err := pack.LoadDeposit(o.out); err != nil {
+		fmt.Fprintln(g.stdout, err)
+	}
+	return nil
+}

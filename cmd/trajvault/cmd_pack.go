@@ -1,0 +1,230 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"trajvault/audit"
+	"trajvault/internal/bagit"
+	"trajvault/pack"
+)
+
+type packOptions struct {
+	readFlags
+	out         string
+	deposit     string
+	md5         bool
+	keepSources bool
+	archive     string
+	force       bool
+	jobs        int
+	maxFiles    int
+	maxRecordGB float64
+	maxFileGB   float64
+	noAudit     bool
+}
+
+func (o *packOptions) AddFlags(c *cobra.Command) {
+	o.readFlags.AddFlags(c)
+	c.Flags().StringVarP(&o.out, "output", "o", "", "bundle folder to write (a BagIt bag)")
+	c.Flags().StringVar(&o.deposit, "deposit", "deposit.yaml", "deposit description (write one with trajvault init)")
+	c.Flags().BoolVar(&o.md5, "md5", false, "add an md5 manifest beside sha512 and sha256 (repositories often show md5)")
+	c.Flags().BoolVar(&o.keepSources, "keep-sources", false, "add the original logs, zstd-compressed, so the deposit can be re-derived")
+	c.Flags().StringVar(&o.archive, "archive", "", "also write the bag as one upload file beside it: tar.zst or zip")
+	c.Flags().BoolVar(&o.force, "force", false, "replace an existing bundle")
+	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once")
+	c.Flags().IntVar(&o.maxFiles, "max-files", 100, "repository limit: files per record (warn above)")
+	c.Flags().Float64Var(&o.maxRecordGB, "max-record-gb", 50, "repository limit: GB per record (warn above)")
+	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
+	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the dataset card")
+}
+
+func newPackCommand(g *globals) *cobra.Command {
+	var o packOptions
+	c := &cobra.Command{
+		Use:   "pack DIR -o BUNDLE --deposit deposit.yaml",
+		Short: "Turn an ensemble of text logs into a repository-ready BagIt bundle",
+		Long: `pack scans and converts every trajectory of DIR (in parallel), then writes a
+BagIt 1.0 bag (RFC 8493): bagit.txt, bag-info.txt, sha512 and sha256
+manifests (and md5 with --md5), tag manifests, and under data/ the
+trajectory files, ro-crate-metadata.json (RO-Crate 1.1), datacite.json
+(DataCite 4.5), a README.md dataset card with the physics audit and plots,
+and with --keep-sources the original logs compressed with zstd.
+
+The bundle is written to BUNDLE.partial and renamed at the end: an
+interrupted pack leaves no BUNDLE. Licensing and third-party rights remain
+the depositor's responsibility.
+
+Exit status: 0 success, 1 the logs have problems (nothing written),
+2 usage or I/O error.`,
+		Example: "  trajvault init --title \"...\" --creator \"Family, Given\"\n  trajvault pack runs/ -o deposit-bag --deposit deposit.yaml --recipe lab.yaml",
+		Args:    cobra.ExactArgs(1),
+		PreRunE: func(c *cobra.Command, args []string) error {
+			if o.out == "" {
+				return &exitError{exitUsage, errors.New("pack: name the bundle folder with -o, e.g. -o deposit-bag")}
+			}
+			if o.archive != "" && o.archive != "tar.zst" && o.archive != "zip" {
+				return &exitError{exitUsage, fmt.Errorf("pack: --archive %q: use tar.zst or zip", o.archive)}
+			}
+			return nil
+		},
+		RunE: func(c *cobra.Command, args []string) error { return runPack(g, o, args[0]) },
+	}
+	o.AddFlags(c)
+	return c
+}
+
+func runPack(g *globals, o packOptions, dir string) error {
+	out := filepath.Clean(o.out)
+	if _, err := os.Stat(out); err == nil && !o.force {
+		return &exitError{exitUsage, fmt.Errorf("pack: %s already exists; use --force to replace it", out)}
+	}
+	dep, err := pack.LoadDeposit(o.deposit)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	}
+	opt, err := o.options()
+	if err != nil {
+		return err
+	}
+	trajs, err := pack.Discover(dir, opt.Recipe)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	}
+	reps := make([]*pack.TrajReport, len(trajs))
+	parallel(len(trajs), o.jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
+	bad := 0
+	for _, r := range reps {
+		if r.Errors() > 0 {
+			printScan(g, r)
+			bad++
+		}
+	}
+	if bad > 0 {
+		fmt.Fprintf(g.stderr, "trajvault: pack: %d of %d trajectories have problems; nothing written\n", bad, len(trajs))
+		return errFindings
+	}
+	tmp := out + ".partial"
+	os.RemoveAll(tmp) // a previous interrupted run
+	if err := os.MkdirAll(filepath.Join(tmp, "data", "trajectories"), 0o755); err != nil {
+		return &exitError{exitUsage, err}
+	}
+	fail := func(err error) error {
+		os.RemoveAll(tmp)
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	}
+	copt := pack.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
+		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
+	conv := make([]pack.Converted, len(trajs))
+	errs := make([]error, len(trajs))
+	parallel(len(trajs), o.jobs, func(i int) {
+		rel := "data/trajectories/" + trajs[i].Name + ".h5"
+		res, err := pack.Convert(reps[i], filepath.Join(tmp, filepath.FromSlash(rel)), copt)
+		conv[i], errs[i] = pack.Converted{Report: reps[i], Result: res, File: rel}, err
+	})
+	for _, err := range errs {
+		if err != nil {
+			return fail(err)
+		}
+	}
+	bo := pack.BundleOptions{Deposit: dep, Algorithms: []string{"sha512", "sha256"}, KeepSources: o.keepSources,
+		Jobs: o.jobs, ToolVersion: toolVersion(), Now: time.Now(), Plots: map[string][]byte{}}
+	if o.md5 {
+		bo.Algorithms = append(bo.Algorithms, "md5")
+	}
+	if !o.noAudit {
+		var files []string
+		for _, c := range conv {
+			files = append(files, filepath.Join(tmp, filepath.FromSlash(c.File)))
+		}
+		rep, err := audit.Ensemble(files, audit.DefaultSettings, o.jobs)
+		if err != nil {
+			return fail(err)
+		}
+		bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("Overall verdict: %s; %d of %d trajectories flagged.", rep.Verdict, rep.Flagged, len(rep.Trajectories)))
+		for _, c := range rep.Ensemble {
+			bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("%s: %s - %s", c.Name, c.Verdict, c.Summary))
+		}
+		if svg, err := rep.PopulationSVG(); err == nil && svg != nil {
+			bo.Plots["populations.svg"] = svg
+		}
+		if svg, err := rep.EnergySVG(); err == nil {
+			bo.Plots["energy-deviation.svg"] = svg
+		}
+	}
+	if err := pack.WriteBundle(tmp, conv, bo); err != nil {
+		return fail(err)
+	}
+	warnLimits(g, tmp, o)
+	if o.force {
+		os.RemoveAll(out)
+	}
+	if err := os.Rename(tmp, out); err != nil {
+		return fail(err)
+	}
+	fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", out, len(conv), strings.Join(bo.Algorithms, ", "), filepath.Join(out, "data", "README.md"))
+	if o.archive != "" {
+		arch := out + "." + o.archive
+		if err := writeArchive(out, arch, o.archive, o.force); err != nil {
+			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+		}
+		fmt.Fprintf(g.stdout, "upload: %s\n", arch)
+	}
+	return nil
+}
+
+func writeArchive(dir, path, kind string, force bool) error {
+	if _, err := os.Stat(path); err == nil && !force {
+		return fmt.Errorf("%s already exists; use --force to replace it", path)
+	}
+	tmp := path + ".partial"
+	f, err := os.Create(tmp)
+	if err != nil {
+		return err
+	}
+	mtime := time.Now().UTC().Truncate(time.Second)
+	if kind == "zip" {
+		err = bagit.WriteZip(dir, f, mtime)
+	} else {
+		err = bagit.WriteTarZst(dir, f, mtime)
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	return os.Rename(tmp, path)
+}
+
+// warnLimits reports what a general-purpose repository may refuse.
+func warnLimits(g *globals, dir string, o packOptions) {
+	var files int
+	var total, biggest int64
+	filepath.Walk(dir, func(p string, info os.FileInfo, err error) error {
+		if err == nil && info.Mode().IsRegular() {
+			files++
+			total += info.Size()
+			biggest = max(biggest, info.Size())
+		}
+		return nil
+	})
+	const gb = 1e9
+	if files > o.maxFiles {
+		fmt.Fprintf(g.stderr, "trajvault: pack: warning: %d files exceed the repository limit of %d per record; upload the --archive file instead\n", files, o.maxFiles)
+	}
+	if float64(total) > o.maxRecordGB*gb {
+		fmt.Fprintf(g.stderr, "trajvault: pack: warning: %.1f GB exceed the limit of %g GB per record; split the ensemble into several bundles\n", float64(total)/gb, o.maxRecordGB)
+	}
+	if float64(biggest) > o.maxFileGB*gb {
+		fmt.Fprintf(g.stderr, "trajvault: pack: warning: a file of %.1f GB exceeds the limit of %g GB per file\n", float64(biggest)/gb, o.maxFileGB)
+	}
+}

@@ -1,0 +1,151 @@
+package main
+
+import (
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"syscall"
+	"testing"
+	"time"
+)
+
+func packFixture(t *testing.T, trajectories, steps string) (dir, deposit string) {
+	t.Helper()
+	dir = t.TempDir()
+	deposit = filepath.Join(dir, "deposit.yaml")
+	code, out, errs := runCLI("init", "-o", deposit, "--title", "Invented tarnol ensemble",
+		"--description", "Invented demo data: surface hopping of a model triatomic.",
+		"--creator", "Doe, Jane|0000-0002-1825-0097|Tarn Valley University (fictional)", "--program", "tarnol-md|1.0")
+	if code != 0 {
+		t.Fatalf("init: %s %s", out, errs)
+	}
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", trajectories, "--steps", steps, filepath.Join(dir, "logs")); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	return dir, deposit
+}
+
+// TestPackBundle: pack writes a bag that validates, in a folder and as a
+// tar.zst; its RO-Crate has the RO-Crate 1.1 required properties and
+// every File entity exists, is in hasPart and has the manifest's sha256;
+// datacite.json has every mandatory DataCite 4.5 property. A flipped byte
+// in a trajectory file is found (exit 1, the file's path).
+func TestPackBundle(t *testing.T) {
+	dir, deposit := packFixture(t, "2", "400")
+	bag := filepath.Join(dir, "bag")
+	code, out, errs := runCLI("pack", filepath.Join(dir, "logs"), "-o", bag, "--deposit", deposit,
+		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--archive", "tar.zst", "--keep-sources")
+	if code != 0 {
+		t.Fatalf("pack: exit %d\n%s%s", code, out, errs)
+	}
+	for _, p := range []string{bag, bag + ".tar.zst"} {
+		if code, out, _ := runCLI("validate", p); code != 0 || !strings.Contains(out, "ok, 0 errors, 0 warnings") {
+			t.Errorf("validate %s: exit %d\n%s", p, code, out)
+		}
+	}
+	// RO-Crate 1.1, checked here from the specification's requirements.
+	raw, _ := os.ReadFile(filepath.Join(bag, "data", "ro-crate-metadata.json"))
+	var crate struct {
+		Context string           `json:"@context"`
+		Graph   []map[string]any `json:"@graph"`
+	}
+	if err := json.Unmarshal(raw, &crate); err != nil || crate.Context != "https://w3id.org/ro/crate/1.1/context" {
+		t.Fatalf("crate context: %v %q", err, crate.Context)
+	}
+	ids := map[string]map[string]any{}
+	for _, e := range crate.Graph {
+		ids[e["@id"].(string)] = e
+	}
+	root := ids["./"]
+	for _, k := range []string{"name", "description", "datePublished", "license", "hasPart"} {
+		if root[k] == nil {
+			t.Errorf("root lacks %s", k)
+		}
+	}
+	sums := map[string]string{}
+	man, _ := os.ReadFile(filepath.Join(bag, "manifest-sha256.txt"))
+	for _, l := range strings.Split(strings.TrimSpace(string(man)), "\n") {
+		f := strings.SplitN(l, " ", 2)
+		sums[f[1]] = f[0]
+	}
+	parts := map[string]bool{}
+	for _, p := range root["hasPart"].([]any) {
+		parts[p.(map[string]any)["@id"].(string)] = true
+	}
+	files := 0
+	for id, e := range ids {
+		if e["@type"] != "File" || strings.HasPrefix(id, "#") {
+			continue
+		}
+		files++
+		if _, err := os.Stat(filepath.Join(bag, "data", id)); err != nil || !parts[id] || e["sha256"] != sums["data/"+id] {
+			t.Errorf("File %s: exists %v, in hasPart %v, sha256 matches %v", id, err == nil, parts[id], e["sha256"] == sums["data/"+id])
+		}
+	}
+	if files < 5 {
+		t.Errorf("only %d File entities", files)
+	}
+	// DataCite 4.5 mandatory properties.
+	raw, _ = os.ReadFile(filepath.Join(bag, "data", "datacite.json"))
+	var dc map[string]any
+	json.Unmarshal(raw, &dc)
+	for _, k := range []string{"identifier", "creators", "titles", "publisher", "publicationYear", "types"} {
+		if dc[k] == nil {
+			t.Errorf("datacite.json lacks %s", k)
+		}
+	}
+	if dc["types"].(map[string]any)["resourceTypeGeneral"] != "Dataset" {
+		t.Error("resourceTypeGeneral is not Dataset")
+	}
+	// Tamper: one flipped byte in a trajectory file.
+	h5 := filepath.Join(bag, "data", "trajectories", "traj-001.h5")
+	b, _ := os.ReadFile(h5)
+	b[len(b)/2] ^= 0x40
+	os.WriteFile(h5, b, 0o644)
+	code, out, _ = runCLI("validate", bag)
+	if code != 1 || !strings.Contains(out, "B7   data/trajectories/traj-001.h5") {
+		t.Errorf("tampered bag: exit %d\n%s", code, out)
+	}
+	// Never overwritten without --force.
+	if code, _, errs = runCLI("pack", filepath.Join(dir, "logs"), "-o", bag, "--deposit", deposit, "--recipe", repo("testdata", "recipes", "tarnol.yaml")); code != 2 || !strings.Contains(errs, "--force") {
+		t.Errorf("pack over an existing bundle: exit %d %s", code, errs)
+	}
+}
+
+// TestPackKilledLeavesNoBundle: a pack killed midway (SIGKILL) leaves no
+// bundle folder, and a rerun succeeds.
+func TestPackKilledLeavesNoBundle(t *testing.T) {
+	dir, deposit := packFixture(t, "8", "8000")
+	bag := filepath.Join(dir, "bag")
+	args := []string{"pack", filepath.Join(dir, "logs"), "-o", bag, "--deposit", deposit, "--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--jobs", "1"}
+	cmd := exec.Command(os.Args[0], args...)
+	cmd.Env = append(os.Environ(), "TRAJVAULT_AS_MAIN=1")
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	// Kill once the partial bundle exists, i.e. while converting.
+	deadline := time.Now().Add(20 * time.Second)
+	for time.Now().Before(deadline) {
+		if _, err := os.Stat(bag + ".partial"); err == nil {
+			break
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+	time.Sleep(100 * time.Millisecond)
+	cmd.Process.Signal(syscall.SIGKILL)
+	err := cmd.Wait()
+	if err == nil {
+		t.Skip("pack finished before it could be killed; nothing to test")
+	}
+	if _, err := os.Stat(bag); !os.IsNotExist(err) {
+		t.Fatalf("a killed pack left %s", bag)
+	}
+	if code, out, errs := runCLI(args...); code != 0 {
+		t.Fatalf("rerun: exit %d\n%s%s", code, out, errs)
+	}
+	if code, out, _ := runCLI("validate", bag); code != 0 {
+		t.Errorf("rerun bundle: %s", out)
+	}
+}
