@@ -416,4 +416,3 @@ func bagPrefix(names []string) string {
 	}
 	return best
 }
-
