@@ -29,6 +29,9 @@ type BundleOptions struct {
 	// Card extras computed by the caller (the audit lives beside pack).
 	AuditLines []string
 	Plots      map[string][]byte // file name -> SVG
+	// Split bundles: this bag's place in the group (RFC 8493 Bag-Count).
+	GroupID                string
+	GroupIndex, GroupCount int
 }
 
 // Converted is one trajectory in the bundle.
@@ -61,6 +64,19 @@ func WriteBundle(dir string, conv []Converted, o BundleOptions) error {
 			if err := os.WriteFile(filepath.Join(data, "plots", name), svg, 0o644); err != nil {
 				return err
 			}
+		}
+	}
+	// Provenance of each trajectory beside the files, for readers without
+	// HDF5 tools (the same record is inside each file).
+	for _, c := range conv {
+		rec, err := trajfile.Parameter(filepath.Join(dir, filepath.FromSlash(c.File)), "trajvault_provenance")
+		if err != nil {
+			return err
+		}
+		dst := filepath.Join(data, "provenance", c.Report.Name+".json")
+		os.MkdirAll(filepath.Dir(dst), 0o755)
+		if err := os.WriteFile(dst, []byte(rec+"\n"), 0o644); err != nil {
+			return err
 		}
 	}
 	summaries := make([]*trajfile.Summary, len(conv))
@@ -101,6 +117,10 @@ func WriteBundle(dir string, conv []Converted, o BundleOptions) error {
 		info.Add("External-Identifier", "https://doi.org/"+d.Identifier)
 	}
 	info.Add("Bag-Software-Agent", "trajvault "+o.ToolVersion)
+	if o.GroupCount > 1 {
+		info.Add("Bag-Group-Identifier", o.GroupID)
+		info.Add("Bag-Count", fmt.Sprintf("%d of %d", o.GroupIndex, o.GroupCount))
+	}
 	return bagit.Make(dir, o.Algorithms, info, o.Jobs, o.Now)
 }
 

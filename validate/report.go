@@ -7,6 +7,7 @@ package validate
 import (
 	"fmt"
 	"sort"
+	"strings"
 )
 
 // Severity of a finding: errors make a file fail, warnings do not.
@@ -87,7 +88,7 @@ func (r *Report) finish() {
 
 func codeLess(a, b string) bool {
 	if a[0] != b[0] {
-		return a[0] > b[0] // V before E
+		return strings.IndexByte("VEBM", a[0]) < strings.IndexByte("VEBM", b[0])
 	}
 	var x, y int
 	fmt.Sscan(a[1:], &x)
@@ -102,3 +103,7 @@ var Codes = []string{
 	"V15", "V17", "V18", "V19", "V20", "V22", "V25", "V26", "V27", "V28", "V29",
 	"E1", "E2", "E3", "E4", "E5", "E6", "E7", "E8", "E9", "E10",
 }
+
+// BundleCodes are the codes of bundle checks (internal/bagit and
+// bundle.go); layout.md documents them too.
+var BundleCodes = []string{"B1", "B2", "B3", "B4", "B5", "B6", "B7", "B8", "B9", "B10", "B11", "B12", "B13", "M1", "M2", "M3"}

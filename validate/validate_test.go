@@ -298,7 +298,7 @@ func TestRules(t *testing.T) {
 // TestCodesDocumented: every code validate can emit is in layout.md.
 func TestCodesDocumented(t *testing.T) {
 	md := string(schema.LayoutMarkdown())
-	for _, code := range Codes {
+	for _, code := range append(Codes, BundleCodes...) {
 		if !strings.Contains(md, "| "+code+" |") {
 			t.Errorf("rule %s is not in the rules table of schema/layout.md", code)
 		}

@@ -29,6 +29,7 @@ type packOptions struct {
 	maxRecordGB float64
 	maxFileGB   float64
 	noAudit     bool
+	split       bool
 }
 
 func (o *packOptions) AddFlags(c *cobra.Command) {
@@ -44,6 +45,7 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.maxRecordGB, "max-record-gb", 50, "repository limit: GB per record (warn above)")
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
 	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the dataset card")
+	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
 
 func newPackCommand(g *globals) *cobra.Command {
@@ -159,6 +161,9 @@ func runPack(g *globals, o packOptions, dir string) error {
 			bo.Plots["energy-deviation.svg"] = svg
 		}
 	}
+	if groups := splitGroups(tmp, conv, o); o.split && len(groups) > 1 {
+		return packGroups(g, o, out, tmp, conv, groups, bo)
+	}
 	if err := pack.WriteBundle(tmp, conv, bo); err != nil {
 		return fail(err)
 	}
@@ -227,4 +232,85 @@ func warnLimits(g *globals, dir string, o packOptions) {
 	if float64(biggest) > o.maxFileGB*gb {
 		fmt.Fprintf(g.stderr, "trajvault: pack: warning: a file of %.1f GB exceeds the limit of %g GB per file\n", float64(biggest)/gb, o.maxFileGB)
 	}
+}
+
+// metadataFiles is what a bag holds besides its trajectories (card,
+// crate, DataCite, plots, provenance, tag files): reserved when splitting.
+const metadataFiles = 12
+
+// splitGroups partitions the trajectories, in order, into groups that keep
+// each bag within the file and size limits.
+func splitGroups(dir string, conv []pack.Converted, o packOptions) [][]pack.Converted {
+	const gb = 1e9
+	var groups [][]pack.Converted
+	var cur []pack.Converted
+	var size float64
+	for _, c := range conv {
+		st, err := os.Stat(filepath.Join(dir, filepath.FromSlash(c.File)))
+		s := 0.0
+		if err == nil {
+			s = float64(st.Size())
+		}
+		// Two files per trajectory: the data and its provenance.
+		if len(cur) > 0 && (2*(len(cur)+1)+metadataFiles > o.maxFiles || size+s > o.maxRecordGB*gb) {
+			groups = append(groups, cur)
+			cur, size = nil, 0
+		}
+		cur = append(cur, c)
+		size += s
+	}
+	if len(cur) > 0 {
+		groups = append(groups, cur)
+	}
+	return groups
+}
+
+// packGroups writes one bag per group, BUNDLE-1 ... BUNDLE-n, each
+// complete in itself, all or nothing.
+func packGroups(g *globals, o packOptions, out, staging string, conv []pack.Converted, groups [][]pack.Converted, bo pack.BundleOptions) error {
+	var dirs []string
+	cleanup := func() {
+		for _, d := range dirs {
+			os.RemoveAll(d)
+		}
+		os.RemoveAll(staging)
+	}
+	for i, grp := range groups {
+		final := fmt.Sprintf("%s-%d", out, i+1)
+		if _, err := os.Stat(final); err == nil && !o.force {
+			cleanup()
+			return &exitError{exitUsage, fmt.Errorf("pack: %s already exists; use --force to replace it", final)}
+		}
+		d := final + ".partial"
+		os.RemoveAll(d)
+		dirs = append(dirs, d)
+		if err := os.MkdirAll(filepath.Join(d, "data", "trajectories"), 0o755); err != nil {
+			cleanup()
+			return &exitError{exitUsage, err}
+		}
+		for _, c := range grp {
+			if err := os.Rename(filepath.Join(staging, filepath.FromSlash(c.File)), filepath.Join(d, filepath.FromSlash(c.File))); err != nil {
+				cleanup()
+				return &exitError{exitUsage, err}
+			}
+		}
+		b := bo
+		b.GroupID, b.GroupIndex, b.GroupCount = filepath.Base(out), i+1, len(groups)
+		if err := pack.WriteBundle(d, grp, b); err != nil {
+			cleanup()
+			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+		}
+	}
+	os.RemoveAll(staging)
+	for i, d := range dirs {
+		final := strings.TrimSuffix(d, ".partial")
+		if o.force {
+			os.RemoveAll(final)
+		}
+		if err := os.Rename(d, final); err != nil {
+			return &exitError{exitUsage, err}
+		}
+		fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(dirs), final, len(groups[i]))
+	}
+	return nil
 }

@@ -149,3 +149,25 @@ func TestPackKilledLeavesNoBundle(t *testing.T) {
 		t.Errorf("rerun bundle: %s", out)
 	}
 }
+
+// TestPackSplit: with --split, limits that one bag would exceed give
+// several bags of one group, each valid, each naming its place.
+func TestPackSplit(t *testing.T) {
+	dir, deposit := packFixture(t, "3", "200")
+	out := filepath.Join(dir, "b")
+	code, o, errs := runCLI("pack", filepath.Join(dir, "logs"), "-o", out, "--deposit", deposit,
+		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--max-files", "15", "--split", "--no-audit")
+	if code != 0 {
+		t.Fatalf("exit %d %s %s", code, o, errs)
+	}
+	for i := 1; i <= 3; i++ {
+		bag := out + "-" + string(rune('0'+i))
+		info, _ := os.ReadFile(filepath.Join(bag, "bag-info.txt"))
+		if !strings.Contains(string(info), "Bag-Count: "+string(rune('0'+i))+" of 3") || !strings.Contains(string(info), "Bag-Group-Identifier: b") {
+			t.Errorf("%s bag-info:\n%s", bag, info)
+		}
+		if code, o, _ := runCLI("validate", bag); code != 0 {
+			t.Errorf("%s: %s", bag, o)
+		}
+	}
+}

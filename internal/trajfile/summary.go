@@ -220,3 +220,17 @@ func group(f *h5.File, p, name string) GroupSummary {
 	}
 	return g
 }
+
+// Parameter reads a string attribute of /parameters.
+func Parameter(path, name string) (string, error) {
+	f, err := h5.Open(path)
+	if err != nil {
+		return "", err
+	}
+	defer f.Close()
+	a, err := f.Attr("/parameters", name)
+	if err != nil || len(a.Strings) != 1 {
+		return "", fmt.Errorf("%s: no /parameters@%s", path, name)
+	}
+	return a.Strings[0], nil
+}
