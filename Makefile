@@ -25,20 +25,25 @@ deps-test:
 build: deps-build
 	$(GO) build -o $(BIN) ./cmd/trajvault
 
-# demo: the main job on the invented demo ensemble: legacy text logs are
-# scanned, converted to trajectory files, validated, inspected and
-# exported back to text.
+# demo: the whole job on the invented demo ensemble: legacy text logs are
+# scanned, packed into a BagIt bundle (trajectory files, RO-Crate,
+# DataCite, dataset card), validated (folder and archive), inspected,
+# audited and exported back to text.
 RECIPE := testdata/recipes/tarnol.yaml
 demo: build
 	rm -rf demo
 	$(BIN) demo --text --trajectories 8 --steps 10000 demo/logs
 	$(BIN) scan --recipe $(RECIPE) demo/logs
-	$(BIN) convert --recipe $(RECIPE) --author "Tarn Valley photophysics group (fictional)" demo/logs -o demo/h5
-	$(BIN) validate demo/h5/*.h5
-	$(BIN) inspect demo/h5/traj-001.h5
-	$(BIN) export demo/h5/traj-001.h5 -o demo/export --format extxyz
-	$(BIN) audit --report demo/audit.html demo/h5
-	@echo "demo: logs in demo/logs, trajectory files in demo/h5, audit report in demo/audit.html"
+	$(BIN) init -o demo/deposit.yaml --title "Surface hopping of tarnol (invented demo data)" \
+		--description "Invented demo ensemble: fewest-switches surface hopping of a model triatomic on two coupled surfaces." \
+		--creator "Doe, Jane|0000-0002-1825-0097|Tarn Valley University (fictional)" \
+		--contact "Jane Doe|jane.doe@example.org" --program "tarnol-md|1.0"
+	$(BIN) pack demo/logs -o demo/bundle --deposit demo/deposit.yaml --recipe $(RECIPE) --archive tar.zst
+	$(BIN) validate demo/bundle demo/bundle.tar.zst
+	$(BIN) inspect demo/bundle/data/trajectories/traj-001.h5
+	$(BIN) audit --report demo/audit.html demo/bundle/data/trajectories
+	$(BIN) export demo/bundle/data/trajectories/traj-001.h5 -o demo/export --format extxyz
+	@echo "demo: bundle demo/bundle (upload file demo/bundle.tar.zst), dataset card demo/bundle/data/README.md, audit report demo/audit.html"
 
 fmt-check:
 	@out="$$($(dir $(GO))gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))"; \
