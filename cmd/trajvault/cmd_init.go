@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bufio"
 	"bytes"
 	"fmt"
 	"os"
@@ -53,7 +54,12 @@ Exit status: 0 success (or a valid file), 1 the file has problems,
 2 usage or I/O error.`,
 		Example: "  trajvault init --title \"Photodissociation of tarnol\" --creator \"Doe, Jane|0000-0002-1825-0097|Tarn Valley University\"\n  trajvault init --check deposit.yaml",
 		Args:    cobra.NoArgs,
-		RunE:    func(c *cobra.Command, args []string) error { return runInit(g, o) },
+		RunE: func(c *cobra.Command, args []string) error {
+			if !o.check && !c.Flags().Changed("title") && isTerminal(os.Stdin) && isTerminal(os.Stdout) {
+				prompt(&o)
+			}
+			return runInit(g, o)
+		},
 	}
 	o.AddFlags(c)
 	return c
@@ -118,4 +124,26 @@ func runInit(g *globals, o initOptions) error {
 		fmt.Fprintln(g.stdout, err)
 	}
 	return nil
+}
+
+// prompt asks for the main fields on a terminal; Enter keeps the default.
+func prompt(o *initOptions) {
+	in := bufio.NewReader(os.Stdin)
+	ask := func(q string, v *string) {
+		fmt.Printf("%s [%s]: ", q, *v)
+		line, _ := in.ReadString('\n')
+		if s := strings.TrimSpace(line); s != "" {
+			*v = s
+		}
+	}
+	ask("Title", &o.title)
+	ask("Description", &o.desc)
+	ask("Licence (SPDX)", &o.license)
+	creator := "Family, Given|ORCID|Affiliation"
+	ask("Creator", &creator)
+	if creator != "Family, Given|ORCID|Affiliation" {
+		o.creators = append(o.creators, creator)
+	}
+	ask("Simulation method", &o.method)
+	ask("Program|version", &o.program)
 }

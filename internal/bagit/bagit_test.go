@@ -5,6 +5,7 @@ import (
 	"crypto/sha256"
 	"crypto/sha512"
 	"encoding/hex"
+	"errors"
 	"os"
 	"path/filepath"
 	"strings"
@@ -203,5 +204,30 @@ func TestInfoFolding(t *testing.T) {
 	back, err := ParseInfo(text)
 	if err != nil || strings.TrimSpace(back[0][1]) != strings.TrimSpace(strings.Repeat("word ", 40)) {
 		t.Errorf("round trip: %q %v", back, err)
+	}
+}
+
+// TestArchiveLimits: an archive whose entries exceed the reading limits is
+// refused before its content is trusted (decompression bombs, RFC 8493
+// sec. 5 on declared sizes).
+func TestArchiveLimits(t *testing.T) {
+	dir := makeBag(t)
+	os.WriteFile(filepath.Join(dir, "data", "big.bin"), make([]byte, 1<<20), 0o644)
+	for _, kind := range []string{"tar.zst", "zip"} {
+		p := filepath.Join(t.TempDir(), "bag."+kind)
+		f, _ := os.Create(p)
+		if kind == "zip" {
+			WriteZip(dir, f, time.Unix(0, 0))
+		} else {
+			WriteTarZst(dir, f, time.Unix(0, 0))
+		}
+		f.Close()
+		if st, _ := os.Stat(p); st.Size() > 200<<10 {
+			t.Fatalf("%s: the zero megabyte did not compress (%d bytes)", kind, st.Size())
+		}
+		_, err := Open(p, Limits{MaxEntryBytes: 512 << 10, MaxTotalBytes: 1 << 30, MaxEntries: 100})
+		if !errors.Is(err, ErrLimit) {
+			t.Errorf("%s: err = %v, want ErrLimit", kind, err)
+		}
 	}
 }
