@@ -101,3 +101,16 @@ func atomLines(b []byte) string {
 	}
 	return strings.Join(out, "\n")
 }
+
+// TestScanExitCodes: scan exits 1 on planted problems, 0 on clean logs,
+// and --json prints the reports.
+func TestScanExitCodes(t *testing.T) {
+	if code, out, _ := runCLI("scan", "--unit", "position=angstrom", repo("testdata", "ensembles", "clean")); code != 0 || !strings.Contains(out, "0 problems") {
+		t.Errorf("clean: exit %d\n%s", code, out)
+	}
+	code, out, _ := runCLI("scan", "--json", "--unit", "position=angstrom", repo("testdata", "ensembles", "problems"))
+	var reps []map[string]any
+	if code != 1 || json.Unmarshal([]byte(out), &reps) != nil || len(reps) < 12 {
+		t.Errorf("problems: exit %d, %d reports", code, len(reps))
+	}
+}
