@@ -73,7 +73,7 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 	echo "gzip $(gzip --version | head -1 | grep -o '[0-9][0-9.]*' | head -1), zstd $(zstd --version | grep -o 'v[0-9][0-9.]*' | head -1), xz $(xz --version | head -1 | grep -o '[0-9][0-9.]*' | head -1)."
 	echo
 	echo "Input: the invented demo ensemble, $TRAJ trajectories x $((STEPS + 1)) frames x $((3 * MOLECULES)) atoms,"
-	echo "positions printed with $DECIMALS decimals, plus energy, state and event logs: $text bytes of text."
+	echo "positions printed with $DECIMALS decimals, velocities and forces with 10, plus energy, state and event logs: $text bytes of text."
 	echo "trajvault stores every number exactly at its printed precision (export gives the text back digit for digit);"
 	echo "the compressors are lossless on the text. Peak RSS is that of the largest single process."
 	echo
