@@ -6,20 +6,13 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
-	"runtime"
 	"testing"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/testenv"
 	"trajvault/internal/textnum"
 	"trajvault/internal/units"
 )
-
-func python() string {
-	if p := os.Getenv("TRAJVAULT_PYTHON"); p != "" {
-		return p
-	}
-	return "/usr/bin/python3" // Debian's, which sees python3-ase
-}
 
 // TestASEExtendedXYZ: an extended XYZ trajectory written by ASE (Debian
 // python3-ase 3.22) reads identically to what ASE itself reports:
@@ -33,12 +26,11 @@ func TestASEExtendedXYZ(t *testing.T) {
 }
 
 func aseCase(t *testing.T, bitExact bool) {
-	_, self, _, _ := runtime.Caller(0)
-	script := filepath.Join(filepath.Dir(self), "..", "testdata", "interop", "ase_extxyz.py")
+	script := testenv.Repo("testdata", "interop", "ase_extxyz.py")
 	dir := filepath.Join(t.TempDir(), "ase-run")
 	os.MkdirAll(dir, 0o755)
 	xyz := filepath.Join(dir, "traj.xyz")
-	out, err := exec.Command(python(), script, xyz).Output()
+	out, err := exec.Command(testenv.Python(), script, xyz).Output()
 	if err != nil {
 		t.Fatalf("ASE script failed (install python3-ase; make test does): %v", err)
 	}

@@ -1,29 +1,21 @@
 package validate
 
 import (
-	"os"
 	"os/exec"
 	"path/filepath"
-	"runtime"
 	"testing"
-)
 
-func python() string {
-	if p := os.Getenv("TRAJVAULT_PYTHON"); p != "" {
-		return p
-	}
-	return "/usr/bin/python3" // Debian's, which sees python3-h5py
-}
+	"trajvault/internal/testenv"
+)
 
 // TestForeignH5MD: a valid H5MD file written by h5py (Debian python3-h5py)
 // with h5py's defaults - variable-length strings, fixed-mode step/time,
 // float32, the LZF filter that only h5py ships - validates with warnings
 // only: V4 for the strings and V28 for the filter.
 func TestForeignH5MD(t *testing.T) {
-	_, self, _, _ := runtime.Caller(0)
-	script := filepath.Join(filepath.Dir(self), "..", "testdata", "interop", "h5py_write_h5md.py")
+	script := testenv.Repo("testdata", "interop", "h5py_write_h5md.py")
 	path := filepath.Join(t.TempDir(), "foreign.h5")
-	if out, err := exec.Command(python(), script, path).CombinedOutput(); err != nil {
+	if out, err := exec.Command(testenv.Python(), script, path).CombinedOutput(); err != nil {
 		t.Fatalf("h5py writer failed (install python3-h5py; make test does): %v\n%s", err, out)
 	}
 	rep, err := File(path, Options{})

@@ -14,6 +14,7 @@ import (
 	"testing"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/testenv"
 )
 
 func repo(parts ...string) string {
@@ -58,11 +59,7 @@ func TestTextToDepositFile(t *testing.T) {
 
 	// h5py (Debian python3-h5py) reads the converted positions to the
 	// same bytes trajvault reads.
-	py := os.Getenv("TRAJVAULT_PYTHON")
-	if py == "" {
-		py = "/usr/bin/python3"
-	}
-	raw, err := exec.Command(py, repo("testdata", "interop", "h5py_dump.py"), h5path).Output()
+	raw, err := exec.Command(testenv.Python(), testenv.Repo("testdata", "interop", "h5py_dump.py"), h5path).Output()
 	if err != nil {
 		t.Fatalf("h5py: %v", err)
 	}

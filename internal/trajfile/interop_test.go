@@ -18,27 +18,13 @@ import (
 	"os/exec"
 	"path/filepath"
 	"reflect"
-	"runtime"
 	"strings"
 	"testing"
 
 	"trajvault/internal/demo"
 	"trajvault/internal/h5"
+	"trajvault/internal/testenv"
 )
-
-// python is Debian's interpreter, which sees python3-h5py and python3-ase
-// (a python3 earlier on PATH, e.g. from pyenv, may not).
-func python() string {
-	if p := os.Getenv("TRAJVAULT_PYTHON"); p != "" {
-		return p
-	}
-	return "/usr/bin/python3"
-}
-
-func repoRoot() string {
-	_, file, _, _ := runtime.Caller(0)
-	return filepath.Join(filepath.Dir(file), "..", "..")
-}
 
 func demoFile(t *testing.T) string {
 	t.Helper()
@@ -172,7 +158,7 @@ func normalise(t *testing.T, v any) any {
 
 func TestH5pyReadsOurFiles(t *testing.T) {
 	path := demoFile(t)
-	cmd := exec.Command(python(), filepath.Join(repoRoot(), "testdata", "interop", "h5py_dump.py"), path)
+	cmd := exec.Command(testenv.Python(), testenv.Repo("testdata", "interop", "h5py_dump.py"), path)
 	var stderr bytes.Buffer
 	cmd.Stderr = &stderr
 	out, err := cmd.Output()
