@@ -56,8 +56,8 @@ test: deps-test fmt-check vet
 	$(GO) test -count=1 ./...
 	@for t in $(FUZZ_TARGETS); do \
 		echo "fuzz $$t ($(FUZZTIME_TEST))"; \
-		$(GO) test $${t%%:*} -run '^$$' -fuzz "^$${t##*:}\$$" -fuzztime $(FUZZTIME_TEST) >/dev/null || exit 1; \
-	done
+		$(GO) test $${t%%:*} -run '^$$' -fuzz "^$${t##*:}\$$" -fuzztime $(FUZZTIME_TEST) >.fuzz.log 2>&1 || { cat .fuzz.log; exit 1; }; \
+	done; rm -f .fuzz.log
 
 # fuzz: run every fuzz target longer (FUZZTIME=5m by default).
 fuzz: deps-test
