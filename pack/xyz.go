@@ -225,8 +225,16 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 		}
 		props = append(props, property{parts[i], t[0], n})
 	}
-	if props[0].name != "species" && props[0].kind == 'S' {
-		props[0].name = "species"
+	if props[0].kind != 'S' || props[0].count != 1 {
+		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties must start with the species column (species:S:1), found %s:%c:%d", props[0].name, props[0].kind, props[0].count))
+	}
+	props[0].name = "species"
+	seen := map[string]bool{}
+	for _, p := range props {
+		if p.name == "" || seen[p.name] {
+			return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties names a column %q twice or not at all; give each column its own name", p.name))
+		}
+		seen[p.name] = true
 	}
 	hasPos := false
 	for _, p := range props {
