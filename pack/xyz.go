@@ -101,7 +101,10 @@ func (x *XYZReader) Next() (*Frame, error) {
 	} else if err != nil {
 		return nil, err
 	}
-	fr := &Frame{Line: countLine, Comment: string(comment), Symbols: make([]string, 0, n)}
+	// The count line is input: never allocate by it unchecked (a cut or
+	// corrupt file may claim billions of atoms).
+	capN := min(n, 1<<16)
+	fr := &Frame{Line: countLine, Comment: string(comment), Symbols: make([]string, 0, capN)}
 	props, err := x.parseComment(fr)
 	if err != nil {
 		return nil, err
@@ -109,7 +112,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 	cols := make([]*Column, 0, len(props))
 	for _, p := range props {
 		if p.kind == 'R' || p.kind == 'I' {
-			c := &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, n*p.count)}
+			c := &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, capN*min(p.count, 16))}
 			cols = append(cols, c)
 		}
 	}
@@ -238,7 +241,7 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	}
 	hasPos := false
 	for _, p := range props {
-		hasPos = hasPos || (p.name == "pos" && p.count == 3)
+		hasPos = hasPos || (p.name == "pos" && p.count == 3 && p.kind == 'R')
 	}
 	if !hasPos {
 		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties has no pos:R:3 column"))
