@@ -333,7 +333,7 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			rep.add(PTime, "error", s.file(), rec.line, "time %g after %g while the step advances: the clock goes backwards; check the log", rec.time, prevTime)
 		}
 		fr.keys.push(idx, key)
-		fr.checkUniform(rec, key, s.formats()["time"])
+		fr.checkUniform(rec, key, s.timeFormat())
 		if rec.hasTime {
 			prevTime, prevStep, havePrev = rec.time, rec.step, true
 		}

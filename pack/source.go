@@ -71,6 +71,9 @@ type source interface {
 	next() (*record, error) // io.EOF at the end
 	// formats are the printed formats per quantity seen so far.
 	formats() map[string]textnum.Format
+	// timeFormat is the printed format of the time so far, cheaply (it
+	// is consulted for every record).
+	timeFormat() textnum.Format
 	// units are the units per quantity the file itself declares.
 	units() map[string]string
 	hops() []hop
@@ -104,6 +107,7 @@ func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
 
 func (s *xyzSource) file() string                       { return s.path }
 func (s *xyzSource) formats() map[string]textnum.Format { return s.fmts }
+func (s *xyzSource) timeFormat() textnum.Format         { return s.fmts["time"] }
 func (s *xyzSource) units() map[string]string           { return nil }
 func (s *xyzSource) hops() []hop                        { return nil }
 func (s *xyzSource) close()                             { s.f.Close() }
@@ -280,6 +284,16 @@ func (s *tableSource) units() map[string]string { return s.unit }
 func (s *tableSource) hops() []hop              { return nil }
 func (s *tableSource) close()                   { s.f.Close() }
 
+func (s *tableSource) timeFormat() textnum.Format {
+	var f textnum.Format
+	for i, q := range s.quant {
+		if q == "time" {
+			f = f.Merge(s.t.Columns[i].Format)
+		}
+	}
+	return f
+}
+
 func (s *tableSource) formats() map[string]textnum.Format {
 	out := map[string]textnum.Format{}
 	for i, c := range s.t.Columns {
@@ -347,6 +361,7 @@ func openLog(path string, spec *LogSpec) (*logSource, error) {
 
 func (s *logSource) file() string                       { return s.path }
 func (s *logSource) formats() map[string]textnum.Format { return s.fmts }
+func (s *logSource) timeFormat() textnum.Format         { return s.fmts["time"] }
 func (s *logSource) units() map[string]string           { return nil }
 func (s *logSource) hops() []hop                        { return s.hopsL }
 func (s *logSource) close()                             { s.f.Close() }

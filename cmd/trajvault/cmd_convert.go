@@ -162,18 +162,9 @@ func onlyPartial(r *pack.TrajReport) bool {
 // o.out/<name>.h5, o.jobs at a time. Parsing runs in parallel; HDF5 calls
 // are serialised by the HDF5 layer.
 func convertEnsemble(g *globals, o convertOptions, opt pack.Options, tol map[string]float64, trajs []*pack.Trajectory) error {
-	reps := make([]*pack.TrajReport, len(trajs))
-	parallel(len(trajs), o.jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
-	bad := 0
-	for _, r := range reps {
-		if r.Errors() > 0 && !(o.dropPartial && onlyPartial(r)) {
-			printScan(g, r)
-			bad++
-		}
-	}
-	if bad > 0 {
-		fmt.Fprintf(g.stderr, "trajvault: convert: %d of %d trajectories have problems; nothing written\n", bad, len(trajs))
-		return errFindings
+	reps, err := scanAll(g, "convert", trajs, opt, o.jobs, o.dropPartial)
+	if err != nil {
+		return err
 	}
 	tmp := o.out + ".partial"
 	os.RemoveAll(tmp)
@@ -226,4 +217,24 @@ func parallel(n, jobs int, fn func(int)) {
 		}(i)
 	}
 	wg.Wait()
+}
+
+// scanAll scans every trajectory (jobs at a time) and refuses, printing
+// the problems, when any has errors (a cut last frame is allowed with
+// dropPartial): convert and pack write all or nothing.
+func scanAll(g *globals, verb string, trajs []*pack.Trajectory, opt pack.Options, jobs int, dropPartial bool) ([]*pack.TrajReport, error) {
+	reps := make([]*pack.TrajReport, len(trajs))
+	parallel(len(trajs), jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
+	bad := 0
+	for _, r := range reps {
+		if r.Errors() > 0 && !(dropPartial && onlyPartial(r)) {
+			printScan(g, r)
+			bad++
+		}
+	}
+	if bad > 0 {
+		fmt.Fprintf(g.stderr, "trajvault: %s: %d of %d trajectories have problems; nothing written\n", verb, bad, len(trajs))
+		return nil, errFindings
+	}
+	return reps, nil
 }

@@ -100,18 +100,9 @@ func runPack(g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	reps := make([]*pack.TrajReport, len(trajs))
-	parallel(len(trajs), o.jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
-	bad := 0
-	for _, r := range reps {
-		if r.Errors() > 0 {
-			printScan(g, r)
-			bad++
-		}
-	}
-	if bad > 0 {
-		fmt.Fprintf(g.stderr, "trajvault: pack: %d of %d trajectories have problems; nothing written\n", bad, len(trajs))
-		return errFindings
+	reps, err := scanAll(g, "pack", trajs, opt, o.jobs, false)
+	if err != nil {
+		return err
 	}
 	tmp := out + ".partial"
 	os.RemoveAll(tmp) // a previous interrupted run
