@@ -10,7 +10,7 @@ export CGO_ENABLED := 1
 .PHONY: all build demo test deps-build deps-test vet fmt-check fuzz bench clean
 
 # Fuzz targets: package:Target. make test runs each for FUZZTIME_TEST.
-FUZZ_TARGETS := ./pack:FuzzXYZ ./pack:FuzzTable ./pack:FuzzLog ./internal/textnum:FuzzParse
+FUZZ_TARGETS := ./ingest:FuzzXYZ ./ingest:FuzzTable ./ingest:FuzzLog ./internal/textnum:FuzzParse
 FUZZTIME_TEST ?= 4s
 FUZZTIME ?= 5m
 

@@ -163,8 +163,8 @@ func (a *auditor) run() error {
 	for i, t := range r.Times {
 		a.res.Times[i] = t * auFs
 	}
-	a.hasVel = r.Has("/particles/all/velocity")
-	a.hasForce = r.Has("/particles/all/force")
+	a.hasVel = r.Has(r.Particle(trajfile.Velocity))
+	a.hasForce = r.Has(r.Particle(trajfile.Force))
 	if err := a.loadEnergy(); err != nil {
 		return err
 	}
@@ -181,22 +181,22 @@ func (a *auditor) run() error {
 // stored kinetic energy or from velocities and masses).
 func (a *auditor) loadEnergy() error {
 	r := a.r
-	if r.Has("/observables/kinetic_energy") {
-		k, _, err := r.Values("/observables/kinetic_energy", "hartree")
+	if r.Has(trajfile.KineticEnergy) {
+		k, _, err := r.Values(trajfile.KineticEnergy, "hartree")
 		if err != nil {
 			return err
 		}
 		a.kin = k
 	}
 	switch {
-	case r.Has("/observables/total_energy"):
-		e, _, err := r.Values("/observables/total_energy", "hartree")
+	case r.Has(trajfile.TotalEnergy):
+		e, _, err := r.Values(trajfile.TotalEnergy, "hartree")
 		if err != nil {
 			return err
 		}
 		a.etot = e
-	case r.Has("/observables/potential_energy"):
-		v, _, err := r.Values("/observables/potential_energy", "hartree")
+	case r.Has(trajfile.PotentialEnergy):
+		v, _, err := r.Values(trajfile.PotentialEnergy, "hartree")
 		if err != nil {
 			return err
 		}
@@ -223,18 +223,18 @@ func (a *auditor) scanFrames() error {
 	var sumV2 float64
 	for start := 0; start < r.T; start += frameBlock {
 		n := min(frameBlock, r.T-start)
-		x, err := r.Frames("/particles/all/position", "bohr", start, n)
+		x, err := r.Frames(r.Particle(trajfile.Position), "bohr", start, n)
 		if err != nil {
 			return err
 		}
 		var v, f []float64
 		if a.hasVel {
-			if v, err = r.Frames("/particles/all/velocity", "bohr au_time-1", start, n); err != nil {
+			if v, err = r.Frames(r.Particle(trajfile.Velocity), "bohr au_time-1", start, n); err != nil {
 				return err
 			}
 		}
 		if a.hasForce {
-			if f, err = r.Frames("/particles/all/force", "hartree bohr-1", start, n); err != nil {
+			if f, err = r.Frames(r.Particle(trajfile.Force), "hartree bohr-1", start, n); err != nil {
 				return err
 			}
 		}
@@ -271,7 +271,7 @@ func (a *auditor) scanFrames() error {
 			}
 		}
 	}
-	if needKin && a.etot != nil && !r.Has("/observables/total_energy") {
+	if needKin && a.etot != nil && !r.Has(trajfile.TotalEnergy) {
 		for i := range a.etot {
 			a.etot[i] += a.kin[i]
 		}

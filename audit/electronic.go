@@ -3,6 +3,8 @@ package audit
 import (
 	"fmt"
 	"math"
+
+	"trajvault/internal/trajfile"
 )
 
 // electronic checks populations, hop probabilities and hops.
@@ -13,20 +15,19 @@ func (a *auditor) electronic() {
 		a.add("populations", NA, nil, "no electronic states stored")
 		return
 	}
-	const el = "/observables/electronic"
 	var pops, amps []float64
-	if r.Has(el + "/amplitudes") {
-		amps, _, _ = r.Values(el+"/amplitudes", "")
+	if r.Has(trajfile.Amplitudes) {
+		amps, _, _ = r.Values(trajfile.Amplitudes, "")
 		pops = make([]float64, r.T*S)
 		for i := range pops {
 			re, im := amps[2*i], amps[2*i+1]
 			pops[i] = re*re + im*im
 		}
-	} else if r.Has(el + "/populations") {
-		pops, _, _ = r.Values(el+"/populations", "")
+	} else if r.Has(trajfile.Populations) {
+		pops, _, _ = r.Values(trajfile.Populations, "")
 	}
-	if r.Has(el + "/active_state") {
-		act, _, _ := r.Values(el+"/active_state", "")
+	if r.Has(trajfile.ActiveState) {
+		act, _, _ := r.Values(trajfile.ActiveState, "")
 		a.res.Active = make([]int64, len(act))
 		for i, x := range act {
 			a.res.Active[i] = int64(x)
@@ -37,8 +38,8 @@ func (a *auditor) electronic() {
 	} else {
 		a.add("populations", NA, nil, "no populations or amplitudes stored")
 	}
-	if amps != nil && r.Has(el+"/couplings") {
-		cpl, _, err := r.Values(el+"/couplings", "au_time-1")
+	if amps != nil && r.Has(trajfile.Couplings) {
+		cpl, _, err := r.Values(trajfile.Couplings, "au_time-1")
 		if err == nil {
 			a.hopProbability(amps, cpl, S)
 		}
@@ -141,8 +142,8 @@ func (a *auditor) hops(S int) {
 		frame[s] = i
 	}
 	var se []float64
-	if a.r.Has("/observables/electronic/state_energies") {
-		se, _, _ = a.r.Values("/observables/electronic/state_energies", "hartree")
+	if a.r.Has(trajfile.StateEnergies) {
+		se, _, _ = a.r.Values(trajfile.StateEnergies, "hartree")
 	}
 	// The ordinary step-to-step change of E_tot sets the tolerance.
 	var jumps []float64

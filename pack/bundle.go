@@ -11,6 +11,8 @@ import (
 	"strings"
 	"time"
 
+	"trajvault/ingest"
+
 	"github.com/klauspost/compress/zstd"
 
 	"trajvault/internal/bagit"
@@ -36,8 +38,8 @@ type BundleOptions struct {
 
 // Converted is one trajectory in the bundle.
 type Converted struct {
-	Report *TrajReport
-	Result *Result
+	Report *ingest.TrajReport
+	Result *ingest.Result
 	File   string // path inside the bag, data/...
 }
 

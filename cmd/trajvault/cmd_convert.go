@@ -10,10 +10,11 @@ import (
 	"sort"
 	"sync"
 
+	"trajvault/ingest"
+
 	"github.com/spf13/cobra"
 
 	"trajvault/internal/h5"
-	"trajvault/pack"
 )
 
 type convertOptions struct {
@@ -42,7 +43,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
-	c.Flags().IntVar(&o.series, "chunk-frames", pack.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
+	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
 	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
@@ -94,21 +95,16 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 		return &exitError{exitUsage, fmt.Errorf("convert: %s already exists; trajvault never overwrites outputs", o.out)}
 	}
 	if len(args) == 1 {
-		if trajs, err := pack.Discover(args[0], opt.Recipe); err == nil && (len(trajs) > 1 || filepath.Clean(trajs[0].Dir) != filepath.Clean(args[0])) {
+		if trajs, err := ingest.Discover(args[0], opt.Recipe); err == nil && (len(trajs) > 1 || filepath.Clean(trajs[0].Dir) != filepath.Clean(args[0])) {
 			return convertEnsemble(g, o, opt, tol, trajs)
 		}
 	}
-	t, err := pack.TrajectoryFrom(args, opt.Recipe)
-	if err != nil {
-		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
-	}
-	rep := pack.Scan(t, opt)
-	if rep.Errors() > 0 && !(o.dropPartial && onlyPartial(rep)) {
+	rep, res, err := ingest.ConvertFiles(args, o.out, o.packOptions(opt, tol))
+	if errors.Is(err, ingest.ErrRefused) {
 		printScan(g, rep)
-		fmt.Fprintf(g.stderr, "trajvault: convert: %s has problems; nothing written\n", t.Name)
+		fmt.Fprintf(g.stderr, "trajvault: convert: %v\n", err)
 		return errFindings
 	}
-	res, err := pack.Convert(rep, o.out, o.packOptions(opt, tol))
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
@@ -117,7 +113,7 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 		fmt.Fprintln(g.stdout, string(b))
 		return nil
 	}
-	fmt.Fprintf(g.stdout, "%s: %d frames, %d hop attempts -> %s\n", t.Name, res.Frames, res.Hops, filepath.Clean(res.Output))
+	fmt.Fprintf(g.stdout, "%s: %d frames, %d hop attempts -> %s\n", rep.Name, res.Frames, res.Hops, filepath.Clean(res.Output))
 	var keys []string
 	for k := range res.Storage {
 		keys = append(keys, k)
@@ -136,32 +132,23 @@ var compatFormats = map[string]h5.Format{"1.10": h5.Format110, "1.8": h5.Format1
 
 // packOptions are the conversion settings common to one trajectory and
 // ensembles.
-func (o *convertOptions) packOptions(opt pack.Options, tol map[string]float64) pack.ConvertOptions {
+func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64) ingest.ConvertOptions {
 	author := o.author
 	if author == "" {
 		author = os.Getenv("USER")
 	}
 	opt.DropPartial = o.dropPartial
-	file := pack.DefaultFile
+	file := ingest.DefaultFile
 	file.Format = compatFormats[o.compat]
-	return pack.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
+	return ingest.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
 		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series,
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
-}
-
-func onlyPartial(r *pack.TrajReport) bool {
-	for _, p := range r.Problems {
-		if p.Severity == "error" && p.Code != pack.PTruncated {
-			return false
-		}
-	}
-	return true
 }
 
 // convertEnsemble converts every trajectory of an ensemble folder into
 // o.out/<name>.h5, o.jobs at a time. Parsing runs in parallel; HDF5 calls
 // are serialised by the HDF5 layer.
-func convertEnsemble(g *globals, o convertOptions, opt pack.Options, tol map[string]float64, trajs []*pack.Trajectory) error {
+func convertEnsemble(g *globals, o convertOptions, opt ingest.Options, tol map[string]float64, trajs []*ingest.Trajectory) error {
 	reps, err := scanAll(g, "convert", trajs, opt, o.jobs, o.dropPartial)
 	if err != nil {
 		return err
@@ -172,10 +159,10 @@ func convertEnsemble(g *globals, o convertOptions, opt pack.Options, tol map[str
 		return &exitError{exitUsage, err}
 	}
 	copt := o.packOptions(opt, tol)
-	results := make([]*pack.Result, len(trajs))
+	results := make([]*ingest.Result, len(trajs))
 	errs := make([]error, len(trajs))
 	parallel(len(trajs), o.jobs, func(i int) {
-		results[i], errs[i] = pack.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), copt)
+		results[i], errs[i] = ingest.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), copt)
 	})
 	for _, err := range errs {
 		if err != nil {
@@ -222,12 +209,12 @@ func parallel(n, jobs int, fn func(int)) {
 // scanAll scans every trajectory (jobs at a time) and refuses, printing
 // the problems, when any has errors (a cut last frame is allowed with
 // dropPartial): convert and pack write all or nothing.
-func scanAll(g *globals, verb string, trajs []*pack.Trajectory, opt pack.Options, jobs int, dropPartial bool) ([]*pack.TrajReport, error) {
-	reps := make([]*pack.TrajReport, len(trajs))
-	parallel(len(trajs), jobs, func(i int) { reps[i] = pack.Scan(trajs[i], opt) })
+func scanAll(g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
+	reps := make([]*ingest.TrajReport, len(trajs))
+	parallel(len(trajs), jobs, func(i int) { reps[i] = ingest.Scan(trajs[i], opt) })
 	bad := 0
 	for _, r := range reps {
-		if r.Errors() > 0 && !(dropPartial && onlyPartial(r)) {
+		if r.Refusal(dropPartial) != nil {
 			printScan(g, r)
 			bad++
 		}

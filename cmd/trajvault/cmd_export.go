@@ -4,9 +4,9 @@ import (
 	"errors"
 	"fmt"
 
-	"github.com/spf13/cobra"
+	"trajvault/export"
 
-	"trajvault/pack"
+	"github.com/spf13/cobra"
 )
 
 type exportOptions struct {
@@ -39,7 +39,7 @@ Exit status: 0 success, 2 usage or I/O error.`,
 			return nil
 		},
 		RunE: func(c *cobra.Command, args []string) error {
-			files, err := pack.Export(args[0], o.out, o.format)
+			files, err := export.Export(args[0], o.out, o.format)
 			if err != nil {
 				return &exitError{exitUsage, err}
 			}

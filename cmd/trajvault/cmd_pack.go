@@ -9,6 +9,8 @@ import (
 	"strings"
 	"time"
 
+	"trajvault/ingest"
+
 	"github.com/spf13/cobra"
 
 	"trajvault/audit"
@@ -96,7 +98,7 @@ func runPack(g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return err
 	}
-	trajs, err := pack.Discover(dir, opt.Recipe)
+	trajs, err := ingest.Discover(dir, opt.Recipe)
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
@@ -113,13 +115,13 @@ func runPack(g *globals, o packOptions, dir string) error {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	copt := pack.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
+	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
 	conv := make([]pack.Converted, len(trajs))
 	errs := make([]error, len(trajs))
 	parallel(len(trajs), o.jobs, func(i int) {
 		rel := "data/trajectories/" + trajs[i].Name + ".h5"
-		res, err := pack.Convert(reps[i], filepath.Join(tmp, filepath.FromSlash(rel)), copt)
+		res, err := ingest.Convert(reps[i], filepath.Join(tmp, filepath.FromSlash(rel)), copt)
 		conv[i], errs[i] = pack.Converted{Report: reps[i], Result: res, File: rel}, err
 	})
 	for _, err := range errs {

@@ -6,9 +6,9 @@ import (
 	"sort"
 	"strings"
 
-	"github.com/spf13/cobra"
+	"trajvault/ingest"
 
-	"trajvault/pack"
+	"github.com/spf13/cobra"
 )
 
 type scanOptions struct {
@@ -48,14 +48,14 @@ func runScan(g *globals, o scanOptions, dir string) error {
 	if err != nil {
 		return err
 	}
-	trajs, err := pack.Discover(dir, opt.Recipe)
+	trajs, err := ingest.Discover(dir, opt.Recipe)
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
 	}
-	var reps []*pack.TrajReport
+	var reps []*ingest.TrajReport
 	problems := 0
 	for _, t := range trajs {
-		r := pack.Scan(t, opt)
+		r := ingest.Scan(t, opt)
 		problems += r.Findings()
 		reps = append(reps, r)
 	}
@@ -77,7 +77,7 @@ func runScan(g *globals, o scanOptions, dir string) error {
 	return nil
 }
 
-func printScan(g *globals, r *pack.TrajReport) {
+func printScan(g *globals, r *ingest.TrajReport) {
 	fmt.Fprintf(g.stdout, "%s: %d atoms (%s), %d frames, steps %d..%d, time %g..%g %s", r.Name, r.Atoms, r.Formula, r.Frames, r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
 	if r.States > 0 {
 		fmt.Fprintf(g.stdout, ", %d states, %d hop attempts", r.States, r.Hops)

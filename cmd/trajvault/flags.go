@@ -5,9 +5,9 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/spf13/cobra"
+	"trajvault/ingest"
 
-	"trajvault/pack"
+	"github.com/spf13/cobra"
 )
 
 // readFlags are the options shared by scan and convert.
@@ -25,8 +25,8 @@ func (o *readFlags) AddFlags(c *cobra.Command) {
 
 var unitKinds = map[string]bool{"position": true, "velocity": true, "force": true, "momentum": true, "mass": true, "time": true, "energy": true}
 
-func (o *readFlags) options() (pack.Options, error) {
-	opt := pack.Options{Units: map[string]string{}, Dt: o.dt}
+func (o *readFlags) options() (ingest.Options, error) {
+	opt := ingest.Options{Units: map[string]string{}, Dt: o.dt}
 	for _, u := range o.units {
 		k, v, ok := strings.Cut(u, "=")
 		if !ok || !unitKinds[k] || strings.TrimSpace(v) == "" {
@@ -38,7 +38,7 @@ func (o *readFlags) options() (pack.Options, error) {
 		return opt, &exitError{exitUsage, fmt.Errorf("--dt must be positive, e.g. --dt 0.5 --unit time=fs")}
 	}
 	if o.recipe != "" {
-		rc, err := pack.LoadRecipe(o.recipe)
+		rc, err := ingest.LoadRecipe(o.recipe)
 		if err != nil {
 			return opt, &exitError{exitUsage, err}
 		}

@@ -4,19 +4,25 @@ import (
 	"fmt"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/textnum"
 	"trajvault/internal/units"
 )
 
-// Reader reads a trajectory file in the layout for analysis, converting
-// every quantity to atomic units (bohr, au_time, hartree, electron mass),
-// whatever units the file stores.
+// Reader reads a trajectory file in the layout. It is the one reader of
+// the layout: inspect, export, audit and validate's data checks go through
+// it. Analysis methods (Values, Frames) convert every quantity to atomic
+// units (bohr, au_time, hartree, electron mass), whatever units the file
+// stores; Element and Raw give the numbers as stored, with their recorded
+// printed format, for export.
 type Reader struct {
-	f       *h5.File
-	Path    string
-	N       int       // atoms
-	T       int       // frames
-	Species []int     // atomic numbers
-	Masses  []float64 // electron masses
+	f     *h5.File
+	Path  string
+	Group string // particle group path, e.g. /particles/all
+	N     int    // atoms
+	T     int    // frames
+	// Species are atomic numbers; Masses are in electron masses.
+	Species []int
+	Masses  []float64
 	Steps   []int64   // per frame
 	Times   []float64 // per frame, au_time
 	States  int
@@ -24,8 +30,6 @@ type Reader struct {
 	// or 0 when the file does not record it.
 	TimeStep float64
 }
-
-const pg = "/particles/" + Group
 
 // OpenReader opens a trajectory file for analysis.
 func OpenReader(path string) (*Reader, error) {
@@ -44,16 +48,39 @@ func OpenReader(path string) (*Reader, error) {
 // Close releases the file.
 func (r *Reader) Close() error { return r.f.Close() }
 
+// Particle is the path of element el (Position, Velocity, ...) of the
+// file's particle group.
+func (r *Reader) Particle(el string) string { return Particle(r.Group, el) }
+
 func (r *Reader) unitFactor(path, to string) (float64, error) {
-	a, err := r.f.Attr(path, "unit")
+	a, err := r.f.Attr(path, UnitAttr)
 	if err != nil || len(a.Strings) != 1 {
 		return 0, fmt.Errorf("%s has no unit attribute; run trajvault validate", path)
 	}
 	return units.Factor(a.Strings[0], to)
 }
 
+// findGroup picks the particle group: ours when present, else the first
+// (in name order) that holds positions.
+func findGroup(f *h5.File) (string, error) {
+	if f.Kind(Particle(OurGroup, Position)+Value) == h5.Dataset {
+		return OurGroup, nil
+	}
+	names, _ := f.Links(ParticlesGroup)
+	for _, n := range names {
+		if g := ParticleGroup(n); f.Kind(Particle(g, Position)+Value) == h5.Dataset {
+			return g, nil
+		}
+	}
+	return "", fmt.Errorf("no particle group with positions under %s", ParticlesGroup)
+}
+
 func (r *Reader) init() error {
-	sp, _, err := r.f.ReadInt64(pg + "/species")
+	var err error
+	if r.Group, err = findGroup(r.f); err != nil {
+		return err
+	}
+	sp, _, err := r.f.ReadInt64(r.Particle(Species))
 	if err != nil {
 		return fmt.Errorf("no species: %v", err)
 	}
@@ -61,95 +88,184 @@ func (r *Reader) init() error {
 	for _, z := range sp {
 		r.Species = append(r.Species, int(z))
 	}
-	m, _, err := r.f.ReadFloat64(pg + "/mass")
+	m, _, err := r.f.ReadFloat64(r.Particle(Mass))
 	if err != nil || len(m) != r.N {
 		return fmt.Errorf("no masses for %d atoms", r.N)
 	}
-	mf, err := r.unitFactor(pg+"/mass", "me")
+	mf, err := r.unitFactor(r.Particle(Mass), "me")
 	if err != nil {
 		return err
 	}
 	for _, x := range m {
 		r.Masses = append(r.Masses, x*mf)
 	}
-	info, err := r.f.Info(pg + "/position/value")
+	info, err := r.f.Info(r.Particle(Position) + Value)
 	if err != nil || info.Shape.Rank != 3 {
 		return fmt.Errorf("no positions [T][N][3]")
 	}
 	r.T = info.Shape.Dims[0]
-	r.Steps, r.Times, err = r.clock(pg + "/position")
+	c, err := readClock(r.f, r.Particle(Position))
 	if err != nil {
 		return err
 	}
-	if v, _, err := r.f.ReadInt64("/parameters/n_states"); err == nil && len(v) == 1 {
+	tf, err := r.unitFactor(r.Particle(Position)+Time, "au_time")
+	if err != nil {
+		return err
+	}
+	r.Steps = c.Steps
+	r.Times = make([]float64, len(c.Times))
+	for i, t := range c.Times {
+		r.Times[i] = t * tf
+	}
+	if v, _, err := r.f.ReadInt64(NStates); err == nil && len(v) == 1 {
 		r.States = int(v[0])
 	}
-	if v, _, err := r.f.ReadFloat64("/parameters/time_step"); err == nil && len(v) == 1 {
-		if fct, err := r.unitFactor("/parameters/time_step", "au_time"); err == nil {
+	if v, _, err := r.f.ReadFloat64(TimeStep); err == nil && len(v) == 1 {
+		if fct, err := r.unitFactor(TimeStep, "au_time"); err == nil {
 			r.TimeStep = v[0] * fct
 		}
 	}
 	return nil
 }
 
-// clock reads an element's steps and times (au_time), explicit or fixed.
-func (r *Reader) clock(el string) ([]int64, []float64, error) {
-	st, shape, err := r.f.ReadInt64(el + "/step")
+// Clock is an element's steps and times, per frame, as stored.
+type Clock struct {
+	Steps    []int64
+	Times    []float64
+	TimeUnit string
+	// Fixed is true for H5MD fixed mode (scalar step and time with an
+	// offset attribute: value i = offset + i increment).
+	Fixed bool
+}
+
+// Clock reads the steps and times (in the stored time unit) of a
+// time-dependent element.
+func (r *Reader) Clock(el string) (*Clock, error) { return readClock(r.f, el) }
+
+// readClock reads el/step and el/time, explicit or fixed (H5MD 1.1,
+// "time-dependent data"), for every frame of el/value.
+func readClock(f *h5.File, el string) (*Clock, error) {
+	st, shape, err := f.ReadInt64(el + Step)
 	if err != nil {
-		return nil, nil, fmt.Errorf("no step for %s", el)
+		return nil, fmt.Errorf("no step for %s", el)
 	}
-	tm, tshape, err := r.f.ReadFloat64(el + "/time")
+	tm, tshape, err := f.ReadFloat64(el + Time)
 	if err != nil {
-		return nil, nil, fmt.Errorf("no time for %s", el)
+		return nil, fmt.Errorf("no time for %s", el)
 	}
-	tf, err := r.unitFactor(el+"/time", "au_time")
-	if err != nil {
-		return nil, nil, err
-	}
-	info, _ := r.f.Info(el + "/value")
+	info, err := f.Info(el + Value)
 	T := 0
-	if info.Shape.Rank > 0 {
+	if err == nil && info.Shape.Rank > 0 {
 		T = info.Shape.Dims[0]
 	}
-	steps := make([]int64, T)
-	times := make([]float64, T)
-	if shape.Rank == 0 {
-		var so int64
-		var to float64
-		if a, err := r.f.Attr(el+"/step", "offset"); err == nil && len(a.Ints) == 1 {
-			so = a.Ints[0]
+	c := &Clock{Steps: make([]int64, T), Times: make([]float64, T), Fixed: shape.Rank == 0}
+	if a, err := f.Attr(el+Time, UnitAttr); err == nil && len(a.Strings) == 1 {
+		c.TimeUnit = a.Strings[0]
+	}
+	if c.Fixed {
+		if len(st) != 1 || tshape.Rank != 0 || len(tm) != 1 {
+			return nil, fmt.Errorf("%s: fixed-mode step and time must both be scalars", el)
 		}
-		if a, err := r.f.Attr(el+"/time", "offset"); err == nil && len(a.Floats) == 1 {
-			to = a.Floats[0]
+		so, to := int64(numAttr(f, el+Step, OffsetAttr)), numAttr(f, el+Time, OffsetAttr)
+		for i := range c.Steps {
+			c.Steps[i] = so + int64(i)*st[0]
+			c.Times[i] = to + float64(i)*tm[0]
 		}
-		for i := range steps {
-			steps[i] = so + int64(i)*st[0]
-			times[i] = (to + float64(i)*tm[0]) * tf
-		}
-		return steps, times, nil
+		return c, nil
 	}
 	if len(st) != T || tshape.Rank != 1 || len(tm) != T {
-		return nil, nil, fmt.Errorf("%s: step/time lengths differ from value", el)
+		return nil, fmt.Errorf("%s: step/time lengths differ from value", el)
 	}
-	for i := range steps {
-		steps[i], times[i] = st[i], tm[i]*tf
+	copy(c.Steps, st)
+	copy(c.Times, tm)
+	return c, nil
+}
+
+// numAttr reads a numeric scalar attribute, integer or float; 0 when absent.
+func numAttr(f *h5.File, path, name string) float64 {
+	a, err := f.Attr(path, name)
+	switch {
+	case err != nil:
+		return 0
+	case len(a.Floats) == 1:
+		return a.Floats[0]
+	case len(a.Ints) == 1:
+		return float64(a.Ints[0])
 	}
-	return steps, times, nil
+	return 0
+}
+
+// TimeFormat is the printed format recorded for el's times, if any.
+func (r *Reader) TimeFormat(el string) (textnum.Format, bool) { return r.format(el + Time) }
+
+func (r *Reader) format(path string) (textnum.Format, bool) {
+	a, err := r.f.Attr(path, FormatAttr)
+	if err != nil || len(a.Strings) != 1 {
+		return textnum.Format{}, false
+	}
+	fm, err := textnum.ParseFormat(a.Strings[0])
+	return fm, err == nil
+}
+
+// Element describes a time-dependent element as stored.
+type Element struct {
+	Path  string // the element, e.g. /observables/total_energy
+	Shape h5.Shape
+	Unit  string // "" when dimensionless
+	// Format is the printed format recorded at conversion; Exact says
+	// whether one was recorded.
+	Format textnum.Format
+	Exact  bool
+}
+
+// Width is the number of values per frame.
+func (e *Element) Width() int {
+	w := 1
+	for _, d := range e.Shape.Dims[1:] {
+		w *= d
+	}
+	return w
+}
+
+// Element returns the stored description of el, or nil when the file has
+// no such time-dependent element.
+func (r *Reader) Element(el string) (*Element, error) {
+	if !r.Has(el) {
+		return nil, nil
+	}
+	info, err := r.f.Info(el + Value)
+	if err != nil {
+		return nil, err
+	}
+	if info.Shape.Rank == 0 || info.Shape.Dims[0] != r.T {
+		return nil, fmt.Errorf("%s%s: %v values, want one row per frame (%d)", el, Value, info.Shape.Dims, r.T)
+	}
+	e := &Element{Path: el, Shape: info.Shape}
+	if a, err := r.f.Attr(el+Value, UnitAttr); err == nil && len(a.Strings) == 1 {
+		e.Unit = a.Strings[0]
+	}
+	e.Format, e.Exact = r.format(el + Value)
+	return e, nil
+}
+
+// Raw reads frames [start, start+count) of e's values as stored.
+func (r *Reader) Raw(e *Element, start, count int) ([]float64, error) {
+	return r.f.ReadRows(e.Path+Value, e.Shape, start, count)
 }
 
 // Has reports whether the time-dependent element exists (e.g.
-// "/particles/all/velocity", "/observables/total_energy").
-func (r *Reader) Has(el string) bool { return r.f.Kind(el+"/value") == h5.Dataset }
+// r.Particle(Velocity), TotalEnergy).
+func (r *Reader) Has(el string) bool { return r.f.Kind(el+Value) == h5.Dataset }
 
 // Values reads a whole time-dependent element converted to unit ("" for
 // dimensionless or integer data), with its shape.
 func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
-	v, shape, err := r.f.ReadFloat64(el + "/value")
+	v, shape, err := r.f.ReadFloat64(el + Value)
 	if err != nil {
 		return nil, shape, err
 	}
 	if unit != "" {
-		fct, err := r.unitFactor(el+"/value", unit)
+		fct, err := r.unitFactor(el+Value, unit)
 		if err != nil {
 			return nil, shape, err
 		}
@@ -163,15 +279,15 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 // Frames reads frames [start, start+count) of a per-atom element
 // ([T][N][3]) converted to unit: the streaming path for long runs.
 func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
-	info, err := r.f.Info(el + "/value")
+	info, err := r.f.Info(el + Value)
 	if err != nil {
 		return nil, err
 	}
-	v, err := r.f.ReadRows(el+"/value", info.Shape, start, count)
+	v, err := r.f.ReadRows(el+Value, info.Shape, start, count)
 	if err != nil {
 		return nil, err
 	}
-	fct, err := r.unitFactor(el+"/value", unit)
+	fct, err := r.unitFactor(el+Value, unit)
 	if err != nil {
 		return nil, err
 	}
@@ -183,17 +299,16 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 
 // Hops are the hop attempts of the file (nil when none are stored).
 func (r *Reader) Hops() ([]Hop, error) {
-	const g = "/observables/electronic/hops"
-	if r.f.Kind(g) != h5.Group {
+	if r.f.Kind(HopsGroup) != h5.Group {
 		return nil, nil
 	}
-	st, _, err := r.f.ReadInt64(g + "/step")
+	st, _, err := r.f.ReadInt64(HopStep)
 	if err != nil {
 		return nil, err
 	}
-	from, _, _ := r.f.ReadInt64(g + "/from_state")
-	to, _, _ := r.f.ReadInt64(g + "/to_state")
-	kind, _, _ := r.f.ReadInt64(g + "/kind")
+	from, _, _ := r.f.ReadInt64(HopFrom)
+	to, _, _ := r.f.ReadInt64(HopTo)
+	kind, _, _ := r.f.ReadInt64(HopKind)
 	if len(from) != len(st) || len(to) != len(st) || len(kind) != len(st) {
 		return nil, fmt.Errorf("hops table columns differ in length")
 	}

@@ -86,30 +86,30 @@ func Summarize(path string) (*Summary, error) {
 	if st, err := os.Stat(path); err == nil {
 		s.FileBytes = st.Size()
 	}
-	if a, err := f.Attr("/h5md", "version"); err == nil && len(a.Ints) == 2 {
+	if a, err := f.Attr(H5MDGroup, "version"); err == nil && len(a.Ints) == 2 {
 		s.H5MD = fmt.Sprintf("%d.%d", a.Ints[0], a.Ints[1])
 	}
-	s.Creator = strings.TrimSpace(attrString(f, "/h5md/creator", "name") + " " + attrString(f, "/h5md/creator", "version"))
-	s.Author = attrString(f, "/h5md/author", "name")
-	if f.Kind("/h5md/modules") == h5.Group {
-		mods, _ := f.Links("/h5md/modules")
+	s.Creator = strings.TrimSpace(attrString(f, CreatorGroup, "name") + " " + attrString(f, CreatorGroup, "version"))
+	s.Author = attrString(f, AuthorGroup, "name")
+	if f.Kind(ModulesGroup) == h5.Group {
+		mods, _ := f.Links(ModulesGroup)
 		for _, m := range mods {
-			if a, err := f.Attr("/h5md/modules/"+m, "version"); err == nil && len(a.Ints) == 2 {
+			if a, err := f.Attr(ModulesGroup+"/"+m, "version"); err == nil && len(a.Ints) == 2 {
 				m = fmt.Sprintf("%s %d.%d", m, a.Ints[0], a.Ints[1])
 			}
 			s.Modules = append(s.Modules, m)
 		}
 	}
-	if f.Kind("/particles") == h5.Group {
-		groups, _ := f.Links("/particles")
+	if f.Kind(ParticlesGroup) == h5.Group {
+		groups, _ := f.Links(ParticlesGroup)
 		for _, g := range groups {
-			s.Groups = append(s.Groups, group(f, "/particles/"+g, g))
+			s.Groups = append(s.Groups, group(f, ParticleGroup(g), g))
 		}
 	}
-	if v, _, err := f.ReadInt64("/parameters/n_states"); err == nil && len(v) == 1 {
+	if v, _, err := f.ReadInt64(NStates); err == nil && len(v) == 1 {
 		s.States = int(v[0])
 	}
-	if k, _, err := f.ReadInt64("/observables/electronic/hops/kind"); err == nil {
+	if k, _, err := f.ReadInt64(HopKind); err == nil {
 		s.Hops = &HopSummary{}
 		for _, x := range k {
 			if x == 0 {
@@ -126,7 +126,7 @@ func Summarize(path string) (*Summary, error) {
 	walk = func(p string) {
 		id, _ := f.ObjectID(p)
 		if i, ok := seen[id]; ok {
-			if i >= 0 && strings.Contains(p, "/position/") {
+			if i >= 0 && strings.Contains(p, "/"+Position+"/") {
 				s.Datasets[i].Path = p
 			}
 			return
@@ -144,7 +144,7 @@ func Summarize(path string) (*Summary, error) {
 				return
 			}
 			d := DatasetInfo{Path: p, Type: info.Type.String(), Shape: info.Shape.Dims, Filters: []string{},
-				Unit: attrString(f, p, "unit"), Logical: info.LogicalBytes(), Stored: info.StorageBytes}
+				Unit: attrString(f, p, UnitAttr), Logical: info.LogicalBytes(), Stored: info.StorageBytes}
 			if d.Shape == nil {
 				d.Shape = []int{}
 			}
@@ -174,7 +174,7 @@ func Summarize(path string) (*Summary, error) {
 
 func group(f *h5.File, p, name string) GroupSummary {
 	g := GroupSummary{Name: name}
-	if sp, _, err := f.ReadInt64(p + "/species"); err == nil {
+	if sp, _, err := f.ReadInt64(Particle(p, Species)); err == nil {
 		g.Atoms = len(sp)
 		zs := make([]int, len(sp))
 		for i, z := range sp {
@@ -182,39 +182,22 @@ func group(f *h5.File, p, name string) GroupSummary {
 		}
 		g.Formula = elements.Formula(zs)
 	}
-	info, err := f.Info(p + "/position/value")
+	info, err := f.Info(Particle(p, Position) + Value)
 	if err == nil && info.Shape.Rank == 3 {
 		g.Frames = info.Shape.Dims[0]
 		if g.Atoms == 0 {
 			g.Atoms = info.Shape.Dims[1]
 		}
 	}
-	steps, shape, err := f.ReadInt64(p + "/position/step")
-	if err == nil && shape.Rank == 1 && len(steps) > 0 {
-		g.FirstStep, g.LastStep = steps[0], steps[len(steps)-1]
-		if len(steps) > 1 {
-			g.Stride = steps[1] - steps[0]
+	if c, err := readClock(f, Particle(p, Position)); err == nil && len(c.Steps) > 0 {
+		T := len(c.Steps)
+		g.FirstStep, g.LastStep = c.Steps[0], c.Steps[T-1]
+		g.TimeFirst, g.TimeLast = c.Times[0], c.Times[T-1]
+		if T > 1 {
+			g.Stride = c.Steps[1] - c.Steps[0]
 		}
-	} else if err == nil && shape.Rank == 0 && len(steps) == 1 {
-		// H5MD fixed mode: offset + i increment.
-		var off int64
-		if a, err := f.Attr(p+"/position/step", "offset"); err == nil && len(a.Ints) == 1 {
-			off = a.Ints[0]
-		}
-		g.Stride = steps[0]
-		g.FirstStep, g.LastStep = off, off+steps[0]*int64(max(g.Frames-1, 0))
+		g.TimeUnit = c.TimeUnit
 	}
-	times, tshape, err := f.ReadFloat64(p + "/position/time")
-	if err == nil && tshape.Rank == 1 && len(times) > 0 {
-		g.TimeFirst, g.TimeLast = times[0], times[len(times)-1]
-	} else if err == nil && tshape.Rank == 0 && len(times) == 1 {
-		var off float64
-		if a, err := f.Attr(p+"/position/time", "offset"); err == nil && len(a.Floats) == 1 {
-			off = a.Floats[0]
-		}
-		g.TimeFirst, g.TimeLast = off, off+times[0]*float64(max(g.Frames-1, 0))
-	}
-	g.TimeUnit = attrString(f, p+"/position/time", "unit")
 	if g.LastStep > g.FirstStep {
 		g.StepTime = (g.TimeLast - g.TimeFirst) / float64(g.LastStep-g.FirstStep)
 	}
@@ -228,7 +211,7 @@ func Parameter(path, name string) (string, error) {
 		return "", err
 	}
 	defer f.Close()
-	a, err := f.Attr("/parameters", name)
+	a, err := f.Attr(ParametersGroup, name)
 	if err != nil || len(a.Strings) != 1 {
 		return "", fmt.Errorf("%s: no /parameters@%s", path, name)
 	}

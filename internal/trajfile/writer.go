@@ -118,10 +118,10 @@ func (w *Writer) filtersFor(name string) (h5.Filters, Storage, bool) {
 
 func (w *Writer) storageAttrs(path string, st Storage) {
 	if st.Format != "" {
-		w.do(w.f.SetString(path, "trajvault_format", st.Format))
+		w.do(w.f.SetString(path, FormatAttr, st.Format))
 	}
 	if st.Tolerance > 0 {
-		w.do(w.f.SetFloats(path, "trajvault_tolerance", []float64{st.Tolerance}, true))
+		w.do(w.f.SetFloats(path, ToleranceAttr, []float64{st.Tolerance}, true))
 	}
 }
 
@@ -181,7 +181,7 @@ type Writer struct {
 	closed   bool
 }
 
-const pgroup = "/particles/" + Group
+var pgroup = OurGroup
 
 // Create starts a new trajectory file at path; it fails if path exists.
 func Create(path string, spec Spec) (*Writer, error) {
@@ -244,38 +244,38 @@ func (w *Writer) do(err error) {
 
 func (w *Writer) header() {
 	s, f := w.spec, w.f
-	w.do(f.CreateGroup("/h5md/author"))
-	w.do(f.CreateGroup("/h5md/creator"))
-	w.do(f.SetInts("/h5md", "version", []int32{1, 1}, false))
-	w.do(f.SetString("/h5md/author", "name", s.Author))
+	w.do(f.CreateGroup(AuthorGroup))
+	w.do(f.CreateGroup(CreatorGroup))
+	w.do(f.SetInts(H5MDGroup, "version", []int32{1, 1}, false))
+	w.do(f.SetString(AuthorGroup, "name", s.Author))
 	if s.Email != "" {
-		w.do(f.SetString("/h5md/author", "email", s.Email))
+		w.do(f.SetString(AuthorGroup, "email", s.Email))
 	}
-	w.do(f.SetString("/h5md/creator", "name", s.Creator))
-	w.do(f.SetString("/h5md/creator", "version", s.CreatorVersion))
-	w.do(f.CreateGroup("/h5md/modules/units"))
-	w.do(f.SetInts("/h5md/modules/units", "version", []int32{1, 0}, false))
-	w.do(f.SetString("/h5md/modules/units", "system", "SI"))
+	w.do(f.SetString(CreatorGroup, "name", s.Creator))
+	w.do(f.SetString(CreatorGroup, "version", s.CreatorVersion))
+	w.do(f.CreateGroup(UnitsModule))
+	w.do(f.SetInts(UnitsModule, "version", []int32{1, 0}, false))
+	w.do(f.SetString(UnitsModule, "system", "SI"))
 	if s.NStates > 0 {
-		m := "/h5md/modules/" + ModuleName
+		m := OurModule
 		w.do(f.CreateGroup(m))
 		w.do(f.SetInts(m, "version", ModuleVersion, false))
 	}
-	w.do(f.CreateGroup("/parameters"))
+	w.do(f.CreateGroup(ParametersGroup))
 	if s.Integrator != "" {
-		w.do(f.SetString("/parameters", "integrator", s.Integrator))
+		w.do(f.SetString(ParametersGroup, "integrator", s.Integrator))
 	}
 	if s.Method != "" {
-		w.do(f.SetString("/parameters", "method", s.Method))
+		w.do(f.SetString(ParametersGroup, "method", s.Method))
 	}
 	for _, k := range sortedKeys(s.Attrs) {
-		w.do(f.SetString("/parameters", k, s.Attrs[k]))
+		w.do(f.SetString(ParametersGroup, k, s.Attrs[k]))
 	}
 	if s.TimeStep > 0 {
-		w.scalarFloat("/parameters/time_step", s.TimeStep, s.Units.Time)
+		w.scalarFloat(TimeStep, s.TimeStep, s.Units.Time)
 	}
 	if s.NStates > 0 {
-		ww, err := f.CreateDataset("/parameters/n_states", h5.DatasetSpec{Type: h5.Int32})
+		ww, err := f.CreateDataset(NStates, h5.DatasetSpec{Type: h5.Int32})
 		w.do(err)
 		if err == nil {
 			w.do(ww.Write([]int32{int32(s.NStates)}))
@@ -292,7 +292,7 @@ func (w *Writer) scalarFloat(path string, v float64, unit string) {
 	}
 	w.do(ww.Write([]float64{v}))
 	w.do(ww.Close())
-	w.do(w.f.SetString(path, "unit", unit))
+	w.do(w.f.SetString(path, UnitAttr, unit))
 }
 
 func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DType) {
@@ -304,7 +304,7 @@ func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DT
 	w.do(ww.Write(data))
 	w.do(ww.Close())
 	if unit != "" {
-		w.do(w.f.SetString(path, "unit", unit))
+		w.do(w.f.SetString(path, UnitAttr, unit))
 	}
 }
 
@@ -324,58 +324,58 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	if typ != h5.Float64 {
 		fl = h5.Filters{ScaleOffsetInt: true, Deflate: w.spec.Filters.Deflate, Fletcher32: w.spec.Filters.Fletcher32}
 	}
-	ww, err := w.f.CreateDataset(group+"/value", h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
+	ww, err := w.f.CreateDataset(group+Value, h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
 	w.do(err)
 	if unit != "" {
-		w.do(w.f.SetString(group+"/value", "unit", unit))
+		w.do(w.f.SetString(group+Value, UnitAttr, unit))
 	}
 	if stored {
-		w.storageAttrs(group+"/value", st)
+		w.storageAttrs(group+Value, st)
 	}
 	row := 1
 	for _, d := range shape {
 		row *= d
 	}
-	e := &element{path: group + "/value", row: row, w: ww}
+	e := &element{path: group + Value, row: row, w: ww}
 	if w.step == nil && w.spec.Clock != nil {
 		c := w.spec.Clock
-		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64})
+		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
 		w.do(err)
 		if err == nil {
 			w.do(sw.Write([]int64{c.StepIncrement}))
 			w.do(sw.Close())
 		}
-		w.do(w.f.SetInt64s(group+"/step", "offset", []int64{c.StepOffset}, true))
-		tw, err := w.f.CreateDataset(group+"/time", h5.DatasetSpec{Type: h5.Float64})
+		w.do(w.f.SetInt64s(group+Step, OffsetAttr, []int64{c.StepOffset}, true))
+		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64})
 		w.do(err)
 		if err == nil {
 			w.do(tw.Write([]float64{c.TimeIncrement}))
 			w.do(tw.Close())
 		}
-		w.do(w.f.SetFloats(group+"/time", "offset", []float64{c.TimeOffset}, true))
-		w.do(w.f.SetString(group+"/time", "unit", w.spec.Units.Time))
+		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset}, true))
+		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
 		if _, tst, ok := w.filtersFor("time"); ok {
-			w.storageAttrs(group+"/time", tst)
+			w.storageAttrs(group+Time, tst)
 		}
-		w.step = &element{path: group + "/step", row: 1}
-		w.time = &element{path: group + "/time", row: 1}
+		w.step = &element{path: group + Step, row: 1}
+		w.time = &element{path: group + Time, row: 1}
 	} else if w.step == nil {
-		sw, err := w.f.CreateDataset(group+"/step", h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
+		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
 		w.do(err)
 		tfl, tst, tstored := w.filtersFor("time")
-		tw, err := w.f.CreateDataset(group+"/time", h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
+		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: tfl})
 		w.do(err)
-		w.do(w.f.SetString(group+"/time", "unit", w.spec.Units.Time))
+		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
 		if tstored {
-			w.storageAttrs(group+"/time", tst)
+			w.storageAttrs(group+Time, tst)
 		}
-		w.step = &element{path: group + "/step", row: 1, w: sw}
-		w.time = &element{path: group + "/time", row: 1, w: tw}
+		w.step = &element{path: group + Step, row: 1, w: sw}
+		w.time = &element{path: group + Time, row: 1, w: tw}
 	} else {
-		w.do(w.f.HardLink(pgroup+"/position/step", group+"/step"))
-		w.do(w.f.HardLink(pgroup+"/position/time", group+"/time"))
+		w.do(w.f.HardLink(Particle(pgroup, Position)+Step, group+Step))
+		w.do(w.f.HardLink(Particle(pgroup, Position)+Time, group+Time))
 	}
 	w.elems = append(w.elems, e)
 	return e
@@ -384,18 +384,18 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 func (w *Writer) layout() {
 	s, n := w.spec, w.n
 	d := len(s.Boundary)
-	w.do(w.f.CreateGroup(pgroup + "/box"))
-	w.do(w.f.SetInts(pgroup+"/box", "dimension", []int32{int32(d)}, true))
-	w.do(w.f.SetStrings(pgroup+"/box", "boundary", s.Boundary))
+	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
+	w.do(w.f.SetInts(Particle(pgroup, Box), "dimension", []int32{int32(d)}, true))
+	w.do(w.f.SetStrings(Particle(pgroup, Box), "boundary", s.Boundary))
 	if len(s.Edges) > 0 {
-		w.fixed(pgroup+"/box/edges", s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
+		w.fixed(Particle(pgroup, BoxEdges), s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
 	}
 	sp := make([]int32, n)
 	for i, z := range s.Species {
 		sp[i] = int32(z)
 	}
-	w.fixed(pgroup+"/species", sp, []int{n}, "", h5.Int32)
-	w.fixed(pgroup+"/mass", s.Masses, []int{n}, s.Units.Mass, h5.Float64)
+	w.fixed(Particle(pgroup, Species), sp, []int{n}, "", h5.Int32)
+	w.fixed(Particle(pgroup, Mass), s.Masses, []int{n}, s.Units.Mass, h5.Float64)
 
 	add := func(group string, shape []int, typ h5.DType, unit string, get func(*Frame) ([]float64, error)) {
 		w.timeDep(group, shape, typ, unit)
@@ -422,32 +422,31 @@ func (w *Writer) layout() {
 			return v, nil
 		}
 	}
-	add(pgroup+"/position", []int{n, 3}, h5.Float64, s.Units.Length, vec("position", func(f *Frame) []float64 { return f.Position }))
+	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, s.Units.Length, vec("position", func(f *Frame) []float64 { return f.Position }))
 	if s.Velocity {
-		add(pgroup+"/velocity", []int{n, 3}, h5.Float64, s.Units.Velocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
+		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, s.Units.Velocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
 	}
 	if s.Force {
-		add(pgroup+"/force", []int{n, 3}, h5.Float64, s.Units.Force, vec("force", func(f *Frame) []float64 { return f.Force }))
+		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, s.Units.Force, vec("force", func(f *Frame) []float64 { return f.Force }))
 	}
 	if s.Kinetic {
-		add("/observables/kinetic_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Kinetic }))
+		add(KineticEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Kinetic }))
 	}
 	if s.Potential {
-		add("/observables/potential_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Potential }))
+		add(PotentialEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Potential }))
 	}
 	if s.Total {
-		add("/observables/total_energy", nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Total }))
+		add(TotalEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Total }))
 	}
 	ns := s.NStates
 	if ns <= 0 {
 		return
 	}
-	const el = "/observables/electronic"
 	if s.StateEnergies {
-		add(el+"/state_energies", []int{ns}, h5.Float64, s.Units.Energy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
+		add(StateEnergies, []int{ns}, h5.Float64, s.Units.Energy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
 	}
 	if s.ActiveState {
-		add(el+"/active_state", nil, h5.Int32, "", func(f *Frame) ([]float64, error) {
+		add(ActiveState, nil, h5.Int32, "", func(f *Frame) ([]float64, error) {
 			if f.ActiveState < 0 || f.ActiveState >= ns {
 				return nil, fmt.Errorf("active state %d outside 0..%d", f.ActiveState, ns-1)
 			}
@@ -455,13 +454,13 @@ func (w *Writer) layout() {
 		})
 	}
 	if s.Populations {
-		add(el+"/populations", []int{ns}, h5.Float64, "", sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
+		add(Populations, []int{ns}, h5.Float64, "", sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
 	}
 	if s.Amplitudes {
-		add(el+"/amplitudes", []int{ns, 2}, h5.Float64, "", sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
+		add(Amplitudes, []int{ns, 2}, h5.Float64, "", sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
 	}
 	if s.Couplings {
-		add(el+"/couplings", []int{ns, ns}, h5.Float64, s.Units.InverseTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
+		add(Couplings, []int{ns, ns}, h5.Float64, s.Units.InverseTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
 	}
 }
 
@@ -511,7 +510,7 @@ func (w *Writer) flush() {
 		if e.w == nil {
 			continue
 		}
-		if e.path == "/observables/electronic/active_state/value" {
+		if e.path == ActiveState+Value {
 			iv := make([]int32, len(e.buf))
 			for i, x := range e.buf {
 				iv[i] = int32(x)
@@ -548,7 +547,7 @@ func (w *Writer) WriteHop(h Hop) error {
 }
 
 func (w *Writer) writeHops() {
-	const g = "/observables/electronic/hops"
+	const g = HopsGroup
 	nh := len(w.hops)
 	step := make([]int64, nh)
 	tm := make([]float64, nh)
@@ -562,12 +561,12 @@ func (w *Writer) writeHops() {
 		}
 	}
 	w.do(w.f.CreateGroup(g))
-	w.fixed(g+"/step", step, []int{nh}, "", h5.Int64)
-	w.fixed(g+"/time", tm, []int{nh}, w.spec.Units.Time, h5.Float64)
-	w.fixed(g+"/from_state", from, []int{nh}, "", h5.Int32)
-	w.fixed(g+"/to_state", to, []int{nh}, "", h5.Int32)
-	w.fixed(g+"/kind", kind, []int{nh}, "", h5.Int32)
-	w.do(w.f.SetStrings(g+"/kind", "kind_names", []string{"accepted", "frustrated"}))
+	w.fixed(HopStep, step, []int{nh}, "", h5.Int64)
+	w.fixed(HopTime, tm, []int{nh}, w.spec.Units.Time, h5.Float64)
+	w.fixed(HopFrom, from, []int{nh}, "", h5.Int32)
+	w.fixed(HopTo, to, []int{nh}, "", h5.Int32)
+	w.fixed(HopKind, kind, []int{nh}, "", h5.Int32)
+	w.do(w.f.SetStrings(HopKind, "kind_names", []string{"accepted", "frustrated"}))
 }
 
 // SetParameter writes a string attribute on /parameters, e.g. the
@@ -579,7 +578,7 @@ func (w *Writer) SetParameter(name, value string) error {
 	if w.closed {
 		return errors.New("trajfile: SetParameter after Close")
 	}
-	w.do(w.f.SetString("/parameters", name, value))
+	w.do(w.f.SetString(ParametersGroup, name, value))
 	return w.err
 }
 

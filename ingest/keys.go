@@ -1,4 +1,4 @@
-package pack
+package ingest
 
 // keySeq stores an increasing sequence of (record index, step) pairs as
 // runs of constant stride, so that memory grows with the number of

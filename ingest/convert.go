@@ -1,6 +1,7 @@
-package pack
+package ingest
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"math"
@@ -88,14 +89,8 @@ const maxExactScaled = 1 << 50
 
 // Convert writes one trajectory, scanned by Scan, to out in the layout.
 func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
-	for _, p := range rep.Problems {
-		if p.Severity != "error" {
-			continue
-		}
-		if p.Code == PTruncated && opt.DropPartial {
-			continue
-		}
-		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(p))
+	if p := rep.Refusal(opt.DropPartial); p != nil {
+		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
 	var geo *FileReport
 	for _, f := range rep.Files {
@@ -610,4 +605,25 @@ func mergeRecord(dst, r *record) {
 	if r.hasActive && !dst.hasActive {
 		dst.active, dst.hasActive = r.active, true
 	}
+}
+
+// ErrRefused is returned when a scan found problems that forbid
+// conversion (see TrajReport.Refusal); nothing was written.
+var ErrRefused = errors.New("the logs have problems; nothing written")
+
+// ConvertFiles converts the trajectory made of paths (files, or one
+// folder, as TrajectoryFrom reads them) to out: scan, refuse by the one
+// rule, convert. The report is returned whenever the scan ran, so that
+// the caller can show its problems.
+func ConvertFiles(paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
+	t, err := TrajectoryFrom(paths, opt.Recipe)
+	if err != nil {
+		return nil, nil, err
+	}
+	rep := Scan(t, opt.Options)
+	if rep.Refusal(opt.DropPartial) != nil {
+		return rep, nil, fmt.Errorf("%s: %w", t.Name, ErrRefused)
+	}
+	res, err := Convert(rep, out, opt)
+	return rep, res, err
 }

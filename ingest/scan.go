@@ -1,4 +1,4 @@
-package pack
+package ingest
 
 import (
 	"errors"
@@ -121,6 +121,19 @@ type Options struct {
 
 func (t *TrajReport) add(code, sev, file string, line int, format string, args ...any) {
 	t.Problems = append(t.Problems, Problem{Code: code, Severity: sev, File: file, Line: line, Message: fmt.Sprintf(format, args...)})
+}
+
+// Refusal is the first problem that forbids converting this trajectory,
+// or nil: any error, except a cut last frame when dropPartial is set
+// (that frame is then dropped and recorded). Convert and pack refuse by
+// this one rule, all or nothing.
+func (t *TrajReport) Refusal(dropPartial bool) *Problem {
+	for i, p := range t.Problems {
+		if p.Severity == "error" && !(dropPartial && p.Code == PTruncated) {
+			return &t.Problems[i]
+		}
+	}
+	return nil
 }
 
 // Errors counts problems of severity error.

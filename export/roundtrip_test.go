@@ -1,0 +1,122 @@
+package export_test
+
+import (
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"trajvault/export"
+	"trajvault/ingest"
+	"trajvault/internal/testenv"
+)
+
+// convertDir converts a folder written by testenv.LegacyLogs (in the
+// units it prints) to a trajectory file.
+func convertDir(t *testing.T, dir string) string {
+	t.Helper()
+	out := filepath.Join(t.TempDir(), "out.h5")
+	if _, _, err := ingest.ConvertFiles([]string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Units: testenv.LegacyLogUnits}}); err != nil {
+		t.Fatal(err)
+	}
+	return out
+}
+
+// numberTokens returns the numeric tokens of the atom lines of an
+// (extended) XYZ file, in order.
+func numberTokens(t *testing.T, path string, skipCols int) []string {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var out []string
+	for _, line := range strings.Split(strings.ReplaceAll(string(b), "\r", ""), "\n") {
+		fs := strings.Fields(line)
+		if len(fs) < 4 || strings.Contains(line, "=") {
+			continue
+		}
+		out = append(out, fs[skipCols:]...)
+	}
+	return out
+}
+
+// TestRoundTripDigits: text -> h5 -> text reproduces every number of the
+// corpus digit for digit, in the precision it was printed with.
+func TestRoundTripDigits(t *testing.T) {
+	dir := testenv.LegacyLogs(t, 300)
+	h5path := convertDir(t, dir)
+	out := filepath.Join(t.TempDir(), "x")
+	if _, err := export.Export(h5path, out, export.FormatExtXYZ); err != nil {
+		t.Fatal(err)
+	}
+	src := numberTokens(t, filepath.Join(dir, "geom.extxyz"), 1)
+	got := numberTokens(t, filepath.Join(out, "traj.extxyz"), 1)
+	if len(src) != len(got) || len(src) == 0 {
+		t.Fatalf("%d source numbers, %d exported", len(src), len(got))
+	}
+	bad := 0
+	for i := range src {
+		if src[i] != got[i] {
+			if bad < 5 {
+				t.Errorf("number %d: source %q, exported %q", i, src[i], got[i])
+			}
+			bad++
+		}
+	}
+	if bad > 0 {
+		t.Errorf("%d of %d numbers differ", bad, len(src))
+	}
+	// Tables: every mapped column comes back with its printed digits.
+	csvOut := filepath.Join(t.TempDir(), "c")
+	if _, err := export.Export(h5path, csvOut, export.FormatCSV); err != nil {
+		t.Fatal(err)
+	}
+	exported := readCSV(t, filepath.Join(csvOut, "observables.csv"))
+	srcTab := readWS(t, filepath.Join(dir, "energies.dat"))
+	srcPop := readCSV(t, filepath.Join(dir, "states.csv"))
+	for r := range srcTab {
+		e := exported[r]
+		want := map[string]string{
+			"step": srcTab[r][0], "time[fs]": srcTab[r][1], "kinetic_energy[eV]": srcTab[r][2],
+			"potential_energy[eV]": srcTab[r][3], "total_energy[eV]": srcTab[r][4],
+			"state_energy_0[eV]": srcPop[r]["1"], "state_energy_2[eV]": srcPop[r]["3"], "population_1": srcPop[r]["5"],
+		}
+		for col, w := range want {
+			if e[col] != w {
+				t.Fatalf("row %d %s: source %q, exported %q", r, col, w, e[col])
+			}
+		}
+	}
+}
+
+func readWS(t *testing.T, path string) [][]string {
+	b, _ := os.ReadFile(path)
+	var rows [][]string
+	for _, l := range strings.Split(strings.ReplaceAll(string(b), "\r", ""), "\n") {
+		l = strings.TrimPrefix(l, "\ufeff")
+		if l == "" || l[0] == '!' || l[0] == '#' {
+			continue
+		}
+		rows = append(rows, strings.Fields(l))
+	}
+	return rows
+}
+
+// readCSV returns data rows; for observables.csv, keyed by header.
+func readCSV(t *testing.T, path string) []map[string]string {
+	b, _ := os.ReadFile(path)
+	lines := strings.Split(strings.TrimSpace(string(b)), "\n")
+	header := strings.Split(strings.TrimPrefix(lines[0], "# "), ",")
+	var rows []map[string]string
+	for _, l := range lines[1:] {
+		m := map[string]string{}
+		for i, v := range strings.Split(l, ",") {
+			m[header[i]] = v
+			m[fmt.Sprint(i)] = v
+		}
+		rows = append(rows, m)
+	}
+	return rows
+}

@@ -1,0 +1,76 @@
+package trajfile
+
+// The layout's paths (schema/layout.md), in one place. Everything that
+// reads or writes the layout names its objects through these constants;
+// no other package spells an HDF5 path.
+const (
+	H5MDGroup    = "/h5md"
+	AuthorGroup  = H5MDGroup + "/author"
+	CreatorGroup = H5MDGroup + "/creator"
+	ModulesGroup = H5MDGroup + "/modules"
+	UnitsModule  = ModulesGroup + "/units"
+	OurModule    = ModulesGroup + "/" + ModuleName
+
+	ParticlesGroup   = "/particles"
+	ObservablesGroup = "/observables"
+	ParametersGroup  = "/parameters"
+
+	// Time-dependent observables (H5MD: value, step, time).
+	KineticEnergy   = ObservablesGroup + "/kinetic_energy"
+	PotentialEnergy = ObservablesGroup + "/potential_energy"
+	TotalEnergy     = ObservablesGroup + "/total_energy"
+
+	// The electronic-state module.
+	ElectronicGroup = ObservablesGroup + "/electronic"
+	StateEnergies   = ElectronicGroup + "/state_energies"
+	ActiveState     = ElectronicGroup + "/active_state"
+	Populations     = ElectronicGroup + "/populations"
+	Amplitudes      = ElectronicGroup + "/amplitudes"
+	Couplings       = ElectronicGroup + "/couplings"
+	HopsGroup       = ElectronicGroup + "/hops"
+	HopStep         = HopsGroup + "/step"
+	HopTime         = HopsGroup + "/time"
+	HopFrom         = HopsGroup + "/from_state"
+	HopTo           = HopsGroup + "/to_state"
+	HopKind         = HopsGroup + "/kind"
+
+	// Parameters.
+	NStates  = ParametersGroup + "/n_states"
+	TimeStep = ParametersGroup + "/time_step"
+
+	// Parts of a time-dependent element (H5MD 1.1, "time-dependent data").
+	Value = "/value"
+	Step  = "/step"
+	Time  = "/time"
+
+	// Elements of a particle group (H5MD 1.1, "particles group").
+	Position = "position"
+	Velocity = "velocity"
+	Force    = "force"
+	Species  = "species"
+	Mass     = "mass"
+	Box      = "box"
+	BoxEdges = "box/edges"
+
+	// Attributes trajvault adds to datasets.
+	UnitAttr      = "unit"
+	OffsetAttr    = "offset"
+	FormatAttr    = "trajvault_format"
+	ToleranceAttr = "trajvault_tolerance"
+	// ProvenanceAttr (on /parameters) holds the provenance record.
+	ProvenanceAttr = "trajvault_provenance"
+)
+
+// ParticleGroup is the path of the particle group named name.
+func ParticleGroup(name string) string { return ParticlesGroup + "/" + name }
+
+// OurGroup is the particle group trajvault writes.
+var OurGroup = ParticleGroup(Group)
+
+// Particle is the path of element el (Position, Species, ...) of the
+// particle group at path group.
+func Particle(group, el string) string { return group + "/" + el }
+
+// IntegerValued reports whether an element's values are integers (stored
+// as an integer type): state indices.
+func IntegerValued(el string) bool { return el == ActiveState }
