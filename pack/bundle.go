@@ -11,10 +11,9 @@ import (
 	"strings"
 	"time"
 
-	"trajvault/ingest"
-
 	"github.com/klauspost/compress/zstd"
 
+	"trajvault/ingest"
 	"trajvault/internal/bagit"
 	"trajvault/internal/trajfile"
 	"trajvault/provenance"
@@ -43,7 +42,8 @@ type Converted struct {
 	File   string // path inside the bag, data/...
 }
 
-const trajDir = "data/trajectories"
+// TrajectoryDir is where a bag holds its trajectory files.
+const TrajectoryDir = "data/trajectories"
 
 // WriteBundle writes the payload of a bag into dir (data/...) from
 // converted trajectories, then makes the bag. dir is the caller's

@@ -123,5 +123,5 @@ func firstName(conv []Converted) string {
 	if len(conv) == 0 {
 		return "traj.h5"
 	}
-	return strings.TrimPrefix(conv[0].File, trajDir+"/")
+	return strings.TrimPrefix(conv[0].File, TrajectoryDir+"/")
 }

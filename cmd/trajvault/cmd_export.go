@@ -4,9 +4,9 @@ import (
 	"errors"
 	"fmt"
 
-	"trajvault/export"
-
 	"github.com/spf13/cobra"
+
+	"trajvault/export"
 )
 
 type exportOptions struct {

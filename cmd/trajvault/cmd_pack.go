@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"os"
@@ -9,12 +10,10 @@ import (
 	"strings"
 	"time"
 
-	"trajvault/ingest"
-
 	"github.com/spf13/cobra"
 
 	"trajvault/audit"
-	"trajvault/internal/bagit"
+	"trajvault/ingest"
 	"trajvault/pack"
 )
 
@@ -79,13 +78,13 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runPack(g, o, args[0]) },
+		RunE: func(c *cobra.Command, args []string) error { return runPack(c.Context(), g, o, args[0]) },
 	}
 	o.AddFlags(c)
 	return c
 }
 
-func runPack(g *globals, o packOptions, dir string) error {
+func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	out := filepath.Clean(o.out)
 	if _, err := os.Stat(out); err == nil && !o.force {
 		return &exitError{exitUsage, fmt.Errorf("pack: %s already exists; use --force to replace it", out)}
@@ -154,156 +153,27 @@ func runPack(g *globals, o packOptions, dir string) error {
 			bo.Plots["energy-deviation.svg"] = svg
 		}
 	}
-	if groups := splitGroups(tmp, conv, o); o.split && len(groups) > 1 {
-		return packGroups(g, o, out, tmp, conv, groups, bo)
-	}
-	if err := pack.WriteBundle(tmp, conv, bo); err != nil {
+	lim := pack.Limits{MaxFiles: o.maxFiles, MaxRecordBytes: int64(o.maxRecordGB * 1e9), MaxFileBytes: int64(o.maxFileGB * 1e9)}
+	bags, err := pack.Assemble(ctx, tmp, out, conv, bo, lim, o.split, o.force)
+	if err != nil {
 		return fail(err)
 	}
-	warnLimits(g, tmp, o)
-	if o.force {
-		os.RemoveAll(out)
-	}
-	if err := os.Rename(tmp, out); err != nil {
-		return fail(err)
-	}
-	fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", out, len(conv), strings.Join(bo.Algorithms, ", "), filepath.Join(out, "data", "README.md"))
-	if o.archive != "" {
-		arch := out + "." + o.archive
-		if err := writeArchive(out, arch, o.archive, o.force); err != nil {
-			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	for i, b := range bags {
+		for _, f := range pack.CheckLimits(b.Dir, lim) {
+			fmt.Fprintf(g.stderr, "trajvault: pack: %s\n", f)
 		}
-		fmt.Fprintf(g.stdout, "upload: %s\n", arch)
-	}
-	return nil
-}
-
-func writeArchive(dir, path, kind string, force bool) error {
-	if _, err := os.Stat(path); err == nil && !force {
-		return fmt.Errorf("%s already exists; use --force to replace it", path)
-	}
-	tmp := path + ".partial"
-	f, err := os.Create(tmp)
-	if err != nil {
-		return err
-	}
-	mtime := time.Now().UTC().Truncate(time.Second)
-	if kind == "zip" {
-		err = bagit.WriteZip(dir, f, mtime)
-	} else {
-		err = bagit.WriteTarZst(dir, f, mtime)
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if err != nil {
-		os.Remove(tmp)
-		return err
-	}
-	return os.Rename(tmp, path)
-}
-
-// warnLimits reports what a general-purpose repository may refuse.
-func warnLimits(g *globals, dir string, o packOptions) {
-	var files int
-	var total, biggest int64
-	filepath.Walk(dir, func(p string, info os.FileInfo, err error) error {
-		if err == nil && info.Mode().IsRegular() {
-			files++
-			total += info.Size()
-			biggest = max(biggest, info.Size())
+		if len(bags) > 1 {
+			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(bags), b.Dir, b.Trajectories)
+			continue
 		}
-		return nil
-	})
-	const gb = 1e9
-	if files > o.maxFiles {
-		fmt.Fprintf(g.stderr, "trajvault: pack: warning: %d files exceed the repository limit of %d per record; upload the --archive file instead\n", files, o.maxFiles)
-	}
-	if float64(total) > o.maxRecordGB*gb {
-		fmt.Fprintf(g.stderr, "trajvault: pack: warning: %.1f GB exceed the limit of %g GB per record; split the ensemble into several bundles\n", float64(total)/gb, o.maxRecordGB)
-	}
-	if float64(biggest) > o.maxFileGB*gb {
-		fmt.Fprintf(g.stderr, "trajvault: pack: warning: a file of %.1f GB exceeds the limit of %g GB per file\n", float64(biggest)/gb, o.maxFileGB)
-	}
-}
-
-// metadataFiles is what a bag holds besides its trajectories (card,
-// crate, DataCite, plots, provenance, tag files): reserved when splitting.
-const metadataFiles = 12
-
-// splitGroups partitions the trajectories, in order, into groups that keep
-// each bag within the file and size limits.
-func splitGroups(dir string, conv []pack.Converted, o packOptions) [][]pack.Converted {
-	const gb = 1e9
-	var groups [][]pack.Converted
-	var cur []pack.Converted
-	var size float64
-	for _, c := range conv {
-		st, err := os.Stat(filepath.Join(dir, filepath.FromSlash(c.File)))
-		s := 0.0
-		if err == nil {
-			s = float64(st.Size())
-		}
-		// Two files per trajectory: the data and its provenance.
-		if len(cur) > 0 && (2*(len(cur)+1)+metadataFiles > o.maxFiles || size+s > o.maxRecordGB*gb) {
-			groups = append(groups, cur)
-			cur, size = nil, 0
-		}
-		cur = append(cur, c)
-		size += s
-	}
-	if len(cur) > 0 {
-		groups = append(groups, cur)
-	}
-	return groups
-}
-
-// packGroups writes one bag per group, BUNDLE-1 ... BUNDLE-n, each
-// complete in itself, all or nothing.
-func packGroups(g *globals, o packOptions, out, staging string, conv []pack.Converted, groups [][]pack.Converted, bo pack.BundleOptions) error {
-	var dirs []string
-	cleanup := func() {
-		for _, d := range dirs {
-			os.RemoveAll(d)
-		}
-		os.RemoveAll(staging)
-	}
-	for i, grp := range groups {
-		final := fmt.Sprintf("%s-%d", out, i+1)
-		if _, err := os.Stat(final); err == nil && !o.force {
-			cleanup()
-			return &exitError{exitUsage, fmt.Errorf("pack: %s already exists; use --force to replace it", final)}
-		}
-		d := final + ".partial"
-		os.RemoveAll(d)
-		dirs = append(dirs, d)
-		if err := os.MkdirAll(filepath.Join(d, "data", "trajectories"), 0o755); err != nil {
-			cleanup()
-			return &exitError{exitUsage, err}
-		}
-		for _, c := range grp {
-			if err := os.Rename(filepath.Join(staging, filepath.FromSlash(c.File)), filepath.Join(d, filepath.FromSlash(c.File))); err != nil {
-				cleanup()
-				return &exitError{exitUsage, err}
+		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, "data", "README.md"))
+		if o.archive != "" {
+			arch := b.Dir + "." + o.archive
+			if err := pack.WriteArchive(b.Dir, arch, o.archive, o.force); err != nil {
+				return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 			}
+			fmt.Fprintf(g.stdout, "upload: %s\n", arch)
 		}
-		b := bo
-		b.GroupID, b.GroupIndex, b.GroupCount = filepath.Base(out), i+1, len(groups)
-		if err := pack.WriteBundle(d, grp, b); err != nil {
-			cleanup()
-			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
-		}
-	}
-	os.RemoveAll(staging)
-	for i, d := range dirs {
-		final := strings.TrimSuffix(d, ".partial")
-		if o.force {
-			os.RemoveAll(final)
-		}
-		if err := os.Rename(d, final); err != nil {
-			return &exitError{exitUsage, err}
-		}
-		fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(dirs), final, len(groups[i]))
 	}
 	return nil
 }

@@ -151,12 +151,14 @@ func TestPackKilledLeavesNoBundle(t *testing.T) {
 }
 
 // TestPackSplit: with --split, limits that one bag would exceed give
-// several bags of one group, each valid, each naming its place.
+// several bags of one group, each valid, each naming its place, each
+// within the file limit (9 metadata files + 2 per trajectory: one
+// trajectory per bag at 12).
 func TestPackSplit(t *testing.T) {
 	dir, deposit := packFixture(t, "3", "200")
 	out := filepath.Join(dir, "b")
 	code, o, errs := runCLI("pack", filepath.Join(dir, "logs"), "-o", out, "--deposit", deposit,
-		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--max-files", "15", "--split", "--no-audit")
+		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--max-files", "12", "--split", "--no-audit")
 	if code != 0 {
 		t.Fatalf("exit %d %s %s", code, o, errs)
 	}
@@ -168,6 +170,16 @@ func TestPackSplit(t *testing.T) {
 		}
 		if code, o, _ := runCLI("validate", bag); code != 0 {
 			t.Errorf("%s: %s", bag, o)
+		}
+		files := 0
+		filepath.Walk(bag, func(_ string, fi os.FileInfo, err error) error {
+			if err == nil && fi.Mode().IsRegular() {
+				files++
+			}
+			return nil
+		})
+		if files > 12 {
+			t.Errorf("%s holds %d files, over the limit of 12", bag, files)
 		}
 	}
 }

@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"context"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -15,7 +16,7 @@ import (
 
 func runCLI(args ...string) (int, string, string) {
 	var out, errb bytes.Buffer
-	code := run(args, &globals{stdout: &out, stderr: &errb})
+	code := run(context.Background(), args, &globals{stdout: &out, stderr: &errb})
 	return code, out.String(), errb.String()
 }
 

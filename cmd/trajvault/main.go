@@ -6,11 +6,14 @@
 package main
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"io"
 	"os"
+	"os/signal"
 	"runtime/debug"
+	"syscall"
 
 	"github.com/spf13/cobra"
 )
@@ -95,11 +98,13 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 	return root
 }
 
-// run executes the command line and returns the exit status.
-func run(args []string, g *globals) int {
+// run executes the command line and returns the exit status. Long work
+// takes ctx from here (commands get it with cobra's Command.Context) and
+// stops when it is cancelled.
+func run(ctx context.Context, args []string, g *globals) int {
 	root := newRootCommand(g)
 	root.SetArgs(args)
-	err := root.Execute()
+	err := root.ExecuteContext(ctx)
 	switch {
 	case err == nil:
 		return exitOK
@@ -123,5 +128,10 @@ func isTerminal(f *os.File) bool {
 
 func main() {
 	g := &globals{stdout: os.Stdout, stderr: os.Stderr, stderrTTY: isTerminal(os.Stderr)}
-	os.Exit(run(os.Args[1:], g))
+	// Ctrl-C or a scheduler's SIGTERM cancels the work; outputs are
+	// written atomically, so nothing half-made is left under a final name.
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	code := run(ctx, os.Args[1:], g)
+	stop()
+	os.Exit(code)
 }

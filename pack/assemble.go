@@ -1,0 +1,239 @@
+package pack
+
+import (
+	"context"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+
+	"trajvault/internal/bagit"
+	"trajvault/internal/finding"
+)
+
+// Limits are what a general-purpose repository accepts per record (a
+// deposit), in files and bytes. Zero means no limit.
+type Limits struct {
+	MaxFiles       int
+	MaxRecordBytes int64
+	MaxFileBytes   int64
+}
+
+// Codes of the findings about repository limits.
+const (
+	LTooManyFiles = "R1" // more files than a record may hold
+	LRecordTooBig = "R2" // more bytes than a record may hold
+	LFileTooBig   = "R3" // one file larger than a record may hold
+)
+
+// Bag is one bag written by Assemble.
+type Bag struct {
+	Dir          string
+	Trajectories int
+}
+
+// Assemble writes the bag(s) of a deposit from a staging folder in which
+// the converted trajectories sit at their Converted.File paths. With split
+// set and the limits exceeded, the trajectories are shared, in order,
+// among bags out-1 ... out-n (a bag group, RFC 8493 Bag-Count); otherwise
+// one bag is written at out. All or nothing: bags are built under
+// .partial names and renamed into place at the end; the staging folder
+// is consumed.
+func Assemble(ctx context.Context, staging, out string, conv []Converted, bo BundleOptions, lim Limits, split, force bool) ([]Bag, error) {
+	groups := [][]Converted{conv}
+	if split {
+		groups = splitGroups(staging, conv, bo, lim)
+	}
+	if len(groups) == 1 {
+		if err := WriteBundle(staging, conv, bo); err != nil {
+			return nil, err
+		}
+		if err := replace(staging, out, force); err != nil {
+			return nil, err
+		}
+		return []Bag{{out, len(conv)}}, nil
+	}
+	var dirs []string
+	cleanup := func() {
+		for _, d := range dirs {
+			os.RemoveAll(d)
+		}
+	}
+	for i, grp := range groups {
+		if err := ctx.Err(); err != nil {
+			cleanup()
+			return nil, err
+		}
+		final := fmt.Sprintf("%s-%d", out, i+1)
+		if _, err := os.Stat(final); err == nil && !force {
+			cleanup()
+			return nil, fmt.Errorf("%s already exists; use --force to replace it", final)
+		}
+		d := final + ".partial"
+		os.RemoveAll(d)
+		dirs = append(dirs, d)
+		if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(TrajectoryDir)), 0o755); err != nil {
+			cleanup()
+			return nil, err
+		}
+		for _, c := range grp {
+			if err := os.Rename(filepath.Join(staging, filepath.FromSlash(c.File)), filepath.Join(d, filepath.FromSlash(c.File))); err != nil {
+				cleanup()
+				return nil, err
+			}
+		}
+		b := bo
+		b.GroupID, b.GroupIndex, b.GroupCount = filepath.Base(out), i+1, len(groups)
+		if err := WriteBundle(d, grp, b); err != nil {
+			cleanup()
+			return nil, err
+		}
+	}
+	os.RemoveAll(staging)
+	bags := make([]Bag, len(dirs))
+	for i, d := range dirs {
+		final := strings.TrimSuffix(d, ".partial")
+		if err := replace(d, final, force); err != nil {
+			return nil, err
+		}
+		bags[i] = Bag{final, len(groups[i])}
+	}
+	return bags, nil
+}
+
+// replace renames dir to final; with force an existing final is removed
+// first.
+func replace(dir, final string, force bool) error {
+	if force {
+		os.RemoveAll(final)
+	}
+	return os.Rename(dir, final)
+}
+
+// metadataFiles counts what a bag holds besides the trajectory files and
+// their provenance records: tag files (bagit.txt, bag-info.txt, a payload
+// and a tag manifest per algorithm), the card, the crate, the DataCite
+// record and the plots. Kept sources are counted per trajectory.
+func metadataFiles(bo BundleOptions) int {
+	return 2 + 2*len(bo.Algorithms) + 3 + len(bo.Plots)
+}
+
+// filesOf counts the payload files of one trajectory: its data file, its
+// provenance record and, when kept, its sources.
+func filesOf(c Converted, bo BundleOptions) int {
+	n := 2
+	if bo.KeepSources && c.Report != nil {
+		n += len(c.Report.Files)
+	}
+	return n
+}
+
+// splitGroups partitions the trajectories, in order, into groups that keep
+// each bag within the file and size limits (a trajectory that alone
+// exceeds them gets a bag of its own).
+func splitGroups(dir string, conv []Converted, bo BundleOptions, lim Limits) [][]Converted {
+	var groups [][]Converted
+	var cur []Converted
+	var size int64
+	files := metadataFiles(bo)
+	for _, c := range conv {
+		var s int64
+		if st, err := os.Stat(filepath.Join(dir, filepath.FromSlash(c.File))); err == nil {
+			s = st.Size()
+		}
+		n := filesOf(c, bo)
+		overFiles := lim.MaxFiles > 0 && files+n > lim.MaxFiles
+		overBytes := lim.MaxRecordBytes > 0 && size+s > lim.MaxRecordBytes
+		if len(cur) > 0 && (overFiles || overBytes) {
+			groups = append(groups, cur)
+			cur, size, files = nil, 0, metadataFiles(bo)
+		}
+		cur = append(cur, c)
+		size += s
+		files += n
+	}
+	if len(cur) > 0 {
+		groups = append(groups, cur)
+	}
+	return groups
+}
+
+// CheckLimits reports what a general-purpose repository may refuse of the
+// bag at dir.
+func CheckLimits(dir string, lim Limits) []finding.Finding {
+	var files int
+	var total, biggest int64
+	var big string
+	filepath.Walk(dir, func(p string, info os.FileInfo, err error) error {
+		if err == nil && info.Mode().IsRegular() {
+			files++
+			total += info.Size()
+			if info.Size() > biggest {
+				biggest, big = info.Size(), p
+			}
+		}
+		return nil
+	})
+	const gb = 1e9
+	var out []finding.Finding
+	add := func(code, format string, args ...any) {
+		out = append(out, finding.Finding{Code: code, Severity: finding.Warning, Location: finding.Location{File: dir}, Message: fmt.Sprintf(format, args...)})
+	}
+	if lim.MaxFiles > 0 && files > lim.MaxFiles {
+		add(LTooManyFiles, "%d files exceed the repository limit of %d per record; upload the archive (--archive) or split the bundle (--split)", files, lim.MaxFiles)
+	}
+	if lim.MaxRecordBytes > 0 && total > lim.MaxRecordBytes {
+		add(LRecordTooBig, "%.1f GB exceed the limit of %.3g GB per record; split the ensemble into several bags (--split)", float64(total)/gb, float64(lim.MaxRecordBytes)/gb)
+	}
+	if lim.MaxFileBytes > 0 && biggest > lim.MaxFileBytes {
+		rel, _ := filepath.Rel(dir, big)
+		add(LFileTooBig, "%s (%.1f GB) exceeds the limit of %.3g GB per file", filepath.ToSlash(rel), float64(biggest)/gb, float64(lim.MaxFileBytes)/gb)
+	}
+	return out
+}
+
+// Archive kinds WriteArchive makes.
+const (
+	ArchiveTarZst = "tar.zst"
+	ArchiveZip    = "zip"
+)
+
+// WriteArchive writes the bag at dir as one upload file at path (tar.zst
+// or zip), atomically: a temporary file in the target folder, synced,
+// then renamed into place. An existing path is replaced only with force.
+func WriteArchive(dir, path, kind string, force bool) error {
+	if kind != ArchiveTarZst && kind != ArchiveZip {
+		return fmt.Errorf("archive kind %q: use %s or %s", kind, ArchiveTarZst, ArchiveZip)
+	}
+	if _, err := os.Stat(path); err == nil && !force {
+		return fmt.Errorf("%s already exists; use --force to replace it", path)
+	}
+	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".partial-*")
+	if err != nil {
+		return err
+	}
+	tmp := f.Name()
+	mtime := time.Now().UTC().Truncate(time.Second)
+	if kind == ArchiveZip {
+		err = bagit.WriteZip(dir, f, mtime)
+	} else {
+		err = bagit.WriteTarZst(dir, f, mtime)
+	}
+	if err == nil {
+		err = f.Sync()
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Chmod(tmp, 0o644)
+	}
+	if err == nil {
+		err = os.Rename(tmp, path)
+	}
+	if err != nil {
+		os.Remove(tmp)
+	}
+	return err
+}
