@@ -6,6 +6,9 @@ BIN    := bin/trajvault
 PYTHON ?= /usr/bin/python3
 export TRAJVAULT_PYTHON := $(PYTHON)
 export CGO_ENABLED := 1
+# VERSION is stamped into the binary, and through it into every file and
+# bundle it writes (creator version, provenance, Bag-Software-Agent).
+VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo unknown)
 
 .PHONY: all build demo test deps-build deps-test vet fmt-check fuzz bench clean
 
@@ -23,7 +26,7 @@ deps-test:
 	@.ci/deps.sh test
 
 build: deps-build
-	$(GO) build -o $(BIN) ./cmd/trajvault
+	$(GO) build -ldflags "-X main.version=$(VERSION)" -o $(BIN) ./cmd/trajvault
 
 # demo: the whole job on the invented demo ensemble: legacy text logs are
 # scanned, packed into a BagIt bundle (trajectory files, RO-Crate,

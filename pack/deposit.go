@@ -8,6 +8,7 @@ import (
 	"os"
 	"strings"
 
+	"github.com/github/go-spdx/v2/spdxexp"
 	"github.com/santhosh-tekuri/jsonschema/v5"
 	"gopkg.in/yaml.v3"
 
@@ -116,6 +117,12 @@ func LoadDeposit(path string) (*Deposit, error) {
 	if err := dec.Decode(&d); err != nil && len(problems) == 0 {
 		problems = append(problems, err.Error())
 	}
+	problems = append(problems, d.placeholders()...)
+	if d.License != "" {
+		if ok, _ := spdxexp.ActiveLicense(d.License); !ok {
+			problems = append(problems, fmt.Sprintf("/license: %q is not an identifier of the SPDX License List; write one such as CC-BY-4.0 or CC0-1.0 (https://spdx.org/licenses/)", d.License))
+		}
+	}
 	for i, c := range d.Creators {
 		if c.ORCID != "" && !ValidORCID(c.ORCID) {
 			problems = append(problems, fmt.Sprintf("/creators/%d/orcid: %s fails the ORCID check digit (ISO 7064 MOD 11-2); copy it from orcid.org", i, c.ORCID))
@@ -166,40 +173,124 @@ func ValidORCID(id string) bool {
 	return digits[15] == want
 }
 
-// DepositTemplate is the commented deposit.yaml that init writes.
-const DepositTemplate = `# deposit.yaml: what a repository and a reader need to know about these
-# data (trajvault; checked against schema/deposit.schema.json).
-# Licensing and third-party rights remain the depositor's responsibility.
-deposit: 1
-title: {{.Title}}
-description: >-
-  {{.Description}}
-version: "1.0"
-license: {{.License}}          # SPDX id: CC-BY-4.0 (suggested), CC0-1.0, ...
-keywords: [molecular dynamics, surface hopping, excited states]
-publisher: ""                  # the repository, once chosen
-# identifier: 10.xxxx/xxxxx    # DOI of the dataset, when reserved
-# related_publication: 10.xxxx/xxxxx
-contact:
-  name: "{{.ContactName}}"
-  email: "{{.ContactEmail}}"
-creators:
-{{range .Creators}}  - name: "{{.Name}}"          # Family, Given
-{{if .ORCID}}    orcid: "{{.ORCID}}"
-{{else}}    # orcid: 0000-0000-0000-0000
-{{end}}{{if .Affiliation}}    affiliation: "{{.Affiliation}}"
-{{end}}{{end}}funding: []                    # - {funder: ..., programme: ..., grant: ...}
-simulation:
-  method: "{{.Method}}"
-  electronic_structure: ""     # level of theory and basis
-  # states: 2
-  # time_step_fs: 0.5
-  # electronic_substeps: 20
-  initial_conditions: ""       # e.g. Wigner sampling at 300 K
-  thermostat: none
-  program:
-    name: "{{.ProgramName}}"
-    version: "{{.ProgramVersion}}"
-    # commit: abcdef0
-  # cpu_hours: 0
-`
+// Template values that init writes where the depositor has said nothing;
+// a deposit that still holds one is refused (they would be published).
+const (
+	PlaceholderTitle       = "TITLE OF THE DATA SET"
+	PlaceholderDescription = "What was simulated, why, and what the files hold."
+	PlaceholderCreator     = "Family, Given"
+	PlaceholderEmail       = "name@example.org"
+	PlaceholderProgram     = "PROGRAM"
+	PlaceholderVersion     = "VERSION"
+)
+
+// placeholders names every field that still holds a template value.
+func (d *Deposit) placeholders() []string {
+	var out []string
+	check := func(field, got, placeholder, what string) {
+		if strings.TrimSpace(got) == placeholder {
+			out = append(out, fmt.Sprintf("%s: still the template's %q; %s", field, placeholder, what))
+		}
+	}
+	check("/title", d.Title, PlaceholderTitle, "write the title of the data set")
+	check("/description", d.Description, PlaceholderDescription, "describe what was simulated and what the files hold")
+	for i, c := range d.Creators {
+		check(fmt.Sprintf("/creators/%d/name", i), c.Name, PlaceholderCreator, "write the creator's name as \"Family, Given\"")
+	}
+	if d.Contact != nil {
+		check("/contact/email", d.Contact.Email, PlaceholderEmail, "write the contact's e-mail address")
+	}
+	check("/simulation/program/name", d.Simulation.Program.Name, PlaceholderProgram, "name the simulation program")
+	check("/simulation/program/version", d.Simulation.Program.Version, PlaceholderVersion, "give the program's version")
+	return out
+}
+
+// DepositFields are what init knows when it writes deposit.yaml; empty
+// fields get the template's placeholders, which LoadDeposit refuses.
+type DepositFields struct {
+	Title, Description, License, Method string
+	Creators                            []Creator
+	Contact                             Contact
+	Program                             Program
+}
+
+// RenderDeposit writes deposit.yaml for f through the YAML encoder, so that
+// any text (colons, #, quotes) comes out as valid YAML, with comments that
+// say what each field is for.
+func RenderDeposit(f DepositFields) ([]byte, error) {
+	or := func(v, placeholder string) string {
+		if strings.TrimSpace(v) == "" {
+			return placeholder
+		}
+		return v
+	}
+	if len(f.Creators) == 0 {
+		f.Creators = []Creator{{Name: PlaceholderCreator}}
+	}
+	if f.Contact.Name == "" {
+		f.Contact.Name = f.Creators[0].Name
+	}
+	str := func(v string) *yaml.Node { return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!str", Value: v} }
+	num := func(v string) *yaml.Node { return &yaml.Node{Kind: yaml.ScalarNode, Tag: "!!int", Value: v} }
+	mapping := func(pairs ...any) *yaml.Node {
+		m := &yaml.Node{Kind: yaml.MappingNode}
+		for i := 0; i < len(pairs); i += 3 {
+			k := str(pairs[i].(string))
+			k.Tag = ""
+			v := pairs[i+1].(*yaml.Node)
+			// A comment starting with "> " goes at the end of the line.
+			if c := pairs[i+2].(string); strings.HasPrefix(c, "> ") {
+				v.LineComment = c[2:]
+			} else if c != "" {
+				k.HeadComment = c
+			}
+			m.Content = append(m.Content, k, v)
+		}
+		return m
+	}
+	creators := &yaml.Node{Kind: yaml.SequenceNode}
+	for _, c := range f.Creators {
+		pairs := []any{"name", str(c.Name), "> Family, Given"}
+		if c.ORCID != "" {
+			pairs = append(pairs, "orcid", str(c.ORCID), "")
+		}
+		if c.Affiliation != "" {
+			pairs = append(pairs, "affiliation", str(c.Affiliation), "")
+		}
+		creators.Content = append(creators.Content, mapping(pairs...))
+	}
+	keywords := &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle}
+	for _, k := range []string{"molecular dynamics", "excited states"} {
+		keywords.Content = append(keywords.Content, str(k))
+	}
+	doc := mapping(
+		"deposit", num("1"), "deposit.yaml: what a repository and a reader need to know about these data\n(trajvault; checked by trajvault init --check).\nLicensing and third-party rights remain the depositor's responsibility.",
+		"title", str(or(f.Title, PlaceholderTitle)), "",
+		"description", str(or(f.Description, PlaceholderDescription)), "",
+		"version", str("1.0"), "",
+		"license", str(or(f.License, "CC-BY-4.0")), "> SPDX id: CC-BY-4.0 (suggested), CC0-1.0, ...",
+		"keywords", keywords, "",
+		"publisher", str(""), "the repository, once chosen\nidentifier: 10.xxxx/xxxxx  (DOI of the data set, when reserved)\nrelated_publication: 10.xxxx/xxxxx",
+		"contact", mapping("name", str(f.Contact.Name), "", "email", str(or(f.Contact.Email, PlaceholderEmail)), ""), "",
+		"creators", creators, "",
+		"funding", &yaml.Node{Kind: yaml.SequenceNode, Style: yaml.FlowStyle}, "- {funder: ..., funder_id: ..., programme: ..., grant: ...}",
+		"simulation", mapping(
+			"method", str(f.Method), "",
+			"electronic_structure", str(""), "> level of theory and basis",
+			"initial_conditions", str(""), "states: 2\ntime_step_fs: 0.5\nelectronic_substeps: 20\ne.g. Wigner sampling at 300 K",
+			"thermostat", str("none"), "",
+			"program", mapping("name", str(or(f.Program.Name, PlaceholderProgram)), "",
+				"version", str(or(f.Program.Version, PlaceholderVersion)), "> commit: abcdef0 (optional)"), "cpu_hours: 0",
+		), "",
+	)
+	var b bytes.Buffer
+	enc := yaml.NewEncoder(&b)
+	enc.SetIndent(2)
+	if err := enc.Encode(&yaml.Node{Kind: yaml.DocumentNode, Content: []*yaml.Node{doc}}); err != nil {
+		return nil, err
+	}
+	if err := enc.Close(); err != nil {
+		return nil, err
+	}
+	return b.Bytes(), nil
+}

@@ -2,12 +2,10 @@ package main
 
 import (
 	"bufio"
-	"bytes"
 	"fmt"
 	"os"
 	"strings"
-	"text/template"
-
+	
 	"github.com/spf13/cobra"
 
 	"trajvault/pack"
@@ -28,32 +26,44 @@ type initOptions struct {
 func (o *initOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVarP(&o.out, "output", "o", "deposit.yaml", "file to write (must not exist)")
 	c.Flags().BoolVar(&o.check, "check", false, "check an existing deposit.yaml instead of writing one")
-	c.Flags().StringVar(&o.title, "title", "TITLE OF THE DATA SET", "title")
-	c.Flags().StringVar(&o.desc, "description", "What was simulated, why, and what the files hold.", "description")
+	c.Flags().StringVar(&o.title, "title", "", "title")
+	c.Flags().StringVar(&o.desc, "description", "", "description: what was simulated, why, and what the files hold")
 	c.Flags().StringVar(&o.license, "license", "CC-BY-4.0", "SPDX licence identifier (CC-BY-4.0 suggested, or CC0-1.0)")
 	c.Flags().StringArrayVar(&o.creators, "creator", nil, "creator as \"Family, Given|ORCID|Affiliation\" (repeatable; ORCID and affiliation optional)")
 	c.Flags().StringVar(&o.contact, "contact", "", "contact as \"Name|email\"")
 	c.Flags().StringVar(&o.method, "method", "fewest-switches surface hopping", "dynamics method")
-	c.Flags().StringVar(&o.program, "program", "PROGRAM|VERSION", "simulation program as \"name|version\"")
+	c.Flags().StringVar(&o.program, "program", "", "simulation program as \"name|version\"")
 }
 
 func newInitCommand(g *globals) *cobra.Command {
 	var o initOptions
 	c := &cobra.Command{
-		Use:   "init [-o deposit.yaml]",
+		Use:   "init [FILE]",
 		Short: "Write a commented deposit.yaml template, or check one",
 		Long: `init writes deposit.yaml, the description of a deposit that pack turns into
 RO-Crate and DataCite metadata and the dataset card: title, description,
 licence (SPDX), creators with ORCID and affiliation, funding, and the
 simulation record (method, electronic structure, states, time step,
 initial conditions, program and version). Fill in what the flags did not.
-With --check it validates an existing file and names every field that is
-wrong and what is expected.
+Fields left at the template's placeholders (title, description, creator,
+contact e-mail, program and version) are refused by --check and by pack,
+so that no placeholder is ever published; the licence must be an SPDX
+License List identifier. With --check it validates an existing file and
+names every field that is wrong and what is expected.
 
 Exit status: 0 success (or a valid file), 1 the file has problems,
 2 usage or I/O error.`,
 		Example: "  trajvault init --title \"Photodissociation of tarnol\" --creator \"Doe, Jane|0000-0002-1825-0097|Tarn Valley University\"\n  trajvault init --check deposit.yaml",
-		Args:    cobra.NoArgs,
+		Args:    cobra.MaximumNArgs(1),
+		PreRunE: func(c *cobra.Command, args []string) error {
+			if len(args) == 1 {
+				if c.Flags().Changed("output") && o.out != args[0] {
+					return &exitError{exitUsage, fmt.Errorf("init: give the file once, as FILE or with -o (got %s and %s)", args[0], o.out)}
+				}
+				o.out = args[0]
+			}
+			return nil
+		},
 		RunE: func(c *cobra.Command, args []string) error {
 			if !o.check && !c.Flags().Changed("title") && isTerminal(os.Stdin) && isTerminal(os.Stdout) {
 				prompt(&o)
@@ -80,46 +90,38 @@ func runInit(g *globals, o initOptions) error {
 	if _, err := os.Stat(o.out); err == nil {
 		return &exitError{exitUsage, fmt.Errorf("init: %s already exists; check it with --check, or choose -o", o.out)}
 	}
-	type creator struct{ Name, ORCID, Affiliation string }
-	data := map[string]any{"Title": o.title, "Description": o.desc, "License": o.license, "Method": o.method}
-	var cs []creator
+	f := pack.DepositFields{Title: o.title, Description: o.desc, License: o.license, Method: o.method}
 	for _, c := range o.creators {
 		p := strings.Split(c, "|")
-		cr := creator{Name: strings.TrimSpace(p[0])}
+		cr := pack.Creator{Name: strings.TrimSpace(p[0])}
 		if len(p) > 1 {
 			cr.ORCID = strings.TrimSpace(p[1])
 		}
 		if len(p) > 2 {
 			cr.Affiliation = strings.TrimSpace(p[2])
 		}
-		cs = append(cs, cr)
+		f.Creators = append(f.Creators, cr)
 	}
-	if len(cs) == 0 {
-		cs = []creator{{Name: "Family, Given"}}
-	}
-	data["Creators"] = cs
-	cn, ce := cs[0].Name, "name@example.org"
 	if o.contact != "" {
 		p := strings.SplitN(o.contact, "|", 2)
-		cn = p[0]
+		f.Contact.Name = strings.TrimSpace(p[0])
 		if len(p) > 1 {
-			ce = p[1]
+			f.Contact.Email = strings.TrimSpace(p[1])
 		}
 	}
-	data["ContactName"], data["ContactEmail"] = cn, ce
 	pn := strings.SplitN(o.program, "|", 2)
-	data["ProgramName"], data["ProgramVersion"] = pn[0], ""
+	f.Program.Name = strings.TrimSpace(pn[0])
 	if len(pn) > 1 {
-		data["ProgramVersion"] = pn[1]
+		f.Program.Version = strings.TrimSpace(pn[1])
 	}
-	var b bytes.Buffer
-	if err := template.Must(template.New("d").Parse(pack.DepositTemplate)).Execute(&b, data); err != nil {
-		return err
-	}
-	if err := writeAtomically(o.out, func(f *os.File) error { _, err := f.Write(b.Bytes()); return err }); err != nil {
+	text, err := pack.RenderDeposit(f)
+	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
 	}
-	fmt.Fprintf(g.stdout, "wrote %s; fill in the rest, then: trajvault init --check -o %s\n", o.out, o.out)
+	if err := writeAtomically(o.out, func(w *os.File) error { _, err := w.Write(text); return err }); err != nil {
+		return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
+	}
+	fmt.Fprintf(g.stdout, "wrote %s; fill in the rest, then: trajvault init --check %s\n", o.out, o.out)
 	if _, err := pack.LoadDeposit(o.out); err != nil {
 		fmt.Fprintln(g.stdout, err)
 	}

@@ -30,6 +30,7 @@ type packOptions struct {
 	maxRecordGB float64
 	maxFileGB   float64
 	noAudit     bool
+	require     string
 	split       bool
 }
 
@@ -46,6 +47,7 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.maxRecordGB, "max-record-gb", 50, "repository limit: GB per record (warn above)")
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
 	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the dataset card")
+	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
 
@@ -72,6 +74,12 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("pack: name the bundle folder with -o, e.g. -o deposit-bag")}
+			}
+			if o.require != "" && o.require != "ok" && o.require != "warn" {
+				return &exitError{exitUsage, fmt.Errorf("pack: --require-audit %q: use ok or warn", o.require)}
+			}
+			if o.require != "" && o.noAudit {
+				return &exitError{exitUsage, errors.New("pack: --require-audit needs the audit; drop --no-audit")}
 			}
 			if o.archive != "" && o.archive != "tar.zst" && o.archive != "zip" {
 				return &exitError{exitUsage, fmt.Errorf("pack: --archive %q: use tar.zst or zip", o.archive)}
@@ -142,7 +150,14 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		if err != nil {
 			return fail(err)
 		}
-		bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("Overall verdict: %s; %d of %d trajectories flagged.", rep.Verdict, rep.Flagged, len(rep.Trajectories)))
+		verdict := fmt.Sprintf("%s; %d of %d trajectories flagged", rep.Verdict, rep.Flagged, len(rep.Trajectories))
+		fmt.Fprintf(g.stderr, "trajvault: pack: audit verdict %s (details in the bundle's data/README.md;\n  run trajvault audit --report FILE.html on the bundle for the full report)\n", verdict)
+		if !auditAccepted(rep.Verdict, o.require) {
+			os.RemoveAll(tmp)
+			fmt.Fprintf(g.stderr, "trajvault: pack: --require-audit %s: the audit says %s; nothing written\n", o.require, rep.Verdict)
+			return errFindings
+		}
+		bo.AuditLines = append(bo.AuditLines, "Overall verdict: "+verdict+".")
 		for _, c := range rep.Ensemble {
 			bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("%s: %s - %s", c.Name, c.Verdict, c.Summary))
 		}
@@ -176,4 +191,17 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		}
 	}
 	return nil
+}
+
+// auditAccepted reports whether an audit verdict passes --require-audit
+// (empty: anything passes). A verdict the data cannot give (unknown) is
+// accepted only with warn.
+func auditAccepted(v audit.Verdict, require string) bool {
+	switch require {
+	case "ok":
+		return v == audit.OK || v == audit.NA
+	case "warn":
+		return v != audit.Fail
+	}
+	return true
 }

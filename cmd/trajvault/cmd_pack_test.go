@@ -17,7 +17,8 @@ func packFixture(t *testing.T, trajectories, steps string) (dir, deposit string)
 	deposit = filepath.Join(dir, "deposit.yaml")
 	code, out, errs := runCLI("init", "-o", deposit, "--title", "Invented tarnol ensemble",
 		"--description", "Invented demo data: surface hopping of a model triatomic.",
-		"--creator", "Doe, Jane|0000-0002-1825-0097|Tarn Valley University (fictional)", "--program", "tarnol-md|1.0")
+		"--creator", "Doe, Jane|0000-0002-1825-0097|Tarn Valley University (fictional)", "--program", "tarnol-md|1.0",
+		"--contact", "Jane Doe|jane.doe@example.org")
 	if code != 0 {
 		t.Fatalf("init: %s %s", out, errs)
 	}
@@ -181,5 +182,25 @@ func TestPackSplit(t *testing.T) {
 		if files > 12 {
 			t.Errorf("%s holds %d files, over the limit of 12", bag, files)
 		}
+	}
+}
+
+// TestPackRequireAudit: a planted fault (populations that do not sum to
+// one) fails the audit; pack says so on stderr and, with
+// --require-audit ok, exits 1 and writes nothing (issue 15).
+func TestPackRequireAudit(t *testing.T) {
+	dir, deposit := packFixture(t, "2", "200")
+	logs := filepath.Join(dir, "bad")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "2", "--steps", "200", "--amplitude-scale", "1.2", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	out := filepath.Join(dir, "b")
+	code, _, errs := runCLI("pack", logs, "-o", out, "--deposit", deposit,
+		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--require-audit", "ok")
+	if code != exitFindings || !strings.Contains(errs, "audit verdict fail") {
+		t.Fatalf("exit %d, want 1 with the verdict on stderr:\n%s", code, errs)
+	}
+	if entries, _ := os.ReadDir(dir); len(entries) != 3 {
+		t.Errorf("pack left files behind: %v", entries)
 	}
 }
