@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"os"
 	"strings"
-	
+
 	"github.com/spf13/cobra"
 
 	"trajvault/pack"
