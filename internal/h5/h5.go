@@ -155,10 +155,11 @@ func takeStack() []StackEntry {
 	}
 	defer C.free(unsafe.Pointer(s))
 	var out []StackEntry
-	for _, line := range strings.Split(C.GoStringN(s, C.int(n)), "\n") {
+	for _, line := range strings.Split(string(goBytes(unsafe.Pointer(s), n)), "\x1e") {
 		f := strings.SplitN(line, "\x1f", 4)
 		if len(f) == 4 {
-			out = append(out, StackEntry{Func: f[0], Major: f[1], Minor: f[2], Desc: f[3]})
+			d := strings.Join(strings.Fields(f[3]), " ") // one line
+			out = append(out, StackEntry{Func: f[0], Major: f[1], Minor: f[2], Desc: d})
 		}
 	}
 	return out

@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -298,36 +299,46 @@ func TestOpenImageNoProbe(t *testing.T) {
 	})
 }
 
-// TestMutants opens byte-flipped copies of a small valid file as images
-// and walks and reads everything: errors are fine, crashes and hangs not.
-// Seeded, so a failure names a reproducible mutant.
+// TestMutants opens byte-flipped copies of small valid files, written in
+// each of the three formats, as images and walks and reads everything:
+// errors are fine, crashes and hangs not. Seeded, so a failure names a
+// reproducible mutant; TRAJVAULT_MUTANTS sets the count per format and
+// TRAJVAULT_MUTANT_DUMP a file that holds the mutant being walked.
 func TestMutants(t *testing.T) {
-	n := 300
+	n := 150
 	if testing.Short() {
-		n = 100
+		n = 50
 	}
-	src := filepath.Join(t.TempDir(), "m.h5")
-	build(t, src)
-	raw, _ := os.ReadFile(src)
-	rng := rand.New(rand.NewSource(12))
+	if v, err := strconv.Atoi(os.Getenv("TRAJVAULT_MUTANTS")); err == nil && v > 0 {
+		n = v
+	}
 	base := OpenObjects()
-	opened, visited := 0, 0
-	for i := 0; i < n; i++ {
-		img := bytes.Clone(raw)
-		for k := 0; k < 1+rng.Intn(4); k++ {
-			img[8+rng.Intn(len(img)-8)] ^= byte(1 + rng.Intn(255))
+	for _, form := range []Format{FormatEarliest, Format18, Format110} {
+		src := filepath.Join(t.TempDir(), "m.h5")
+		buildFmt(t, src, CreateOptions{Format: form})
+		raw, _ := os.ReadFile(src)
+		rng := rand.New(rand.NewSource(int64(12 + form)))
+		opened, visited := 0, 0
+		for i := 0; i < n; i++ {
+			img := bytes.Clone(raw)
+			for k := 0; k < 1+rng.Intn(4); k++ {
+				img[8+rng.Intn(len(img)-8)] ^= byte(1 + rng.Intn(255))
+			}
+			if d := os.Getenv("TRAJVAULT_MUTANT_DUMP"); d != "" {
+				os.WriteFile(d, img, 0o644)
+			}
+			f, err := OpenImageWith("mutant.h5", img, OpenOptions{MaxReadBytes: 1 << 20})
+			if err != nil {
+				continue
+			}
+			opened++
+			visited += walk(f, "/", 0, map[ObjectID]bool{})
+			f.Close()
 		}
-		f, err := OpenImageWith("mutant.h5", img, OpenOptions{MaxReadBytes: 1 << 20})
-		if err != nil {
-			continue
+		t.Logf("format %d: %d mutants, %d opened, %d objects visited", form, n, opened, visited)
+		if opened == 0 {
+			t.Errorf("format %d: no mutant opened: the loop tests nothing", form)
 		}
-		opened++
-		visited += walk(f, "/", 0, map[ObjectID]bool{})
-		f.Close()
-	}
-	t.Logf("%d mutants, %d opened, %d objects visited", n, opened, visited)
-	if opened == 0 {
-		t.Error("no mutant opened: the loop tests nothing")
 	}
 	if got := OpenObjects(); got != base {
 		t.Errorf("after mutants: %d open identifiers, want %d", got, base)

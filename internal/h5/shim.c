@@ -78,7 +78,8 @@ static void sb_add(tv_sb *b, const char *s, size_t n) {
 
 static void sb_str(tv_sb *b, const char *s) { if (s) sb_add(b, s, strlen(s)); }
 
-// walk_cb writes one entry as "func\x1fmajor\x1fminor\x1fdesc\n".
+// walk_cb writes one entry as "func\x1fmajor\x1fminor\x1fdesc\x1e"
+// (descriptions may hold newlines: sec2's includes ctime()).
 static herr_t walk_cb(unsigned n, const H5E_error2_t *e, void *data) {
 	(void)n;
 	tv_sb *b = data;
@@ -92,7 +93,7 @@ static herr_t walk_cb(unsigned n, const H5E_error2_t *e, void *data) {
 	sb_str(b, min);
 	sb_add(b, "\x1f", 1);
 	sb_str(b, e->desc);
-	sb_add(b, "\n", 1);
+	sb_add(b, "\x1e", 1);
 	return 0;
 }
 
@@ -383,9 +384,22 @@ char *tv_link_names(tv_ctx *c, hid_t loc, const char *path, long *n, size_t *tot
 	return t.sb.buf;
 }
 
+// probe_name is looked up before listing attributes: the lookup decodes
+// every attribute message without building HDF5's attribute table, whose
+// error path in 1.10 frees table slots that were never filled (seen as a
+// crash in H5A__attr_release_table on byte-flipped files; HDF5 1.10 source,
+// H5Aint.c, H5A__compact_build_table_cb). Once all messages decode, the
+// table build that follows cannot take that path.
+static const char probe_name[] = "\x7ftrajvault-attribute-probe\x7f";
+
 char *tv_attr_names(tv_ctx *c, hid_t loc, const char *path, long *n, size_t *total) {
 	tv_names t = {{0}, 0};
 	hsize_t idx = 0;
+	htri_t ex = H5Aexists_by_name(loc, path, probe_name, c->lapl);
+	if (ex != 0) {
+		if (ex < 0) keep_err();
+		return NULL;
+	}
 	if (H5Aiterate_by_name(loc, path, H5_INDEX_NAME, H5_ITER_INC, &idx, attr_cb, &t, c->lapl) < 0 || t.sb.oom) {
 		keep_err();
 		free(t.sb.buf);
