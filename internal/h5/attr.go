@@ -4,7 +4,11 @@ package h5
 import "C"
 
 import (
+	"bytes"
+	"errors"
 	"fmt"
+	"math"
+	"math/bits"
 	"strings"
 	"unsafe"
 )
@@ -62,16 +66,45 @@ type Shape struct {
 	MaxDims []int
 }
 
-// Len is the number of elements.
+// Len is the number of elements. It never wraps: a count that does not
+// fit in an int (possible only for shapes declared by a damaged or
+// hostile file) gives math.MaxInt. Use Elements to tell.
 func (s Shape) Len() int {
+	n, ok := s.Elements()
+	if !ok || n > math.MaxInt {
+		return math.MaxInt
+	}
+	return int(n)
+}
+
+// Elements is the number of elements by checked multiplication; ok is
+// false when the product of the dimensions overflows 64 bits.
+func (s Shape) Elements() (n uint64, ok bool) {
 	if s.Rank < 0 {
-		return 0
+		return 0, true
 	}
-	n := 1
+	n = 1
 	for _, d := range s.Dims {
-		n *= d
+		if d < 0 {
+			return 0, false
+		}
+		hi, lo := bits.Mul64(n, uint64(d))
+		if hi != 0 {
+			return 0, false
+		}
+		n = lo
 	}
-	return n
+	return n, true
+}
+
+// Bytes is Elements times elemSize, checked the same way.
+func (s Shape) Bytes(elemSize int) (uint64, bool) {
+	n, ok := s.Elements()
+	if !ok || elemSize < 0 {
+		return 0, false
+	}
+	hi, lo := bits.Mul64(n, uint64(elemSize))
+	return lo, hi == 0
 }
 
 func (s Shape) String() string {
@@ -92,14 +125,31 @@ func convertInfo(ci *C.tv_info) (Type, Shape) {
 	t := Type{Class: Class(ci.cls), Size: int(ci.size), Signed: ci.is_signed != 0, VarLen: ci.is_vlen != 0}
 	s := Shape{Rank: int(ci.rank)}
 	for i := 0; i < s.Rank; i++ {
-		s.Dims = append(s.Dims, int(ci.dims[i]))
-		m := int(ci.maxdims[i])
+		s.Dims = append(s.Dims, clampInt(uint64(ci.dims[i])))
+		m := clampInt(uint64(ci.maxdims[i]))
 		if ci.maxdims[i] == C.hsize_t(^uint64(0)) {
 			m = Unlimited
 		}
 		s.MaxDims = append(s.MaxDims, m)
 	}
 	return t, s
+}
+
+// clampInt keeps a declared 64-bit extent from turning negative in an
+// int; math.MaxInt then fails every budget check.
+func clampInt(v uint64) int {
+	if v > math.MaxInt {
+		return math.MaxInt
+	}
+	return int(v)
+}
+
+// goBytes copies n bytes of C memory (C.GoBytes takes an int32 length).
+func goBytes(p unsafe.Pointer, n C.size_t) []byte {
+	if n == 0 {
+		return nil
+	}
+	return bytes.Clone(unsafe.Slice((*byte)(p), int(n)))
 }
 
 // Attr is an attribute read back whole. Exactly one of Ints, Floats and
@@ -118,22 +168,19 @@ type Attr struct {
 func (f *File) AttrNames(path string) ([]string, error) {
 	lock()
 	defer unlock()
+	if err := f.readable("list attributes of", path, ""); err != nil {
+		return nil, err
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	n := C.tv_nattrs(f.id(), p)
-	if n < 0 {
-		return nil, &Error{Op: "list attributes of", Path: path}
+	var n C.long
+	var total C.size_t
+	s := C.tv_attr_names(f.ctx, f.id(), p, &n, &total)
+	if s == nil {
+		return nil, f.fail("list attributes of", path, "", -1)
 	}
-	names := make([]string, 0, int(n))
-	for i := 0; i < int(n); i++ {
-		s := C.tv_attr_name(f.id(), p, C.hsize_t(i))
-		if s == nil {
-			return nil, &Error{Op: "read attribute name on", Path: path}
-		}
-		names = append(names, C.GoString(s))
-		C.free(unsafe.Pointer(s))
-	}
-	return names, nil
+	defer C.free(unsafe.Pointer(s))
+	return unpack(goBytes(unsafe.Pointer(s), total), int(n)), nil
 }
 
 // HasAttr reports whether the object at path has attribute name.
@@ -150,43 +197,78 @@ func (f *File) HasAttr(path, name string) bool {
 	return false
 }
 
-// Attr reads attribute name of the object at path.
+// Attr reads attribute name of the object at path. Numbers and strings
+// are read only when their declared size fits the read budget (else a
+// *LimitError) and numbers only from a sane stored type (else an *Error
+// with ErrUnsupportedType).
 func (f *File) Attr(path, name string) (Attr, error) {
 	lock()
 	defer unlock()
+	if err := f.readable("read attribute", path, name); err != nil {
+		return Attr{}, err
+	}
 	p, n := cstr(path), cstr(name)
 	defer C.free(unsafe.Pointer(p))
 	defer C.free(unsafe.Pointer(n))
 	var ci C.tv_info
-	if C.tv_attr_info(f.id(), p, n, &ci) < 0 {
-		return Attr{}, &Error{Op: "read attribute", Path: path, Name: name}
+	if rc := C.tv_attr_info(f.ctx, f.id(), p, n, &ci); rc < 0 {
+		return Attr{}, f.fail("read attribute", path, name, rc)
 	}
 	a := Attr{Name: name}
 	a.Type, a.Shape = convertInfo(&ci)
-	count := a.Shape.Len()
 	switch a.Type.Class {
-	case ClassInt:
-		a.Ints = make([]int64, count+1)
-		if C.tv_attr_read(f.id(), p, n, C.TV_T_I64, unsafe.Pointer(&a.Ints[0])) < 0 {
-			return a, &Error{Op: "read attribute", Path: path, Name: name}
+	case ClassInt, ClassFloat:
+		count, err := f.checkBudget(path, name, a.Shape, 8)
+		if err != nil {
+			return a, err
 		}
-		a.Ints = a.Ints[:count]
-	case ClassFloat:
-		a.Floats = make([]float64, count+1)
-		if C.tv_attr_read(f.id(), p, n, C.TV_T_F64, unsafe.Pointer(&a.Floats[0])) < 0 {
-			return a, &Error{Op: "read attribute", Path: path, Name: name}
+		code := C.int(C.TV_T_F64)
+		var buf unsafe.Pointer
+		if a.Type.Class == ClassInt {
+			a.Ints = make([]int64, count+1)
+			code, buf = C.TV_T_I64, unsafe.Pointer(&a.Ints[0])
+		} else {
+			a.Floats = make([]float64, count+1)
+			buf = unsafe.Pointer(&a.Floats[0])
 		}
-		a.Floats = a.Floats[:count]
+		if rc := C.tv_attr_read(f.ctx, f.id(), p, n, code, buf, C.size_t(8*(count+1))); rc < 0 {
+			a.Ints, a.Floats = nil, nil
+			return a, f.fail("read attribute", path, name, rc)
+		}
+		if a.Ints != nil {
+			a.Ints = a.Ints[:count]
+		} else {
+			a.Floats = a.Floats[:count]
+		}
 	case ClassString:
-		var total C.size_t
-		s := C.tv_attr_read_strings(f.id(), p, n, &total)
-		if s == nil {
-			return a, &Error{Op: "read string attribute", Path: path, Name: name}
+		count, err := f.checkBudget(path, name, a.Shape, 1)
+		if err != nil {
+			return a, err
 		}
-		a.Strings = unpack(C.GoBytes(unsafe.Pointer(s), C.int(total)), count)
+		var total C.size_t
+		var rc C.int
+		s := C.tv_attr_read_strings(f.ctx, f.id(), p, n, C.size_t(f.budget), &total, &rc)
+		if s == nil {
+			return a, f.fail("read string attribute", path, name, rc)
+		}
+		a.Strings = unpack(goBytes(unsafe.Pointer(s), total), count)
 		C.free(unsafe.Pointer(s))
 	}
 	return a, nil
+}
+
+// checkBudget returns the element count of shape when count*elemSize
+// bytes fit the file's read budget; else a *LimitError.
+func (f *File) checkBudget(path, name string, s Shape, elemSize int) (int, error) {
+	b, ok := s.Bytes(elemSize)
+	if !ok {
+		return 0, &LimitError{File: f.path, Path: path, Name: name, Shape: s, Overflow: true, Limit: f.budget}
+	}
+	if b > uint64(f.budget) {
+		return 0, &LimitError{File: f.path, Path: path, Name: name, Shape: s, Bytes: b, Limit: f.budget}
+	}
+	n, _ := s.Elements()
+	return int(n), nil
 }
 
 // unpack splits n NUL-terminated strings.
@@ -218,12 +300,15 @@ func pack(ss []string) (*C.char, error) {
 	return C.CString(sb.String()), nil
 }
 
+// ErrReadOnly: a write to a file opened for reading.
+var ErrReadOnly = errors.New("file is read-only")
+
 func (f *File) checkWritable(op, path string) error {
 	if !f.open {
-		return &Error{Op: op + " (file closed)", Path: path}
+		return &Error{File: f.path, Op: op, Path: path, Err: ErrClosed}
 	}
 	if !f.writable {
-		return &Error{Op: op + " (file is read-only)", Path: path}
+		return &Error{File: f.path, Op: op, Path: path, Err: ErrReadOnly}
 	}
 	return nil
 }
@@ -263,8 +348,8 @@ func (f *File) setStrings(path, name string, values []string, rank int, vlen boo
 	if vlen {
 		v = 1
 	}
-	if C.tv_attr_write_strings(f.id(), p, n, packed, C.int(len(values)), C.int(rank), v) < 0 {
-		return &Error{Op: "write string attribute", Path: path, Name: name}
+	if rc := C.tv_attr_write_strings(f.ctx, f.id(), p, n, packed, C.int(len(values)), C.int(rank), v); rc < 0 {
+		return f.fail("write string attribute", path, name, rc)
 	}
 	return nil
 }
@@ -273,7 +358,7 @@ func (f *File) setStrings(path, name string, values []string, rank int, vlen boo
 // value), else a 1-D array. H5MD's version attributes are int32[2].
 func (f *File) SetInts(path, name string, values []int32, scalar bool) error {
 	if len(values) == 0 {
-		return &Error{Op: "write empty attribute", Path: path, Name: name}
+		return &Error{File: f.path, Op: "write empty attribute", Path: path, Name: name}
 	}
 	return f.setNum(path, name, C.TV_T_I32, unsafe.Pointer(&values[0]), len(values), scalar)
 }
@@ -281,7 +366,7 @@ func (f *File) SetInts(path, name string, values []int32, scalar bool) error {
 // SetInt64s writes an int64 attribute (scalar or 1-D).
 func (f *File) SetInt64s(path, name string, values []int64, scalar bool) error {
 	if len(values) == 0 {
-		return &Error{Op: "write empty attribute", Path: path, Name: name}
+		return &Error{File: f.path, Op: "write empty attribute", Path: path, Name: name}
 	}
 	return f.setNum(path, name, C.TV_T_I64, unsafe.Pointer(&values[0]), len(values), scalar)
 }
@@ -289,7 +374,7 @@ func (f *File) SetInt64s(path, name string, values []int64, scalar bool) error {
 // SetFloats writes a float64 attribute (scalar or 1-D).
 func (f *File) SetFloats(path, name string, values []float64, scalar bool) error {
 	if len(values) == 0 {
-		return &Error{Op: "write empty attribute", Path: path, Name: name}
+		return &Error{File: f.path, Op: "write empty attribute", Path: path, Name: name}
 	}
 	return f.setNum(path, name, C.TV_T_F64, unsafe.Pointer(&values[0]), len(values), scalar)
 }
@@ -301,7 +386,7 @@ func (f *File) setNum(path, name string, code C.int, buf unsafe.Pointer, n int, 
 		return err
 	}
 	if scalar && n != 1 {
-		return &Error{Op: fmt.Sprintf("write scalar attribute from %d values", n), Path: path, Name: name}
+		return &Error{File: f.path, Op: fmt.Sprintf("write scalar attribute from %d values", n), Path: path, Name: name}
 	}
 	p, nm := cstr(path), cstr(name)
 	defer C.free(unsafe.Pointer(p))
@@ -311,8 +396,8 @@ func (f *File) setNum(path, name string, code C.int, buf unsafe.Pointer, n int, 
 		rank = 0
 	}
 	dims := [1]C.hsize_t{C.hsize_t(n)}
-	if C.tv_attr_write(f.id(), p, nm, code, code, rank, &dims[0], buf) < 0 {
-		return &Error{Op: "write attribute", Path: path, Name: name}
+	if rc := C.tv_attr_write(f.ctx, f.id(), p, nm, code, code, rank, &dims[0], buf); rc < 0 {
+		return f.fail("write attribute", path, name, rc)
 	}
 	return nil
 }

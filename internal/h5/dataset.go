@@ -4,7 +4,10 @@ package h5
 import "C"
 
 import (
+	"errors"
 	"fmt"
+	"math"
+	"slices"
 	"strings"
 	"unsafe"
 )
@@ -73,7 +76,7 @@ func (f *File) CreateGroup(path string) error {
 				return err
 			}
 		default:
-			return &Error{Op: "create group (a non-group object is in the way)", Path: cur}
+			return &Error{File: f.path, Op: "create group", Path: cur, Err: errors.New("a non-group object is in the way")}
 		}
 	}
 	return nil
@@ -89,8 +92,8 @@ func (f *File) HardLink(src, dst string) error {
 	s, d := cstr(src), cstr(dst)
 	defer C.free(unsafe.Pointer(s))
 	defer C.free(unsafe.Pointer(d))
-	if C.tv_hardlink(f.id(), s, d) < 0 {
-		return &Error{Op: "hard-link " + src + " as", Path: dst}
+	if rc := C.tv_hardlink(f.ctx, f.id(), s, d); rc < 0 {
+		return f.fail("hard-link "+src+" as", dst, "", rc)
 	}
 	return nil
 }
@@ -105,8 +108,8 @@ func (f *File) SoftLink(target, dst string) error {
 	s, d := cstr(target), cstr(dst)
 	defer C.free(unsafe.Pointer(s))
 	defer C.free(unsafe.Pointer(d))
-	if C.tv_softlink(f.id(), s, d) < 0 {
-		return &Error{Op: "soft-link " + target + " as", Path: dst}
+	if rc := C.tv_softlink(f.ctx, f.id(), s, d); rc < 0 {
+		return f.fail("soft-link "+target+" as", dst, "", rc)
 	}
 	return nil
 }
@@ -179,9 +182,9 @@ func (f *File) CreateDataset(path string, spec DatasetSpec) (*Writer, error) {
 	if spec.Chunk != nil {
 		chunkp = &chunk[0]
 	}
-	id := C.tv_dset_create(f.id(), p, C.int(spec.Type), C.int(rank), &dims[0], &maxd[0], chunkp, &fl)
+	id := C.tv_dset_create(f.ctx, f.id(), p, C.int(spec.Type), C.int(rank), &dims[0], &maxd[0], chunkp, &fl)
 	if id < 0 {
-		return nil, &Error{Op: "create dataset", Path: path}
+		return nil, f.fail("create dataset", path, "", C.int(max(id, -100)))
 	}
 	return &Writer{f: f, path: path, id: id, dtype: spec.Type, row: row}, nil
 }
@@ -200,16 +203,23 @@ func (f *File) CreateStrings(path string, values []string) error {
 	defer C.free(unsafe.Pointer(packed))
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	id := C.tv_dset_create_strings(f.id(), p, packed, C.int(len(values)), 0)
+	id := C.tv_dset_create_strings(f.ctx, f.id(), p, packed, C.int(len(values)), 0)
 	if id < 0 {
-		return &Error{Op: "create string dataset", Path: path}
+		return f.fail("create string dataset", path, "", C.int(max(id, -100)))
 	}
 	C.tv_dset_close(id)
 	return nil
 }
 
-// memBuf maps a Go slice to its HDF5 memory type and first element.
-func memBuf(data any) (C.int, unsafe.Pointer, int, error) {
+// memBufSize is memBuf with the element size in bytes.
+func memBufSize(data any) (C.int, unsafe.Pointer, int, int, error) {
+	code, p, n, err := memBuf0(data)
+	size := map[C.int]int{C.TV_T_F64: 8, C.TV_T_F32: 4, C.TV_T_I64: 8, C.TV_T_I32: 4, C.TV_T_U8: 1}[code]
+	return code, p, n, size, err
+}
+
+// memBuf0 maps a Go slice to its HDF5 memory type and first element.
+func memBuf0(data any) (C.int, unsafe.Pointer, int, error) {
 	switch d := data.(type) {
 	case []float64:
 		if len(d) == 0 {
@@ -246,7 +256,7 @@ func (w *Writer) Append(data any) error {
 	if w.err != nil {
 		return w.err
 	}
-	code, ptr, n, err := memBuf(data)
+	code, ptr, n, size, err := memBufSize(data)
 	if err != nil {
 		w.err = err
 		return err
@@ -255,13 +265,13 @@ func (w *Writer) Append(data any) error {
 		return nil
 	}
 	if n%w.row != 0 {
-		w.err = &Error{Op: fmt.Sprintf("append %d values (rows of %d)", n, w.row), Path: w.path}
+		w.err = &Error{File: w.f.path, Op: fmt.Sprintf("append %d values (rows of %d) to", n, w.row), Path: w.path, Err: ErrSizeMismatch}
 		return w.err
 	}
 	lock()
 	defer unlock()
-	if C.tv_dset_append(w.id, code, C.hsize_t(n/w.row), ptr) < 0 {
-		w.err = &Error{Op: "append to dataset", Path: w.path}
+	if rc := C.tv_dset_append(w.id, code, C.hsize_t(n/w.row), ptr, C.size_t(n*size)); rc < 0 {
+		w.err = w.f.fail("append to", w.path, "", rc)
 	}
 	return w.err
 }
@@ -271,7 +281,7 @@ func (w *Writer) Write(data any) error {
 	if w.err != nil {
 		return w.err
 	}
-	code, ptr, n, err := memBuf(data)
+	code, ptr, n, size, err := memBufSize(data)
 	if err != nil {
 		w.err = err
 		return err
@@ -281,8 +291,8 @@ func (w *Writer) Write(data any) error {
 	}
 	lock()
 	defer unlock()
-	if C.tv_dset_write(w.id, code, ptr) < 0 {
-		w.err = &Error{Op: "write dataset", Path: w.path}
+	if rc := C.tv_dset_write(w.id, code, ptr, C.size_t(n*size)); rc < 0 {
+		w.err = w.f.fail("write", w.path, "", rc)
 	}
 	return w.err
 }
@@ -300,11 +310,14 @@ func (w *Writer) Close() error {
 	}
 	lock()
 	rc := C.tv_dset_close(w.id)
+	var err error
+	if w.err == nil && rc < 0 {
+		err = w.f.fail("close dataset", w.path, "", rc)
+	}
 	unlock()
 	w.id = -1
-	err := w.err
-	if err == nil && rc < 0 {
-		err = &Error{Op: "close dataset", Path: w.path}
+	if w.err != nil {
+		err = w.err
 	}
 	w.err = errWriterClosed
 	return err
@@ -347,37 +360,57 @@ type DatasetInfo struct {
 	StorageBytes int64 // bytes allocated in the file
 }
 
-// LogicalBytes is the uncompressed size of the data.
-func (d DatasetInfo) LogicalBytes() int64 { return int64(d.Shape.Len()) * int64(d.Type.Size) }
+// LogicalBytes is the uncompressed size of the data; math.MaxInt64 when
+// the declared shape overflows.
+func (d DatasetInfo) LogicalBytes() int64 {
+	b, ok := d.Shape.Bytes(d.Type.Size)
+	if !ok || b > math.MaxInt64 {
+		return math.MaxInt64
+	}
+	return int64(b)
+}
 
-// Info describes the dataset at path.
+// Info describes the dataset at path. A dataset whose data lies outside
+// the file (external storage, virtual dataset) is described and an
+// *ExternalError returned with the description.
 func (f *File) Info(path string) (DatasetInfo, error) {
 	lock()
 	defer unlock()
+	if err := f.readable("describe dataset", path, ""); err != nil {
+		return DatasetInfo{}, err
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
 	var ci C.tv_info
 	var st C.tv_storage
-	if C.tv_dset_info(f.id(), p, &ci, &st) < 0 {
-		return DatasetInfo{}, &Error{Op: "describe dataset", Path: path}
+	rc := C.tv_dset_info(f.ctx, f.id(), p, &ci, &st)
+	if rc < 0 && rc != C.TV_E_EXTERNAL {
+		return DatasetInfo{}, f.fail("describe dataset", path, "", rc)
 	}
 	var d DatasetInfo
 	d.Type, d.Shape = convertInfo(&ci)
-	d.Layout = map[C.int]string{0: "compact", 1: "contiguous", 2: "chunked"}[st.layout]
+	d.Layout = map[C.int]string{0: "compact", 1: "contiguous", 2: "chunked", 3: "virtual"}[st.layout]
+	if st.nexternal > 0 {
+		d.Layout = "external"
+	}
+	if rc == C.TV_E_EXTERNAL {
+		return d, f.fail("describe dataset", path, "", rc)
+	}
 	if st.layout == 2 {
 		for i := 0; i < d.Shape.Rank; i++ {
-			d.Chunk = append(d.Chunk, int(st.chunk[i]))
+			d.Chunk = append(d.Chunk, clampInt(uint64(st.chunk[i])))
 		}
 	}
-	d.StorageBytes = int64(st.storage)
+	d.StorageBytes = int64(min(uint64(st.storage), math.MaxInt64))
 	for i := 0; i < int(st.nfilters); i++ {
 		var id C.uint
 		var name [64]C.char
 		var cd [16]C.uint
 		ncd := C.size_t(len(cd))
-		if C.tv_dset_filter(f.id(), p, C.int(i), &id, &name[0], C.size_t(len(name)), &cd[0], &ncd) < 0 {
-			return d, &Error{Op: "read filter pipeline of", Path: path}
+		if rc := C.tv_dset_filter(f.ctx, f.id(), p, C.int(i), &id, &name[0], C.size_t(len(name)), &cd[0], &ncd); rc < 0 {
+			return d, f.fail("read filter pipeline of", path, "", rc)
 		}
+		name[len(name)-1] = 0
 		fl := Filter{ID: int(id), Name: C.GoString(&name[0])}
 		for j := 0; j < int(ncd) && j < len(cd); j++ {
 			fl.Params = append(fl.Params, uint32(cd[j]))
@@ -387,66 +420,112 @@ func (f *File) Info(path string) (DatasetInfo, error) {
 	return d, nil
 }
 
+// readBlockBytes bounds one H5Dread: long datasets are read by hyperslabs
+// of whole rows of about this size, so the library's own buffers (type
+// conversion, fill values, chunk cache) stay small whatever the shape.
+const readBlockBytes = 8 << 20
+
 // ReadFloat64 reads a whole numeric dataset converted to float64.
 func (f *File) ReadFloat64(path string) ([]float64, Shape, error) {
-	info, err := f.Info(path)
-	if err != nil {
-		return nil, Shape{}, err
-	}
-	out := make([]float64, info.Shape.Len()+1)
-	err = f.read(path, C.TV_T_F64, unsafe.Pointer(&out[0]), nil, nil)
-	return out[:info.Shape.Len()], info.Shape, err
+	return readAll[float64](f, path, C.TV_T_F64)
 }
 
 // ReadInt64 reads a whole integer dataset converted to int64.
 func (f *File) ReadInt64(path string) ([]int64, Shape, error) {
-	info, err := f.Info(path)
-	if err != nil {
-		return nil, Shape{}, err
-	}
-	out := make([]int64, info.Shape.Len()+1)
-	err = f.read(path, C.TV_T_I64, unsafe.Pointer(&out[0]), nil, nil)
-	return out[:info.Shape.Len()], info.Shape, err
+	return readAll[int64](f, path, C.TV_T_I64)
 }
 
 // ReadRows reads rows [start, start+count) along dimension 0 of a dataset
-// with the given shape, converted to float64; used to stream long datasets.
+// with the given shape, converted to float64; used to stream long
+// datasets. shape must be the dataset's own (from Info).
 func (f *File) ReadRows(path string, shape Shape, start, count int) ([]float64, error) {
-	if shape.Rank < 1 || start < 0 || count < 0 || start+count > shape.Dims[0] {
-		return nil, &Error{Op: fmt.Sprintf("read rows %d..%d of", start, start+count), Path: path}
-	}
-	row := shape.Len() / max(shape.Dims[0], 1)
-	out := make([]float64, row*count+1)
-	st := make([]int, shape.Rank)
-	cnt := append([]int(nil), shape.Dims...)
-	st[0], cnt[0] = start, count
-	err := f.read(path, C.TV_T_F64, unsafe.Pointer(&out[0]), st, cnt)
-	return out[:row*count], err
-}
-
-func (f *File) read(path string, code C.int, buf unsafe.Pointer, start, count []int) error {
 	lock()
 	defer unlock()
-	p := cstr(path)
-	defer C.free(unsafe.Pointer(p))
-	var rc C.int
-	if start == nil {
-		rc = C.tv_dset_read(f.id(), p, code, 0, nil, nil, buf)
-	} else {
-		st := make([]C.hsize_t, len(start))
-		ct := make([]C.hsize_t, len(count))
-		for i := range start {
-			st[i], ct[i] = C.hsize_t(start[i]), C.hsize_t(count[i])
-		}
-		rc = C.tv_dset_read(f.id(), p, code, C.int(len(start)), &st[0], &ct[0], buf)
-	}
-	if rc < 0 {
-		return &Error{Op: "read dataset", Path: path}
-	}
-	return nil
+	out, _, err := readRowsLocked[float64](f, path, C.TV_T_F64, &shape, start, count)
+	return out, err
 }
 
-// ReadStrings reads a string dataset, fixed or variable length.
+func readAll[T float64 | int64](f *File, path string, code C.int) ([]T, Shape, error) {
+	lock()
+	defer unlock()
+	return readRowsLocked[T](f, path, code, nil, 0, -1)
+}
+
+// readRowsLocked reads rows [start, start+count) (count -1: to the end)
+// of a numeric dataset, checking the declared shape against the budget
+// before allocating and reading by bounded hyperslabs. want, if set,
+// must equal the dataset's shape.
+func readRowsLocked[T float64 | int64](f *File, path string, code C.int, want *Shape, start, count int) ([]T, Shape, error) {
+	const op = "read dataset"
+	if err := f.readable(op, path, ""); err != nil {
+		return nil, Shape{}, err
+	}
+	p := cstr(path)
+	defer C.free(unsafe.Pointer(p))
+	var ci C.tv_info
+	var rc C.int
+	d := C.tv_dset_open_checked(f.ctx, f.id(), p, &ci, &rc)
+	if d < 0 {
+		return nil, Shape{}, f.fail(op, path, "", rc)
+	}
+	defer C.tv_dset_close(d)
+	_, shape := convertInfo(&ci)
+	if want != nil && (want.Rank != shape.Rank || !slices.Equal(want.Dims, shape.Dims)) {
+		return nil, shape, &Error{File: f.path, Op: fmt.Sprintf("read rows of (shape %s given, file has %s)", want, shape), Path: path, Err: ErrSizeMismatch}
+	}
+	var zero T
+	es := int(unsafe.Sizeof(zero))
+	if shape.Rank <= 0 { // scalar or null dataspace
+		if want != nil {
+			return nil, shape, &Error{File: f.path, Op: "read rows of a scalar", Path: path, Err: ErrSizeMismatch}
+		}
+		if shape.Rank < 0 {
+			return []T{}, shape, nil
+		}
+		out := make([]T, 1)
+		if rc := C.tv_dset_read_block(d, code, 0, nil, nil, unsafe.Pointer(&out[0]), C.size_t(es)); rc < 0 {
+			return nil, shape, f.fail(op, path, "", rc)
+		}
+		return out, shape, nil
+	}
+	rows := shape.Dims[0]
+	if count < 0 {
+		count = rows - start
+	}
+	if start < 0 || count < 0 || start > rows || count > rows-start {
+		return nil, shape, &Error{File: f.path, Op: fmt.Sprintf("read rows %d..%d of", start, start+count), Path: path, Err: ErrSizeMismatch}
+	}
+	sel := shape
+	sel.Dims = slices.Clone(shape.Dims)
+	sel.Dims[0] = count
+	n, err := f.checkBudget(path, "", sel, es)
+	if err != nil {
+		return nil, shape, err
+	}
+	out := make([]T, n)
+	if n == 0 {
+		return out, shape, nil
+	}
+	rowLen := n / count
+	perBlock := max(1, readBlockBytes/max(1, rowLen*es))
+	st := make([]C.hsize_t, shape.Rank)
+	ct := make([]C.hsize_t, shape.Rank)
+	for i := range ct {
+		ct[i] = C.hsize_t(shape.Dims[i])
+	}
+	for r := 0; r < count; r += perBlock {
+		k := min(perBlock, count-r)
+		st[0], ct[0] = C.hsize_t(start+r), C.hsize_t(k)
+		blk := out[r*rowLen : (r+k)*rowLen]
+		if rc := C.tv_dset_read_block(d, code, C.int(shape.Rank), &st[0], &ct[0], unsafe.Pointer(&blk[0]), C.size_t(len(blk)*es)); rc < 0 {
+			return nil, shape, f.fail(op, path, "", rc)
+		}
+	}
+	return out, shape, nil
+}
+
+// ReadStrings reads a string dataset, fixed or variable length, within the
+// read budget.
 func (f *File) ReadStrings(path string) ([]string, error) {
 	info, err := f.Info(path)
 	if err != nil {
@@ -454,34 +533,31 @@ func (f *File) ReadStrings(path string) ([]string, error) {
 	}
 	lock()
 	defer unlock()
+	if err := f.readable("read string dataset", path, ""); err != nil {
+		return nil, err
+	}
+	count, err := f.checkBudget(path, "", info.Shape, 1)
+	if err != nil {
+		return nil, err
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
 	var total C.size_t
-	s := C.tv_dset_read_strings(f.id(), p, &total)
+	var rc C.int
+	s := C.tv_dset_read_strings(f.ctx, f.id(), p, C.size_t(f.budget), &total, &rc)
 	if s == nil {
-		return nil, &Error{Op: "read string dataset", Path: path}
+		return nil, f.fail("read string dataset", path, "", rc)
 	}
 	defer C.free(unsafe.Pointer(s))
-	return unpack(C.GoBytes(unsafe.Pointer(s), C.int(total)), info.Shape.Len()), nil
+	return unpack(goBytes(unsafe.Pointer(s), total), count), nil
 }
 
-// createGroup makes one group: through gonum for files it opened, through
-// the shim for files the shim created.
+// createGroup makes one group.
 func (f *File) createGroup(path string) error {
-	if f.f != nil {
-		g, err := f.f.CreateGroup(path)
-		if err != nil {
-			return &Error{Op: "create group", Path: path}
-		}
-		if err := g.Close(); err != nil {
-			return &Error{Op: "close group", Path: path}
-		}
-		return nil
-	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	if C.tv_group_create(f.raw, p) < 0 {
-		return &Error{Op: "create group", Path: path}
+	if rc := C.tv_group_create(f.ctx, f.raw, p); rc < 0 {
+		return f.fail("create group", path, "", rc)
 	}
 	return nil
 }

@@ -3,26 +3,7 @@ package h5
 // #include "shim.h"
 import "C"
 
-import (
-	"unsafe"
-
-	"gonum.org/v1/hdf5"
-)
-
-// OpenRW opens an existing file for modification. trajvault's commands
-// never modify inputs; tests use it to build fixtures that break one rule.
-func OpenRW(path string) (*File, error) {
-	if err := sniff(path); err != nil {
-		return nil, &OpenError{File: path, Err: err}
-	}
-	lock()
-	defer unlock()
-	f, err := hdf5.OpenFile(path, hdf5.F_ACC_RDWR)
-	if err != nil {
-		return nil, &OpenError{File: path, Err: ErrDamaged}
-	}
-	return &File{f: f, path: path, writable: true, open: true}, nil
-}
+import "unsafe"
 
 // Delete removes the link at path (the object goes when its last link does).
 func (f *File) Delete(path string) error {
@@ -33,8 +14,8 @@ func (f *File) Delete(path string) error {
 	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	if C.tv_delete_link(f.id(), p) < 0 {
-		return &Error{Op: "delete", Path: path}
+	if rc := C.tv_delete_link(f.ctx, f.id(), p); rc < 0 {
+		return f.fail("delete", path, "", rc)
 	}
 	return nil
 }
@@ -49,8 +30,8 @@ func (f *File) DeleteAttr(path, name string) error {
 	p, n := cstr(path), cstr(name)
 	defer C.free(unsafe.Pointer(p))
 	defer C.free(unsafe.Pointer(n))
-	if C.tv_delete_attr(f.id(), p, n) < 0 {
-		return &Error{Op: "delete attribute", Path: path, Name: name}
+	if rc := C.tv_delete_attr(f.ctx, f.id(), p, n); rc < 0 {
+		return f.fail("delete attribute", path, name, rc)
 	}
 	return nil
 }

@@ -12,11 +12,7 @@
 // "/particles/all/position/value".
 package h5
 
-// #cgo LDFLAGS: -lhdf5 -lhdf5_hl
-// #cgo linux,!arm64 CFLAGS: -I/usr/lib/x86_64-linux-gnu/hdf5/serial/include
-// #cgo linux,!arm64 LDFLAGS: -L/usr/lib/x86_64-linux-gnu/hdf5/serial/
-// #cgo linux,arm64 CFLAGS: -I/usr/lib/aarch64-linux-gnu/hdf5/serial/include
-// #cgo linux,arm64 LDFLAGS: -L/usr/lib/aarch64-linux-gnu/hdf5/serial/
+// #cgo pkg-config: hdf5
 // #include "shim.h"
 import "C"
 
@@ -26,23 +22,26 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"runtime"
+	"strconv"
+	"strings"
 	"sync"
+	"syscall"
 	"unsafe"
-
-	"gonum.org/v1/hdf5"
 )
 
 // mu guards every call into the HDF5 C library.
 var mu sync.Mutex
 
 // lock takes the library mutex and pins the goroutine to its OS thread, so
-// that the per-thread error-printing switch set here applies to the calls
-// that follow.
+// that the per-thread error-printing switch and error stack apply to the
+// calls that follow; a stale stack from an earlier call is dropped.
 func lock() {
 	mu.Lock()
 	runtime.LockOSThread()
 	C.tv_quiet()
+	C.tv_err_reset()
 }
 
 func unlock() {
@@ -72,50 +71,263 @@ type OpenError struct {
 func (e *OpenError) Error() string { return e.File + ": " + e.Err.Error() }
 func (e *OpenError) Unwrap() error { return e.Err }
 
-// Error is a failed HDF5 call on one object.
+// StackEntry is one entry of HDF5's error stack.
+type StackEntry struct {
+	Func  string // HDF5 function
+	Major string // error class, e.g. "Low-level I/O"
+	Minor string // e.g. "Write failed"
+	Desc  string // HDF5's own description
+}
+
+// Error is a failed HDF5 operation on one object. Errno is the operating
+// system's error when HDF5 reported one (e.g. ENOSPC on a full disk);
+// errors.Is(err, syscall.ENOSPC) sees it. Stack is HDF5's error stack of
+// the failing call, outermost call first.
 type Error struct {
-	Op   string // what was attempted, e.g. "read attribute"
-	Path string // HDF5 path
-	Name string // attribute name, if any
+	File  string // file name given to Open or Create
+	Op    string // what was attempted, e.g. "read attribute"
+	Path  string // HDF5 path
+	Name  string // attribute name, if any
+	Errno syscall.Errno
+	Stack []StackEntry
+	Err   error // a cause found by this package, if any
 }
 
+// Error reads like "out.h5: write /p/v: no space left on device (HDF5:
+// H5Dwrite: can't write data; ...)".
 func (e *Error) Error() string {
-	if e.Name != "" {
-		return fmt.Sprintf("hdf5: %s %s@%s failed", e.Op, e.Path, e.Name)
+	var b strings.Builder
+	if e.File != "" {
+		b.WriteString(e.File + ": ")
 	}
-	return fmt.Sprintf("hdf5: %s %s failed", e.Op, e.Path)
+	b.WriteString(e.Op + " " + e.Path)
+	if e.Name != "" {
+		b.WriteString("@" + e.Name)
+	}
+	switch {
+	case e.Errno != 0:
+		b.WriteString(": " + e.Errno.Error())
+	case e.Err != nil:
+		b.WriteString(": " + e.Err.Error())
+	default:
+		b.WriteString(": failed")
+	}
+	if len(e.Stack) > 0 {
+		b.WriteString(" (HDF5: " + stackSummary(e.Stack) + ")")
+	}
+	return b.String()
 }
 
-// File is an open HDF5 file: opened through gonum's binding, or created
-// by the shim (which sets file-format properties gonum does not expose).
+// Unwrap gives the cause and the errno, so that errors.Is matches either.
+func (e *Error) Unwrap() []error {
+	var out []error
+	if e.Err != nil {
+		out = append(out, e.Err)
+	}
+	if e.Errno != 0 {
+		out = append(out, e.Errno)
+	}
+	return out
+}
+
+// stackSummary keeps the outermost call and the two innermost entries,
+// where HDF5 says what went wrong.
+func stackSummary(st []StackEntry) string {
+	part := func(s StackEntry) string { return s.Func + ": " + s.Desc }
+	var parts []string
+	if len(st) <= 3 {
+		for _, s := range st {
+			parts = append(parts, part(s))
+		}
+	} else {
+		parts = []string{part(st[0]), "...", part(st[len(st)-2]), part(st[len(st)-1])}
+	}
+	return strings.Join(parts, "; ")
+}
+
+// takeStack collects the error stack kept by the shim for the failing
+// call (caller holds the lock).
+func takeStack() []StackEntry {
+	var n C.size_t
+	s := C.tv_err_take(&n)
+	if s == nil {
+		return nil
+	}
+	defer C.free(unsafe.Pointer(s))
+	var out []StackEntry
+	for _, line := range strings.Split(string(goBytes(unsafe.Pointer(s), n)), "\x1e") {
+		f := strings.SplitN(line, "\x1f", 4)
+		if len(f) == 4 {
+			d := strings.Join(strings.Fields(f[3]), " ") // one line
+			out = append(out, StackEntry{Func: f[0], Major: f[1], Minor: f[2], Desc: d})
+		}
+	}
+	return out
+}
+
+// stackErrno finds the errno HDF5's low-level drivers write into their
+// messages ("..., errno = 28, error message = ..."; HDF5 1.10 source,
+// H5FDsec2.c, the HSYS_GOTO_ERROR macro). The innermost entry wins.
+func stackErrno(st []StackEntry) syscall.Errno {
+	for i := len(st) - 1; i >= 0; i-- {
+		d := st[i].Desc
+		k := strings.Index(d, "errno = ")
+		if k < 0 {
+			continue
+		}
+		d = d[k+len("errno = "):]
+		j := 0
+		for j < len(d) && d[j] >= '0' && d[j] <= '9' {
+			j++
+		}
+		if v, err := strconv.Atoi(d[:j]); err == nil && v > 0 {
+			return syscall.Errno(v)
+		}
+	}
+	return 0
+}
+
+// fail builds the error of a failed shim call from the kept stack, or
+// from a shim failure code (caller holds the lock).
+func (f *File) fail(op, path, name string, rc C.int) error {
+	switch rc {
+	case C.TV_E_EXTERNAL:
+		return f.refusal(path)
+	case C.TV_E_TYPE:
+		return &Error{File: f.path, Op: op, Path: path, Name: name, Err: ErrUnsupportedType}
+	case C.TV_E_SIZE:
+		return &Error{File: f.path, Op: op, Path: path, Name: name, Err: ErrSizeMismatch}
+	case C.TV_E_NOMEM:
+		return &Error{File: f.path, Op: op, Path: path, Name: name, Err: ErrNoMemory}
+	case C.TV_E_RANK:
+		return &Error{File: f.path, Op: op, Path: path, Name: name, Err: ErrRank}
+	}
+	if f.ctx != nil && f.ctx.refused != 0 {
+		return f.refusal(path)
+	}
+	st := takeStack()
+	return &Error{File: f.path, Op: op, Path: path, Name: name, Stack: st, Errno: stackErrno(st)}
+}
+
+// Causes found by this package, carried in Error.Err.
+var (
+	// ErrUnsupportedType: a stored type that cannot be read safely as
+	// numbers (a size other than 1, 2, 4 or 8 bytes, bit fields outside
+	// the element, or a non-numeric class).
+	ErrUnsupportedType = errors.New("stored datatype unfit for reading as numbers")
+	ErrSizeMismatch    = errors.New("selection does not match the dataset or the buffer")
+	ErrNoMemory        = errors.New("out of memory in the HDF5 layer")
+	ErrRank            = fmt.Errorf("rank above %d", C.TV_MAXRANK)
+	ErrClosed          = errors.New("file is closed")
+)
+
+// ErrOutside is matched (errors.Is) by every *ExternalError.
+var ErrOutside = errors.New("refers to data outside the file")
+
+// ExternalError is a refused reference to data outside the file. The
+// target is named but was never opened.
+type ExternalError struct {
+	File   string
+	Path   string // HDF5 path through which the reference was met
+	Kind   string // "external link", "external storage", "virtual dataset source"
+	Target string // file name (":" object name, for links and sources)
+	Reason string // why it was refused
+}
+
+func (e *ExternalError) Error() string {
+	return fmt.Sprintf("%s: %s: %s to %q refused (%s)", e.File, e.Path, e.Kind, e.Target, e.Reason)
+}
+
+func (e *ExternalError) Is(target error) bool { return target == ErrOutside }
+
+func (f *File) refusal(path string) error {
+	kind := map[C.int]string{C.TV_EXT_LINK: "external link", C.TV_EXT_STORAGE: "external storage",
+		C.TV_EXT_VIRTUAL: "virtual dataset source"}[f.ctx.refused]
+	e := &ExternalError{File: f.path, Path: path, Kind: kind,
+		Target: C.GoString(&f.ctx.target[0]), Reason: C.GoString(&f.ctx.reason[0])}
+	f.ctx.refused = 0
+	C.tv_err_reset()
+	return e
+}
+
+// ErrTooLarge is matched (errors.Is) by every *LimitError.
+var ErrTooLarge = errors.New("exceeds the memory budget")
+
+// DefaultMaxReadBytes is the memory one read may allocate unless
+// OpenOptions.MaxReadBytes says otherwise: 512 MiB, so that a few reads
+// alive at once stay under 1 GiB of RSS per command.
+const DefaultMaxReadBytes int64 = 512 << 20
+
+// LimitError is a dataset or attribute whose declared size, in memory,
+// exceeds the read budget or does not fit in 64 bits. Nothing was
+// allocated for it.
+type LimitError struct {
+	File, Path, Name string
+	Shape            Shape
+	Bytes            uint64 // memory the read would need; 0 when it overflows
+	Overflow         bool
+	Limit            int64
+}
+
+func (e *LimitError) Error() string {
+	at := e.Path
+	if e.Name != "" {
+		at += "@" + e.Name
+	}
+	if e.Overflow {
+		return fmt.Sprintf("%s: %s: declared shape %s overflows 64-bit sizes", e.File, at, e.Shape)
+	}
+	return fmt.Sprintf("%s: %s: declared shape %s needs %d bytes, above the read budget of %d (raise it with OpenOptions.MaxReadBytes)",
+		e.File, at, e.Shape, e.Bytes, e.Limit)
+}
+
+func (e *LimitError) Is(target error) bool { return target == ErrTooLarge }
+
+// OpenOptions tune reading. The zero value is the safe default.
+type OpenOptions struct {
+	// MaxReadBytes caps the memory a single read (dataset, rows or
+	// attribute) may allocate; 0 means DefaultMaxReadBytes.
+	MaxReadBytes int64
+	// AllowExternalDir, if set, lets external links, external raw
+	// storage and virtual-dataset sources resolve to regular files inside
+	// this folder (relative names only, no "..", symbolic links resolved
+	// before the check). Empty: all outside data is refused.
+	AllowExternalDir string
+}
+
+// File is an open HDF5 file. It owns one shim file identifier and its
+// access policy; no C type leaves the package.
 type File struct {
-	f        *hdf5.File // nil for files made by Create
-	raw      C.hid_t    // the shim's file id, when f is nil
+	raw      C.hid_t
+	ctx      *C.tv_ctx
 	open     bool
 	path     string
 	writable bool
-	image    unsafe.Pointer // C copy of an in-memory file, freed on Close
+	budget   int64
 }
 
 // signature is the HDF5 format signature; the superblock may sit at byte 0,
 // 512, 1024, 2048, ... (HDF5 File Format Specification, section II.A).
 var signature = []byte{0x89, 'H', 'D', 'F', '\r', '\n', 0x1a, '\n'}
 
-// sniff checks that path is a non-empty file carrying the HDF5 signature,
-// before the C library sees it.
+// sniff checks that path is a regular, non-empty file carrying the HDF5
+// signature, before the C library sees it.
 func sniff(path string) error {
-	fh, err := os.Open(path)
-	if err != nil {
-		return err
-	}
-	defer fh.Close()
-	st, err := fh.Stat()
+	st, err := os.Stat(path)
 	if err != nil {
 		return err
 	}
 	if st.IsDir() {
 		return errors.New("is a directory, not an HDF5 file")
 	}
+	if !st.Mode().IsRegular() {
+		return errors.New("not a regular file (FIFO, device or socket)")
+	}
+	fh, err := os.Open(path)
+	if err != nil {
+		return err
+	}
+	defer fh.Close()
 	if st.Size() == 0 {
 		return ErrEmpty
 	}
@@ -138,9 +350,55 @@ func nextOffset(off int64) int64 {
 	return off * 2
 }
 
-// Open opens an existing file read-only. A missing, empty, non-HDF5 or
-// damaged file gives an *OpenError wrapping the cause.
-func Open(path string) (*File, error) {
+// newCtx makes the access policy of a file (caller holds the lock).
+func newCtx(o OpenOptions) (*C.tv_ctx, error) {
+	var dir *C.char
+	if o.AllowExternalDir != "" {
+		// HDF5 consults these variables before the prefixes set here
+		// (HDF5 1.10 reference manual, H5Pset_elink_prefix,
+		// H5Pset_efile_prefix, H5Pset_virtual_prefix).
+		for _, v := range []string{"HDF5_EXT_PREFIX", "HDF5_EXTFILE_PREFIX", "HDF5_VDS_PREFIX"} {
+			if os.Getenv(v) != "" {
+				return nil, fmt.Errorf("AllowExternalDir cannot be confined while %s is set", v)
+			}
+		}
+		abs, err := filepath.Abs(o.AllowExternalDir)
+		if err == nil {
+			abs, err = filepath.EvalSymlinks(abs)
+		}
+		if err != nil {
+			return nil, fmt.Errorf("AllowExternalDir: %w", err)
+		}
+		dir = C.CString(abs)
+		defer C.free(unsafe.Pointer(dir))
+	}
+	c := C.tv_ctx_new(dir)
+	if c == nil {
+		return nil, &Error{Op: "set up file access", Stack: takeStack(), Err: ErrNoMemory}
+	}
+	return c, nil
+}
+
+func budget(o OpenOptions) int64 {
+	if o.MaxReadBytes > 0 {
+		return o.MaxReadBytes
+	}
+	return DefaultMaxReadBytes
+}
+
+// Open opens an existing file read-only with the default OpenOptions. A
+// missing, empty, non-HDF5 or damaged file gives an *OpenError wrapping
+// the cause.
+func Open(path string) (*File, error) { return OpenWith(path, OpenOptions{}) }
+
+// OpenWith opens an existing file read-only.
+func OpenWith(path string, o OpenOptions) (*File, error) { return openFile(path, o, false) }
+
+// OpenRW opens an existing file for modification. trajvault's commands
+// never modify inputs; tests use it to build fixtures that break one rule.
+func OpenRW(path string) (*File, error) { return openFile(path, OpenOptions{}, true) }
+
+func openFile(path string, o OpenOptions, rw bool) (*File, error) {
 	if err := sniff(path); err != nil {
 		var pe *os.PathError
 		if errors.As(err, &pe) {
@@ -150,16 +408,35 @@ func Open(path string) (*File, error) {
 	}
 	lock()
 	defer unlock()
-	f, err := hdf5.OpenFile(path, hdf5.F_ACC_RDONLY)
+	ctx, err := newCtx(o)
 	if err != nil {
+		return nil, &OpenError{File: path, Err: err}
+	}
+	p := cstr(path)
+	defer C.free(unsafe.Pointer(p))
+	w := C.int(0)
+	if rw {
+		w = 1
+	}
+	id := C.tv_open(ctx, p, w)
+	if id < 0 {
+		C.tv_err_reset()
+		C.tv_ctx_free(ctx)
 		return nil, &OpenError{File: path, Err: ErrDamaged}
 	}
-	return &File{f: f, path: path, open: true}, nil
+	return &File{raw: id, ctx: ctx, path: path, open: true, writable: rw, budget: budget(o)}, nil
 }
 
 // OpenImage opens an HDF5 file held in memory (e.g. read from an archive
-// without unpacking it), read-only. img must stay unchanged until Close.
+// without unpacking it), read-only, with the default OpenOptions. The
+// library keeps its own copy; nothing on disk is looked at, not even a
+// file of the image's name.
 func OpenImage(name string, img []byte) (*File, error) {
+	return OpenImageWith(name, img, OpenOptions{})
+}
+
+// OpenImageWith is OpenImage with options.
+func OpenImageWith(name string, img []byte, o OpenOptions) (*File, error) {
 	if len(img) == 0 {
 		return nil, &OpenError{File: name, Err: ErrEmpty}
 	}
@@ -168,13 +445,19 @@ func OpenImage(name string, img []byte) (*File, error) {
 	}
 	lock()
 	defer unlock()
-	cbuf := C.CBytes(img) // C memory: HDF5 keeps the pointer
-	id := C.tv_open_image(cbuf, C.size_t(len(img)))
+	ctx, err := newCtx(o)
+	if err != nil {
+		return nil, &OpenError{File: name, Err: err}
+	}
+	// H5Pset_file_image copies img during the call, so Go memory may be
+	// passed (cgo rules: C does not keep the pointer).
+	id := C.tv_open_image(unsafe.Pointer(&img[0]), C.size_t(len(img)))
 	if id < 0 {
-		C.free(cbuf)
+		C.tv_err_reset()
+		C.tv_ctx_free(ctx)
 		return nil, &OpenError{File: name, Err: ErrDamaged}
 	}
-	return &File{raw: id, path: name, open: true, image: cbuf}, nil
+	return &File{raw: id, ctx: ctx, path: name, open: true, budget: budget(o)}, nil
 }
 
 // Format selects the oldest HDF5 library whose file format a new file may
@@ -209,34 +492,30 @@ func CreateWith(path string, o CreateOptions) (*File, error) {
 	if _, err := os.Lstat(path); err == nil {
 		return nil, &OpenError{File: path, Err: os.ErrExist}
 	}
+	ctx, err := newCtx(OpenOptions{})
+	if err != nil {
+		return nil, &OpenError{File: path, Err: err}
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
 	id := C.tv_create(p, C.int(o.Format), C.int(o.IstoreK))
 	if id < 0 {
-		return nil, &OpenError{File: path, Err: errors.New("cannot create HDF5 file")}
+		st := takeStack()
+		C.tv_ctx_free(ctx)
+		return nil, &OpenError{File: path, Err: &Error{File: path, Op: "create file", Path: "/", Stack: st, Errno: stackErrno(st)}}
 	}
-	return &File{raw: id, path: path, writable: true, open: true}, nil
+	return &File{raw: id, ctx: ctx, path: path, writable: true, open: true, budget: DefaultMaxReadBytes}, nil
 }
 
-// Create makes a new file; it fails if path exists (outputs are never
-// overwritten silently).
-func Create(path string) (*File, error) {
-	lock()
-	defer unlock()
-	if _, err := os.Lstat(path); err == nil {
-		return nil, &OpenError{File: path, Err: os.ErrExist}
-	}
-	f, err := hdf5.CreateFile(path, hdf5.F_ACC_EXCL)
-	if err != nil {
-		return nil, &OpenError{File: path, Err: errors.New("cannot create HDF5 file")}
-	}
-	return &File{f: f, path: path, writable: true, open: true}, nil
-}
+// Create makes a new file in the library's default (earliest) format; it
+// fails if path exists (outputs are never overwritten silently).
+func Create(path string) (*File, error) { return CreateWith(path, CreateOptions{}) }
 
 // Name is the file name given to Open or Create.
 func (f *File) Name() string { return f.path }
 
-// Close releases the file. It is safe to call twice.
+// Close releases the file; pending writes are flushed, so a full disk may
+// show here first. It is safe to call twice.
 func (f *File) Close() error {
 	if f == nil || !f.open {
 		return nil
@@ -244,29 +523,16 @@ func (f *File) Close() error {
 	lock()
 	defer unlock()
 	f.open = false
-	var failed bool
-	if f.f != nil {
-		failed = f.f.Close() != nil
-		f.f = nil
-	} else {
-		failed = C.tv_close_file(f.raw) < 0
+	var err error
+	if rc := C.tv_close_file(f.raw); rc < 0 {
+		err = f.fail("close file", "/", "", rc)
 	}
-	if f.image != nil {
-		C.free(f.image)
-		f.image = nil
-	}
-	if failed {
-		return &Error{Op: "close file", Path: f.path}
-	}
-	return nil
+	C.tv_ctx_free(f.ctx)
+	f.ctx = nil
+	return err
 }
 
-func (f *File) id() C.hid_t {
-	if f.f != nil {
-		return C.hid_t(f.f.ID())
-	}
-	return f.raw
-}
+func (f *File) id() C.hid_t { return f.raw }
 
 // cstr converts s for C; the caller frees it.
 func cstr(s string) *C.char { return C.CString(s) }
@@ -283,11 +549,11 @@ func OpenObjects() int {
 func LibVersion() string {
 	lock()
 	defer unlock()
-	v, err := hdf5.LibVersion()
-	if err != nil {
+	var a, b, c C.uint
+	if C.tv_libversion(&a, &b, &c) < 0 {
 		return "unknown"
 	}
-	return v.String()
+	return fmt.Sprintf("%d.%d.%d", a, b, c)
 }
 
 // Kind is what a path names.
@@ -315,35 +581,44 @@ func (f *File) Kind(path string) Kind {
 }
 
 func (f *File) kind(path string) Kind {
+	if !f.open {
+		return Missing
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	k := C.tv_kind(f.id(), p)
+	k := C.tv_kind(f.ctx, f.id(), p)
+	f.ctx.refused = 0 // a path through a refused external link is Missing
 	if k < 0 {
 		return Missing
 	}
 	return Kind(k)
 }
 
+// readable reports a closed file as an error (caller holds the lock).
+func (f *File) readable(op, path, name string) error {
+	if !f.open {
+		return &Error{File: f.path, Op: op, Path: path, Name: name, Err: ErrClosed}
+	}
+	return nil
+}
+
 // Links lists the link names in group path, in name order.
 func (f *File) Links(path string) ([]string, error) {
 	lock()
 	defer unlock()
+	if err := f.readable("list links of", path, ""); err != nil {
+		return nil, err
+	}
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
-	n := C.tv_nlinks(f.id(), p)
-	if n < 0 {
-		return nil, &Error{Op: "list links of", Path: path}
+	var n C.long
+	var total C.size_t
+	s := C.tv_link_names(f.ctx, f.id(), p, &n, &total)
+	if s == nil {
+		return nil, f.fail("list links of", path, "", -1)
 	}
-	names := make([]string, 0, int(n))
-	for i := 0; i < int(n); i++ {
-		s := C.tv_link_name(f.id(), p, C.hsize_t(i))
-		if s == nil {
-			return nil, &Error{Op: "read link name in", Path: path}
-		}
-		names = append(names, C.GoString(s))
-		C.free(unsafe.Pointer(s))
-	}
-	return names, nil
+	defer C.free(unsafe.Pointer(s))
+	return unpack(C.GoBytes(unsafe.Pointer(s), C.int(total)), int(n)), nil
 }
 
 // ObjectID identifies an HDF5 object: two paths are hard links to the same
@@ -359,10 +634,13 @@ func (f *File) ObjectID(path string) (ObjectID, error) {
 	defer unlock()
 	p := cstr(path)
 	defer C.free(unsafe.Pointer(p))
+	if err := f.readable("get object identity of", path, ""); err != nil {
+		return ObjectID{}, err
+	}
 	var fileno C.ulong
 	var tok [16]C.uchar
-	if C.tv_object_id(f.id(), p, &fileno, &tok[0]) < 0 {
-		return ObjectID{}, &Error{Op: "get object identity of", Path: path}
+	if rc := C.tv_object_id(f.ctx, f.id(), p, &fileno, &tok[0]); rc < 0 {
+		return ObjectID{}, f.fail("get object identity of", path, "", rc)
 	}
 	id := ObjectID{FileNo: uint64(fileno)}
 	for i := range tok {

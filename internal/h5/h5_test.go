@@ -10,9 +10,12 @@ import (
 )
 
 // build writes a small file exercising every writer feature.
-func build(t *testing.T, path string) {
+func build(t *testing.T, path string) { buildFmt(t, path, CreateOptions{}) }
+
+// buildFmt is build in a chosen file format.
+func buildFmt(t *testing.T, path string, o CreateOptions) {
 	t.Helper()
-	f, err := Create(path)
+	f, err := CreateWith(path, o)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -194,6 +197,17 @@ func TestNoLeaks(t *testing.T) {
 	f.Info("/a/b/x")
 	f.ObjectID("/a/step")
 	f.Kind("/a/dangling")
+	// Calls added with the checked read path, on good and failing inputs.
+	f.ReadRows("/a/b/x", Shape{Rank: 2, Dims: []int{3, 2}}, 1, 2)
+	f.ReadRows("/a/b/x", Shape{Rank: 2, Dims: []int{9, 2}}, 1, 2)
+	f.ReadInt64("/a/step")
+	f.ReadFloat64("/a/names") // strings: refused type
+	f.ReadStrings("/a/b/x")   // numbers: refused type
+	f.Info("/a/missing")
+	f.AttrNames("/a/b/x")
+	f.AttrNames("/a/missing")
+	f.Links("/a/missing")
+	f.ObjectID("/a/missing")
 	if n := OpenObjects(); n != base+1 { // the file itself
 		t.Errorf("while open: %d identifiers, want %d", n, base+1)
 	}
@@ -201,6 +215,20 @@ func TestNoLeaks(t *testing.T) {
 	f.Close()
 	if n := OpenObjects(); n != base {
 		t.Errorf("after close: %d open identifiers, want %d", n, base)
+	}
+	raw, _ := os.ReadFile(path)
+	img, err := OpenImageWith("leak.h5", raw, OpenOptions{AllowExternalDir: filepath.Dir(path), MaxReadBytes: 1 << 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	img.ReadFloat64("/a/b/x")
+	img.Attr("/a/b", "boundary")
+	img.Close()
+	if _, err := img.Links("/"); !errors.Is(err, ErrClosed) {
+		t.Errorf("Links after Close: %v", err)
+	}
+	if n := OpenObjects(); n != base {
+		t.Errorf("after image: %d open identifiers, want %d", n, base)
 	}
 }
 

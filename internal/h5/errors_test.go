@@ -1,0 +1,101 @@
+package h5
+
+import (
+	"errors"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"syscall"
+	"testing"
+)
+
+// TestErrorStack provokes failures and checks that the error carries the
+// file name, HDF5's error stack and, where the OS said why, the errno.
+func TestErrorStack(t *testing.T) {
+	dir := t.TempDir()
+	// open(2) of a path whose folder is missing fails with ENOENT (POSIX,
+	// open: "A component of path does not name an existing file").
+	missing := filepath.Join(dir, "no-such-folder", "out.h5")
+	_, err := Create(missing)
+	var he *Error
+	if !errors.As(err, &he) || !errors.Is(err, syscall.ENOENT) || len(he.Stack) == 0 {
+		t.Fatalf("create in a missing folder: %#v (%v), want *Error with ENOENT and a stack", err, err)
+	}
+	if msg := err.Error(); !strings.Contains(msg, missing) || !strings.Contains(msg, "no such file or directory") || !strings.Contains(msg, "(HDF5: ") {
+		t.Errorf("message %q lacks the file, the errno text or the stack", msg)
+	}
+
+	path := filepath.Join(dir, "s.h5")
+	build(t, path)
+	f, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	_, _, err = f.ReadFloat64("/a/missing")
+	if !errors.As(err, &he) || he.File != path || he.Path != "/a/missing" || he.Errno != 0 {
+		t.Fatalf("read of a missing dataset: %#v", err)
+	}
+	found := false
+	for _, s := range he.Stack {
+		found = found || s.Func == "H5Dopen2"
+	}
+	if !found {
+		t.Errorf("stack %+v has no H5Dopen2 entry", he.Stack)
+	}
+	// The stack belongs to the failing call only: a good call after it
+	// succeeds and the next failure carries its own stack.
+	if _, _, err := f.ReadFloat64("/a/b/x"); err != nil {
+		t.Fatal(err)
+	}
+	_, err = f.Attr("/a", "nope")
+	if !errors.As(err, &he) || he.Name != "nope" || len(he.Stack) == 0 || he.Stack[0].Func != "H5Aopen_by_name" {
+		t.Errorf("missing attribute: %#v", err)
+	}
+	// Writes to a read-only file never reach HDF5.
+	if err := f.SetString("/a", "x", "y"); !errors.Is(err, ErrReadOnly) {
+		t.Errorf("write to read-only file: %v", err)
+	}
+}
+
+// TestFullDisk fills a 5 MiB tmpfs: the write error must say "no space
+// left on device" (ENOSPC) and name the output file. Mounting needs root
+// and is done only when TRAJVAULT_ALLOW_MOUNT=1 permits it.
+func TestFullDisk(t *testing.T) {
+	if os.Getenv("TRAJVAULT_ALLOW_MOUNT") != "1" || os.Geteuid() != 0 {
+		t.Skip("full-disk test skipped: needs root and TRAJVAULT_ALLOW_MOUNT=1 to mount a 5 MiB tmpfs")
+	}
+	mnt := t.TempDir()
+	if out, err := exec.Command("mount", "-t", "tmpfs", "-o", "size=5m", "tmpfs", mnt).CombinedOutput(); err != nil {
+		t.Skipf("full-disk test skipped: mount failed: %v %s", err, out)
+	}
+	defer exec.Command("umount", mnt).Run()
+	out := filepath.Join(mnt, "out.h5")
+	f, err := Create(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := f.CreateDataset("/particles/all/position/value", DatasetSpec{Type: Float64, Dims: []int{0, 3},
+		MaxDims: []int{Unlimited, 3}, Chunk: []int{4096, 3}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	block := make([]float64, 3*65536) // 1.5 MiB per append
+	for i := 0; i < 10 && err == nil; i++ {
+		err = w.Append(block)
+	}
+	if cerr := w.Close(); err == nil {
+		err = cerr
+	}
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	if !errors.Is(err, syscall.ENOSPC) {
+		t.Fatalf("15 MiB into 5 MiB: %v, want ENOSPC", err)
+	}
+	if msg := err.Error(); !strings.Contains(msg, out) || !strings.Contains(msg, "no space left on device") {
+		t.Errorf("message %q lacks the file or the cause", msg)
+	}
+	t.Log(err)
+}
