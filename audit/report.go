@@ -185,6 +185,9 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 	}
 	var flagged []flaggedRow
 	for _, t := range rep.Trajectories {
+		if t.Error != "" {
+			flagged = append(flagged, flaggedRow{File: filepath.Base(t.File), Check: "(file)", Summary: "cannot audit: " + t.Error, Verdict: t.Verdict})
+		}
 		for _, c := range t.Checks {
 			if c.Verdict == Fail || c.Verdict == Warn {
 				flagged = append(flagged, flaggedRow{File: filepath.Base(t.File), Check: c.Name, Summary: c.Summary, Verdict: c.Verdict})

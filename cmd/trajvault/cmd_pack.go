@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"os"
@@ -139,7 +140,7 @@ func runPack(g *globals, o packOptions, dir string) error {
 		for _, c := range conv {
 			files = append(files, filepath.Join(tmp, filepath.FromSlash(c.File)))
 		}
-		rep, err := audit.Ensemble(files, audit.DefaultSettings, o.jobs)
+		rep, err := audit.Ensemble(context.Background(), files, audit.DefaultSettings, o.jobs)
 		if err != nil {
 			return fail(err)
 		}
