@@ -138,7 +138,7 @@ func File(ctx context.Context, path string, s Settings) (*Result, error) {
 	}
 	defer r.Close()
 	a := &auditor{ctx: ctx, r: r, s: s, res: &Result{File: path, Frames: r.T, Atoms: r.N}}
-	if err := a.run(); err != nil {
+	if err := a.safeRun(); err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	a.res.Verdict = worst(a.res.Checks)
@@ -176,6 +176,17 @@ type auditor struct {
 	pops, amps []float64 // per frame x state; amps as re, im pairs
 	cpl        []float64 // couplings, au_time-1
 	cplErr     error     // why stored couplings could not be read
+}
+
+// safeRun is run with a panic turned into an error, so that data no
+// check foresaw costs that file's audit, not the ensemble's.
+func (a *auditor) safeRun() (err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			err = fmt.Errorf("the audit stopped on unexpected data (please report this as a trajvault bug): %v", p)
+		}
+	}()
+	return a.run()
 }
 
 // run loads the shared inputs, then runs the registered per-file checks

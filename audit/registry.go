@@ -83,7 +83,7 @@ var checks = []Spec{
 		file: (*auditor).energy,
 	},
 	{
-		Name: "time-step", Code: "A3", Quantity: "force",
+		Name: timeStepName, Code: "A3", Quantity: "force",
 		Doc: "Shortest period T = 2 pi tau from pairwise tau_ij = sqrt(|Delta r_ij| / |Delta a_ij|), exact 1/omega for a harmonic pair (derived; pairwise form of N-body time-step criteria), against the integration step; see TimeStepStats.",
 		Rule: func(s Settings) string {
 			return fmt.Sprintf("fail when dt > %g T; warn when dt > %g T; unknown when frames are stored more than T/4 apart", s.StepFailFraction, s.StepWarnFraction)
@@ -149,6 +149,9 @@ var checks = []Spec{
 		ensemble: (*Report).consistency,
 	},
 }
+
+// timeStepName is read by the report's step plot.
+const timeStepName = "time-step"
 
 // ensemblePath is the HDF5 path the ensemble check is about.
 const ensemblePath = trajfile.ActiveState

@@ -97,7 +97,7 @@ func (rep *Report) stepPlot() (*plot.Plot, error) {
 	var pts plotter.XYs
 	for i, t := range rep.Trajectories {
 		for _, c := range t.Checks {
-			if c.Name == "time-step" && c.Values["step_over_period"] > 0 {
+			if c.Name == timeStepName && c.Values["step_over_period"] > 0 {
 				pts = append(pts, plotter.XY{X: float64(i + 1), Y: c.Values["step_over_period"]})
 			}
 		}

@@ -61,8 +61,11 @@ need attention; --json lists them all.
 An audit is evidence about the stored numbers, not a certificate that the
 simulation behind them is sound.
 
-Exit status: 0 no failed check (or --no-fail), 1 a check failed,
-2 usage or I/O error.`,
+Exit status: 0 no failed check (or --no-fail), 1 a check failed or a
+file could not be audited, 2 usage or I/O error.
+
+Checks (code, name, quantity):
+` + checksHelp(),
 		Example: "  trajvault audit runs/*.h5\n  trajvault audit --report audit.html deposit/h5",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) == 0 {
@@ -74,6 +77,20 @@ Exit status: 0 no failed check (or --no-fail), 1 a check failed,
 	}
 	o.AddFlags(c)
 	return c
+}
+
+// checksHelp lists the registered checks, one per line.
+func checksHelp() string {
+	var b strings.Builder
+	for _, c := range audit.Registry() {
+		scope := ""
+		if c.Scope == audit.PerEnsemble {
+			scope = ", across the ensemble"
+		}
+		fmt.Fprintf(&b, "  %-4s %-20s %s%s\n", c.Code, c.Name, c.Quantity, scope)
+	}
+	fmt.Fprintf(&b, "  %-4s %-20s %s\n", audit.FileUnreadable, "(file)", "the file could not be audited")
+	return strings.TrimRight(b.String(), "\n")
 }
 
 // h5Files expands folders into their .h5 files, sorted.
