@@ -144,6 +144,11 @@ func runPack(g *globals, o packOptions, dir string) error {
 		if err != nil {
 			return fail(err)
 		}
+		for _, t := range rep.Trajectories {
+			if t.Error != "" { // as before: a file pack just wrote must be auditable
+				return fail(errors.New(t.Error))
+			}
+		}
 		bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("Overall verdict: %s; %d of %d trajectories flagged.", rep.Verdict, rep.Flagged, len(rep.Trajectories)))
 		for _, c := range rep.Ensemble {
 			bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("%s: %s - %s", c.Name, c.Verdict, c.Summary))
