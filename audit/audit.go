@@ -9,6 +9,7 @@
 package audit
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"sort"
@@ -33,12 +34,20 @@ func (v Verdict) rank() int {
 }
 
 // Check is the outcome of one check: a verdict, the numbers behind it and
-// a one-line explanation.
+// a one-line explanation. Name and Code come from the registry.
 type Check struct {
 	Name    string             `json:"check"`
+	Code    string             `json:"code"`
 	Verdict Verdict            `json:"verdict"`
 	Summary string             `json:"summary"`
 	Values  map[string]float64 `json:"values"`
+
+	path string // HDF5 path of the quantity judged, for the finding
+}
+
+// result builds a check outcome; the runner adds the name and code.
+func result(v Verdict, vals map[string]float64, format string, args ...any) Check {
+	return Check{Verdict: v, Summary: fmt.Sprintf(format, args...), Values: vals}
 }
 
 // Settings are the thresholds; DefaultSettings documents the defaults.
@@ -90,7 +99,10 @@ var DefaultSettings = Settings{
 
 // Result is the audit of one trajectory.
 type Result struct {
-	File    string  `json:"file"`
+	File string `json:"file"`
+	// Error says why the file could not be audited; Checks is then empty
+	// and Verdict is fail.
+	Error   string  `json:"error,omitempty"`
 	Frames  int     `json:"frames"`
 	Atoms   int     `json:"atoms"`
 	Verdict Verdict `json:"verdict"`
@@ -117,15 +129,16 @@ func mustFactor(a, b string) float64 {
 	return f
 }
 
-// File audits one trajectory file.
-func File(path string, s Settings) (*Result, error) {
+// File audits one trajectory file, running every per-file check of the
+// registry in order. It stops early when ctx is cancelled.
+func File(ctx context.Context, path string, s Settings) (*Result, error) {
 	r, err := trajfile.OpenReader(path)
 	if err != nil {
 		return nil, err
 	}
 	defer r.Close()
-	a := &auditor{r: r, s: s, res: &Result{File: path, Frames: r.T, Atoms: r.N}}
-	if err := a.run(); err != nil {
+	a := &auditor{ctx: ctx, r: r, s: s, res: &Result{File: path, Frames: r.T, Atoms: r.N}}
+	if err := a.safeRun(); err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	a.res.Verdict = worst(a.res.Checks)
@@ -142,7 +155,9 @@ func worst(cs []Check) Verdict {
 	return v
 }
 
+// auditor holds one file's inputs, loaded once and shared by the checks.
 type auditor struct {
+	ctx context.Context
 	r   *trajfile.Reader
 	s   Settings
 	res *Result
@@ -151,12 +166,31 @@ type auditor struct {
 	sumV2     float64   // <sum |v|^2>, au
 	hasVel    bool
 	hasForce  bool
+
+	// Collected in the one pass over the frames (scanFrames).
+	tau *tauCollector
+	mom *momentumTracker
+	zpe *zpeTracker
+
+	// Electronic data (loadElectronic).
+	pops, amps []float64 // per frame x state; amps as re, im pairs
+	cpl        []float64 // couplings, au_time-1
+	cplErr     error     // why stored couplings could not be read
 }
 
-func (a *auditor) add(name string, v Verdict, vals map[string]float64, format string, args ...any) {
-	a.res.Checks = append(a.res.Checks, Check{Name: name, Verdict: v, Summary: fmt.Sprintf(format, args...), Values: vals})
+// safeRun is run with a panic turned into an error, so that data no
+// check foresaw costs that file's audit, not the ensemble's.
+func (a *auditor) safeRun() (err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			err = fmt.Errorf("the audit stopped on unexpected data (please report this as a trajvault bug): %v", p)
+		}
+	}()
+	return a.run()
 }
 
+// run loads the shared inputs, then runs the registered per-file checks
+// in registry order, passing derived values between them.
 func (a *auditor) run() error {
 	r := a.r
 	a.res.Times = make([]float64, r.T)
@@ -171,9 +205,21 @@ func (a *auditor) run() error {
 	if err := a.scanFrames(); err != nil {
 		return err
 	}
-	a.energy()
-	a.noise()
-	a.electronic()
+	if err := a.loadElectronic(); err != nil {
+		return err
+	}
+	var d derived
+	for _, spec := range checks {
+		if spec.Scope != PerFile {
+			continue
+		}
+		if err := a.ctx.Err(); err != nil {
+			return err
+		}
+		c, path := spec.file(a, &d)
+		c.Name, c.Code, c.path = spec.Name, spec.Code, path
+		a.res.Checks = append(a.res.Checks, c)
+	}
 	return nil
 }
 
@@ -222,6 +268,9 @@ func (a *auditor) scanFrames() error {
 	var zpe *zpeTracker
 	var sumV2 float64
 	for start := 0; start < r.T; start += frameBlock {
+		if err := a.ctx.Err(); err != nil {
+			return err
+		}
 		n := min(frameBlock, r.T-start)
 		x, err := r.Frames(r.Particle(trajfile.Position), "bohr", start, n)
 		if err != nil {
@@ -279,9 +328,7 @@ func (a *auditor) scanFrames() error {
 	if a.hasVel {
 		a.sumV2 = sumV2 / float64(r.T)
 	}
-	a.timeStep(tau)
-	a.momentum(mom)
-	a.zpeCheck(zpe)
+	a.tau, a.mom, a.zpe = tau, mom, zpe
 	return nil
 }
 
@@ -313,11 +360,18 @@ func (a *auditor) integrationStep() float64 {
 	return a.frameInterval()
 }
 
+// energyPath is the stored energy the total is built from.
+func (a *auditor) energyPath() string {
+	if !a.r.Has(trajfile.TotalEnergy) && a.r.Has(trajfile.PotentialEnergy) {
+		return trajfile.PotentialEnergy
+	}
+	return trajfile.TotalEnergy
+}
+
 // energy: conservation of E_tot = K + V(active state).
-func (a *auditor) energy() {
+func (a *auditor) energy(*derived) (Check, string) {
 	if a.etot == nil {
-		a.add("energy", NA, nil, "no total or potential energy stored")
-		return
+		return result(NA, nil, "no total or potential energy stored"), a.energyPath()
 	}
 	st := energyStats(a.r.Times, a.etot, a.kin)
 	dev := st.MaxDeviation * hartreeEV
@@ -339,15 +393,16 @@ func (a *auditor) energy() {
 	case dev > a.s.EnergyWarnEV || jump > a.s.JumpWarnEV:
 		v = Warn
 	}
-	a.add("energy", v, vals, "total energy moves at most %.3g eV from its start, largest step jump %.3g eV (frame %d), drift %.3g eV/ps",
-		dev, jump, st.JumpFrame, vals["drift_eV_per_ps"])
+	return result(v, vals, "total energy moves at most %.3g eV from its start, largest step jump %.3g eV (frame %d), drift %.3g eV/ps",
+		dev, jump, st.JumpFrame, vals["drift_eV_per_ps"]), a.energyPath()
 }
 
 // noise: the force-noise estimate from the energy structure function.
-func (a *auditor) noise() {
+// It needs the fastest period from time-step (FastestPeriod).
+func (a *auditor) noise(d *derived) (Check, string) {
+	path := a.energyPath()
 	if a.etot == nil || !a.hasVel {
-		a.add("force-noise", NA, nil, "needs total energy and velocities")
-		return
+		return result(NA, nil, "needs total energy and velocities"), path
 	}
 	delta := a.frameInterval()
 	dt := a.integrationStep()
@@ -358,15 +413,12 @@ func (a *auditor) noise() {
 	// Start the lags after the fastest motion has decorrelated the bounded
 	// Verlet term: one period of the fastest mode, in frames.
 	kmin := 1
-	for _, c := range a.res.Checks {
-		if c.Name == "time-step" && c.Values["period_fs"] > 0 {
-			kmin = max(1, int(math.Ceil(c.Values["period_fs"]/auFs/delta)))
-		}
+	if d.fastestPeriod > 0 {
+		kmin = max(1, int(math.Ceil(d.fastestPeriod/delta)))
 	}
 	f := fitNoise(a.etot, kmin, dt, delta, a.sumV2, invMass)
 	if !f.Fitted {
-		a.add("force-noise", Unknown, nil, "the run is too short to measure force noise: it needs at least 80 periods of the fastest motion (%d frames each)", kmin)
-		return
+		return result(Unknown, nil, "the run is too short to measure force noise: it needs at least 80 periods of the fastest motion (%d frames each)", kmin), path
 	}
 	vals := map[string]float64{
 		"sigma_F_hartree_per_bohr": f.SigmaF, "bounded_sigma_w_eV": f.SigmaW * hartreeEV,
@@ -379,8 +431,7 @@ func (a *auditor) noise() {
 		if f.UpperBound < a.s.NoiseWarn {
 			v = OK
 		}
-		a.add("force-noise", v, vals, "no random walk above the bounded integrator error: the run is too short to measure force noise; sigma_F < %.2g hartree/bohr", f.UpperBound)
-		return
+		return result(v, vals, "no random walk above the bounded integrator error: the run is too short to measure force noise; sigma_F < %.2g hartree/bohr", f.UpperBound), path
 	}
 	v := OK
 	if f.SigmaF >= a.s.NoiseWarn {
@@ -394,28 +445,28 @@ func (a *auditor) noise() {
 	if f.Rate*run > 3*walk && f.Rate > 10*f.HeatingRate {
 		sys = "; the drift is larger than the noise explains: systematic (gradients inconsistent with energies, or the step too large)"
 	}
-	a.add("force-noise", v, vals, "the total energy random-walks as force noise sigma_F = %.2g hartree/bohr per component would (noisy gradients, or integration errors where surfaces change fast)%s", f.SigmaF, sys)
+	return result(v, vals, "the total energy random-walks as force noise sigma_F = %.2g hartree/bohr per component would (noisy gradients, or integration errors where surfaces change fast)%s", f.SigmaF, sys), path
 }
 
-// timeStep compares the integration step with the shortest period.
-func (a *auditor) timeStep(c *tauCollector) {
-	if c == nil || !a.hasForce {
-		a.add("time-step", NA, nil, "needs positions and forces")
-		return
+// timeStep compares the integration step with the shortest period and
+// gives that period (FastestPeriod).
+func (a *auditor) timeStep(d *derived) (Check, string) {
+	path := a.r.Particle(trajfile.Force)
+	if a.tau == nil || !a.hasForce {
+		return result(NA, nil, "needs positions and forces"), path
 	}
-	st := c.stats(a.frameInterval())
+	st := a.tau.stats(a.frameInterval())
 	if st.Samples == 0 {
-		a.add("time-step", Unknown, nil, "no pair motion resolved")
-		return
+		return result(Unknown, nil, "no pair motion resolved"), path
 	}
+	d.fastestPeriod = st.Period
 	dt := a.integrationStep()
 	vals := map[string]float64{
 		"tau_fs": st.Tau * auFs, "period_fs": st.Period * auFs, "wavenumber_cm-1": st.Wavenumber,
 		"time_step_fs": dt * auFs, "suggested_step_fs": 0.1 * st.Tau * auFs, "step_over_period": dt / st.Period,
 	}
 	if !st.Reliable {
-		a.add("time-step", Unknown, vals, "frames are stored %.3g fs apart, too far for the %.3g fs period seen; store frames more often to check the step", a.frameInterval()*auFs, st.Period*auFs)
-		return
+		return result(Unknown, vals, "frames are stored %.3g fs apart, too far for the %.3g fs period seen; store frames more often to check the step", a.frameInterval()*auFs, st.Period*auFs), path
 	}
 	v := OK
 	switch {
@@ -424,6 +475,6 @@ func (a *auditor) timeStep(c *tauCollector) {
 	case dt > a.s.StepWarnFraction*st.Period:
 		v = Warn
 	}
-	a.add("time-step", v, vals, "fastest motion %.0f cm-1 (period %.3g fs); step %.3g fs = T/%.0f (T/20 or less is safe; about %.2g fs suggested)",
-		st.Wavenumber, st.Period*auFs, dt*auFs, st.Period/dt, 0.1*st.Tau*auFs)
+	return result(v, vals, "fastest motion %.0f cm-1 (period %.3g fs); step %.3g fs = T/%.0f (T/20 or less is safe; about %.2g fs suggested)",
+		st.Wavenumber, st.Period*auFs, dt*auFs, st.Period/dt, 0.1*st.Tau*auFs), path
 }

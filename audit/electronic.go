@@ -7,48 +7,67 @@ import (
 	"trajvault/internal/trajfile"
 )
 
-// electronic checks populations, hop probabilities and hops.
-func (a *auditor) electronic() {
+// loadElectronic reads the electronic data the populations and hop
+// checks share: |c_k|^2 from the amplitudes (else the stored
+// populations), the active state and the couplings.
+func (a *auditor) loadElectronic() error {
 	r := a.r
-	S := r.States
-	if S == 0 {
-		a.add("populations", NA, nil, "no electronic states stored")
-		return
+	if r.States == 0 {
+		return nil
 	}
-	var pops, amps []float64
+	var err error
 	if r.Has(trajfile.Amplitudes) {
-		amps, _, _ = r.Values(trajfile.Amplitudes, "")
-		pops = make([]float64, r.T*S)
-		for i := range pops {
-			re, im := amps[2*i], amps[2*i+1]
-			pops[i] = re*re + im*im
+		if a.amps, _, err = r.Values(trajfile.Amplitudes, ""); err != nil {
+			return err
+		}
+		a.pops = make([]float64, len(a.amps)/2)
+		for i := range a.pops {
+			re, im := a.amps[2*i], a.amps[2*i+1]
+			a.pops[i] = re*re + im*im
 		}
 	} else if r.Has(trajfile.Populations) {
-		pops, _, _ = r.Values(trajfile.Populations, "")
+		if a.pops, _, err = r.Values(trajfile.Populations, ""); err != nil {
+			return err
+		}
 	}
 	if r.Has(trajfile.ActiveState) {
-		act, _, _ := r.Values(trajfile.ActiveState, "")
+		act, _, err := r.Values(trajfile.ActiveState, "")
+		if err != nil {
+			return err
+		}
 		a.res.Active = make([]int64, len(act))
 		for i, x := range act {
 			a.res.Active[i] = int64(x)
 		}
 	}
-	if pops != nil {
-		a.populations(pops, S)
-	} else {
-		a.add("populations", NA, nil, "no populations or amplitudes stored")
+	if a.amps != nil && r.Has(trajfile.Couplings) {
+		// Unreadable couplings cost only hop-probability, which says why.
+		a.cpl, _, a.cplErr = r.Values(trajfile.Couplings, "au_time-1")
 	}
-	if amps != nil && r.Has(trajfile.Couplings) {
-		cpl, _, err := r.Values(trajfile.Couplings, "au_time-1")
-		if err == nil {
-			a.hopProbability(amps, cpl, S)
-		}
+	return nil
+}
+
+// populationsPath is the stored quantity populations are taken from.
+func (a *auditor) populationsPath() string {
+	if a.r.Has(trajfile.Amplitudes) {
+		return trajfile.Amplitudes
 	}
-	a.hops(S)
+	return trajfile.Populations
 }
 
 // populations: sum_k |c_k|^2 = 1 and each in [0, 1].
-func (a *auditor) populations(p []float64, S int) {
+func (a *auditor) populations(*derived) (Check, string) {
+	path, S := a.populationsPath(), a.r.States
+	if S == 0 {
+		return result(NA, nil, "no electronic states stored"), path
+	}
+	if a.pops == nil {
+		return result(NA, nil, "no populations or amplitudes stored"), path
+	}
+	if len(a.pops) < a.r.T*S {
+		return result(NA, nil, "populations cover fewer frames than the positions"), path
+	}
+	p := a.pops
 	worstNorm, worstFrame, outOfRange := 0.0, 0, 0
 	a.res.Pops = make([][]float64, a.r.T)
 	for t := 0; t < a.r.T; t++ {
@@ -73,7 +92,7 @@ func (a *auditor) populations(p []float64, S int) {
 	case worstNorm > a.s.NormTolerance:
 		v = Warn
 	}
-	a.add("populations", v, vals, "populations sum to 1 within %.2g (worst at frame %d); %d values outside [0,1]", worstNorm, worstFrame, outOfRange)
+	return result(v, vals, "populations sum to 1 within %.2g (worst at frame %d); %d values outside [0,1]", worstNorm, worstFrame, outOfRange), path
 }
 
 // hopProbability recomputes fewest-switches probabilities from the stored
@@ -84,9 +103,22 @@ func (a *auditor) populations(p []float64, S int) {
 // (J. Chem. Phys. 93, 1061 (1990), doi:10.1063/1.459170, in the
 // time-derivative form). sum_j g_kj > 1 means the step is too large for
 // the coupling.
-func (a *auditor) hopProbability(amp, cpl []float64, S int) {
-	if a.res.Active == nil {
-		return
+func (a *auditor) hopProbability(*derived) (Check, string) {
+	const path = trajfile.Couplings
+	amp, cpl, S := a.amps, a.cpl, a.r.States
+	switch {
+	case S == 0:
+		return result(NA, nil, "no electronic states stored"), path
+	case amp == nil:
+		return result(NA, nil, "needs complex amplitudes"), path
+	case a.cplErr != nil:
+		return result(NA, nil, "couplings cannot be read: %v", a.cplErr), path
+	case cpl == nil:
+		return result(NA, nil, "no time-derivative couplings stored"), path
+	case a.res.Active == nil:
+		return result(NA, nil, "no active state stored"), path
+	case len(cpl) < a.r.T*S*S || len(amp) < 2*a.r.T*S || len(a.res.Active) < a.r.T:
+		return result(NA, nil, "amplitudes, couplings and active state cover different frames"), path
 	}
 	dt := a.integrationStep()
 	worst, worstFrame := 0.0, 0
@@ -118,8 +150,8 @@ func (a *auditor) hopProbability(amp, cpl []float64, S int) {
 	if worst > 1 {
 		v = Warn
 	}
-	a.add("hop-probability", v, map[string]float64{"max_total_probability": worst, "frame": float64(worstFrame)},
-		"recomputed fewest-switches hop probability per step at most %.3g (frame %d); above 1 the step is too large for the coupling", worst, worstFrame)
+	return result(v, map[string]float64{"max_total_probability": worst, "frame": float64(worstFrame)},
+		"recomputed fewest-switches hop probability per step at most %.3g (frame %d); above 1 the step is too large for the coupling", worst, worstFrame), path
 }
 
 func complexConj(c complex128) complex128 { return complex(real(c), -imag(c)) }
@@ -131,11 +163,18 @@ func complexConj(c complex128) complex128 { return complex(real(c), -imag(c)) }
 // hop (V_to <= V_from) never is, nor one with the kinetic energy along the
 // coupling direction sufficient: here only the first is decidable from
 // stored data (derived).
-func (a *auditor) hops(S int) {
+func (a *auditor) hops(*derived) (Check, string) {
+	const path = trajfile.HopsGroup
+	S := a.r.States
+	if S == 0 {
+		return result(NA, nil, "no electronic states stored"), path
+	}
 	hops, err := a.r.Hops()
-	if err != nil || hops == nil {
-		a.add("hops", NA, nil, "no hop log stored")
-		return
+	if err != nil {
+		return result(NA, nil, "the hop log cannot be read: %v", err), path
+	}
+	if hops == nil {
+		return result(NA, nil, "no hop log stored"), path
 	}
 	frame := map[int64]int{}
 	for i, s := range a.r.Steps {
@@ -195,11 +234,10 @@ func (a *auditor) hops(S int) {
 	msg := "%d accepted and %d frustrated hops (%.0f %% frustrated); %d accepted hops change the total energy, %d frustrated hops were downhill"
 	if firstBad >= 0 {
 		msg += "; first at step %d"
-		a.add("hops", v, vals, msg, accepted, frustrated, 100*frac, badAcc, badFr, firstBad)
-		return
+		return result(v, vals, msg, accepted, frustrated, 100*frac, badAcc, badFr, firstBad), path
 	}
 	if unchecked > 0 {
 		msg += fmt.Sprintf("; %d hops fall between stored frames and were not checked", unchecked)
 	}
-	a.add("hops", v, vals, msg, accepted, frustrated, 100*frac, badAcc, badFr)
+	return result(v, vals, msg, accepted, frustrated, 100*frac, badAcc, badFr), path
 }

@@ -1,9 +1,13 @@
 package audit
 
 import (
+	"context"
 	"fmt"
 	"math"
-	"sync"
+
+	"golang.org/x/sync/errgroup"
+
+	"trajvault/internal/finding"
 )
 
 // Report is the audit of an ensemble.
@@ -13,6 +17,9 @@ type Report struct {
 	Ensemble     []Check   `json:"ensemble"`
 	Flagged      int       `json:"flagged"`
 	Verdict      Verdict   `json:"verdict"`
+	// Findings is the summary of every verdict as findings (see
+	// Report.findings); the numbers stay in Trajectories and Ensemble.
+	Findings []finding.Finding `json:"findings"`
 
 	// Populations vs time by both estimators, for the report.
 	Times      []float64   `json:"-"` // fs
@@ -24,28 +31,43 @@ type Report struct {
 // Caution is printed with every audit.
 const Caution = "An audit is evidence about the stored numbers, not a certificate that the simulation behind them is sound."
 
-// Ensemble audits every file (jobs at a time) and then the ensemble.
-func Ensemble(paths []string, s Settings, jobs int) (*Report, error) {
+// Ensemble audits every file, at most jobs at a time, and then the
+// ensemble. A file that cannot be audited becomes a FileUnreadable
+// finding (and a failed trajectory) and the others go on; the only error
+// returned is ctx's, when it is cancelled before the audit ends.
+func Ensemble(ctx context.Context, paths []string, s Settings, jobs int) (*Report, error) {
 	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(paths))}
-	errs := make([]error, len(paths))
-	sem := make(chan struct{}, max(jobs, 1))
-	var wg sync.WaitGroup
+	g, gctx := errgroup.WithContext(ctx)
+	g.SetLimit(max(jobs, 1))
 	for i, p := range paths {
-		wg.Add(1)
-		sem <- struct{}{}
-		go func(i int, p string) {
-			defer wg.Done()
-			defer func() { <-sem }()
-			rep.Trajectories[i], errs[i] = File(p, s)
-		}(i, p)
+		g.Go(func() error {
+			if err := gctx.Err(); err != nil {
+				return err
+			}
+			res, err := File(gctx, p, s)
+			if err != nil {
+				if cerr := gctx.Err(); cerr != nil {
+					return cerr
+				}
+				res = &Result{File: p, Error: err.Error(), Verdict: Fail, Checks: []Check{}}
+			}
+			rep.Trajectories[i] = res
+			return nil
+		})
 	}
-	wg.Wait()
-	for _, err := range errs {
-		if err != nil {
-			return nil, err
+	if err := g.Wait(); err != nil {
+		return nil, err
+	}
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	for _, spec := range checks {
+		if spec.Scope == PerEnsemble {
+			c := spec.ensemble(rep, s)
+			c.Name, c.Code, c.path = spec.Name, spec.Code, ensemblePath
+			rep.Ensemble = append(rep.Ensemble, c)
 		}
 	}
-	rep.consistency(s)
 	rep.Verdict = worst(rep.Ensemble)
 	for _, t := range rep.Trajectories {
 		if t.Verdict == Fail || t.Verdict == Warn {
@@ -55,6 +77,14 @@ func Ensemble(paths []string, s Settings, jobs int) (*Report, error) {
 			rep.Verdict = t.Verdict
 		}
 	}
+	rep.Ensemble = append(rep.Ensemble, rep.flaggedSummary()...)
+	rep.Findings = rep.findings(func(Verdict) bool { return true })
+	return rep, nil
+}
+
+// flaggedSummary counts, for each registered per-file check, the
+// trajectories that fail or warn on it.
+func (rep *Report) flaggedSummary() []Check {
 	counts := map[string]map[Verdict]int{}
 	for _, t := range rep.Trajectories {
 		for _, c := range t.Checks {
@@ -64,10 +94,14 @@ func Ensemble(paths []string, s Settings, jobs int) (*Report, error) {
 			counts[c.Name][c.Verdict]++
 		}
 	}
-	for _, name := range []string{"energy", "force-noise", "time-step", "populations", "hop-probability", "hops", "momentum", "zpe-leakage"} {
-		c, ok := counts[name]
-		if !ok {
+	var out []Check
+	for _, spec := range checks {
+		if spec.Scope != PerFile {
 			continue
+		}
+		c, ok := counts[spec.Name]
+		if !ok {
+			continue // no file could be audited
 		}
 		v := OK
 		if c[Fail] > 0 {
@@ -75,11 +109,11 @@ func Ensemble(paths []string, s Settings, jobs int) (*Report, error) {
 		} else if c[Warn] > 0 {
 			v = Warn
 		}
-		rep.Ensemble = append(rep.Ensemble, Check{Name: "flagged: " + name, Verdict: v,
+		out = append(out, Check{Name: FlaggedPrefix + spec.Name, Code: spec.Code, Verdict: v,
 			Summary: fmt.Sprintf("%d of %d trajectories fail, %d warn", c[Fail], len(rep.Trajectories), c[Warn]),
 			Values:  map[string]float64{"fail": float64(c[Fail]), "warn": float64(c[Warn]), "trajectories": float64(len(rep.Trajectories))}})
 	}
-	return rep, nil
+	return out
 }
 
 // consistency compares the two surface-hopping population estimators,
@@ -89,7 +123,7 @@ func Ensemble(paths []string, s Settings, jobs int) (*Report, error) {
 // many times means the hops and the amplitudes disagree, e.g. frustrated
 // hops mishandled (J. Chem. Phys. 126, 134114 (2007),
 // doi:10.1063/1.2715585; noise level derived).
-func (rep *Report) consistency(s Settings) {
+func (rep *Report) consistency(s Settings) Check {
 	var use []*Result
 	T, S := -1, 0
 	for _, t := range rep.Trajectories {
@@ -104,8 +138,7 @@ func (rep *Report) consistency(s Settings) {
 	}
 	N := len(use)
 	if N < 2 || T < 1 {
-		rep.Ensemble = append(rep.Ensemble, Check{Name: "internal-consistency", Verdict: NA, Summary: "needs two or more trajectories with active states and populations"})
-		return
+		return Check{Verdict: NA, Summary: "needs two or more trajectories with active states and populations"}
 	}
 	rep.Times = use[0].Times[:T]
 	rep.ByActive = make([][]float64, S)
@@ -149,7 +182,7 @@ func (rep *Report) consistency(s Settings) {
 	} else if frac > 0.05 {
 		v = Warn
 	}
-	rep.Ensemble = append(rep.Ensemble, Check{Name: "internal-consistency", Verdict: v,
+	return Check{Verdict: v,
 		Summary: fmt.Sprintf("active-state fractions and mean |c|^2 of %d trajectories differ by more than 3 binomial sigma at %.0f %% of times (worst gap %.1f times that level, at %.3g fs)", N, 100*frac, worst, worstT),
-		Values:  map[string]float64{"trajectories": float64(N), "fraction_exceeded": frac, "worst_over_3sigma": worst, "worst_time_fs": worstT}})
+		Values:  map[string]float64{"trajectories": float64(N), "fraction_exceeded": frac, "worst_over_3sigma": worst, "worst_time_fs": worstT}}
 }

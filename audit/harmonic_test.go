@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"context"
 	"math"
 	"math/rand/v2"
 	"path/filepath"
@@ -165,7 +166,7 @@ func TestVerletOscillation(t *testing.T) {
 	omega := 3000 * cmAu // a 3000 cm-1 bond (common practice: the fastest molecular vibrations)
 	for _, dtFs := range []float64{0.2, 0.4} {
 		o := oscillators{species: []int{6, 1}, omega: []float64{omega}, diatom: true, energy: 0.01, dtFs: dtFs, steps: 4000}
-		res, err := File(o.run(t), DefaultSettings)
+		res, err := File(context.Background(), o.run(t), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -190,7 +191,7 @@ func TestEnergyErrorScalesAsDtSquared(t *testing.T) {
 	steps := []float64{0.05, 0.1, 0.2}
 	for _, dtFs := range steps {
 		o := oscillators{species: []int{6, 1}, omega: []float64{omega}, diatom: true, energy: 0.01, dtFs: dtFs, steps: int(1000 / dtFs)} // 1 ps
-		res, err := File(o.run(t), DefaultSettings)
+		res, err := File(context.Background(), o.run(t), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -222,7 +223,7 @@ func TestPeriodOfDiatomics(t *testing.T) {
 	}
 	for _, c := range cases {
 		o := oscillators{species: c.z, omega: []float64{c.wn * cmAu}, diatom: true, energy: 0.01, dtFs: 0.02, steps: 3000}
-		res, err := File(o.run(t), DefaultSettings)
+		res, err := File(context.Background(), o.run(t), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -242,7 +243,7 @@ func TestPeriodOfDiatomics(t *testing.T) {
 func TestSuggestedStep(t *testing.T) {
 	omega := 3000 * cmAu
 	o := oscillators{species: []int{6, 1}, omega: []float64{omega}, diatom: true, energy: 0.01, dtFs: 0.05, steps: 2000}
-	res, _ := File(o.run(t), DefaultSettings)
+	res, _ := File(context.Background(), o.run(t), DefaultSettings)
 	ts := check(t, res, "time-step")
 	tau := 1 / omega / fsAu
 	if got := ts.Values["suggested_step_fs"]; math.Abs(got-0.1*tau) > 0.01*0.1*tau {
@@ -250,7 +251,7 @@ func TestSuggestedStep(t *testing.T) {
 	}
 	o.dtFs = 2 * math.Pi * tau / 3
 	o.steps = 200
-	res, _ = File(o.run(t), DefaultSettings)
+	res, _ = File(context.Background(), o.run(t), DefaultSettings)
 	if v := check(t, res, "time-step").Verdict; v != Fail && v != Unknown {
 		t.Errorf("a step of T/3 judged %s", v)
 	}

@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -41,7 +42,7 @@ func planted(seed uint64, steps int, f demo.Faults) int {
 func TestHopsEnergyBookkeeping(t *testing.T) {
 	const steps = 2000
 	for seed := uint64(1); seed <= 3; seed++ {
-		res, err := File(demoRun(t, seed, steps, demo.Faults{}), DefaultSettings)
+		res, err := File(context.Background(), demoRun(t, seed, steps, demo.Faults{}), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -63,7 +64,7 @@ func TestHopsEnergyBookkeeping(t *testing.T) {
 		if want == 0 {
 			t.Fatalf("%s: nothing planted; pick another seed", c.name)
 		}
-		res, err := File(demoRun(t, 2, steps, c.f), DefaultSettings)
+		res, err := File(context.Background(), demoRun(t, 2, steps, c.f), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -80,7 +81,7 @@ func TestHopsEnergyBookkeeping(t *testing.T) {
 // TestUnnormalisedAmplitudes: amplitudes scaled by 1.01 break the norm by
 // 2 %, which the populations check fails.
 func TestUnnormalisedAmplitudes(t *testing.T) {
-	res, err := File(demoRun(t, 4, 300, demo.Faults{AmplitudeScale: 1.01}), DefaultSettings)
+	res, err := File(context.Background(), demoRun(t, 4, 300, demo.Faults{AmplitudeScale: 1.01}), DefaultSettings)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -99,7 +100,7 @@ func TestInternalConsistency(t *testing.T) {
 		for i := 0; i < n; i++ {
 			paths = append(paths, demoRun(t, uint64(100+i), steps, f))
 		}
-		rep, err := Ensemble(paths, DefaultSettings, 2)
+		rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -147,8 +148,7 @@ func TestConsistencyByConstruction(t *testing.T) {
 		}
 		rep.Trajectories = append(rep.Trajectories, r)
 	}
-	rep.consistency(DefaultSettings)
-	c := rep.Ensemble[0]
+	c := rep.consistency(DefaultSettings)
 	if c.Verdict != OK {
 		t.Errorf("consistent ensemble judged %s: %s", c.Verdict, c.Summary)
 	}

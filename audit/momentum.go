@@ -3,6 +3,8 @@ package audit
 import (
 	"math"
 
+	"trajvault/internal/trajfile"
+
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -106,10 +108,10 @@ func spread(v []float64) float64 {
 }
 
 // momentum reports the change of E_trans and E_rot against k_B T.
-func (a *auditor) momentum(t *momentumTracker) {
+func (a *auditor) momentum(*derived) (Check, string) {
+	t, path := a.mom, a.r.Particle(trajfile.Velocity)
 	if t == nil {
-		a.add("momentum", NA, nil, "needs velocities")
-		return
+		return result(NA, nil, "needs velocities"), path
 	}
 	kt := kB * a.s.Temperature
 	dT, dR := spread(t.trans), spread(t.rot)
@@ -119,6 +121,6 @@ func (a *auditor) momentum(t *momentumTracker) {
 	if dT > a.s.MomentumWarnFraction*kt || dR > a.s.MomentumWarnFraction*kt {
 		v = Warn
 	}
-	a.add("momentum", v, vals, "translational energy changes by %.2g eV, rotational by %.2g eV (%.2g and %.2g of k_B T at %.0f K)",
-		dT*hartreeEV, dR*hartreeEV, dT/kt, dR/kt, a.s.Temperature)
+	return result(v, vals, "translational energy changes by %.2g eV, rotational by %.2g eV (%.2g and %.2g of k_B T at %.0f K)",
+		dT*hartreeEV, dR*hartreeEV, dT/kt, dR/kt, a.s.Temperature), path
 }

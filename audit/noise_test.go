@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"context"
 	"math"
 	"testing"
 )
@@ -27,7 +28,7 @@ func wells(sigmaF float64, seed uint64) oscillators {
 // noisy.
 func TestForceNoiseRecovered(t *testing.T) {
 	for i, sigma := range []float64{1e-6, 1e-5, 1e-4} {
-		res, err := File(wells(sigma, uint64(10+i)).run(t), DefaultSettings)
+		res, err := File(context.Background(), wells(sigma, uint64(10+i)).run(t), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -38,7 +39,7 @@ func TestForceNoiseRecovered(t *testing.T) {
 			t.Errorf("injected %.1e, estimated %.3e (%s)", sigma, got, c.Verdict)
 		}
 	}
-	res, err := File(wells(0, 3).run(t), DefaultSettings)
+	res, err := File(context.Background(), wells(0, 3).run(t), DefaultSettings)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -52,7 +53,7 @@ func TestForceNoiseRecovered(t *testing.T) {
 // TestNoiseWarnLevel: noise at 1e-4 hartree/bohr is above the 1e-5 level
 // of practice and is warned about.
 func TestNoiseWarnLevel(t *testing.T) {
-	res, _ := File(wells(1e-4, 21).run(t), DefaultSettings)
+	res, _ := File(context.Background(), wells(1e-4, 21).run(t), DefaultSettings)
 	if v := check(t, res, "force-noise").Verdict; v != Warn {
 		t.Errorf("1e-4 hartree/bohr judged %s", v)
 	}

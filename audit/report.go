@@ -97,7 +97,7 @@ func (rep *Report) stepPlot() (*plot.Plot, error) {
 	var pts plotter.XYs
 	for i, t := range rep.Trajectories {
 		for _, c := range t.Checks {
-			if c.Name == "time-step" && c.Values["step_over_period"] > 0 {
+			if c.Name == timeStepName && c.Values["step_over_period"] > 0 {
 				pts = append(pts, plotter.XY{X: float64(i + 1), Y: c.Values["step_over_period"]})
 			}
 		}
@@ -185,6 +185,9 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 	}
 	var flagged []flaggedRow
 	for _, t := range rep.Trajectories {
+		if t.Error != "" {
+			flagged = append(flagged, flaggedRow{File: filepath.Base(t.File), Check: "(file)", Summary: "cannot audit: " + t.Error, Verdict: t.Verdict})
+		}
 		for _, c := range t.Checks {
 			if c.Verdict == Fail || c.Verdict == Warn {
 				flagged = append(flagged, flaggedRow{File: filepath.Base(t.File), Check: c.Name, Summary: c.Summary, Verdict: c.Verdict})

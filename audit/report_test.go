@@ -2,6 +2,7 @@ package audit
 
 import (
 	"bytes"
+	"context"
 	"image/png"
 	"os"
 	"os/exec"
@@ -30,7 +31,7 @@ func TestReportRendersInChromium(t *testing.T) {
 	for i := 0; i < 4; i++ {
 		paths = append(paths, demoRun(t, uint64(40+i), 800, demo.Faults{NoRescaleEvery: 2 * (i % 2)}))
 	}
-	rep, err := Ensemble(paths, DefaultSettings, 2)
+	rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -84,10 +84,10 @@ func pairOmega(k []float64, dt float64) float64 {
 
 // zpeCheck reports, per pair, the fraction of time its window-averaged
 // bond kinetic energy is below (1 - margin) ZPE/2.
-func (a *auditor) zpeCheck(z *zpeTracker) {
+func (a *auditor) zpeCheck(*derived) (Check, string) {
+	z, path := a.zpe, a.r.Particle(trajfile.Velocity)
 	if z == nil || len(z.pairs) == 0 {
-		a.add("zpe-leakage", NA, nil, "no X-H pairs (or velocities) to watch")
-		return
+		return result(NA, nil, "no X-H pairs (or velocities) to watch"), path
 	}
 	dt := a.frameInterval()
 	worstFrac, worstPair, firstBelow := 0.0, -1, -1.0
@@ -128,8 +128,7 @@ func (a *auditor) zpeCheck(z *zpeTracker) {
 		}
 	}
 	if worstPair < 0 {
-		a.add("zpe-leakage", Unknown, nil, "pair motion too slow or too short to resolve a period")
-		return
+		return result(Unknown, nil, "pair motion too slow or too short to resolve a period"), path
 	}
 	ij := z.pairs[worstPair]
 	vals := map[string]float64{"fraction_below": worstFrac, "first_below_fs": firstBelow, "atom_i": float64(ij[0]), "atom_j": float64(ij[1]), "pairs": float64(len(z.pairs))}
@@ -137,5 +136,5 @@ func (a *auditor) zpeCheck(z *zpeTracker) {
 	if worstFrac > a.s.ZPEWarnFraction {
 		v = Warn
 	}
-	a.add("zpe-leakage", v, vals, "worst X-H pair (atoms %d-%d) has less than its zero-point kinetic energy %.0f %% of the time", ij[0], ij[1], 100*worstFrac)
+	return result(v, vals, "worst X-H pair (atoms %d-%d) has less than its zero-point kinetic energy %.0f %% of the time", ij[0], ij[1], 100*worstFrac), path
 }

@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"context"
 	"testing"
 )
 
@@ -18,7 +19,7 @@ func TestZPEDiagnostic(t *testing.T) {
 		want Verdict
 	}{{1, OK}, {0.2, Warn}} {
 		o := oscillators{species: []int{8, 1}, omega: []float64{omega}, diatom: true, energy: c.frac * zpe, dtFs: 0.05, steps: 4000}
-		res, err := File(o.run(t), DefaultSettings)
+		res, err := File(context.Background(), o.run(t), DefaultSettings)
 		if err != nil {
 			t.Fatal(err)
 		}

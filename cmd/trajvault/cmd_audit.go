@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -13,6 +14,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/audit"
+	"trajvault/internal/finding"
 )
 
 type auditOptions struct {
@@ -50,11 +52,20 @@ the mean |c|^2. Each check gives ok, warn, fail, unknown (the data cannot
 tell) or n/a (the file lacks what it needs), the numbers behind it and one
 line of explanation.
 
+Each verdict is also a finding: code A1.. per check (see --json and
+DEVELOPERS.md), severity error for fail, warning for warn and note for
+ok, unknown and n/a; A10 is a file that could not be audited (the other
+files are audited regardless). The text output lists the findings that
+need attention; --json lists them all.
+
 An audit is evidence about the stored numbers, not a certificate that the
 simulation behind them is sound.
 
-Exit status: 0 no failed check (or --no-fail), 1 a check failed,
-2 usage or I/O error.`,
+Exit status: 0 no failed check (or --no-fail), 1 a check failed or a
+file could not be audited, 2 usage or I/O error.
+
+Checks (code, name, quantity):
+` + checksHelp(),
 		Example: "  trajvault audit runs/*.h5\n  trajvault audit --report audit.html deposit/h5",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) == 0 {
@@ -62,10 +73,24 @@ Exit status: 0 no failed check (or --no-fail), 1 a check failed,
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runAudit(g, o, args) },
+		RunE: func(c *cobra.Command, args []string) error { return runAudit(c.Context(), g, o, args) },
 	}
 	o.AddFlags(c)
 	return c
+}
+
+// checksHelp lists the registered checks, one per line.
+func checksHelp() string {
+	var b strings.Builder
+	for _, c := range audit.Registry() {
+		scope := ""
+		if c.Scope == audit.PerEnsemble {
+			scope = ", across the ensemble"
+		}
+		fmt.Fprintf(&b, "  %-4s %-20s %s%s\n", c.Code, c.Name, c.Quantity, scope)
+	}
+	fmt.Fprintf(&b, "  %-4s %-20s %s\n", audit.FileUnreadable, "(file)", "the file could not be audited")
+	return strings.TrimRight(b.String(), "\n")
 }
 
 // h5Files expands folders into their .h5 files, sorted.
@@ -90,7 +115,10 @@ func h5Files(args []string) ([]string, error) {
 	return out, nil
 }
 
-func runAudit(g *globals, o auditOptions, args []string) error {
+func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) error {
+	if ctx == nil {
+		ctx = context.Background()
+	}
 	if o.report != "" {
 		if _, err := os.Stat(o.report); err == nil {
 			return &exitError{exitUsage, fmt.Errorf("audit: %s already exists; trajvault never overwrites outputs", o.report)}
@@ -102,7 +130,7 @@ func runAudit(g *globals, o auditOptions, args []string) error {
 	}
 	s := audit.DefaultSettings
 	s.Temperature, s.EnergyWarnEV, s.EnergyFailEV = o.temperature, o.energyWarn, o.energyFail
-	rep, err := audit.Ensemble(files, s, o.jobs)
+	rep, err := audit.Ensemble(ctx, files, s, o.jobs)
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
 	}
@@ -123,7 +151,7 @@ func runAudit(g *globals, o auditOptions, args []string) error {
 			fmt.Fprintf(g.stdout, "report: %s\n", o.report)
 		}
 	}
-	if rep.Verdict == audit.Fail && !o.noFail {
+	if finding.Count(rep.Findings, finding.Error) > 0 && !o.noFail {
 		return errFindings
 	}
 	return nil
@@ -149,16 +177,30 @@ func writeAtomically(path string, fill func(*os.File) error) error {
 	return os.Link(tmp.Name(), path)
 }
 
-// printAudit prints lines of at most 80 columns.
+// printAudit prints lines of at most 80 columns: a verdict line per
+// trajectory followed by its findings that need attention, then the
+// ensemble summary and the caution.
 func printAudit(g *globals, rep *audit.Report) {
+	byFile := map[string][]finding.Finding{}
+	var ens []finding.Finding
+	for _, f := range rep.Attention() {
+		if f.File == "" {
+			ens = append(ens, f)
+			continue
+		}
+		byFile[f.File] = append(byFile[f.File], f)
+	}
 	for _, t := range rep.Trajectories {
 		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict, filepath.Base(t.File), t.Frames)
 		fmt.Fprintln(g.stdout, line)
-		for _, c := range t.Checks {
-			if c.Verdict == audit.Fail || c.Verdict == audit.Warn || c.Verdict == audit.Unknown {
-				wrap(g, fmt.Sprintf("%s %s: %s", c.Verdict, c.Name, c.Summary), "      ")
-			}
+		for _, f := range byFile[t.File] {
+			f.File = filepath.Base(f.File) // the line above names the file
+			wrap(g, f.String(), "  ")
 		}
+		delete(byFile, t.File) // a file named twice prints its findings once
+	}
+	for _, f := range ens {
+		wrap(g, f.String(), "")
 	}
 	fmt.Fprintln(g.stdout, "ensemble:")
 	for _, c := range rep.Ensemble {
@@ -168,21 +210,27 @@ func printAudit(g *globals, rep *audit.Report) {
 	wrap(g, audit.Caution, "")
 }
 
-// wrap prints s in lines of at most 80 columns, indented.
+// wrap prints s in lines of at most 80 columns, indented, continuation
+// lines two columns further. It breaks only at spaces and keeps the
+// spacing inside each line (the aligned columns of a finding); a word
+// longer than a line stays whole.
 func wrap(g *globals, s, indent string) {
 	const width = 80
-	line := indent
-	for _, w := range strings.Fields(s) {
-		if len(line)+len(w)+1 > width && strings.TrimSpace(line) != "" {
-			fmt.Fprintln(g.stdout, line)
-			line = indent + "  "
+	prefix := indent
+	for s = strings.TrimSpace(s); s != ""; prefix = indent + "  " {
+		room := width - len(prefix)
+		if len(s) <= room {
+			fmt.Fprintln(g.stdout, prefix+s)
+			return
 		}
-		if strings.TrimSpace(line) != "" {
-			line += " "
+		cut := strings.LastIndex(s[:room+1], " ")
+		if cut <= 0 {
+			if cut = strings.Index(s, " "); cut < 0 {
+				fmt.Fprintln(g.stdout, prefix+s)
+				return
+			}
 		}
-		line += w
-	}
-	if strings.TrimSpace(line) != "" {
-		fmt.Fprintln(g.stdout, line)
+		fmt.Fprintln(g.stdout, prefix+strings.TrimRight(s[:cut], " "))
+		s = strings.TrimLeft(s[cut:], " ")
 	}
 }

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"trajvault/internal/demo"
+	"trajvault/internal/trajfile"
 	"trajvault/schema"
 )
 
@@ -33,7 +34,8 @@ func TestAuditCommand(t *testing.T) {
 			t.Errorf("line longer than 80 columns: %q", l)
 		}
 	}
-	if code, out, _ = runCLI("audit", bad); code != 1 || !strings.Contains(out, "fail hops") {
+	// A failed check prints as a finding: severity, code, place, message.
+	if code, out, _ = runCLI("audit", bad); code != 1 || !strings.Contains(out, "  error   A6   bad.h5: "+trajfile.HopsGroup+": hops:") {
 		t.Errorf("faulty run: exit %d\n%s", code, out)
 	}
 	if code, _, _ = runCLI("audit", "--no-fail", bad); code != 0 {
@@ -46,6 +48,23 @@ func TestAuditCommand(t *testing.T) {
 		t.Fatal(err)
 	}
 	var doc any
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatalf("exit %d, not JSON: %v", code, err)
+	}
+	if err := sch.Validate(doc); err != nil {
+		t.Error(err)
+	}
+	// A file that cannot be audited is an error finding (exit 1); the
+	// other files are audited and the JSON still follows the schema.
+	junk := filepath.Join(t.TempDir(), "junk.h5")
+	if err := os.WriteFile(junk, []byte("not HDF5\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errs = runCLI("audit", good, junk)
+	if code != 1 || !strings.Contains(out, "  error   A10  junk.h5: cannot audit") || !strings.Contains(out, " good.h5 (601 frames)") {
+		t.Errorf("unreadable file: exit %d\n%s%s", code, out, errs)
+	}
+	code, out, _ = runCLI("audit", "--json", good, junk)
 	if err := json.Unmarshal([]byte(out), &doc); err != nil {
 		t.Fatalf("exit %d, not JSON: %v", code, err)
 	}

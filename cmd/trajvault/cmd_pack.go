@@ -146,9 +146,14 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		for _, c := range conv {
 			files = append(files, filepath.Join(tmp, filepath.FromSlash(c.File)))
 		}
-		rep, err := audit.Ensemble(files, audit.DefaultSettings, o.jobs)
+		rep, err := audit.Ensemble(ctx, files, audit.DefaultSettings, o.jobs)
 		if err != nil {
 			return fail(err)
+		}
+		for _, t := range rep.Trajectories {
+			if t.Error != "" { // a file pack just wrote must be auditable
+				return fail(errors.New(t.Error))
+			}
 		}
 		verdict := fmt.Sprintf("%s; %d of %d trajectories flagged", rep.Verdict, rep.Flagged, len(rep.Trajectories))
 		fmt.Fprintf(g.stderr, "trajvault: pack: audit verdict %s (details in the bundle's data/README.md;\n  run trajvault audit --report FILE.html on the bundle for the full report)\n", verdict)
