@@ -1,6 +1,7 @@
 package validate
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -91,10 +92,14 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 			rep.Findings = append(rep.Findings, check(f, name)...)
 			return f.Close()
 		}
-		img, err := io.ReadAll(io.LimitReader(r, opt.MaxImageBytes))
-		if err != nil {
+		// The declared size is checked against the limit above and the
+		// read is capped by it, so the buffer is allocated once.
+		var buf bytes.Buffer
+		buf.Grow(int(size))
+		if _, err := buf.ReadFrom(io.LimitReader(r, opt.MaxImageBytes)); err != nil {
 			return err
 		}
+		img := buf.Bytes()
 		f, err := h5.OpenImage(name, img)
 		if err != nil {
 			rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})

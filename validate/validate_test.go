@@ -466,3 +466,31 @@ func TestUnreadableFiles(t *testing.T) {
 		}
 	}
 }
+
+// TestRepeatsFolded: three bad boundary entries are one V11 finding at
+// box@boundary that counts the other two, and the report counts all
+// three errors (issue 9: repeats were dropped without a word).
+func TestRepeatsFolded(t *testing.T) {
+	path := base(t)
+	f, err := h5.OpenRW(path)
+	mustDo(t, err)
+	mustDo(t, f.SetStrings(pg+"/box", "boundary", []string{"x", "y", "z"}))
+	mustDo(t, f.Close())
+	rep, err := File(path, Options{})
+	mustDo(t, err)
+	var got []finding.Finding
+	for _, fd := range rep.Findings {
+		if fd.Code == "V11" {
+			got = append(got, fd)
+		}
+	}
+	if len(got) != 1 || got[0].More != 2 || got[0].Path != pg+"/box@boundary" {
+		t.Fatalf("V11 findings %+v, want one at %s/box@boundary with 2 more", got, pg)
+	}
+	if !strings.HasSuffix(got[0].String(), "(and 2 more like this)") {
+		t.Errorf("human form lacks the count: %q", got[0].String())
+	}
+	if rep.Errors != 3 {
+		t.Errorf("errors = %d, want 3 (folded ones counted)", rep.Errors)
+	}
+}
