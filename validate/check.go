@@ -329,7 +329,7 @@ func (c *checker) dataset(path string) {
 		return
 	}
 	if err != nil {
-		c.errorf("V26", path, "cannot read the data (damaged or truncated file?): %v", err)
+		c.errorf("V33", path, "cannot read the data (damaged or truncated file?): %v", err)
 		return
 	}
 	if bad > 0 {

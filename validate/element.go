@@ -111,13 +111,13 @@ func (c *checker) element(path string) *tdElement {
 	}
 	e.steps, _, err = c.f.ReadInt64(stepP)
 	if err != nil {
-		c.errorf("V7", stepP, "cannot read: %v", err)
+		c.errorf("V33", stepP, "cannot read (damaged file?): %v", err)
 		return nil
 	}
 	if hasTime {
 		e.times, _, err = c.f.ReadFloat64(timeP)
 		if err != nil {
-			c.errorf("V7", timeP, "cannot read: %v", err)
+			c.errorf("V33", timeP, "cannot read (damaged file?): %v", err)
 			e.times = nil
 		}
 	}

@@ -62,7 +62,8 @@ func (c *checker) parameters() {
 	c.nStates = int(v[0])
 }
 
-// connectivity checks V17: integer indices within the particle groups.
+// connectivity checks V17 (integer indices within the particle groups)
+// and V37 (the group they refer to is named).
 func (c *checker) connectivity() {
 	if c.f.Kind(trajfile.ConnectivityGroup) != h5.Group {
 		return
@@ -91,7 +92,7 @@ func (c *checker) connectivity() {
 			continue
 		}
 		if !c.f.HasAttr(p, trajfile.ParticlesGroupAttr) && !c.f.HasAttr(path, trajfile.ParticlesGroupAttr) {
-			c.errorf("V17", p, "no particles_group attribute; add an object reference to the particle group the indices refer to")
+			c.errorf("V37", p, "no particles_group attribute; add an object reference to the particle group the indices refer to")
 		}
 		v, _, err := c.f.ReadInt64(path)
 		if err != nil {

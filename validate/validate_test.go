@@ -316,6 +316,9 @@ func TestRules(t *testing.T) {
 			mustDo(t, f.HardLink(pg+"/position/step", pg+"/id/step"))
 			create(t, f, pg+"/id/value", h5.Int32, []int{len(st), 3}, make([]float64, len(st)*3))
 		}, nil},
+		{"V37", finding.Error, "bonds without their particle group", func(t *testing.T, f *h5.File) {
+			create(t, f, "/connectivity/bonds", h5.Int32, []int{1, 2}, []float64{0, 1})
+		}, nil},
 		{"V36", finding.Warning, "step with a unit", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString(obs+"/kinetic_energy/step", "unit", "fs")) }, nil},
 		{"E1", finding.Error, "module undeclared", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/h5md/modules/trajvault_electronic")) }, nil},
 		{"E2", finding.Error, "n_states missing", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/parameters/n_states")) }, nil},
