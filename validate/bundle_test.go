@@ -66,7 +66,7 @@ func TestBundleTrajectoryFindings(t *testing.T) {
 			mustDo(t, err)
 			want := map[string]bool{
 				fmt.Sprint("V20 ", badName, " ", pg+"/position/value"): false,
-				fmt.Sprint("B14 ", "", " ", junkName):                   false,
+				fmt.Sprint("B14 ", "", " ", junkName):                  false,
 			}
 			for _, fd := range rep.Findings {
 				k := fmt.Sprint(fd.Code, " ", fd.File, " ", fd.Path)

@@ -297,8 +297,11 @@ func TestRules(t *testing.T) {
 			// signature, HDF5 File Format Specification sec. IV.A) are
 			// overwritten so the header cannot be decoded.
 			path := base(t)
-			py := "import h5py,sys\nwith h5py.File(sys.argv[1], 'r') as f:\n    print(h5py.h5o.get_info(f['/observables/kinetic_energy/value'].id).addr)\n"
+			py := "import h5py,sys\nwith h5py.File(sys.argv[1], 'r') as f:\n    print(getattr(h5py.h5o.get_info(f['/observables/kinetic_energy/value'].id), 'addr', 'none'))\n"
 			out := pyRun(t, py, path)
+			if strings.TrimSpace(out) == "none" {
+				t.Skip("this h5py's HDF5 (1.12 or later) gives object tokens, not addresses")
+			}
 			var addr int64
 			if _, err := fmt.Sscan(out, &addr); err != nil {
 				t.Fatalf("address %q: %v", out, err)
