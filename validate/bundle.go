@@ -1,6 +1,7 @@
 package validate
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -8,11 +9,11 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
-	"sync"
 
 	"github.com/santhosh-tekuri/jsonschema/v5"
 
 	"trajvault/internal/bagit"
+	"trajvault/internal/finding"
 	"trajvault/internal/h5"
 	"trajvault/schema"
 )
@@ -33,15 +34,21 @@ func IsBundle(path string) bool {
 	if strings.HasSuffix(path, ".zip") || strings.HasSuffix(path, ".tar.zst") {
 		return true
 	}
-	_, err := os.Stat(filepath.Join(path, "bagit.txt"))
+	_, err := os.Stat(filepath.Join(path, bagit.DeclarationFile))
 	return err == nil
 }
 
 // Bundle checks a deposit bundle: BagIt completeness and validity (RFC
 // 8493 sec. 3) with every checksum, path safety, the layout of every
 // trajectory file, the RO-Crate and DataCite metadata, and a funder
-// profile. Codes: B (bag), V/E (trajectory files, path prefixed with the
-// file), M (metadata).
+// profile. Codes: B (bag), V/E/R (trajectory files, located by the file
+// inside the bag and the HDF5 path), M (metadata).
+//
+// Each payload file is read from its source once: the bag checker streams
+// it through every checksum and hands the same bytes to the trajectory
+// check, which opens them in memory. Only a trajectory file larger than
+// MaxImageBytes is handled otherwise: in a folder it is validated in
+// place (a second read), in an archive it is reported (B15).
 func Bundle(path string, opt BundleOptions) (*Report, error) {
 	if opt.Limits == (bagit.Limits{}) {
 		opt.Limits = bagit.DefaultLimits
@@ -54,65 +61,67 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 		return nil, err
 	}
 	rep := &Report{Tool: Tool{Name: "trajvault", Version: opt.ToolVersion}, File: path, LayoutVersion: schema.Current().Version}
-	var mu sync.Mutex
-	addF := func(f Finding) {
-		mu.Lock()
-		rep.Findings = append(rep.Findings, f)
-		mu.Unlock()
-	}
 	dirBag := false
 	if st, err := os.Stat(path); err == nil && st.IsDir() {
 		dirBag = true
 	}
+	// The metadata files are kept as they stream past, so that an archive
+	// is not read again to find them.
+	meta := map[string][]byte{schema.CratePath: nil, schema.DataCitePath: nil}
 	onPayload := func(name string, size int64, r io.Reader) error {
-		if !strings.HasSuffix(name, ".h5") {
+		if _, ok := meta[name]; ok && size <= maxMetadataBytes {
+			b, err := io.ReadAll(io.LimitReader(r, maxMetadataBytes))
+			meta[name] = b
+			return err
+		}
+		if !schema.IsTrajectory(name) {
 			return nil
 		}
-		var fr *Report
-		if dirBag {
-			// The bag walk found this regular file; validate it in place.
-			var err error
-			fr, err = File(filepath.Join(path, filepath.FromSlash(name)), Options{ToolVersion: opt.ToolVersion})
-			if err != nil {
-				addF(Finding{Code: "B7", Severity: Error, Path: name, Message: err.Error()})
+		loc := finding.Location{Path: name}
+		if size > opt.MaxImageBytes {
+			if !dirBag {
+				rep.Findings = append(rep.Findings, finding.Finding{Code: "B15", Severity: finding.Warning, Location: loc, Message: fmt.Sprintf("%d bytes: too large to check in memory (limit %d); unpack the archive and validate the file", size, opt.MaxImageBytes)})
 				return nil
 			}
-		} else {
-			if size > opt.MaxImageBytes {
-				addF(Finding{Code: "B13", Severity: Warning, Path: name, Message: fmt.Sprintf("%d bytes: too large to check in memory; unpack the archive and validate the file", size)})
+			// Too large to hold: validate the file in place, read again.
+			f, err := h5.Open(filepath.Join(path, filepath.FromSlash(name)))
+			if err != nil {
+				rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
 				return nil
 			}
-			img, err := io.ReadAll(io.LimitReader(r, opt.MaxImageBytes))
-			if err != nil {
-				return err
-			}
-			f, err := h5.OpenImage(name, img)
-			if err != nil {
-				addF(Finding{Code: "B7", Severity: Error, Path: name, Message: err.Error()})
-				return nil
-			}
-			fr = Opened(f, name, Options{ToolVersion: opt.ToolVersion})
-			f.Close()
+			rep.Findings = append(rep.Findings, check(f, name)...)
+			return f.Close()
 		}
-		for _, fd := range fr.Findings {
-			fd.Path = name + ":" + fd.Path
-			addF(fd)
+		// The declared size is checked against the limit above and the
+		// read is capped by it, so the buffer is allocated once.
+		var buf bytes.Buffer
+		buf.Grow(int(size))
+		if _, err := buf.ReadFrom(io.LimitReader(r, opt.MaxImageBytes)); err != nil {
+			return err
 		}
-		return nil
+		img := buf.Bytes()
+		f, err := h5.OpenImage(name, img)
+		if err != nil {
+			rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
+			return nil
+		}
+		rep.Findings = append(rep.Findings, check(f, name)...)
+		return f.Close()
 	}
 	res := bagit.Check(src, bagit.Options{OnPayload: onPayload})
-	for _, f := range res.Findings {
-		rep.Findings = append(rep.Findings, Finding{Code: f.Code, Severity: Severity(f.Severity), Path: f.Path, Message: f.Message})
-	}
-	checkMetadata(src, res, opt, rep)
+	rep.Findings = append(rep.Findings, res.Findings...)
+	checkMetadata(src, res, meta, opt, rep)
 	rep.finish()
 	return rep, nil
 }
 
+// maxMetadataBytes bounds a metadata file read into memory.
+const maxMetadataBytes = 64 << 20
+
 // manifestSHA256 reads manifest-sha256.txt into path -> digest.
 func manifestSHA256(src bagit.Source) map[string]string {
 	out := map[string]string{}
-	b, err := src.ReadSmall("manifest-sha256.txt", 1<<30)
+	b, err := src.ReadSmall(schema.ManifestSHA256, 1<<30)
 	if err != nil {
 		return out
 	}
@@ -124,37 +133,47 @@ func manifestSHA256(src bagit.Source) map[string]string {
 	return out
 }
 
-func checkMetadata(src bagit.Source, res *bagit.Result, opt BundleOptions, rep *Report) {
-	add := func(code string, sev Severity, path, format string, args ...any) {
-		rep.Findings = append(rep.Findings, Finding{Code: code, Severity: sev, Path: path, Message: fmt.Sprintf(format, args...)})
+// adder records a metadata finding.
+type adder func(code string, sev finding.Severity, path, format string, args ...any)
+
+// checkMetadata checks the crate and DataCite files, taking them from
+// seen (kept while the payload streamed) or else reading them from src.
+func checkMetadata(src bagit.Source, res *bagit.Result, seen map[string][]byte, opt BundleOptions, rep *Report) {
+	add := func(code string, sev finding.Severity, path, format string, args ...any) {
+		rep.Findings = append(rep.Findings, finding.Finding{Code: code, Severity: sev, Location: finding.Location{Path: path}, Message: fmt.Sprintf(format, args...)})
+	}
+	read := func(name string) ([]byte, error) {
+		if b := seen[name]; b != nil {
+			return b, nil
+		}
+		return src.ReadSmall(name, maxMetadataBytes)
 	}
 	payload := map[string]bool{}
 	for _, p := range res.Payload {
 		payload[p] = true
 	}
 	// RO-Crate 1.1.
-	const crateName = "data/ro-crate-metadata.json"
-	if b, err := src.ReadSmall(crateName, 64<<20); err != nil {
-		add("M1", Error, crateName, "missing: the bundle describes itself in RO-Crate 1.1 metadata")
+	if b, err := read(schema.CratePath); err != nil {
+		add("M1", finding.Error, schema.CratePath, "missing: the bundle describes itself in RO-Crate 1.1 metadata")
 	} else {
 		checkCrate(b, payload, manifestSHA256(src), add)
 	}
 	// DataCite 4.5 and the funder profile.
-	const dcName = "data/datacite.json"
-	b, err := src.ReadSmall(dcName, 64<<20)
+	dcName := schema.DataCitePath
+	b, err := read(dcName)
 	if err != nil {
-		add("M2", Error, dcName, "missing: DataCite metadata is what repositories register")
+		add("M2", finding.Error, dcName, "missing: DataCite metadata is what repositories register")
 		return
 	}
 	var dc any
 	if err := json.Unmarshal(b, &dc); err != nil {
-		add("M2", Error, dcName, "not JSON: %v", err)
+		add("M2", finding.Error, dcName, "not JSON: %v", err)
 		return
 	}
 	m, _ := dc.(map[string]any)
 	for _, k := range []string{"identifier", "creators", "titles", "publisher", "publicationYear", "types"} {
 		if _, ok := m[k]; !ok {
-			add("M2", Error, dcName+"#/"+k, "missing: a mandatory DataCite 4.5 property")
+			add("M2", finding.Error, dcName+"#/"+k, "missing: a mandatory DataCite 4.5 property")
 		}
 	}
 	profile := opt.Profile
@@ -163,17 +182,17 @@ func checkMetadata(src bagit.Source, res *bagit.Result, opt BundleOptions, rep *
 	}
 	sch, err := schema.Profile(profile)
 	if err != nil {
-		add("M3", Error, profile, "%v", err)
+		add("M3", finding.Error, profile, "%v", err)
 		return
 	}
 	if err := sch.Validate(dc); err != nil {
 		var ve *jsonschema.ValidationError
 		if errors.As(err, &ve) {
 			for _, l := range leafErrors(ve) {
-				add("M3", Error, dcName+"#"+l[0], "profile %s: %s", profile, l[1])
+				add("M3", finding.Error, dcName+"#"+l[0], "profile %s: %s", profile, l[1])
 			}
 		} else {
-			add("M3", Error, dcName, "profile %s: %v", profile, err)
+			add("M3", finding.Error, dcName, "profile %s: %v", profile, err)
 		}
 	}
 }
@@ -194,24 +213,24 @@ func leafErrors(ve *jsonschema.ValidationError) [][2]string {
 // with name, description, datePublished and license, and that every File
 // entity exists, is reachable from the root by hasPart and has the sha256
 // of the bag's manifest.
-func checkCrate(b []byte, payload map[string]bool, sums map[string]string, add func(string, Severity, string, string, ...any)) {
-	const at = "data/ro-crate-metadata.json"
+func checkCrate(b []byte, payload map[string]bool, sums map[string]string, add adder) {
+	const at = schema.CratePath
 	var doc struct {
 		Context any              `json:"@context"`
 		Graph   []map[string]any `json:"@graph"`
 	}
 	if err := json.Unmarshal(b, &doc); err != nil {
-		add("M1", Error, at, "not JSON-LD: %v", err)
+		add("M1", finding.Error, at, "not JSON-LD: %v", err)
 		return
 	}
-	if ctx, _ := doc.Context.(string); ctx != "https://w3id.org/ro/crate/1.1/context" {
-		add("M1", Error, at+"#@context", "must be https://w3id.org/ro/crate/1.1/context")
+	if ctx, _ := doc.Context.(string); ctx != schema.CrateContext {
+		add("M1", finding.Error, at+"#@context", "must be %s", schema.CrateContext)
 	}
 	byID := map[string]map[string]any{}
 	for _, e := range doc.Graph {
 		id, _ := e["@id"].(string)
 		if _, dup := byID[id]; dup {
-			add("M1", Error, at+"#"+id, "@id used twice; @graph ids must be unique")
+			add("M1", finding.Error, at+"#"+id, "@id used twice; @graph ids must be unique")
 		}
 		byID[id] = e
 	}
@@ -222,21 +241,22 @@ func checkCrate(b []byte, payload map[string]bool, sums map[string]string, add f
 		}
 		return ""
 	}
-	desc := byID["ro-crate-metadata.json"]
-	if desc == nil || ref(desc["about"]) != "./" || ref(desc["conformsTo"]) != "https://w3id.org/ro/crate/1.1" {
-		add("M1", Error, at+"#ro-crate-metadata.json", "the metadata descriptor must conform to https://w3id.org/ro/crate/1.1 and be about ./")
+	desc := byID[schema.CrateFile]
+	if desc == nil || ref(desc["about"]) != schema.CrateRootID || ref(desc["conformsTo"]) != schema.CrateConformsTo {
+		add("M1", finding.Error, at+"#"+schema.CrateFile, "the metadata descriptor must conform to %s and be about %s", schema.CrateConformsTo, schema.CrateRootID)
 	}
-	root := byID["./"]
+	root := byID[schema.CrateRootID]
+	rootAt := at + "#" + schema.CrateRootID
 	if root == nil {
-		add("M1", Error, at+"#./", "no root Dataset entity")
+		add("M1", finding.Error, rootAt, "no root Dataset entity")
 		return
 	}
 	if !hasType(root, "Dataset") {
-		add("M1", Error, at+"#./", "the root entity must be a Dataset")
+		add("M1", finding.Error, rootAt, "the root entity must be a Dataset")
 	}
 	for _, k := range []string{"name", "description", "datePublished", "license"} {
 		if root[k] == nil {
-			add("M1", Error, at+"#./", "root Dataset lacks %s (required by RO-Crate 1.1)", k)
+			add("M1", finding.Error, rootAt, "root Dataset lacks %s (required by RO-Crate 1.1)", k)
 		}
 	}
 	parts := map[string]bool{}
@@ -249,16 +269,16 @@ func checkCrate(b []byte, payload map[string]bool, sums map[string]string, add f
 		if !hasType(e, "File") || strings.HasPrefix(id, "#") {
 			continue
 		}
-		p := "data/" + id
+		p := schema.PayloadPath(id)
 		if !payload[p] {
-			add("M1", Error, at+"#"+id, "File entity names a file that is not in the bag")
+			add("M1", finding.Error, at+"#"+id, "File entity names a file that is not in the bag")
 			continue
 		}
 		if !parts[id] {
-			add("M1", Error, at+"#"+id, "File entity not reachable from the root by hasPart")
+			add("M1", finding.Error, at+"#"+id, "File entity not reachable from the root by hasPart")
 		}
 		if s, _ := e["sha256"].(string); s != sums[p] {
-			add("M1", Error, at+"#"+id, "sha256 differs from the bag's manifest-sha256.txt")
+			add("M1", finding.Error, at+"#"+id, "sha256 differs from the bag's %s", schema.ManifestSHA256)
 		}
 	}
 }

@@ -6,7 +6,9 @@ import (
 	"math"
 	"strings"
 
+	"trajvault/internal/finding"
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 	"trajvault/schema"
 )
@@ -32,30 +34,29 @@ func File(path string, opt Options) (*Report, error) {
 // Opened validates an already opened file (e.g. one read from an archive
 // into memory); name is what the report calls it.
 func Opened(f *h5.File, path string, opt Options) *Report {
-	c := &checker{
-		f:      f,
-		layout: schema.Current(),
-		rep: &Report{
-			Tool:          Tool{Name: "trajvault", Version: opt.ToolVersion},
-			File:          path,
-			LayoutVersion: schema.Current().Version,
-		},
-		counts: map[string]int{},
+	rep := &Report{
+		Tool:          Tool{Name: "trajvault", Version: opt.ToolVersion},
+		File:          path,
+		LayoutVersion: schema.Current().Version,
 	}
-	c.run()
-	c.rep.finish()
-	return c.rep
+	rep.Findings = check(f, "")
+	rep.finish()
+	return rep
 }
 
-// maxPerRulePath caps repeated findings of one rule on one path; the last
-// one says how many more there were.
-const maxPerRulePath = 1
+// check runs every file rule on f; file (may be "") goes into each
+// finding's location, for files inside a bundle.
+func check(f *h5.File, file string) []finding.Finding {
+	c := &checker{f: f, file: file, layout: schema.Current(), list: &finding.List{PerPlace: perPlace}}
+	c.run()
+	return c.list.Findings()
+}
 
 type checker struct {
 	f      *h5.File
+	file   string
 	layout *schema.Layout
-	rep    *Report
-	counts map[string]int
+	list   *finding.List
 
 	minor       int  // H5MD minor version
 	unitAttrs   bool // some dataset has a unit attribute
@@ -63,56 +64,59 @@ type checker struct {
 	nStates     int // from /parameters/n_states; 0 unknown
 }
 
-func (c *checker) add(code string, sev Severity, path, format string, args ...any) {
-	key := code + "\x00" + path
-	c.counts[key]++
-	if c.counts[key] > maxPerRulePath {
-		return
-	}
-	c.rep.Findings = append(c.rep.Findings, Finding{Code: code, Severity: sev, Path: path, Message: fmt.Sprintf(format, args...)})
+func (c *checker) add(code string, sev finding.Severity, path, format string, args ...any) {
+	c.list.Addf(code, sev, finding.Location{File: c.file, Path: path}, format, args...)
 }
 
 func (c *checker) errorf(code, path, format string, args ...any) {
-	c.add(code, Error, path, format, args...)
+	c.add(code, finding.Error, path, format, args...)
 }
 
 func (c *checker) warnf(code, path, format string, args ...any) {
-	c.add(code, Warning, path, format, args...)
+	c.add(code, finding.Warning, path, format, args...)
 }
 
+func (c *checker) notef(code, path, format string, args ...any) {
+	c.add(code, finding.Note, path, format, args...)
+}
+
+// attrPath names an attribute in findings: object@name.
+func attrPath(obj, name string) string { return obj + "@" + name }
+
 func (c *checker) run() {
-	if c.f.Kind("/h5md") != h5.Group {
-		c.errorf("V1", "/h5md", "no /h5md group at the root: this is not an H5MD file; write the H5MD header (version, author, creator), e.g. with trajvault convert")
+	if c.f.Kind(trajfile.H5MDGroup) != h5.Group {
+		c.errorf("V1", trajfile.H5MDGroup, "no %s group at the root: this is not an H5MD file; write the H5MD header (version, author, creator), e.g. with trajvault convert", trajfile.H5MDGroup)
 		return
 	}
 	c.header()
-	c.walk("/", map[h5.ObjectID]bool{})
+	c.walk(trajfile.Root, map[h5.ObjectID]bool{})
 	if c.unitAttrs && !c.unitsModule {
-		c.warnf("V19", "/h5md/modules/units", "datasets carry unit attributes but the units module is not declared; add group /h5md/modules/units with version=(1,0) and system=\"SI\"")
+		c.warnf("V19", trajfile.UnitsModule, "datasets carry unit attributes but the units module is not declared; add group %s with version=(1,0) and system=\"SI\"", trajfile.UnitsModule)
 	}
 	c.parameters()
-	if c.f.Kind("/particles") == h5.Group {
-		groups, err := c.f.Links("/particles")
+	if c.f.Kind(trajfile.ParticlesGroup) == h5.Group {
+		groups, err := c.f.Links(trajfile.ParticlesGroup)
 		if err != nil {
-			c.errorf("V27", "/particles", "cannot list the particle groups: %v", err)
+			c.errorf("V33", trajfile.ParticlesGroup, "cannot list the particle groups (damaged file?): %v", err)
 		}
 		for _, g := range groups {
-			c.particles("/particles/" + g)
+			c.particles(trajfile.ParticleGroup(g))
 		}
 	} else {
-		c.errorf("V27", "/particles", "no /particles group: a trajectory needs /particles/<group>/position; write positions with their species and masses")
+		c.errorf("V32", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
 	}
 	c.observables()
 	c.electronic()
 	c.connectivity()
+	c.provenance()
 }
 
 // ---------------------------------------------------------------- header
 
-// stringAttr reads a scalar string attribute, reporting V3 (missing or
+// stringAttr reads a scalar string attribute, reporting code (missing or
 // not a scalar string) and V4 (variable-length).
 func (c *checker) stringAttr(path, name, code string) (string, bool) {
-	at := path + "@" + name
+	at := attrPath(path, name)
 	if !c.f.HasAttr(path, name) {
 		c.errorf(code, at, "missing; add a scalar fixed-length string attribute %q to %s", name, path)
 		return "", false
@@ -133,12 +137,12 @@ func (c *checker) stringAttr(path, name, code string) (string, bool) {
 
 // version reads an integer[2] version attribute.
 func (c *checker) version(path, code string) ([]int64, bool) {
-	at := path + "@version"
-	if !c.f.HasAttr(path, "version") {
+	at := attrPath(path, trajfile.VersionAttr)
+	if !c.f.HasAttr(path, trajfile.VersionAttr) {
 		c.errorf(code, at, "missing; add an integer[2] attribute version, e.g. (1, 0)")
 		return nil, false
 	}
-	a, err := c.f.Attr(path, "version")
+	a, err := c.f.Attr(path, trajfile.VersionAttr)
 	if err != nil || a.Type.Class != h5.ClassInt || a.Shape.Rank != 1 || len(a.Ints) != 2 {
 		c.errorf(code, at, "must be integer[2], found %s %s; write it as two integers (major, minor)", a.Type, a.Shape)
 		return nil, false
@@ -147,64 +151,69 @@ func (c *checker) version(path, code string) ([]int64, bool) {
 }
 
 func (c *checker) header() {
-	if v, ok := c.version("/h5md", "V2"); ok {
+	at := attrPath(trajfile.H5MDGroup, trajfile.VersionAttr)
+	if v, ok := c.version(trajfile.H5MDGroup, "V2"); ok {
 		switch {
 		case v[0] != 1:
-			c.errorf("V2", "/h5md@version", "H5MD version %d.%d is unknown; this validator reads major version 1", v[0], v[1])
+			c.errorf("V2", at, "H5MD version %d.%d is unknown; this validator reads major version 1", v[0], v[1])
 		case v[1] != 0 && v[1] != 1:
-			c.errorf("V2", "/h5md@version", "H5MD version 1.%d is unknown; expected 1.0 or 1.1", v[1])
+			c.errorf("V2", at, "H5MD version 1.%d is unknown; expected 1.0 or 1.1", v[1])
 		default:
 			c.minor = int(v[1])
 		}
 	} else {
 		c.minor = 1
 	}
-	for _, g := range []string{"/h5md/author", "/h5md/creator"} {
+	for _, g := range []string{trajfile.AuthorGroup, trajfile.CreatorGroup} {
 		if c.f.Kind(g) != h5.Group {
 			c.errorf("V3", g, "group missing; H5MD requires %s with a name attribute", g)
 		}
 	}
-	if c.f.Kind("/h5md/author") == h5.Group {
-		c.stringAttr("/h5md/author", "name", "V3")
-		if c.f.HasAttr("/h5md/author", "email") {
-			c.stringAttr("/h5md/author", "email", "V3")
+	if c.f.Kind(trajfile.AuthorGroup) == h5.Group {
+		c.stringAttr(trajfile.AuthorGroup, trajfile.NameAttr, "V3")
+		if c.f.HasAttr(trajfile.AuthorGroup, trajfile.EmailAttr) {
+			c.stringAttr(trajfile.AuthorGroup, trajfile.EmailAttr, "V3")
 		}
 	}
-	if c.f.Kind("/h5md/creator") == h5.Group {
-		c.stringAttr("/h5md/creator", "name", "V3")
-		c.stringAttr("/h5md/creator", "version", "V3")
+	if c.f.Kind(trajfile.CreatorGroup) == h5.Group {
+		c.stringAttr(trajfile.CreatorGroup, trajfile.NameAttr, "V3")
+		c.stringAttr(trajfile.CreatorGroup, trajfile.VersionAttr, "V3")
 	}
-	if c.f.Kind("/h5md/modules") != h5.Group {
+	if c.f.Kind(trajfile.ModulesGroup) != h5.Group {
 		return
 	}
-	mods, _ := c.f.Links("/h5md/modules")
+	mods, _ := c.f.Links(trajfile.ModulesGroup)
 	for _, m := range mods {
-		p := "/h5md/modules/" + m
+		p := trajfile.ModulesGroup + "/" + m
 		if c.f.Kind(p) != h5.Group {
 			c.errorf("V5", p, "a module must be a group with a version attribute")
 			continue
 		}
 		v, ok := c.version(p, "V5")
-		if m == "units" {
+		if m == trajfile.UnitsModuleName {
 			c.unitsModule = true
-			if c.f.HasAttr(p, "system") {
-				c.stringAttr(p, "system", "V3")
+			if c.f.HasAttr(p, trajfile.SystemAttr) {
+				c.stringAttr(p, trajfile.SystemAttr, "V3")
 			}
 		}
 		if m == c.layout.Module.Name && ok {
 			want := c.layout.Module.Version
 			if int(v[0]) != want[0] || int(v[1]) > want[1] {
-				c.errorf("E1", p+"@version", "module version %d.%d is not known to this build (knows %d.%d); upgrade trajvault", v[0], v[1], want[0], want[1])
+				c.errorf("E11", attrPath(p, trajfile.VersionAttr), "module version %d.%d is not known to this build (knows %d.%d); upgrade trajvault", v[0], v[1], want[0], want[1])
 			}
 		}
 	}
 }
 
+// ourModule reports whether the file declares trajvault's module, so
+// that the trajvault profile's rules (provenance) apply to it.
+func (c *checker) ourModule() bool { return c.f.Kind(trajfile.OurModule) == h5.Group }
+
 // ---------------------------------------------------------------- walk
 
 // walk visits every object once (groups are tracked by identity, so hard
-// links and cycles are safe): unit strings (V18), filters (V28) and
-// finite values (V26).
+// links and cycles are safe): unit strings (V18), filters (V28), finite
+// values (V26), links that lead nowhere (V30) or out of the file (V31).
 func (c *checker) walk(path string, seen map[h5.ObjectID]bool) {
 	switch c.f.Kind(path) {
 	case h5.Group:
@@ -218,11 +227,17 @@ func (c *checker) walk(path string, seen map[h5.ObjectID]bool) {
 		c.unitAttr(path)
 		links, err := c.f.Links(path)
 		if err != nil {
-			c.errorf("V27", path, "cannot list group members: %v", err)
+			c.errorf("V33", path, "cannot list group members (damaged file?): %v", err)
 			return
 		}
 		for _, l := range links {
 			child := strings.TrimSuffix(path, "/") + "/" + l
+			if c.f.Kind(child) == h5.Missing {
+				// Listed by its group but not readable: a damaged object
+				// header. Say so rather than skip it.
+				c.errorf("V33", child, "linked from %s but the object cannot be read (damaged file?); restore the file from its source", path)
+				continue
+			}
 			c.walk(child, seen)
 		}
 	case h5.Dataset:
@@ -236,19 +251,19 @@ func (c *checker) walk(path string, seen map[h5.ObjectID]bool) {
 		c.unitAttr(path)
 		c.dataset(path)
 	case h5.DanglingSoftLink:
-		c.warnf("V27", path, "soft link points nowhere; remove it or restore its target")
+		c.warnf("V30", path, "soft link points nowhere; remove it or restore its target")
 	case h5.ExternalLink:
-		c.warnf("V27", path, "external link to another file; a deposit should be self-contained")
+		c.warnf("V31", path, "external link to another file; a deposit should be self-contained: copy the data in")
 	}
 }
 
 func (c *checker) unitAttr(path string) {
-	if !c.f.HasAttr(path, "unit") {
+	if !c.f.HasAttr(path, trajfile.UnitAttr) {
 		return
 	}
 	c.unitAttrs = true
-	at := path + "@unit"
-	a, err := c.f.Attr(path, "unit")
+	at := attrPath(path, trajfile.UnitAttr)
+	a, err := c.f.Attr(path, trajfile.UnitAttr)
 	if err != nil || a.Type.Class != h5.ClassString || len(a.Strings) != 1 {
 		c.errorf("V18", at, "unit must be a scalar string, found %s %s", a.Type, a.Shape)
 		return
@@ -267,13 +282,18 @@ func (c *checker) unitAttr(path string) {
 
 // physical reports whether a dataset holds a physical quantity (V26).
 func physical(path string) bool {
-	return strings.HasPrefix(path, "/particles/") || strings.HasPrefix(path, "/observables/") || strings.HasPrefix(path, "/parameters/")
+	for _, g := range []string{trajfile.ParticlesGroup, trajfile.ObservablesGroup, trajfile.ParametersGroup} {
+		if strings.HasPrefix(path, g+"/") {
+			return true
+		}
+	}
+	return false
 }
 
 func (c *checker) dataset(path string) {
 	info, err := c.f.Info(path)
 	if err != nil {
-		c.errorf("V27", path, "cannot read the dataset description: %v", err)
+		c.errorf("V33", path, "cannot read the dataset description (damaged file?): %v", err)
 		return
 	}
 	foreign := ""
@@ -283,8 +303,8 @@ func (c *checker) dataset(path string) {
 			c.warnf("V28", path, "%s is not built into every HDF5 library; readers need a plugin; repack with deflate, shuffle or scale-offset", foreign)
 		}
 	}
-	if c.f.HasAttr(path, "trajvault_tolerance") {
-		if a, err := c.f.Attr(path, "trajvault_tolerance"); err == nil && len(a.Floats) == 1 {
+	if c.f.HasAttr(path, trajfile.ToleranceAttr) {
+		if a, err := c.f.Attr(path, trajfile.ToleranceAttr); err == nil && len(a.Floats) == 1 {
 			c.warnf("V29", path, "stored lossily: values are within +-%g (in the dataset's unit) of the source, as the writer states; export cannot give back more digits", a.Floats[0])
 		} else {
 			c.errorf("V29", path, "trajvault_tolerance must be one float, the absolute bound of the lossy storage")
@@ -309,7 +329,7 @@ func (c *checker) dataset(path string) {
 		return
 	}
 	if err != nil {
-		c.errorf("V26", path, "cannot read the data (damaged or truncated file?): %v", err)
+		c.errorf("V33", path, "cannot read the data (damaged or truncated file?): %v", err)
 		return
 	}
 	if bad > 0 {

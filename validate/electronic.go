@@ -4,29 +4,29 @@ import (
 	"math"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 )
 
-const elGroup = "/observables/electronic"
+const elGroup = trajfile.ElectronicGroup
 
 // electronic checks the trajvault_electronic module (E1-E10).
 func (c *checker) electronic() {
 	if c.f.Kind(elGroup) != h5.Group {
 		return
 	}
-	mod := "/h5md/modules/" + c.layout.Module.Name
+	mod := trajfile.OurModule
 	if c.f.Kind(mod) != h5.Group {
 		c.errorf("E1", mod, "electronic-state data under %s but the module is not declared; add group %s with version=(%d, %d)", elGroup, mod, c.layout.Module.Version[0], c.layout.Module.Version[1])
 	}
-	if c.nStates == 0 && c.f.Kind("/parameters/n_states") == h5.Missing {
-		c.errorf("E2", "/parameters/n_states", "missing; with electronic data, store the number of states as an integer scalar dataset")
+	if c.nStates == 0 && c.f.Kind(trajfile.NStates) == h5.Missing {
+		c.errorf("E2", trajfile.NStates, "missing; with electronic data, store the number of states as an integer scalar dataset")
 	}
 	b := bindings{}
 	if c.nStates > 0 {
 		b["S"] = c.nStates
 	}
 	elems := map[string]*tdElement{}
-	for _, name := range []string{"state_energies", "active_state", "populations", "amplitudes", "couplings"} {
-		p := elGroup + "/" + name
+	for _, p := range []string{trajfile.StateEnergies, trajfile.ActiveState, trajfile.Populations, trajfile.Amplitudes, trajfile.Couplings} {
 		if !c.isElement(p) {
 			if c.f.Kind(p) != h5.Missing {
 				c.errorf("V6", p, "must be a time-dependent element (group with step, time, value)")
@@ -38,23 +38,23 @@ func (c *checker) electronic() {
 			continue
 		}
 		c.typed(e, p, b)
-		elems[name] = e
+		elems[p] = e
 	}
 	S := b["S"]
-	if e := elems["active_state"]; e != nil && S > 0 {
+	if e := elems[trajfile.ActiveState]; e != nil && S > 0 {
 		c.activeRange(e, S)
 	}
-	if e := elems["populations"]; e != nil {
+	if e := elems[trajfile.Populations]; e != nil {
 		c.populations(e, e.valuePath(), false)
 	}
-	if e := elems["amplitudes"]; e != nil {
+	if e := elems[trajfile.Amplitudes]; e != nil {
 		c.populations(e, e.valuePath(), true)
 	}
-	if e := elems["couplings"]; e != nil {
+	if e := elems[trajfile.Couplings]; e != nil {
 		c.antisymmetric(e)
 	}
-	if c.f.Kind(elGroup+"/hops") == h5.Group {
-		c.hops(S, elems["active_state"], b)
+	if c.f.Kind(trajfile.HopsGroup) == h5.Group {
+		c.hops(S, elems[trajfile.ActiveState], b)
 	}
 }
 
@@ -141,10 +141,9 @@ func (c *checker) antisymmetric(e *tdElement) {
 
 // hops checks the hop table (E7, E8, E10).
 func (c *checker) hops(S int, active *tdElement, b bindings) {
-	g := elGroup + "/hops"
+	g := trajfile.HopsGroup
 	cols := map[string][]int64{}
-	for _, name := range []string{"step", "from_state", "to_state", "kind"} {
-		p := g + "/" + name
+	for _, p := range []string{trajfile.HopStep, trajfile.HopFrom, trajfile.HopTo, trajfile.HopKind} {
 		if c.f.Kind(p) != h5.Dataset {
 			c.errorf("E7", p, "missing; the hops table needs step, time, from_state, to_state and kind")
 			return
@@ -157,43 +156,44 @@ func (c *checker) hops(S int, active *tdElement, b bindings) {
 		if err != nil {
 			return
 		}
-		cols[name] = v
+		cols[p] = v
 	}
-	if c.f.Kind(g+"/time") == h5.Dataset {
-		info, _ := c.f.Info(g + "/time")
-		if el, ok := c.layout.Find(g + "/time"); ok {
-			c.shape(g+"/time", el, info, b, false)
+	if c.f.Kind(trajfile.HopTime) == h5.Dataset {
+		info, _ := c.f.Info(trajfile.HopTime)
+		if el, ok := c.layout.Find(trajfile.HopTime); ok {
+			c.shape(trajfile.HopTime, el, info, b, false)
 		}
-		c.unitDim(g+"/time", "time")
+		c.unitDim(trajfile.HopTime, "time")
 	}
-	n := len(cols["step"])
-	for _, name := range []string{"from_state", "to_state", "kind"} {
-		if len(cols[name]) != n {
-			c.errorf("E7", g+"/"+name, "%d rows but step has %d; every hop column needs one row per attempt", len(cols[name]), n)
+	steps := cols[trajfile.HopStep]
+	n := len(steps)
+	for _, p := range []string{trajfile.HopFrom, trajfile.HopTo, trajfile.HopKind} {
+		if len(cols[p]) != n {
+			c.errorf("E7", p, "%d rows but step has %d; every hop column needs one row per attempt", len(cols[p]), n)
 			return
 		}
 	}
 	for i := 0; i < n; i++ {
-		from, to, kind := cols["from_state"][i], cols["to_state"][i], cols["kind"][i]
+		from, to, kind := cols[trajfile.HopFrom][i], cols[trajfile.HopTo][i], cols[trajfile.HopKind][i]
 		switch {
 		case kind != 0 && kind != 1:
-			c.errorf("E7", g+"/kind", "row %d: kind %d; use 0 (accepted) or 1 (frustrated)", i, kind)
+			c.errorf("E7", trajfile.HopKind, "row %d: kind %d; use 0 (accepted) or 1 (frustrated)", i, kind)
 		case S > 0 && (from < 0 || from >= int64(S) || to < 0 || to >= int64(S)):
 			c.errorf("E7", g, "row %d: hop %d -> %d outside states 0..%d", i, from, to, S-1)
 		case from == to:
 			c.errorf("E7", g, "row %d: hop from state %d to itself", i, from)
 		}
-		if i > 0 && cols["step"][i] < cols["step"][i-1] {
-			c.errorf("E8", g+"/step", "row %d: step %d before step %d; hops must be in time order", i, cols["step"][i], cols["step"][i-1])
+		if i > 0 && steps[i] < steps[i-1] {
+			c.errorf("E8", trajfile.HopStep, "row %d: step %d before step %d; hops must be in time order", i, steps[i], steps[i-1])
 		}
 	}
 	if active == nil || len(active.steps) == 0 {
 		return
 	}
-	steps := active.steps
-	for i, s := range cols["step"] {
-		if s < steps[0] || s > steps[len(steps)-1] {
-			c.errorf("E8", g+"/step", "row %d: hop at step %d outside the run (steps %d..%d)", i, s, steps[0], steps[len(steps)-1])
+	run := active.steps
+	for i, s := range steps {
+		if s < run[0] || s > run[len(run)-1] {
+			c.errorf("E8", trajfile.HopStep, "row %d: hop at step %d outside the run (steps %d..%d)", i, s, run[0], run[len(run)-1])
 			break
 		}
 	}
@@ -215,8 +215,9 @@ func (c *checker) hopsMatchActive(cols map[string][]int64, active *tdElement) {
 		}
 		lo, hi := active.steps[i-1], active.steps[i]
 		found := false
-		for ; j < len(cols["step"]) && cols["step"][j] <= hi; j++ {
-			if cols["step"][j] > lo && cols["kind"][j] == 0 && cols["to_state"][j] == st[i] {
+		steps, kinds, to := cols[trajfile.HopStep], cols[trajfile.HopKind], cols[trajfile.HopTo]
+		for ; j < len(steps) && steps[j] <= hi; j++ {
+			if steps[j] > lo && kinds[j] == 0 && to[j] == st[i] {
 				found = true
 			}
 		}

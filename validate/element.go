@@ -7,6 +7,7 @@ import (
 	"sort"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 	"trajvault/schema"
 )
@@ -21,79 +22,80 @@ type tdElement struct {
 	T     int // frames: value.shape[0]
 }
 
-func (e *tdElement) valuePath() string { return e.path + "/value" }
+func (e *tdElement) valuePath() string { return e.path + trajfile.Value }
 
 // isElement reports whether path is a group that looks like a
 // time-dependent element (has step or value).
 func (c *checker) isElement(path string) bool {
-	return c.f.Kind(path) == h5.Group && (c.f.Kind(path+"/value") != h5.Missing || c.f.Kind(path+"/step") != h5.Missing)
+	return c.f.Kind(path) == h5.Group && (c.f.Kind(path+trajfile.Value) != h5.Missing || c.f.Kind(path+trajfile.Step) != h5.Missing)
 }
 
-// element checks V6-V9, V22 and V25 for the time-dependent element at
+// element checks V6-V9, V22, V25 and V36 for the time-dependent element at
 // path and returns it, or nil when it is too broken to use.
 func (c *checker) element(path string) *tdElement {
 	e := &tdElement{path: path}
-	hasStep := c.f.Kind(path+"/step") == h5.Dataset
-	hasValue := c.f.Kind(path+"/value") == h5.Dataset
-	hasTime := c.f.Kind(path+"/time") == h5.Dataset
+	stepP, timeP, valueP := path+trajfile.Step, path+trajfile.Time, path+trajfile.Value
+	hasStep := c.f.Kind(stepP) == h5.Dataset
+	hasValue := c.f.Kind(valueP) == h5.Dataset
+	hasTime := c.f.Kind(timeP) == h5.Dataset
 	if !hasValue {
-		c.errorf("V6", path, "time-dependent element without a value dataset; store the data as %s/value", path)
+		c.errorf("V6", path, "time-dependent element without a value dataset; store the data as %s", valueP)
 		return nil
 	}
 	if !hasStep {
-		c.errorf("V6", path, "time-dependent element without a step dataset; add %s/step (integer step of each frame)", path)
+		c.errorf("V6", path, "time-dependent element without a step dataset; add %s (integer step of each frame)", stepP)
 		return nil
 	}
 	if !hasTime && c.minor == 0 {
-		c.errorf("V6", path, "H5MD 1.0 requires a time dataset; add %s/time with a unit", path)
+		c.errorf("V6", path, "H5MD 1.0 requires a time dataset; add %s with a unit", timeP)
 	}
 	var err error
-	if e.value, err = c.f.Info(path + "/value"); err != nil {
-		c.errorf("V27", path+"/value", "cannot describe dataset: %v", err)
+	if e.value, err = c.f.Info(valueP); err != nil {
+		c.errorf("V33", valueP, "cannot describe dataset (damaged file?): %v", err)
 		return nil
 	}
 	if e.value.Shape.Rank < 1 {
-		c.errorf("V27", path+"/value", "value of a time-dependent element must have a frame dimension, found %s", e.value.Shape)
+		c.errorf("V27", valueP, "value of a time-dependent element must have a frame dimension, found %s", e.value.Shape)
 		return nil
 	}
 	e.T = e.value.Shape.Dims[0]
-	si, _ := c.f.Info(path + "/step")
+	si, _ := c.f.Info(stepP)
 	if si.Type.Class != h5.ClassInt {
-		c.errorf("V7", path+"/step", "step must be an integer dataset, found %s; store integration step numbers as integers", si.Type)
+		c.errorf("V7", stepP, "step must be an integer dataset, found %s; store integration step numbers as integers", si.Type)
 		return nil
 	}
 	var ti h5.DatasetInfo
 	if hasTime {
-		ti, _ = c.f.Info(path + "/time")
+		ti, _ = c.f.Info(timeP)
 		if ti.Type.Class != h5.ClassFloat && ti.Type.Class != h5.ClassInt {
-			c.errorf("V7", path+"/time", "time must be numeric, found %s", ti.Type)
+			c.errorf("V7", timeP, "time must be numeric, found %s", ti.Type)
 			hasTime = false
 		} else if ti.Shape.Rank != si.Shape.Rank {
-			c.errorf("V7", path+"/time", "time has rank %d but step has rank %d; both scalar (fixed mode) or both 1-D (explicit mode)", ti.Shape.Rank, si.Shape.Rank)
+			c.errorf("V7", timeP, "time has rank %d but step has rank %d; both scalar (fixed mode) or both 1-D (explicit mode)", ti.Shape.Rank, si.Shape.Rank)
 			hasTime = false
 		}
-		if c.f.HasAttr(path+"/time", "unit") {
-			c.unitDim(path+"/time", "time")
+		if c.f.HasAttr(timeP, trajfile.UnitAttr) {
+			c.unitDim(timeP, "time")
 		} else {
-			c.errorf("V20", path+"/time", "time has no unit attribute; add unit=\"fs\" (or the unit the times are in)")
+			c.errorf("V20", timeP, "time has no unit attribute; add unit=\"fs\" (or the unit the times are in)")
 		}
 	}
-	if c.f.HasAttr(path+"/step", "unit") {
-		c.warnf("V20", path+"/step", "step is a count and takes no unit attribute; remove it")
+	if c.f.HasAttr(stepP, trajfile.UnitAttr) {
+		c.warnf("V36", stepP, "step is a count and takes no unit attribute; remove it")
 	}
 	switch si.Shape.Rank {
 	case 0:
 		e.fixed = true
-		st, _, err := c.f.ReadInt64(path + "/step")
+		st, _, err := c.f.ReadInt64(stepP)
 		if err == nil && len(st) == 1 && st[0] <= 0 {
-			c.errorf("V9", path+"/step", "fixed-mode step increment is %d; it must be positive", st[0])
+			c.errorf("V9", stepP, "fixed-mode step increment is %d; it must be positive", st[0])
 			return e
 		}
 		// Expand the fixed clock so the checks below (hops within the
 		// run, state changes matched by hops) work in both modes.
 		if err == nil && len(st) == 1 {
 			off := int64(0)
-			if a, err := c.f.Attr(path+"/step", "offset"); err == nil && len(a.Ints) == 1 {
+			if a, err := c.f.Attr(stepP, trajfile.OffsetAttr); err == nil && len(a.Ints) == 1 {
 				off = a.Ints[0]
 			}
 			e.steps = make([]int64, e.T)
@@ -104,26 +106,26 @@ func (c *checker) element(path string) *tdElement {
 		return e
 	case 1:
 	default:
-		c.errorf("V7", path+"/step", "step must be scalar (fixed mode) or 1-D (explicit mode), found rank %d", si.Shape.Rank)
+		c.errorf("V7", stepP, "step must be scalar (fixed mode) or 1-D (explicit mode), found rank %d", si.Shape.Rank)
 		return nil
 	}
-	e.steps, _, err = c.f.ReadInt64(path + "/step")
+	e.steps, _, err = c.f.ReadInt64(stepP)
 	if err != nil {
-		c.errorf("V7", path+"/step", "cannot read: %v", err)
+		c.errorf("V33", stepP, "cannot read (damaged file?): %v", err)
 		return nil
 	}
 	if hasTime {
-		e.times, _, err = c.f.ReadFloat64(path + "/time")
+		e.times, _, err = c.f.ReadFloat64(timeP)
 		if err != nil {
-			c.errorf("V7", path+"/time", "cannot read: %v", err)
+			c.errorf("V33", timeP, "cannot read (damaged file?): %v", err)
 			e.times = nil
 		}
 	}
 	if len(e.steps) != e.T {
-		c.errorf("V8", path+"/step", "%d steps for %d frames of value; step, time and value must have one entry per frame", len(e.steps), e.T)
+		c.errorf("V8", stepP, "%d steps for %d frames of value; step, time and value must have one entry per frame", len(e.steps), e.T)
 	}
 	if e.times != nil && len(e.times) != len(e.steps) {
-		c.errorf("V8", path+"/time", "%d times for %d steps; write one time per step", len(e.times), len(e.steps))
+		c.errorf("V8", timeP, "%d times for %d steps; write one time per step", len(e.times), len(e.steps))
 		e.times = nil
 	}
 	// V22: frames past the last written one read as the fill value 0.
@@ -132,15 +134,15 @@ func (c *checker) element(path string) *tdElement {
 		trail++
 	}
 	if trail > 0 && e.steps[len(e.steps)-1-trail] > 0 {
-		c.errorf("V22", path+"/step", "the last %d frames have step 0 after step %d: unwritten fill frames left by an interrupted writer; cut the datasets to %d frames", trail, e.steps[len(e.steps)-1-trail], len(e.steps)-trail)
+		c.errorf("V22", stepP, "the last %d frames have step 0 after step %d: unwritten fill frames left by an interrupted writer; cut the datasets to %d frames", trail, e.steps[len(e.steps)-1-trail], len(e.steps)-trail)
 		e.steps = e.steps[:len(e.steps)-trail]
 		if e.times != nil {
 			e.times = e.times[:len(e.steps)]
 		}
 	}
-	c.monotone(path+"/step", len(e.steps), func(i int) float64 { return float64(e.steps[i]) })
+	c.monotone(stepP, len(e.steps), func(i int) float64 { return float64(e.steps[i]) })
 	if e.times != nil {
-		c.monotone(path+"/time", len(e.times), func(i int) float64 { return e.times[i] })
+		c.monotone(timeP, len(e.times), func(i int) float64 { return e.times[i] })
 		c.clock(e)
 	}
 	return e
@@ -201,7 +203,7 @@ func (c *checker) clock(e *tdElement) {
 		got := e.times[i] - e.times[i-1]
 		want := float64(ds) * dt
 		if math.Abs(got-want) > 0.01*math.Abs(want)+1e-12*math.Abs(e.times[i]) {
-			c.warnf("V25", e.path+"/time", "between steps %d and %d time advances by %g, but the run's time step (%g per step) gives %g: the time step changed or the clock was reset; check the log", e.steps[i-1], e.steps[i], got, dt, want)
+			c.warnf("V25", e.path+trajfile.Time, "between steps %d and %d time advances by %g, but the run's time step (%g per step) gives %g: the time step changed or the clock was reset; check the log", e.steps[i-1], e.steps[i], got, dt, want)
 			return
 		}
 	}
@@ -218,14 +220,14 @@ func (c *checker) unitDim(path, dimName string) {
 	if !ok {
 		panic("validate: unknown dimension " + dimName)
 	}
-	if !c.f.HasAttr(path, "unit") {
+	if !c.f.HasAttr(path, trajfile.UnitAttr) {
 		if want == units.Dimensionless {
 			return
 		}
 		c.errorf("V20", path, "no unit attribute (expected a unit of %s); add one, e.g. unit=%q", dimName, example[dimName])
 		return
 	}
-	a, err := c.f.Attr(path, "unit")
+	a, err := c.f.Attr(path, trajfile.UnitAttr)
 	if err != nil || len(a.Strings) != 1 {
 		return
 	}
@@ -254,7 +256,7 @@ type bindings map[string]int
 // element's frame count, or -1 for time-independent elements.
 func (c *checker) shape(path string, el schema.Element, info h5.DatasetInfo, b bindings, timeDep bool) {
 	dtypeCode := "V27"
-	if el.Path == "/particles/{group}/species" || el.Path == "/particles/{group}/mass" {
+	if el.Path == template(trajfile.Species) || el.Path == template(trajfile.Mass) {
 		dtypeCode = "V15"
 	}
 	switch el.DType {

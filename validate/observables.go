@@ -5,18 +5,19 @@ import (
 	"strings"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 )
 
 // observables checks the time-dependent elements under /observables that
 // the layout documents (energies), plus the H5MD element rules for any
 // other element there.
 func (c *checker) observables() {
-	if c.f.Kind("/observables") != h5.Group {
+	if c.f.Kind(trajfile.ObservablesGroup) != h5.Group {
 		return
 	}
 	var visit func(string)
 	visit = func(p string) {
-		if strings.HasPrefix(p, "/observables/electronic") {
+		if p == trajfile.ElectronicGroup || strings.HasPrefix(p, trajfile.ElectronicGroup+"/") {
 			return // module elements: electronic()
 		}
 		if c.isElement(p) {
@@ -38,17 +39,17 @@ func (c *checker) observables() {
 			visit(p + "/" + l)
 		}
 	}
-	visit("/observables")
+	visit(trajfile.ObservablesGroup)
 }
 
 // parameters checks /parameters/time_step and /parameters/n_states.
 func (c *checker) parameters() {
-	if el, ok := c.layout.Find("/parameters/time_step"); ok && c.f.Kind("/parameters/time_step") == h5.Dataset {
-		info, _ := c.f.Info("/parameters/time_step")
-		c.shape("/parameters/time_step", el, info, bindings{}, false)
-		c.unitDim("/parameters/time_step", "time")
+	if el, ok := c.layout.Find(trajfile.TimeStep); ok && c.f.Kind(trajfile.TimeStep) == h5.Dataset {
+		info, _ := c.f.Info(trajfile.TimeStep)
+		c.shape(trajfile.TimeStep, el, info, bindings{}, false)
+		c.unitDim(trajfile.TimeStep, "time")
 	}
-	p := "/parameters/n_states"
+	p := trajfile.NStates
 	if c.f.Kind(p) != h5.Dataset {
 		return
 	}
@@ -61,25 +62,26 @@ func (c *checker) parameters() {
 	c.nStates = int(v[0])
 }
 
-// connectivity checks V17: integer indices within the particle groups.
+// connectivity checks V17 (integer indices within the particle groups)
+// and V37 (the group they refer to is named).
 func (c *checker) connectivity() {
-	if c.f.Kind("/connectivity") != h5.Group {
+	if c.f.Kind(trajfile.ConnectivityGroup) != h5.Group {
 		return
 	}
 	maxN := 0
-	if groups, err := c.f.Links("/particles"); err == nil {
+	if groups, err := c.f.Links(trajfile.ParticlesGroup); err == nil {
 		for _, g := range groups {
-			if info, err := c.f.Info("/particles/" + g + "/species"); err == nil && info.Shape.Rank >= 1 {
+			if info, err := c.f.Info(trajfile.Particle(trajfile.ParticleGroup(g), trajfile.Species)); err == nil && info.Shape.Rank >= 1 {
 				maxN = max(maxN, info.Shape.Dims[info.Shape.Rank-1])
 			}
 		}
 	}
-	links, _ := c.f.Links("/connectivity")
+	links, _ := c.f.Links(trajfile.ConnectivityGroup)
 	for _, l := range links {
-		p := "/connectivity/" + l
+		p := trajfile.ConnectivityGroup + "/" + l
 		path := p
 		if c.isElement(p) {
-			path = p + "/value"
+			path = p + trajfile.Value
 		}
 		if c.f.Kind(path) != h5.Dataset {
 			continue
@@ -89,8 +91,8 @@ func (c *checker) connectivity() {
 			c.errorf("V17", path, "connectivity must hold integer particle indices, found %s", info.Type)
 			continue
 		}
-		if !c.f.HasAttr(p, "particles_group") && !c.f.HasAttr(path, "particles_group") {
-			c.errorf("V17", p, "no particles_group attribute; add an object reference to the particle group the indices refer to")
+		if !c.f.HasAttr(p, trajfile.ParticlesGroupAttr) && !c.f.HasAttr(path, trajfile.ParticlesGroupAttr) {
+			c.errorf("V37", p, "no particles_group attribute; add an object reference to the particle group the indices refer to")
 		}
 		v, _, err := c.f.ReadInt64(path)
 		if err != nil {

@@ -2,10 +2,15 @@ package validate
 
 import (
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 )
 
+// template is the layout.json path of element name of any particle group
+// (schema.Layout.Find matches "{group}" against any group name).
+func template(name string) string { return trajfile.ParticleGroup("{group}") + "/" + name }
+
 // particles checks one particle group: box (V11, V12), elements (V6-V10,
-// V13-V15, V20, V27).
+// V13-V15, V20, V27, V34, V35).
 func (c *checker) particles(g string) {
 	if c.f.Kind(g) != h5.Group {
 		c.errorf("V27", g, "a particle group must be an HDF5 group")
@@ -17,46 +22,46 @@ func (c *checker) particles(g string) {
 		b["D"] = dim
 	}
 	// Time-independent species/mass first: they fix N.
-	for _, name := range []string{"species", "mass", "charge", "id"} {
-		p := g + "/" + name
+	for _, name := range []string{trajfile.Species, trajfile.Mass, trajfile.Charge, trajfile.ID} {
+		p := trajfile.Particle(g, name)
 		switch {
 		case c.f.Kind(p) == h5.Dataset:
-			c.fixedElement(p, "/particles/{group}/"+name, b)
+			c.fixedElement(p, template(name), b)
 		case c.isElement(p):
 			if e := c.element(p); e != nil {
-				c.typed(e, "/particles/{group}/"+name, b)
-				if name == "id" {
+				c.typed(e, template(name), b)
+				if name == trajfile.ID {
 					c.uniqueIDs(e)
 				}
 			}
 		case c.f.Kind(p) == h5.Group:
 			c.errorf("V10", p, "%s is a group without step/value; a time-independent element must be a dataset", name)
 		default:
-			if el, ok := c.layout.Find("/particles/{group}/" + name); ok && el.Required {
-				c.errorf("V27", p, "missing; the layout requires %s (%s)", name, el.Doc)
+			if el, ok := c.layout.Find(template(name)); ok && el.Required {
+				c.errorf("V34", p, "missing; the layout requires %s (%s)", name, el.Doc)
 			}
 		}
 	}
 	var pos *tdElement
-	for _, name := range []string{"position", "velocity", "force", "image"} {
-		p := g + "/" + name
-		tmpl := "/particles/{group}/" + name
+	for _, name := range []string{trajfile.Position, trajfile.Velocity, trajfile.Force, trajfile.Image} {
+		p := trajfile.Particle(g, name)
+		tmpl := template(name)
 		switch {
 		case c.isElement(p):
 			e := c.element(p)
 			if e == nil {
 				continue
 			}
-			if name == "position" {
+			if name == trajfile.Position {
 				pos = e
 			}
-			if name == "image" {
+			if name == trajfile.Image {
 				c.sharedClock(pos, e)
 				continue
 			}
 			c.typed(e, tmpl, b)
 		case c.f.Kind(p) == h5.Dataset:
-			if name == "image" {
+			if name == trajfile.Image {
 				continue
 			}
 			// H5MD allows time-independent positions (a single structure).
@@ -65,7 +70,7 @@ func (c *checker) particles(g string) {
 			c.errorf("V6", p, "group without step/value: not a valid H5MD element")
 		default:
 			if el, ok := c.layout.Find(tmpl); ok && el.Required {
-				c.errorf("V27", p, "missing; the layout requires %s (%s)", name, el.Doc)
+				c.errorf("V34", p, "missing; the layout requires %s (%s)", name, el.Doc)
 			}
 		}
 	}
@@ -90,7 +95,7 @@ func (c *checker) fixedElement(p, tmpl string, b bindings) {
 	}
 	info, err := c.f.Info(p)
 	if err != nil {
-		c.errorf("V27", p, "cannot describe dataset: %v", err)
+		c.errorf("V33", p, "cannot describe dataset (damaged file?): %v", err)
 		return
 	}
 	if el.Kind == "time-dependent" {
@@ -104,38 +109,39 @@ func (c *checker) fixedElement(p, tmpl string, b bindings) {
 
 // box checks V11 and returns the dimension and boundary.
 func (c *checker) box(g string) (int, []string) {
-	p := g + "/box"
+	p := trajfile.Particle(g, trajfile.Box)
+	dimAt, bndAt := attrPath(p, trajfile.DimensionAttr), attrPath(p, trajfile.BoundaryAttr)
 	if c.f.Kind(p) != h5.Group {
 		c.errorf("V11", p, "missing; every particle group needs a box group with dimension and boundary (use boundary none for a molecule in vacuum)")
 		return 0, nil
 	}
 	dim := 0
-	if !c.f.HasAttr(p, "dimension") {
-		c.errorf("V11", p+"@dimension", "missing; add an integer scalar attribute dimension (3)")
-	} else if a, err := c.f.Attr(p, "dimension"); err != nil || a.Type.Class != h5.ClassInt || len(a.Ints) != 1 || a.Ints[0] < 1 || a.Ints[0] > 3 {
-		c.errorf("V11", p+"@dimension", "must be an integer scalar in 1..3, found %s %v", a.Type, a.Ints)
+	if !c.f.HasAttr(p, trajfile.DimensionAttr) {
+		c.errorf("V11", dimAt, "missing; add an integer scalar attribute dimension (3)")
+	} else if a, err := c.f.Attr(p, trajfile.DimensionAttr); err != nil || a.Type.Class != h5.ClassInt || len(a.Ints) != 1 || a.Ints[0] < 1 || a.Ints[0] > 3 {
+		c.errorf("V11", dimAt, "must be an integer scalar in 1..3, found %s %v", a.Type, a.Ints)
 	} else {
 		dim = int(a.Ints[0])
 		if a.Shape.Rank != 0 {
-			c.errorf("V11", p+"@dimension", "must be a scalar, found shape %s", a.Shape)
+			c.errorf("V11", dimAt, "must be a scalar, found shape %s", a.Shape)
 		}
 	}
 	var boundary []string
-	if !c.f.HasAttr(p, "boundary") {
-		c.errorf("V11", p+"@boundary", "missing; add a string[%d] attribute boundary of periodic/none", max(dim, 1))
-	} else if a, err := c.f.Attr(p, "boundary"); err != nil || a.Type.Class != h5.ClassString {
-		c.errorf("V11", p+"@boundary", "must be strings, found %s", a.Type)
+	if !c.f.HasAttr(p, trajfile.BoundaryAttr) {
+		c.errorf("V11", bndAt, "missing; add a string[%d] attribute boundary of periodic/none", max(dim, 1))
+	} else if a, err := c.f.Attr(p, trajfile.BoundaryAttr); err != nil || a.Type.Class != h5.ClassString {
+		c.errorf("V11", bndAt, "must be strings, found %s", a.Type)
 	} else {
 		boundary = a.Strings
 		if a.Type.VarLen {
-			c.warnf("V4", p+"@boundary", "variable-length strings; H5MD asks for fixed-length strings")
+			c.warnf("V4", bndAt, "variable-length strings; H5MD asks for fixed-length strings")
 		}
 		if dim > 0 && len(boundary) != dim {
-			c.errorf("V11", p+"@boundary", "has %d entries for dimension %d; give one per axis", len(boundary), dim)
+			c.errorf("V11", bndAt, "has %d entries for dimension %d; give one per axis", len(boundary), dim)
 		}
 		for _, s := range boundary {
 			if s != "periodic" && s != "none" {
-				c.errorf("V11", p+"@boundary", "entry %q is neither periodic nor none", s)
+				c.errorf("V11", bndAt, "entry %q is neither periodic nor none", s)
 			}
 		}
 	}
@@ -144,7 +150,7 @@ func (c *checker) box(g string) (int, []string) {
 
 // edges checks V12 (and V13 for time-dependent edges).
 func (c *checker) edges(g string, dim int, boundary []string, pos *tdElement, b bindings) {
-	p := g + "/box/edges"
+	p := trajfile.Particle(g, trajfile.BoxEdges)
 	periodic := false
 	for _, s := range boundary {
 		periodic = periodic || s == "periodic"
@@ -163,9 +169,9 @@ func (c *checker) edges(g string, dim int, boundary []string, pos *tdElement, b 
 		c.sharedClock(pos, e)
 		d := e.value.Shape.Dims[1:]
 		if !(len(d) == 1 && d[0] == dim) && !(len(d) == 2 && d[0] == dim && d[1] == dim) {
-			c.errorf("V12", p+"/value", "shape %s; time-dependent edges are [T][D] or [T][D][D] with D = %d", e.value.Shape, dim)
+			c.errorf("V12", e.valuePath(), "shape %s; time-dependent edges are [T][D] or [T][D][D] with D = %d", e.value.Shape, dim)
 		}
-		c.unitDim(p+"/value", "length")
+		c.unitDim(e.valuePath(), "length")
 	case c.f.Kind(p) == h5.Dataset:
 		info, _ := c.f.Info(p)
 		d := info.Shape.Dims
@@ -188,19 +194,19 @@ func (c *checker) sharedClock(pos, e *tdElement) {
 		c.errorf("V13", e.path, "time-dependent, but the group has no time-dependent position to share step/time with")
 		return
 	}
-	for _, d := range []string{"step", "time"} {
-		if c.f.Kind(e.path+"/"+d) == h5.Missing && c.f.Kind(pos.path+"/"+d) == h5.Missing {
+	for _, d := range []string{trajfile.Step, trajfile.Time} {
+		if c.f.Kind(e.path+d) == h5.Missing && c.f.Kind(pos.path+d) == h5.Missing {
 			continue
 		}
-		a, err1 := c.f.ObjectID(e.path + "/" + d)
-		b, err2 := c.f.ObjectID(pos.path + "/" + d)
+		a, err1 := c.f.ObjectID(e.path + d)
+		b, err2 := c.f.ObjectID(pos.path + d)
 		if err1 != nil || err2 != nil || a != b {
-			c.errorf("V13", e.path+"/"+d, "must be the same object as %s/%s (an HDF5 hard link), not a copy; relink it", pos.path, d)
+			c.errorf("V13", e.path+d, "must be the same object as %s%s (an HDF5 hard link), not a copy; relink it", pos.path, d)
 		}
 	}
 }
 
-// uniqueIDs checks V15 for a time-dependent id element.
+// uniqueIDs checks V35 for a time-dependent id element.
 func (c *checker) uniqueIDs(e *tdElement) {
 	v, shape, err := c.f.ReadInt64(e.valuePath())
 	if err != nil || shape.Rank != 2 {
@@ -211,7 +217,7 @@ func (c *checker) uniqueIDs(e *tdElement) {
 		seen := map[int64]bool{}
 		for _, id := range v[t*n : (t+1)*n] {
 			if id >= 0 && seen[id] { // negative ids mark absent particles
-				c.errorf("V15", e.valuePath(), "id %d appears twice in frame %d; ids must be unique per frame", id, t)
+				c.errorf("V35", e.valuePath(), "id %d appears twice in frame %d; ids must be unique per frame", id, t)
 				return
 			}
 			seen[id] = true

@@ -28,8 +28,9 @@ func newValidateCommand(g *globals) *cobra.Command {
 		Long: `validate checks each file against the H5MD 1.1 rules and the trajvault
 layout (schema/layout.md): structure, types and shapes, units, monotone
 steps and times, finite values, and the electronic-state module. Every
-finding has a stable code (V1.., E1..), a severity, the HDF5 path and what
-to do about it.
+finding has a stable code (V1.., E1.., and R1.. for the provenance record
+of files trajvault made), a severity, the HDF5 path and what to do about
+it. Repeats of one rule at one place are folded ("and N more like this").
 
 Given a bundle - a BagIt folder, or a .tar.zst or .zip of one, read
 without unpacking - it checks completeness and validity per RFC 8493
@@ -40,7 +41,7 @@ Bundle findings have codes B (bag) and M (metadata).
 A clean report says the file is well-formed and labelled, not that the
 simulation behind it is sound.
 
-Exit status: 0 no errors (warnings allowed), 1 errors found,
+Exit status: 0 no errors (warnings and notes allowed), 1 errors found,
 2 a file could not be read (missing, empty, not HDF5, truncated).`,
 		Example: "  trajvault validate run-001.h5\n  trajvault validate --json runs/*.h5",
 		Args: func(c *cobra.Command, args []string) error {
@@ -97,7 +98,11 @@ func printReport(g *globals, rep *validate.Report) {
 	if !rep.OK() {
 		verdict = "FAILED"
 	}
-	fmt.Fprintf(g.stdout, "%s: %s, %s (layout %s)\n", rep.File, verdict, plural(rep.Errors, "error")+", "+plural(rep.Warnings, "warning"), rep.LayoutVersion)
+	counts := plural(rep.Errors, "error") + ", " + plural(rep.Warnings, "warning")
+	if rep.Notes > 0 {
+		counts += ", " + plural(rep.Notes, "note")
+	}
+	fmt.Fprintf(g.stdout, "%s: %s, %s (layout %s)\n", rep.File, verdict, counts, rep.LayoutVersion)
 	for _, f := range rep.Findings {
 		fmt.Fprintf(g.stdout, "  %s\n", f)
 	}

@@ -27,6 +27,9 @@ var Algorithms = map[string]func() hash.Hash{
 	"md5":    md5.New, // compatibility only: repositories often display md5
 }
 
+// DeclarationFile is the bag declaration's name (RFC 8493 sec. 2.1.1).
+const DeclarationFile = "bagit.txt"
+
 // Declaration is the exact content of bagit.txt (RFC 8493 sec. 2.1.1).
 const Declaration = "BagIt-Version: 1.0\nTag-File-Character-Encoding: UTF-8\n"
 

@@ -9,16 +9,9 @@ import (
 	"strings"
 
 	"golang.org/x/text/unicode/norm"
-)
 
-// Finding is one problem with a bag. Codes are stable (README, bundle
-// rules).
-type Finding struct {
-	Code     string `json:"code"`
-	Severity string `json:"severity"` // error or warning
-	Path     string `json:"path"`
-	Message  string `json:"message"`
-}
+	"trajvault/internal/finding"
+)
 
 // Result of checking a bag. Complete and Valid follow RFC 8493 sec. 3.
 type Result struct {
@@ -26,14 +19,17 @@ type Result struct {
 	Valid    bool
 	Info     Info
 	Payload  []string // payload files present
-	Findings []Finding
+	// Findings have stable codes (schema/layout.md, bundle rules); their
+	// location's Path is a path inside the bag.
+	Findings []finding.Finding
 }
 
 // Options of Check.
 type Options struct {
 	// OnPayload, when set, sees every payload file's content once while
-	// it is hashed (e.g. to validate trajectory files); it may read any
-	// part of r.
+	// it is hashed (e.g. to validate trajectory files), so that each file
+	// is read from its source once; it may read any part of r. An error
+	// it returns is reported as B14.
 	OnPayload func(name string, size int64, r io.Reader) error
 }
 
@@ -56,8 +52,8 @@ type manifest struct {
 // taken from manifest text.
 func Check(src Source, opt Options) *Result {
 	res := &Result{}
-	add := func(code, sev, path, format string, args ...any) {
-		res.Findings = append(res.Findings, Finding{Code: code, Severity: sev, Path: path, Message: fmt.Sprintf(format, args...)})
+	add := func(code string, sev finding.Severity, path, format string, args ...any) {
+		res.Findings = append(res.Findings, finding.Finding{Code: code, Severity: sev, Location: finding.Location{Path: path}, Message: fmt.Sprintf(format, args...)})
 	}
 	entries := src.Entries()
 	byName := map[string]Entry{}
@@ -67,16 +63,16 @@ func Check(src Source, opt Options) *Result {
 		byName[e.Name] = e
 		switch e.Kind {
 		case Symlink:
-			add("B10", "error", e.Name, "symbolic link (to %q) in the bag; bags hold regular files, and links are never followed", e.Target)
+			add("B10", finding.Error, e.Name, "symbolic link (to %q) in the bag; bags hold regular files, and links are never followed", e.Target)
 			continue
 		case Other:
-			add("B10", "error", e.Name, "special file in the bag; bags hold regular files")
+			add("B10", finding.Error, e.Name, "special file in the bag; bags hold regular files")
 			continue
 		case Dir:
 			continue
 		}
 		if r := SafePath(e.Name); r != "" {
-			add("B4", "error", e.Name, "unsafe entry name (%s); not read", r)
+			add("B4", finding.Error, e.Name, "unsafe entry name (%s); not read", r)
 			continue
 		}
 		if strings.HasPrefix(e.Name, "data/") {
@@ -85,7 +81,7 @@ func Check(src Source, opt Options) *Result {
 			// Unicode normalisation collide on some file systems.
 			k := strings.ToLower(norm.NFC.String(e.Name))
 			if other, ok := seenFold[k]; ok {
-				add("B12", "warning", e.Name, "differs from %s only by case or Unicode normalisation; it collides on some file systems", other)
+				add("B12", finding.Warning, e.Name, "differs from %s only by case or Unicode normalisation; it collides on some file systems", other)
 			}
 			seenFold[k] = e.Name
 		}
@@ -94,25 +90,25 @@ func Check(src Source, opt Options) *Result {
 	res.Payload = payload
 
 	// bagit.txt
-	decl, err := src.ReadSmall("bagit.txt", 4096)
+	decl, err := src.ReadSmall(DeclarationFile, 4096)
 	switch {
 	case err != nil:
-		add("B1", "error", "bagit.txt", "missing: every bag starts with bagit.txt declaring BagIt-Version 1.0")
+		add("B1", finding.Error, DeclarationFile, "missing: every bag starts with bagit.txt declaring BagIt-Version 1.0")
 	default:
 		text := strings.ReplaceAll(string(decl), "\r\n", "\n")
 		if strings.HasPrefix(text, "\ufeff") {
-			add("B1", "error", "bagit.txt", "starts with a byte-order mark; RFC 8493 forbids it")
+			add("B1", finding.Error, DeclarationFile, "starts with a byte-order mark; RFC 8493 forbids it")
 			text = strings.TrimPrefix(text, "\ufeff")
 		}
 		if strings.TrimSpace(text) != strings.TrimSpace(Declaration) {
-			add("B1", "error", "bagit.txt", "must read exactly %q", Declaration)
+			add("B1", finding.Error, DeclarationFile, "must read exactly %q", Declaration)
 		}
 	}
 	// bag-info.txt (optional)
 	if b, err := src.ReadSmall("bag-info.txt", smallLimit); err == nil {
 		info, perr := ParseInfo(string(b))
 		if perr != nil {
-			add("B11", "error", "bag-info.txt", "%v", perr)
+			add("B11", finding.Error, "bag-info.txt", "%v", perr)
 		}
 		res.Info = info
 	}
@@ -130,12 +126,12 @@ func Check(src Source, opt Options) *Result {
 		}
 		alg := m[2]
 		if Algorithms[alg] == nil {
-			add("B3", "warning", n, "algorithm %q is not checked by this tool (sha512, sha256, md5 are)", alg)
+			add("B16", finding.Warning, n, "algorithm %q is not checked by this tool (sha512, sha256, md5 are)", alg)
 			continue
 		}
 		b, err := src.ReadSmall(n, 1<<30)
 		if err != nil {
-			add("B3", "error", n, "cannot read: %v", err)
+			add("B3", finding.Error, n, "cannot read: %v", err)
 			continue
 		}
 		mf := &manifest{alg: alg, tag: m[1] == "tag", name: n, lines: map[string]string{}}
@@ -146,23 +142,23 @@ func Check(src Source, opt Options) *Result {
 			sum, p, ok := strings.Cut(strings.TrimLeft(line, " "), " ")
 			p = DecodePath(strings.TrimLeft(p, " \t*"))
 			if !ok || !hexRE.MatchString(sum) || p == "" {
-				add("B3", "error", n, "line %d: expected \"<hex checksum> <path>\"", i+1)
+				add("B3", finding.Error, n, "line %d: expected \"<hex checksum> <path>\"", i+1)
 				continue
 			}
 			if r := SafePath(p); r != "" {
-				add("B4", "error", n, "line %d: %q: %s; not followed", i+1, p, r)
+				add("B4", finding.Error, n, "line %d: %q: %s; not followed", i+1, p, r)
 				continue
 			}
 			if !mf.tag && !strings.HasPrefix(p, "data/") {
-				add("B3", "error", n, "line %d: %q is outside data/; payload manifests list payload files only", i+1, p)
+				add("B3", finding.Error, n, "line %d: %q is outside data/; payload manifests list payload files only", i+1, p)
 				continue
 			}
 			if mf.tag && (strings.HasPrefix(p, "data/") || manifestRE.MatchString(p) && strings.HasPrefix(p, "tagmanifest-")) {
-				add("B9", "error", n, "line %d: %q may not be in a tag manifest", i+1, p)
+				add("B9", finding.Error, n, "line %d: %q may not be in a tag manifest", i+1, p)
 				continue
 			}
 			if _, dup := mf.lines[p]; dup {
-				add("B3", "error", n, "line %d: %q listed twice", i+1, p)
+				add("B3", finding.Error, n, "line %d: %q listed twice", i+1, p)
 			}
 			mf.lines[p] = strings.ToLower(sum)
 		}
@@ -175,14 +171,14 @@ func Check(src Source, opt Options) *Result {
 		}
 	}
 	if len(payloadMans) == 0 {
-		add("B2", "error", ".", "no payload manifest (manifest-sha512.txt or manifest-sha256.txt)")
+		add("B2", finding.Error, ".", "no payload manifest (manifest-sha512.txt or manifest-sha256.txt)")
 	}
 	// Completeness: every listed file exists, every payload file listed.
 	complete := len(payloadMans) > 0 && !hasCode(res, "B1")
 	for _, m := range mans {
 		for p := range m.lines {
 			if e, ok := byName[p]; !ok || e.Kind != File {
-				add("B5", "error", p, "listed in %s but missing from the bag", m.name)
+				add("B5", finding.Error, p, "listed in %s but missing from the bag", m.name)
 				complete = false
 			}
 		}
@@ -190,7 +186,7 @@ func Check(src Source, opt Options) *Result {
 	for _, m := range payloadMans {
 		for _, p := range payload {
 			if _, ok := m.lines[p]; !ok {
-				add("B6", "error", p, "payload file not listed in %s", m.name)
+				add("B6", finding.Error, p, "payload file not listed in %s", m.name)
 				complete = false
 			}
 		}
@@ -203,13 +199,13 @@ func Check(src Source, opt Options) *Result {
 	for _, ox := range res.Info.Get("Payload-Oxum") {
 		m := oxumRE.FindStringSubmatch(ox)
 		if m == nil {
-			add("B8", "error", "bag-info.txt", "Payload-Oxum %q: expected octets.files", ox)
+			add("B8", finding.Error, "bag-info.txt", "Payload-Oxum %q: expected octets.files", ox)
 			continue
 		}
 		o, _ := strconv.ParseInt(m[1], 10, 64)
 		n, _ := strconv.Atoi(m[2])
 		if o != octets || n != len(payload) {
-			add("B8", "error", "bag-info.txt", "Payload-Oxum says %d bytes in %d files, the payload has %d bytes in %d files", o, n, octets, len(payload))
+			add("B8", finding.Error, "bag-info.txt", "Payload-Oxum says %d bytes in %d files, the payload has %d bytes in %d files", o, n, octets, len(payload))
 		}
 	}
 	// Validity: stream every file once, all algorithms at once.
@@ -250,21 +246,21 @@ func Check(src Source, opt Options) *Result {
 		got, _, err := sums(io.TeeReader(r, pw), algs)
 		pw.CloseWithError(err)
 		if herr := <-done; herr != nil {
-			add("B7", "warning", name, "content check failed: %v", herr)
+			add("B14", finding.Error, name, "content check failed: %v", herr)
 		}
 		if err != nil {
 			return err
 		}
 		for _, a := range algs {
 			if got[a] != want[name][a] {
-				add("B7", "error", name, "%s checksum differs from the manifest: the file changed or is damaged", a)
+				add("B7", finding.Error, name, "%s checksum differs from the manifest: the file changed or is damaged", a)
 				valid = false
 			}
 		}
 		return nil
 	})
 	if err != nil {
-		add("B13", "error", src.Name(), "reading stopped: %v", err)
+		add("B13", finding.Error, src.Name(), "reading stopped: %v", err)
 		valid = false
 	}
 	res.Complete = complete
@@ -274,7 +270,7 @@ func Check(src Source, opt Options) *Result {
 
 func hasCode(r *Result, code string) bool {
 	for _, f := range r.Findings {
-		if f.Code == code && f.Severity == "error" {
+		if f.Code == code && f.Severity == finding.Error {
 			return true
 		}
 	}

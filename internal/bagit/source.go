@@ -405,13 +405,13 @@ func bagPrefix(names []string) string {
 	best := ""
 	depth := -1
 	for _, n := range names {
-		if path.Base(n) != "bagit.txt" {
+		if path.Base(n) != DeclarationFile {
 			continue
 		}
 		d := strings.Count(n, "/")
 		if depth < 0 || d < depth {
 			depth = d
-			best = strings.TrimSuffix(n, "bagit.txt")
+			best = strings.TrimSuffix(n, DeclarationFile)
 		}
 	}
 	return best

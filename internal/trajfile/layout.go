@@ -4,6 +4,9 @@ package trajfile
 // reads or writes the layout names its objects through these constants;
 // no other package spells an HDF5 path.
 const (
+	// Root is the root group.
+	Root = "/"
+
 	H5MDGroup    = "/h5md"
 	AuthorGroup  = H5MDGroup + "/author"
 	CreatorGroup = H5MDGroup + "/creator"
@@ -14,6 +17,10 @@ const (
 	ParticlesGroup   = "/particles"
 	ObservablesGroup = "/observables"
 	ParametersGroup  = "/parameters"
+	// ConnectivityGroup holds bonds and other index lists (H5MD 1.1).
+	ConnectivityGroup = "/connectivity"
+	// UnitsModuleName is the H5MD units module's group name.
+	UnitsModuleName = "units"
 
 	// Time-dependent observables (H5MD: value, step, time).
 	KineticEnergy   = ObservablesGroup + "/kinetic_energy"
@@ -51,6 +58,9 @@ const (
 	Mass     = "mass"
 	Box      = "box"
 	BoxEdges = "box/edges"
+	ID       = "id"
+	Charge   = "charge"
+	Image    = "image"
 
 	// Attributes trajvault adds to datasets.
 	UnitAttr      = "unit"
@@ -59,6 +69,15 @@ const (
 	ToleranceAttr = "trajvault_tolerance"
 	// ProvenanceAttr (on /parameters) holds the provenance record.
 	ProvenanceAttr = "trajvault_provenance"
+
+	// Attributes of H5MD 1.1 groups and datasets.
+	VersionAttr        = "version"         // /h5md and every module
+	NameAttr           = "name"            // author, creator
+	EmailAttr          = "email"           // author
+	SystemAttr         = "system"          // units module
+	DimensionAttr      = "dimension"       // box
+	BoundaryAttr       = "boundary"        // box
+	ParticlesGroupAttr = "particles_group" // connectivity
 )
 
 // ParticleGroup is the path of the particle group named name.
