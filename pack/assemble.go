@@ -10,6 +10,7 @@ import (
 
 	"trajvault/internal/bagit"
 	"trajvault/internal/finding"
+	"trajvault/schema"
 )
 
 // Limits are what a general-purpose repository accepts per record (a
@@ -46,7 +47,7 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 		groups = splitGroups(staging, conv, bo, lim)
 	}
 	if len(groups) == 1 {
-		if err := WriteBundle(staging, conv, bo); err != nil {
+		if err := WriteBundle(ctx, staging, conv, bo); err != nil {
 			return nil, err
 		}
 		if err := replace(staging, out, force); err != nil {
@@ -73,7 +74,7 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 		d := final + ".partial"
 		os.RemoveAll(d)
 		dirs = append(dirs, d)
-		if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(TrajectoryDir)), 0o755); err != nil {
+		if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {
 			cleanup()
 			return nil, err
 		}
@@ -85,7 +86,7 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 		}
 		b := bo
 		b.GroupID, b.GroupIndex, b.GroupCount = filepath.Base(out), i+1, len(groups)
-		if err := WriteBundle(d, grp, b); err != nil {
+		if err := WriteBundle(ctx, d, grp, b); err != nil {
 			cleanup()
 			return nil, err
 		}

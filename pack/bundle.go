@@ -1,12 +1,14 @@
 package pack
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"io"
 	"mime"
 	"os"
 	"path/filepath"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -16,7 +18,7 @@ import (
 	"trajvault/ingest"
 	"trajvault/internal/bagit"
 	"trajvault/internal/trajfile"
-	"trajvault/provenance"
+	"trajvault/schema"
 )
 
 // BundleOptions say what goes into a deposit bundle.
@@ -42,14 +44,11 @@ type Converted struct {
 	File   string // path inside the bag, data/...
 }
 
-// TrajectoryDir is where a bag holds its trajectory files.
-const TrajectoryDir = "data/trajectories"
-
 // WriteBundle writes the payload of a bag into dir (data/...) from
 // converted trajectories, then makes the bag. dir is the caller's
 // temporary folder; the caller renames it into place.
-func WriteBundle(dir string, conv []Converted, o BundleOptions) error {
-	data := filepath.Join(dir, "data")
+func WriteBundle(ctx context.Context, dir string, conv []Converted, o BundleOptions) error {
+	data := filepath.Join(dir, schema.PayloadDir)
 	if o.KeepSources {
 		for _, c := range conv {
 			for _, f := range c.Report.Files {
@@ -97,15 +96,25 @@ func WriteBundle(dir string, conv []Converted, o BundleOptions) error {
 	if err != nil {
 		return err
 	}
-	if err := os.WriteFile(filepath.Join(data, "datacite.json"), dc, 0o644); err != nil {
+	if err := os.WriteFile(filepath.Join(data, schema.DataCiteFile), dc, 0o644); err != nil {
 		return err
 	}
-	crate, err := roCrate(dir, conv, o)
+	// Every payload file but the crate exists now: hash each once, for
+	// the crate's sha256 and for the bag's manifests alike.
+	algs := o.Algorithms
+	if !slices.Contains(algs, "sha256") {
+		algs = append(slices.Clone(algs), "sha256")
+	}
+	digests, err := bagit.HashPayload(ctx, dir, algs, o.Jobs)
+	if err != nil {
+		return err
+	}
+	crate, err := roCrate(dir, conv, digests, o)
 	if err != nil {
 		return err
 	}
 	cb, _ := json.MarshalIndent(crate, "", "  ")
-	if err := os.WriteFile(filepath.Join(data, "ro-crate-metadata.json"), cb, 0o644); err != nil {
+	if err := os.WriteFile(filepath.Join(data, schema.CrateFile), cb, 0o644); err != nil {
 		return err
 	}
 	d := o.Deposit
@@ -123,7 +132,7 @@ func WriteBundle(dir string, conv []Converted, o BundleOptions) error {
 		info.Add("Bag-Group-Identifier", o.GroupID)
 		info.Add("Bag-Count", fmt.Sprintf("%d of %d", o.GroupIndex, o.GroupCount))
 	}
-	return bagit.Make(dir, o.Algorithms, info, o.Jobs, o.Now)
+	return bagit.Make(ctx, dir, o.Algorithms, info, digests, o.Jobs, o.Now)
 }
 
 func compressFile(src, dst string) error {
@@ -159,11 +168,11 @@ func compressFile(src, dst string) error {
 // payloadFiles lists data/ files with sizes (the crate's File entities).
 func payloadFiles(dir string) ([][2]any, error) {
 	var out [][2]any
-	err := filepath.Walk(filepath.Join(dir, "data"), func(p string, info os.FileInfo, err error) error {
+	err := filepath.Walk(filepath.Join(dir, schema.PayloadDir), func(p string, info os.FileInfo, err error) error {
 		if err != nil || !info.Mode().IsRegular() {
 			return err
 		}
-		rel, _ := filepath.Rel(filepath.Join(dir, "data"), p)
+		rel, _ := filepath.Rel(filepath.Join(dir, schema.PayloadDir), p)
 		out = append(out, [2]any{filepath.ToSlash(rel), info.Size()})
 		return nil
 	})
@@ -186,7 +195,7 @@ func licenseID(spdx string) string {
 
 func mediaType(name string) string {
 	switch filepath.Ext(name) {
-	case ".h5":
+	case schema.TrajectoryExt:
 		return "application/x-hdf5"
 	case ".md":
 		return "text/markdown"
@@ -215,7 +224,7 @@ func personID(c Creator) string {
 // Organization entities, the licence, and one CreateAction per converted
 // trajectory with trajvault as instrument and the simulation program as a
 // SoftwareApplication; the root conforms to the process-run profile.
-func roCrate(dir string, conv []Converted, o BundleOptions) (map[string]any, error) {
+func roCrate(dir string, conv []Converted, digests bagit.Digests, o BundleOptions) (map[string]any, error) {
 	d := o.Deposit
 	files, err := payloadFiles(dir)
 	if err != nil {
@@ -225,16 +234,16 @@ func roCrate(dir string, conv []Converted, o BundleOptions) (map[string]any, err
 	var parts []map[string]string
 	for _, f := range files {
 		name := f[0].(string)
-		if name == "ro-crate-metadata.json" {
+		if name == schema.CrateFile {
 			continue
 		}
-		src, err := provenance.HashFile(filepath.Join(dir, "data", filepath.FromSlash(name)))
-		if err != nil {
-			return nil, err
+		sum := digests[schema.PayloadPath(name)].Sums["sha256"]
+		if sum == "" {
+			return nil, fmt.Errorf("%s: no checksum computed", name)
 		}
 		parts = append(parts, map[string]string{"@id": name})
 		graph = append(graph, map[string]any{"@id": name, "@type": "File", "name": filepath.Base(name),
-			"contentSize": fmt.Sprint(f[1]), "encodingFormat": mediaType(name), "sha256": src.SHA256})
+			"contentSize": fmt.Sprint(f[1]), "encodingFormat": mediaType(name), "sha256": sum})
 	}
 	var authors []map[string]string
 	orgs := map[string]map[string]any{}
@@ -273,13 +282,13 @@ func roCrate(dir string, conv []Converted, o BundleOptions) (map[string]any, err
 		}
 		graph = append(graph, map[string]any{"@id": id, "@type": "CreateAction", "name": "convert " + c.Report.Name,
 			"instrument": map[string]string{"@id": "#trajvault"}, "object": inputs,
-			"result": map[string]string{"@id": strings.TrimPrefix(c.File, "data/")}, "agent": authors,
+			"result": map[string]string{"@id": strings.TrimPrefix(c.File, schema.PayloadDir+"/")}, "agent": authors,
 			"endTime": o.Now.UTC().Format(time.RFC3339), "actionStatus": "http://schema.org/CompletedActionStatus"})
 		actions = append(actions, map[string]string{"@id": id})
 		_ = i
 	}
 	root := map[string]any{
-		"@id": "./", "@type": "Dataset", "name": d.Title, "description": d.Description,
+		"@id": schema.CrateRootID, "@type": "Dataset", "name": d.Title, "description": d.Description,
 		"datePublished": o.Now.UTC().Format("2006-01-02"), "license": map[string]string{"@id": lic},
 		"author": authors, "hasPart": parts, "mentions": actions,
 		"conformsTo": map[string]string{"@id": "https://w3id.org/ro/wfrun/process/0.5"},
@@ -300,9 +309,9 @@ func roCrate(dir string, conv []Converted, o BundleOptions) (map[string]any, err
 		root["funder"] = append(asList(root["funder"]), map[string]string{"@id": fid})
 	}
 	graph = append(graph, map[string]any{"@id": "https://w3id.org/ro/wfrun/process/0.5", "@type": "CreativeWork", "name": "Process Run Crate", "version": "0.5"})
-	desc := map[string]any{"@id": "ro-crate-metadata.json", "@type": "CreativeWork",
-		"conformsTo": map[string]string{"@id": "https://w3id.org/ro/crate/1.1"}, "about": map[string]string{"@id": "./"}}
-	return map[string]any{"@context": "https://w3id.org/ro/crate/1.1/context", "@graph": append([]map[string]any{desc, root}, graph...)}, nil
+	desc := map[string]any{"@id": schema.CrateFile, "@type": "CreativeWork",
+		"conformsTo": map[string]string{"@id": schema.CrateConformsTo}, "about": map[string]string{"@id": schema.CrateRootID}}
+	return map[string]any{"@context": schema.CrateContext, "@graph": append([]map[string]any{desc, root}, graph...)}, nil
 }
 
 func asList(v any) []map[string]string {

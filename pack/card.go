@@ -6,6 +6,7 @@ import (
 	"strings"
 
 	"trajvault/internal/trajfile"
+	"trajvault/schema"
 )
 
 // datasetCard writes the bundle's README.md: what the data are, who made
@@ -96,7 +97,7 @@ func datasetCard(conv []Converted, sums []*trajfile.Summary, o BundleOptions) st
 		if len(sm.Groups) > 0 {
 			atoms, frames = sm.Groups[0].Atoms, sm.Groups[0].Frames
 		}
-		w("| %s | %d | %d | %s | %d | %s | %d B |\n", strings.TrimPrefix(c.File, "data/"), atoms, frames, span, sm.States, hops, sm.FileBytes)
+		w("| %s | %d | %d | %s | %d | %s | %d B |\n", strings.TrimPrefix(c.File, schema.PayloadDir+"/"), atoms, frames, span, sm.States, hops, sm.FileBytes)
 	}
 	if len(o.AuditLines) > 0 {
 		w("\n## Physics audit\n\nAn audit is evidence about the stored numbers, not a certificate that the simulation behind them is sound.\n\n")
@@ -123,5 +124,5 @@ func firstName(conv []Converted) string {
 	if len(conv) == 0 {
 		return "traj.h5"
 	}
-	return strings.TrimPrefix(conv[0].File, TrajectoryDir+"/")
+	return strings.TrimPrefix(conv[0].File, schema.TrajectoriesDir+"/")
 }

@@ -15,6 +15,7 @@ import (
 	"trajvault/audit"
 	"trajvault/ingest"
 	"trajvault/pack"
+	"trajvault/schema"
 )
 
 type packOptions struct {
@@ -115,7 +116,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	tmp := out + ".partial"
 	os.RemoveAll(tmp) // a previous interrupted run
-	if err := os.MkdirAll(filepath.Join(tmp, "data", "trajectories"), 0o755); err != nil {
+	if err := os.MkdirAll(filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {
 		return &exitError{exitUsage, err}
 	}
 	fail := func(err error) error {
@@ -127,7 +128,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	conv := make([]pack.Converted, len(trajs))
 	errs := make([]error, len(trajs))
 	parallel(len(trajs), o.jobs, func(i int) {
-		rel := "data/trajectories/" + trajs[i].Name + ".h5"
+		rel := schema.TrajectoriesDir + "/" + trajs[i].Name + schema.TrajectoryExt
 		res, err := ingest.Convert(reps[i], filepath.Join(tmp, filepath.FromSlash(rel)), copt)
 		conv[i], errs[i] = pack.Converted{Report: reps[i], Result: res, File: rel}, err
 	})
@@ -186,7 +187,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(bags), b.Dir, b.Trajectories)
 			continue
 		}
-		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, "data", "README.md"))
+		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, schema.PayloadDir, "README.md"))
 		if o.archive != "" {
 			arch := b.Dir + "." + o.archive
 			if err := pack.WriteArchive(b.Dir, arch, o.archive, o.force); err != nil {

@@ -2,6 +2,7 @@ package bagit
 
 import (
 	"bufio"
+	"context"
 	"crypto/sha256"
 	"crypto/sha512"
 	"encoding/hex"
@@ -23,7 +24,7 @@ func makeBag(t *testing.T) string {
 	var info Info
 	info.Add("Contact-Name", "Tarn Valley photophysics group (fictional)")
 	info.Add("External-Description", strings.Repeat("a long description ", 10))
-	if err := Make(dir, []string{"sha512", "sha256"}, info, 2, time.Date(2026, 12, 2, 0, 0, 0, 0, time.UTC)); err != nil {
+	if err := Make(context.Background(), dir, []string{"sha512", "sha256"}, info, nil, 2, time.Date(2026, 12, 2, 0, 0, 0, 0, time.UTC)); err != nil {
 		t.Fatal(err)
 	}
 	return dir

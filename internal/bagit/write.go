@@ -1,27 +1,31 @@
 package bagit
 
 import (
+	"context"
 	"fmt"
 	"io/fs"
 	"os"
 	"path/filepath"
 	"sort"
 	"strings"
-	"sync"
 	"time"
+
+	"golang.org/x/sync/errgroup"
 )
 
-// Make turns dir, whose payload is already in dir/data, into a bag:
-// payload manifests for every algorithm in algs (computed in parallel by
-// workers, each file read once), bagit.txt, bag-info.txt (with
-// Bagging-Date, Bag-Size and Payload-Oxum added after info) and tag
-// manifests. Nothing outside dir is written.
-func Make(dir string, algs []string, info Info, workers int, now time.Time) error {
-	for _, a := range algs {
-		if Algorithms[a] == nil {
-			return fmt.Errorf("bagit: unknown algorithm %q", a)
-		}
-	}
+// Digest is the size and checksums (algorithm -> hex) of one payload
+// file.
+type Digest struct {
+	Size int64
+	Sums map[string]string
+}
+
+// Digests are payload files' digests by bag-relative path ("data/...").
+type Digests map[string]Digest
+
+// payloadList lists the regular files under dir/data, bag-relative and
+// sorted; a symbolic link is an error (payloads hold regular files only).
+func payloadList(dir string) ([]string, error) {
 	var files []string
 	err := filepath.WalkDir(filepath.Join(dir, "data"), func(p string, d fs.DirEntry, err error) error {
 		if err != nil {
@@ -36,45 +40,92 @@ func Make(dir string, algs []string, info Info, workers int, now time.Time) erro
 		}
 		return nil
 	})
+	sort.Strings(files)
+	return files, err
+}
+
+// HashPayload reads every payload file of dir once, computing all of algs
+// in the same pass, workers files at a time, and returns their digests.
+// The first error cancels the rest.
+func HashPayload(ctx context.Context, dir string, algs []string, workers int) (Digests, error) {
+	files, err := payloadList(dir)
+	if err != nil {
+		return nil, err
+	}
+	return hashFiles(ctx, dir, files, algs, workers)
+}
+
+func hashFiles(ctx context.Context, dir string, files, algs []string, workers int) (Digests, error) {
+	for _, a := range algs {
+		if Algorithms[a] == nil {
+			return nil, fmt.Errorf("bagit: unknown algorithm %q", a)
+		}
+	}
+	out := make([]Digest, len(files))
+	g, ctx := errgroup.WithContext(ctx)
+	g.SetLimit(max(workers, 1))
+	for i, name := range files {
+		g.Go(func() error {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			f, err := os.Open(filepath.Join(dir, filepath.FromSlash(name)))
+			if err != nil {
+				return fmt.Errorf("bagit: %s: %w", name, err)
+			}
+			defer f.Close()
+			s, n, err := sums(f, algs)
+			if err != nil {
+				return fmt.Errorf("bagit: %s: %w", name, err)
+			}
+			out[i] = Digest{n, s}
+			return nil
+		})
+	}
+	if err := g.Wait(); err != nil {
+		return nil, err
+	}
+	d := make(Digests, len(files))
+	for i, name := range files {
+		d[name] = out[i]
+	}
+	return d, nil
+}
+
+// Make turns dir, whose payload is already in dir/data, into a bag:
+// payload manifests for every algorithm in algs (computed in parallel by
+// workers, each file read once), bagit.txt, bag-info.txt (with
+// Bagging-Date, Bag-Size and Payload-Oxum added after info) and tag
+// manifests. Digests in known (from HashPayload, for files written
+// before) are taken as they are when they hold every algorithm and the
+// file's size has not changed, so no payload is read twice. Nothing
+// outside dir is written.
+func Make(ctx context.Context, dir string, algs []string, info Info, known Digests, workers int, now time.Time) error {
+	files, err := payloadList(dir)
 	if err != nil {
 		return err
 	}
-	sort.Strings(files)
-	type result struct {
-		sums map[string]string
-		size int64
-		err  error
-	}
-	results := make([]result, len(files))
-	jobs := make(chan int)
-	var wg sync.WaitGroup
-	for w := 0; w < max(workers, 1); w++ {
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			for i := range jobs {
-				f, err := os.Open(filepath.Join(dir, filepath.FromSlash(files[i])))
-				if err != nil {
-					results[i].err = err
-					continue
-				}
-				s, n, err := sums(f, algs)
-				f.Close()
-				results[i] = result{s, n, err}
+	digests := make(Digests, len(files))
+	var todo []string
+	for _, name := range files {
+		if k, ok := known[name]; ok && k.complete(algs) {
+			if st, err := os.Stat(filepath.Join(dir, filepath.FromSlash(name))); err == nil && st.Size() == k.Size {
+				digests[name] = k
+				continue
 			}
-		}()
-	}
-	for i := range files {
-		jobs <- i
-	}
-	close(jobs)
-	wg.Wait()
-	var octets int64
-	for i, r := range results {
-		if r.err != nil {
-			return fmt.Errorf("bagit: %s: %w", files[i], r.err)
 		}
-		octets += r.size
+		todo = append(todo, name)
+	}
+	fresh, err := hashFiles(ctx, dir, todo, algs, workers)
+	if err != nil {
+		return err
+	}
+	var octets int64
+	for name, d := range fresh {
+		digests[name] = d
+	}
+	for _, d := range digests {
+		octets += d.Size
 	}
 	write := func(name, text string) error {
 		return os.WriteFile(filepath.Join(dir, name), []byte(text), 0o644)
@@ -84,8 +135,8 @@ func Make(dir string, algs []string, info Info, workers int, now time.Time) erro
 	}
 	for _, a := range algs {
 		var b strings.Builder
-		for i, f := range files {
-			fmt.Fprintf(&b, "%s %s\n", results[i].sums[a], EncodePath(f))
+		for _, f := range files {
+			fmt.Fprintf(&b, "%s %s\n", digests[f].Sums[a], EncodePath(f))
 		}
 		if err := write("manifest-"+a+".txt", b.String()); err != nil {
 			return err
@@ -123,6 +174,16 @@ func Make(dir string, algs []string, info Info, workers int, now time.Time) erro
 		}
 	}
 	return nil
+}
+
+// complete reports whether d holds a checksum for every algorithm.
+func (d Digest) complete(algs []string) bool {
+	for _, a := range algs {
+		if d.Sums[a] == "" {
+			return false
+		}
+	}
+	return true
 }
 
 func humanSize(n int64) string {
