@@ -6,6 +6,7 @@ require (
 	github.com/klauspost/compress v1.18.0
 	github.com/santhosh-tekuri/jsonschema/v5 v5.3.1
 	github.com/spf13/cobra v1.10.2
+	golang.org/x/sync v0.19.0
 	golang.org/x/text v0.28.0
 	gonum.org/v1/gonum v0.17.0
 	gonum.org/v1/hdf5 v0.0.0-20210714002203-8c5d23bc6946
