@@ -186,11 +186,6 @@ func (t *TableReader) names() string {
 	return strings.Join(n, " ")
 }
 
-// Vocabulary maps a column name to a layout quantity and, for per-state
-// quantities, a state index as written (not yet shifted to 0-based). It
-// asks the one vocabulary (quantity.Column).
-func Vocabulary(name string) (string, int) { return quantity.Column(name) }
-
 // tableFormat reads column tables. A file found by extension that is not
 // a table (no header naming its columns) is skipped with a note.
 var tableFormat = Reader{

@@ -284,3 +284,31 @@ func Recipe(s string) (name string, state int, err error) {
 	}
 	return name, state, nil
 }
+
+// Markdown is the vocabulary as a Markdown table (quantity, then the
+// names each kind of source uses), for README.md. Comment keys are read
+// for the step, the time and the energies.
+func Markdown() string {
+	var b strings.Builder
+	b.WriteString("| quantity | table columns | XYZ comment keys | extended XYZ Properties |\n|---|---|---|---|\n")
+	for _, q := range table {
+		var cols, keys []string
+		for _, c := range q.Columns {
+			if q.PerState {
+				c += "_K"
+			}
+			cols = append(cols, c)
+		}
+		if q.Name == Step || q.Name == TimeQ || q.Scalar >= 0 {
+			for _, x := range table {
+				for _, c := range x.Columns {
+					if !x.PerState && CommentKey(c) == q.Name {
+						keys = append(keys, c)
+					}
+				}
+			}
+		}
+		fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", q.Name, strings.Join(cols, ", "), strings.Join(keys, ", "), strings.Join(q.Properties, ", "))
+	}
+	return b.String()
+}

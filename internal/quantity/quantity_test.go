@@ -2,6 +2,7 @@ package quantity
 
 import (
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"sort"
@@ -159,4 +160,26 @@ func TestRecipe(t *testing.T) {
 			t.Errorf("Recipe(%q) = %q %d %v", c.in, name, k, err)
 		}
 	}
+}
+
+// The README table of names is this output (table columns match after
+// Normalize; _K stands for a state index).
+func ExampleMarkdown() {
+	fmt.Print(Markdown())
+	// Output:
+	// | quantity | table columns | XYZ comment keys | extended XYZ Properties |
+	// |---|---|---|---|
+	// | step | step, nstep, istep, steps | step, nstep, istep, steps |  |
+	// | time | time, t, simtime | time, t, simtime |  |
+	// | kinetic_energy | ekin, kinetic, kineticenergy, ke, ek | ekin, kinetic, kineticenergy, ke, ek |  |
+	// | potential_energy | epot, potential, potentialenergy, pe, ep | epot, potential, potentialenergy, pe, ep, energy |  |
+	// | total_energy | etot, total, totalenergy, energy, e, etotal | etot, total, totalenergy, e, etotal |  |
+	// | active_state | state, activestate, surface, istate, currentstate, active |  |  |
+	// | state_energy | e_K, en_K, energy_K, v_K, es_K, estate_K |  |  |
+	// | population | p_K, pop_K, population_K, rho_K |  |  |
+	// | position |  |  | pos, positions, position |
+	// | velocity |  |  | velo, vel, velocity, velocities |
+	// | force |  |  | force, forces, frc |
+	// | momentum |  |  | momenta, momentum |
+	// | mass |  |  | mass, masses |
 }
