@@ -292,12 +292,12 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	spec := trajfile.Spec{
 		Author: opt.Author, Email: opt.Email, Creator: "trajvault", CreatorVersion: opt.ToolVersion,
 		Species: zs, Masses: masses,
-		Units: trajfile.Units{Length: u["position"], Time: u["time"], Velocity: u["velocity"], Force: u["force"],
-			Energy: u["energy"], Mass: "u", InverseTime: ""},
-		Velocity: has("velocity") || (has("momentum") && u["velocity"] != ""),
-		Force:    has("force"),
-		Kinetic:  has("kinetic_energy"), Potential: has("potential_energy"), Total: has("total_energy"),
-		NStates: rep.States, StateEnergies: has("state_energy"), Populations: has("population"),
+		Units: trajfile.Units{Length: u[string(quantity.Position)], Time: u[string(quantity.Time)], Velocity: u[string(quantity.Velocity)], Force: u[string(quantity.Force)],
+			Energy: u[string(quantity.Energy)], Mass: "u", InverseTime: ""},
+		Velocity: has(quantity.VelocityQ) || (has(quantity.MomentumQ) && u[string(quantity.Velocity)] != ""),
+		Force:    has(quantity.ForceQ),
+		Kinetic:  has(quantity.KineticEnergy), Potential: has(quantity.PotentialEnergy), Total: has(quantity.TotalEnergy),
+		NStates: rep.States, StateEnergies: has(quantity.StateEnergy), Populations: has(quantity.Population),
 		ActiveState:  rep.States > 0 && rep.hasActive(),
 		Hops:         rep.Hops > 0,
 		Storage:      map[string]trajfile.Storage{},
@@ -306,12 +306,12 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		Attrs:        map[string]string{},
 	}
 	if rep.masses != nil {
-		spec.Units.Mass = u["mass"]
+		spec.Units.Mass = u[string(quantity.Mass)]
 		if spec.Units.Mass == "" {
 			return spec, fmt.Errorf("%s: the geometry file gives masses but no unit for them; give --unit mass=u", rep.Name)
 		}
 	}
-	if has("momentum") && !has("velocity") && u["velocity"] == "" {
+	if has(quantity.MomentumQ) && !has(quantity.VelocityQ) && u[string(quantity.Velocity)] == "" {
 		return spec, fmt.Errorf("%s: the geometry gives momenta; they are divided by the masses (in u) to give velocities: state the unit of the result with --unit velocity=...", rep.Name)
 	}
 	if spec.NStates > 0 && !spec.StateEnergies && !spec.Populations && !spec.ActiveState {
@@ -327,7 +327,7 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		spec.Clock = rep.clock
 	}
 	if spec.Units.Time == "" {
-		spec.Units.Time = opt.Units["time"]
+		spec.Units.Time = opt.Units[string(quantity.Time)]
 	}
 	for q, fm := range rep.formats {
 		el := quantity.Element(q)
@@ -364,11 +364,11 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	if spec.Clock != nil {
 		res.Storage["time"] = "H5MD fixed mode (uniform sampling: offset and increment)"
 	}
-	if has("momentum") && !has("velocity") {
-		spec.Storage["velocity"] = trajfile.Storage{Decimals: -1} // derived: lossless
+	if has(quantity.MomentumQ) && !has(quantity.VelocityQ) {
+		spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: -1} // derived: lossless
 		res.Storage["velocity"] = "float64, lossless (momenta / masses)"
 	}
-	if !has("time") && opt.Dt > 0 {
+	if !has(quantity.TimeQ) && opt.Dt > 0 {
 		spec.Storage["time"] = trajfile.Storage{Decimals: -1}
 	}
 	var files []string
@@ -570,7 +570,7 @@ func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOpt
 // massU is atom i's mass in u, for turning momenta into velocities.
 func (t *TrajReport) massU(i int, opt ConvertOptions) float64 {
 	if t.masses != nil {
-		f, err := units.Factor(t.Units["mass"], "u")
+		f, err := units.Factor(t.Units[string(quantity.Mass)], "u")
 		if err == nil {
 			return t.masses[i] * f
 		}

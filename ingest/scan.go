@@ -275,16 +275,16 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			}
 		}
 		if rec.hasTime {
-			fr.maxAbs["time"] = math.Max(fr.maxAbs["time"], math.Abs(rec.time))
+			fr.maxAbs[quantity.TimeQ] = math.Max(fr.maxAbs[quantity.TimeQ], math.Abs(rec.time))
 		}
 		for _, v := range rec.stateE {
 			if !math.IsNaN(v) { // NaN marks a state index the log skipped
-				fr.maxAbs["state_energy"] = math.Max(fr.maxAbs["state_energy"], math.Abs(v))
+				fr.maxAbs[quantity.StateEnergy] = math.Max(fr.maxAbs[quantity.StateEnergy], math.Abs(v))
 			}
 		}
 		for _, v := range rec.pop {
 			if !math.IsNaN(v) {
-				fr.maxAbs["population"] = math.Max(fr.maxAbs["population"], math.Abs(v))
+				fr.maxAbs[quantity.Population] = math.Max(fr.maxAbs[quantity.Population], math.Abs(v))
 			}
 		}
 		fr.states = max(fr.states, len(rec.stateE), len(rec.pop))

@@ -347,7 +347,7 @@ func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
 
 func (s *xyzSource) file() string                        { return s.path }
 func (s *xyzSource) provides() map[string]textnum.Format { return s.fmts }
-func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts["time"] }
+func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts[quantity.TimeQ] }
 func (s *xyzSource) units() map[string]string            { return nil }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
