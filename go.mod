@@ -1,12 +1,13 @@
 module trajvault
 
-go 1.26.0
+go 1.24.0
 
 require (
+	github.com/github/go-spdx/v2 v2.8.0
 	github.com/klauspost/compress v1.18.0
 	github.com/santhosh-tekuri/jsonschema/v5 v5.3.1
 	github.com/spf13/cobra v1.10.2
-	golang.org/x/sync v0.25.0
+	golang.org/x/sync v0.19.0
 	golang.org/x/text v0.28.0
 	gonum.org/v1/gonum v0.17.0
 	gonum.org/v1/hdf5 v0.0.0-20210714002203-8c5d23bc6946
@@ -20,7 +21,6 @@ require (
 	codeberg.org/go-pdf/fpdf v0.11.1 // indirect
 	git.sr.ht/~sbinet/gg v0.7.0 // indirect
 	github.com/ajstarks/svgo v0.0.0-20211024235047-1546f124cd8b // indirect
-	github.com/github/go-spdx/v2 v2.8.0 // indirect
 	github.com/golang/freetype v0.0.0-20170609003504-e2365dfdc4a0 // indirect
 	github.com/inconshreveable/mousetrap v1.1.0 // indirect
 	github.com/spf13/pflag v1.0.9 // indirect

@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"io"
@@ -10,11 +11,15 @@ import (
 	"time"
 
 	"trajvault/internal/elements"
+	"trajvault/internal/finding"
 	"trajvault/internal/h5"
+	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 	"trajvault/provenance"
+
+	"golang.org/x/sync/errgroup"
 )
 
 // ConvertOptions add to Options what only convert needs.
@@ -76,28 +81,27 @@ func seriesFrames(n int) int {
 // --hdf5-compat 1.8 or earliest writes older formats.
 var DefaultFile = h5.CreateOptions{Format: h5.Format110}
 
-// elementOf maps log quantities to layout element names.
-var elementOf = map[string]string{
-	"position": "position", "velocity": "velocity", "force": "force", "time": "time",
-	"kinetic_energy": "kinetic_energy", "potential_energy": "potential_energy", "total_energy": "total_energy",
-	"state_energy": "state_energies", "population": "populations",
-}
-
 // maxExactScaled bounds |x| 10^D for exact scale-offset storage: well
 // inside float64's 2^53 integers, so x 10^D rounds to the printed integer.
 const maxExactScaled = 1 << 50
 
-// Convert writes one trajectory, scanned by Scan, to out in the layout.
+// Convert writes one trajectory, scanned by Scan, to out in the layout,
+// without a way to stop it.
+//
+// Deprecated: kept for callers that have no context yet (cmd_pack.go
+// until it uses ConvertAll); use ConvertContext.
 func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
+	return ConvertContext(context.Background(), rep, out, opt)
+}
+
+// ConvertContext writes one trajectory, scanned by Scan, to out in the
+// layout. When ctx is cancelled it stops promptly and returns ctx.Err();
+// as on any error, nothing is left under out.
+func ConvertContext(ctx context.Context, rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
-	var geo *FileReport
-	for _, f := range rep.Files {
-		if f.Format == "xyz" {
-			geo = f
-		}
-	}
+	geo := rep.geometry()
 	if geo == nil || geo.Kept == 0 {
 		return nil, fmt.Errorf("%s: no geometry frames", rep.Name)
 	}
@@ -114,7 +118,7 @@ func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
-	srcs, _, err := openSources(rep.traj, opt.Options)
+	srcs, err := openSources(rep.traj, opt.Options)
 	if err != nil {
 		return nil, err
 	}
@@ -124,21 +128,27 @@ func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 		}
 	}()
 	started := time.Now().UTC()
-	hashes := hashSources(rep, opt)
+	hctx, stopHashing := context.WithCancel(ctx)
+	defer stopHashing()
+	hashes := hashSources(hctx, rep, opt)
 	w, err := trajfile.Create(out, spec)
 	if err != nil {
 		return nil, err
 	}
-	if err := stream(rep, srcs, w, opt, res); err != nil {
+	if err := stream(ctx, rep, srcs, w, opt); err != nil {
 		w.Abort()
 		return nil, err
 	}
-	for _, s := range srcs {
-		if ls, ok := s.(*logSource); ok {
-			// Event-only logs were not walked with the frames: read them
-			// to the end to collect their hops.
+	for i, s := range srcs {
+		if rep.Files[i].reader.Events {
+			// Events may follow the last frame: read the file to the end
+			// to collect them.
 			for {
-				if _, err := ls.next(); err != nil {
+				if err := ctx.Err(); err != nil {
+					w.Abort()
+					return nil, err
+				}
+				if _, err := s.next(); err != nil {
 					if err != io.EOF {
 						w.Abort()
 						return nil, err
@@ -201,11 +211,11 @@ type hashResult struct {
 
 // hashSources computes the SHA-256 of every source file (and the recipe)
 // in a goroutine, while the conversion runs.
-func hashSources(rep *TrajReport, opt ConvertOptions) <-chan hashResult {
+func hashSources(ctx context.Context, rep *TrajReport, opt ConvertOptions) <-chan hashResult {
 	ch := make(chan hashResult, 1)
 	var files [][2]string
 	for _, f := range rep.Files {
-		files = append(files, [2]string{f.File, map[string]string{"xyz": "geometry", "table": "table", "log": "log"}[f.Format]})
+		files = append(files, [2]string{f.File, f.reader.ProvenanceRole})
 	}
 	if opt.Recipe != nil && opt.Recipe.Path != "" {
 		files = append(files, [2]string{opt.Recipe.Path, "recipe"})
@@ -213,6 +223,10 @@ func hashSources(rep *TrajReport, opt ConvertOptions) <-chan hashResult {
 	go func() {
 		var out hashResult
 		for _, f := range files {
+			if err := ctx.Err(); err != nil {
+				out.err = err
+				break
+			}
 			s, err := provenance.HashFile(f[0])
 			if err != nil {
 				out.err = err
@@ -226,7 +240,7 @@ func hashSources(rep *TrajReport, opt ConvertOptions) <-chan hashResult {
 	return ch
 }
 
-func where(p Problem) string {
+func where(p finding.Finding) string {
 	if p.Line > 0 {
 		return fmt.Sprintf("%s:%d", p.File, p.Line)
 	}
@@ -278,12 +292,12 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	spec := trajfile.Spec{
 		Author: opt.Author, Email: opt.Email, Creator: "trajvault", CreatorVersion: opt.ToolVersion,
 		Species: zs, Masses: masses,
-		Units: trajfile.Units{Length: u["position"], Time: u["time"], Velocity: u["velocity"], Force: u["force"],
-			Energy: u["energy"], Mass: "u", InverseTime: ""},
-		Velocity: has("velocity") || (has("momentum") && u["velocity"] != ""),
-		Force:    has("force"),
-		Kinetic:  has("kinetic_energy"), Potential: has("potential_energy"), Total: has("total_energy"),
-		NStates: rep.States, StateEnergies: has("state_energy"), Populations: has("population"),
+		Units: trajfile.Units{Length: u[string(quantity.Position)], Time: u[string(quantity.Time)], Velocity: u[string(quantity.Velocity)], Force: u[string(quantity.Force)],
+			Energy: u[string(quantity.Energy)], Mass: "u", InverseTime: ""},
+		Velocity: has(quantity.VelocityQ) || (has(quantity.MomentumQ) && u[string(quantity.Velocity)] != ""),
+		Force:    has(quantity.ForceQ),
+		Kinetic:  has(quantity.KineticEnergy), Potential: has(quantity.PotentialEnergy), Total: has(quantity.TotalEnergy),
+		NStates: rep.States, StateEnergies: has(quantity.StateEnergy), Populations: has(quantity.Population),
 		ActiveState:  rep.States > 0 && rep.hasActive(),
 		Hops:         rep.Hops > 0,
 		Storage:      map[string]trajfile.Storage{},
@@ -292,12 +306,12 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		Attrs:        map[string]string{},
 	}
 	if rep.masses != nil {
-		spec.Units.Mass = u["mass"]
+		spec.Units.Mass = u[string(quantity.Mass)]
 		if spec.Units.Mass == "" {
 			return spec, fmt.Errorf("%s: the geometry file gives masses but no unit for them; give --unit mass=u", rep.Name)
 		}
 	}
-	if has("momentum") && !has("velocity") && u["velocity"] == "" {
+	if has(quantity.MomentumQ) && !has(quantity.VelocityQ) && u[string(quantity.Velocity)] == "" {
 		return spec, fmt.Errorf("%s: the geometry gives momenta; they are divided by the masses (in u) to give velocities: state the unit of the result with --unit velocity=...", rep.Name)
 	}
 	if spec.NStates > 0 && !spec.StateEnergies && !spec.Populations && !spec.ActiveState {
@@ -313,11 +327,11 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		spec.Clock = rep.clock
 	}
 	if spec.Units.Time == "" {
-		spec.Units.Time = opt.Units["time"]
+		spec.Units.Time = opt.Units[string(quantity.Time)]
 	}
 	for q, fm := range rep.formats {
-		el, ok := elementOf[q]
-		if !ok {
+		el := quantity.Element(q)
+		if el == "" {
 			continue
 		}
 		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
@@ -350,11 +364,11 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	if spec.Clock != nil {
 		res.Storage["time"] = "H5MD fixed mode (uniform sampling: offset and increment)"
 	}
-	if has("momentum") && !has("velocity") {
-		spec.Storage["velocity"] = trajfile.Storage{Decimals: -1} // derived: lossless
+	if has(quantity.MomentumQ) && !has(quantity.VelocityQ) {
+		spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: -1} // derived: lossless
 		res.Storage["velocity"] = "float64, lossless (momenta / masses)"
 	}
-	if !has("time") && opt.Dt > 0 {
+	if !has(quantity.TimeQ) && opt.Dt > 0 {
 		spec.Storage["time"] = trajfile.Storage{Decimals: -1}
 	}
 	var files []string
@@ -414,44 +428,51 @@ func (k *keptIter) next() (*record, error) {
 }
 
 // stream is the second pass: frames are assembled one at a time and
-// written as they come.
-func stream(rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptions, res *Result) error {
-	// Parsing runs in this goroutine and HDF5 writing (compression) in
-	// another, so one conversion keeps two cores busy.
+// written as they come. Parsing runs in one goroutine and HDF5 writing
+// (compression) in another, so one conversion keeps two cores busy; the
+// first error of either (or ctx's end) stops both.
+func stream(ctx context.Context, rep *TrajReport, srcs []source, w *trajfile.Writer, opt ConvertOptions) error {
 	type item struct {
 		fr   *trajfile.Frame
 		line int
 	}
+	geo := rep.geometry()
 	ch := make(chan item, 256)
-	werr := make(chan error, 1)
-	go func() {
-		var err error
+	g, gctx := errgroup.WithContext(ctx)
+	g.Go(func() error {
 		for it := range ch {
-			if err == nil {
-				if e := w.WriteFrame(it.fr); e != nil {
-					err = fmt.Errorf("%s:%d: %w", rep.Files[0].File, it.line, e)
-				}
+			if err := gctx.Err(); err != nil {
+				return err
+			}
+			if err := w.WriteFrame(it.fr); err != nil {
+				return fmt.Errorf("%s:%d: %w", geo.File, it.line, err)
 			}
 		}
-		werr <- err
-	}()
-	perr := produce(rep, srcs, opt, func(fr *trajfile.Frame, line int) { ch <- item{fr, line} })
-	close(ch)
-	if err := <-werr; err != nil {
-		return err
-	}
-	return perr
+		return nil
+	})
+	g.Go(func() error {
+		defer close(ch)
+		return produce(gctx, rep, srcs, opt, func(fr *trajfile.Frame, line int) error {
+			select {
+			case ch <- item{fr, line}:
+				return nil
+			case <-gctx.Done():
+				return gctx.Err()
+			}
+		})
+	})
+	return g.Wait()
 }
 
 // produce walks the geometry frames and joins the other files' records
 // to them by step (or by order when there are no steps), handing each
-// assembled frame to emit.
-func produce(rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*trajfile.Frame, int)) error {
+// assembled frame to emit; it stops at emit's first error.
+func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*trajfile.Frame, int) error) error {
 	var geo *keptIter
 	var others []*keptIter
 	for i, s := range srcs {
 		it := newKeptIter(s, rep.Files[i])
-		if rep.Files[i].Format == "xyz" {
+		if rep.Files[i].reader.Role == RoleGeometry {
 			geo = it
 		} else if rep.Files[i].Kept > 0 { // event-only logs add no frames
 			others = append(others, it)
@@ -461,6 +482,11 @@ func produce(rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*traj
 	S := rep.States
 	pending := make([]*record, len(others))
 	for n := 0; ; n++ {
+		if n%checkEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+		}
 		g, err := geo.next()
 		if err == io.EOF {
 			return nil
@@ -518,53 +544,39 @@ func produce(rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*traj
 		default:
 			return fmt.Errorf("%s: frame %d has no time", rep.Name, n)
 		}
-		f := g.frame
-		if c := columnFor(f, "position", rep); c != nil {
-			fr.Position = c.Values
-		}
-		if c := columnFor(f, "velocity", rep); c != nil {
-			fr.Velocity = c.Values
-		} else if c := columnFor(f, "momentum", rep); c != nil {
-			v := make([]float64, len(c.Values))
+		fr.Position = g.atom(quantity.PositionQ)
+		if v := g.atom(quantity.VelocityQ); v != nil {
+			fr.Velocity = v
+		} else if p := g.atom(quantity.MomentumQ); p != nil {
+			v := make([]float64, len(p))
 			for i := range v {
-				v[i] = c.Values[i] / rep.massU(i/3, opt)
+				v[i] = p[i] / rep.massU(i/3, opt)
 			}
 			fr.Velocity = v
 		}
-		if c := columnFor(f, "force", rep); c != nil {
-			fr.Force = c.Values
-		}
+		fr.Force = g.atom(quantity.ForceQ)
 		fr.Kinetic, fr.Potential, fr.Total = merged.scalar[0], merged.scalar[1], merged.scalar[2]
 		if S > 0 {
 			fr.StateEnergies = shiftStates(merged.stateE, base, S)
 			fr.Populations = shiftStates(merged.pop, base, S)
 			fr.ActiveState = merged.active - base
 		}
-		emit(fr, g.line)
+		if err := emit(fr, g.line); err != nil {
+			return err
+		}
 	}
 }
 
 // massU is atom i's mass in u, for turning momenta into velocities.
 func (t *TrajReport) massU(i int, opt ConvertOptions) float64 {
 	if t.masses != nil {
-		f, err := units.Factor(t.Units["mass"], "u")
+		f, err := units.Factor(t.Units[string(quantity.Mass)], "u")
 		if err == nil {
 			return t.masses[i] * f
 		}
 	}
 	m, _ := elements.Mass(elements.Number(t.symbols[i]))
 	return m
-}
-
-func columnFor(f *Frame, q string, rep *TrajReport) *Column {
-	src := rep.Files[0].src
-	xs, _ := src.(*xyzSource)
-	for _, c := range f.Columns {
-		if xs != nil && xs.columnQuantity(c.Name) == q {
-			return c
-		}
-	}
-	return nil
 }
 
 func shiftStates(v []float64, base, S int) []float64 {
@@ -611,19 +623,31 @@ func mergeRecord(dst, r *record) {
 // conversion (see TrajReport.Refusal); nothing was written.
 var ErrRefused = errors.New("the logs have problems; nothing written")
 
-// ConvertFiles converts the trajectory made of paths (files, or one
+// ConvertFiles is ConvertFilesContext without a way to stop it.
+//
+// Deprecated: kept for callers without a context (export's round-trip
+// test); use ConvertFilesContext.
+func ConvertFiles(paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
+	return ConvertFilesContext(context.Background(), paths, out, opt)
+}
+
+// ConvertFilesContext converts the trajectory made of paths (files, or one
 // folder, as TrajectoryFrom reads them) to out: scan, refuse by the one
 // rule, convert. The report is returned whenever the scan ran, so that
-// the caller can show its problems.
-func ConvertFiles(paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
+// the caller can show its problems. When ctx is cancelled it returns
+// ctx.Err() and leaves nothing under out.
+func ConvertFilesContext(ctx context.Context, paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
 	t, err := TrajectoryFrom(paths, opt.Recipe)
 	if err != nil {
 		return nil, nil, err
 	}
-	rep := Scan(t, opt.Options)
+	rep, err := Scan(ctx, t, opt.Options)
+	if err != nil {
+		return nil, nil, err
+	}
 	if rep.Refusal(opt.DropPartial) != nil {
 		return rep, nil, fmt.Errorf("%s: %w", t.Name, ErrRefused)
 	}
-	res, err := Convert(rep, out, opt)
+	res, err := ConvertContext(ctx, rep, out, opt)
 	return rep, res, err
 }

@@ -10,22 +10,24 @@ import (
 
 // Trajectory is the set of files that make one trajectory.
 type Trajectory struct {
-	Name     string   `json:"name"`
-	Dir      string   `json:"dir"`
-	Geometry string   `json:"geometry,omitempty"`
-	Tables   []string `json:"tables,omitempty"`
-	Logs     []string `json:"logs,omitempty"`
-	// tableSpec and logSpec are the recipe entries of Tables and Logs.
-	tableSpec []*TableSpec
-	logSpec   []*LogSpec
-	missing   []string
-	unknown   []string
+	Name string `json:"name"`
+	Dir  string `json:"dir"`
+	// Inputs are its files, in the order they are read (the geometry
+	// first).
+	Inputs  []Input `json:"inputs"`
+	missing []string
+	unknown []string
 }
 
-var (
-	geometryExt = map[string]bool{".xyz": true, ".extxyz": true}
-	tableExt    = map[string]bool{".dat": true, ".csv": true, ".tsv": true, ".txt": true, ".tab": true, ".ene": true}
-)
+// geometry is the path of the geometry file, or "".
+func (t *Trajectory) geometry() string {
+	for _, in := range t.Inputs {
+		if in.reader.Role == RoleGeometry {
+			return in.Path
+		}
+	}
+	return ""
+}
 
 // Discover finds the trajectories of an ensemble folder: with a recipe,
 // the folders matching its trajectories pattern; otherwise every
@@ -68,7 +70,7 @@ func Discover(dir string, rc *Recipe) ([]*Trajectory, error) {
 		if err != nil {
 			return nil, err
 		}
-		if t.Geometry == "" && len(t.Tables) == 0 && len(t.Logs) == 0 && rc == nil {
+		if len(t.Inputs) == 0 && rc == nil {
 			continue // not a trajectory folder
 		}
 		out = append(out, t)
@@ -91,19 +93,20 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 			}
 			return m[len(m)-1]
 		}
+		// A recipe's sections name the built-in formats.
 		if rc.Geometry != nil {
-			t.Geometry = one(rc.Geometry.File)
+			if p := one(rc.Geometry.File); p != "" {
+				t.Inputs = append(t.Inputs, newInput(p, &xyzFormat, rc.Geometry))
+			}
 		}
 		for i := range rc.Tables {
 			if p := one(rc.Tables[i].File); p != "" {
-				t.Tables = append(t.Tables, p)
-				t.tableSpec = append(t.tableSpec, &rc.Tables[i])
+				t.Inputs = append(t.Inputs, newInput(p, &tableFormat, &rc.Tables[i]))
 			}
 		}
 		for i := range rc.Logs {
 			if p := one(rc.Logs[i].File); p != "" {
-				t.Logs = append(t.Logs, p)
-				t.logSpec = append(t.logSpec, &rc.Logs[i])
+				t.Inputs = append(t.Inputs, newInput(p, &logFormat, &rc.Logs[i]))
 			}
 		}
 		return t, nil
@@ -117,27 +120,23 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 			continue
 		}
 		p := filepath.Join(d, e.Name())
-		ext := strings.ToLower(filepath.Ext(e.Name()))
+		r := readerFor(extOf(p))
 		switch {
-		case geometryExt[ext]:
-			if t.Geometry != "" {
-				t.unknown = append(t.unknown, p+" (a second geometry file; name one in a recipe)")
-				continue
-			}
-			t.Geometry = p
-		case tableExt[ext]:
-			t.Tables = append(t.Tables, p)
-			t.tableSpec = append(t.tableSpec, nil)
-		default:
+		case r == nil:
 			t.unknown = append(t.unknown, p)
+		case r.Role == RoleGeometry && t.geometry() != "":
+			t.unknown = append(t.unknown, p+" (a second geometry file; name one in a recipe)")
+		default:
+			t.Inputs = append(t.Inputs, newInput(p, r, nil))
 		}
 	}
+	sortInputs(t.Inputs)
 	return t, nil
 }
 
 // TrajectoryFrom builds one trajectory from command-line arguments: a
-// single folder, or the files themselves (geometry by extension .xyz or
-// .extxyz, the others read as tables).
+// single folder, or the files themselves (each read by the reader that
+// claims its extension; files with other extensions are read as tables).
 func TrajectoryFrom(args []string, rc *Recipe) (*Trajectory, error) {
 	if len(args) == 1 {
 		if st, err := os.Stat(args[0]); err == nil && st.IsDir() {
@@ -153,15 +152,15 @@ func TrajectoryFrom(args []string, rc *Recipe) (*Trajectory, error) {
 		if st.IsDir() {
 			return nil, fmt.Errorf("%s is a folder; give one trajectory folder, or its files", a)
 		}
-		if geometryExt[strings.ToLower(filepath.Ext(a))] {
-			if t.Geometry != "" {
-				return nil, fmt.Errorf("two geometry files (%s, %s); one trajectory has one", t.Geometry, a)
-			}
-			t.Geometry = a
-			continue
+		r := readerFor(extOf(a))
+		if r == nil {
+			r = fallbackReader()
 		}
-		t.Tables = append(t.Tables, a)
-		t.tableSpec = append(t.tableSpec, nil)
+		if r.Role == RoleGeometry && t.geometry() != "" {
+			return nil, fmt.Errorf("two geometry files (%s, %s); one trajectory has one", t.geometry(), a)
+		}
+		t.Inputs = append(t.Inputs, newInput(a, r, nil))
 	}
+	sortInputs(t.Inputs)
 	return t, nil
 }

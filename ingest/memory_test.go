@@ -2,6 +2,7 @@ package ingest
 
 import (
 	"bufio"
+	"context"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -75,7 +76,7 @@ func TestConvertMemoryIsFlat(t *testing.T) {
 		dir := synthetic(t, frames, 20)
 		tr, _ := TrajectoryFrom([]string{dir}, nil)
 		return peakHeap(func() {
-			rep := Scan(tr, opt.Options)
+			rep, _ := Scan(context.Background(), tr, opt.Options)
 			if _, err := Convert(rep, filepath.Join(t.TempDir(), "o.h5"), opt); err != nil {
 				t.Fatal(err)
 			}

@@ -6,10 +6,11 @@ import (
 	"fmt"
 	"os"
 	"regexp"
-	"strconv"
 	"strings"
 
 	"gopkg.in/yaml.v3"
+
+	"trajvault/internal/quantity"
 
 	"trajvault/schema"
 )
@@ -34,16 +35,9 @@ type Recipe struct {
 	Text string `yaml:"-" json:"-"`
 }
 
-// Units of the quantities in the logs, by kind; "" = not given.
-type Units struct {
-	Position string `yaml:"position" json:"position,omitempty"`
-	Velocity string `yaml:"velocity" json:"velocity,omitempty"`
-	Force    string `yaml:"force" json:"force,omitempty"`
-	Momentum string `yaml:"momentum" json:"momentum,omitempty"`
-	Mass     string `yaml:"mass" json:"mass,omitempty"`
-	Time     string `yaml:"time" json:"time,omitempty"`
-	Energy   string `yaml:"energy" json:"energy,omitempty"`
-}
+// Units of the quantities in the logs, by unit kind (quantity.Kinds);
+// a kind left out is not given.
+type Units map[string]string
 
 // GeoSpec names the geometry file of a trajectory.
 type GeoSpec struct {
@@ -107,14 +101,34 @@ func LoadRecipe(path string) (*Recipe, error) {
 	return &r, nil
 }
 
-// knownGroups are the named groups a rule may use.
-var knownGroups = map[string]bool{
-	"step": true, "time": true, "kinetic_energy": true, "potential_energy": true, "total_energy": true,
-	"active_state": true, "state": true, "state_energy": true, "population": true,
-	"hop_from": true, "hop_to": true, "hop_kind": true,
+// knownGroup reports whether a rule may use the named group: a quantity
+// of the vocabulary that is not per atom, or one of the group names that
+// index states and describe hops.
+func knownGroup(g string) bool {
+	switch g {
+	case "state", "hop_from", "hop_to", "hop_kind":
+		return true
+	}
+	q, ok := quantity.Lookup(g)
+	return ok && !q.PerAtom || strings.HasPrefix(g, "state_energy_") || strings.HasPrefix(g, "population_")
+}
+
+func knownGroups() string {
+	var s []string
+	for _, q := range quantity.All() {
+		if !q.PerAtom {
+			s = append(s, q.Name)
+		}
+	}
+	return strings.Join(append(s, "state", "state_energy_K", "population_K", "hop_from", "hop_to", "hop_kind"), ", ")
 }
 
 func (r *Recipe) compile() error {
+	for k := range r.Units {
+		if _, ok := quantity.LookupKind(k); !ok {
+			return fmt.Errorf("units: unknown kind %q (kinds: %s)", k, quantity.KindNames())
+		}
+	}
 	if r.Geometry != nil {
 		for _, c := range r.Geometry.Comment {
 			re, err := regexp.Compile(c)
@@ -135,8 +149,8 @@ func (r *Recipe) compile() error {
 				if g == "" {
 					continue
 				}
-				if !knownGroups[g] && !strings.HasPrefix(g, "state_energy_") && !strings.HasPrefix(g, "population_") {
-					return fmt.Errorf("logs[%d].rules[%d]: unknown group name %q (known: step, time, kinetic_energy, potential_energy, total_energy, active_state, state, state_energy, population, state_energy_K, population_K, hop_from, hop_to, hop_kind)", i, j, g)
+				if !knownGroup(g) {
+					return fmt.Errorf("logs[%d].rules[%d]: unknown group name %q (known: %s)", i, j, g, knownGroups())
 				}
 			}
 			rule.re = re
@@ -144,36 +158,10 @@ func (r *Recipe) compile() error {
 	}
 	for _, t := range r.Tables {
 		for col, q := range t.Columns {
-			if _, _, err := parseQuantity(q); err != nil {
+			if _, _, err := quantity.Recipe(q); err != nil {
 				return fmt.Errorf("tables %s: column %s: %v", t.File, col, err)
 			}
 		}
 	}
 	return nil
-}
-
-// parseQuantity reads "kinetic_energy" or "state_energy:1".
-func parseQuantity(q string) (string, int, error) {
-	name, idx, hasIdx := strings.Cut(q, ":")
-	k := -1
-	if hasIdx {
-		n, err := strconv.Atoi(idx)
-		if err != nil || n < 0 {
-			return "", 0, fmt.Errorf("bad state index in %q", q)
-		}
-		k = n
-	}
-	switch name {
-	case "step", "time", "kinetic_energy", "potential_energy", "total_energy", "active_state", "ignore":
-		if hasIdx {
-			return "", 0, fmt.Errorf("%s takes no state index", name)
-		}
-	case "state_energy", "population":
-		if !hasIdx {
-			return "", 0, fmt.Errorf("%s needs a state index, e.g. %s:1", name, name)
-		}
-	default:
-		return "", 0, fmt.Errorf("unknown quantity %q", name)
-	}
-	return name, k, nil
 }

@@ -1,31 +1,23 @@
 package ingest
 
 import (
+	"context"
 	"errors"
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"sort"
 
 	"trajvault/internal/elements"
+	"trajvault/internal/finding"
+	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 )
 
-// Problem is something wrong in the logs of a trajectory. Codes are
-// stable (README, "scan problems").
-type Problem struct {
-	Code     string `json:"code"`
-	Severity string `json:"severity"` // error, warning or note
-	File     string `json:"file,omitempty"`
-	Line     int    `json:"line,omitempty"`
-	Column   int    `json:"column,omitempty"`
-	Message  string `json:"message"`
-}
-
-// Problem codes.
+// Problem codes of scan (README, "Problems scan reports"): one code per
+// rule, never reused.
 const (
 	PTruncated   = "P1"  // last frame or row cut
 	PMissing     = "P2"  // a recipe file pattern matched nothing
@@ -40,12 +32,13 @@ const (
 	PNoGeometry  = "P11" // no geometry
 	PNoTime      = "P12" // no times
 	PConflict    = "P13" // two files give the same quantity
+	PStateBase   = "P14" // states numbered from 1 (detected)
 )
 
 // FileReport describes one source file after the first pass.
 type FileReport struct {
 	File      string            `json:"file"`
-	Format    string            `json:"format"`
+	Format    SourceKind        `json:"format"`
 	Records   int               `json:"records"`
 	Kept      int               `json:"kept"`
 	FirstStep *int64            `json:"first_step,omitempty"`
@@ -54,6 +47,7 @@ type FileReport struct {
 	Hops      int               `json:"hops,omitempty"`
 
 	src       source
+	reader    *Reader
 	keys      keySeq // kept (index, step); steps are indices when the file has none
 	hasSteps  bool
 	dropped   [][2]int
@@ -95,7 +89,7 @@ type TrajReport struct {
 	Units      map[string]string `json:"units"`
 	Precision  map[string]string `json:"precision"`
 	Quantities []string          `json:"quantities"`
-	Problems   []Problem         `json:"problems"`
+	Problems   []finding.Finding `json:"problems"`
 
 	traj    *Trajectory
 	base    int
@@ -119,17 +113,22 @@ type Options struct {
 	Dt float64
 }
 
-func (t *TrajReport) add(code, sev, file string, line int, format string, args ...any) {
-	t.Problems = append(t.Problems, Problem{Code: code, Severity: sev, File: file, Line: line, Message: fmt.Sprintf(format, args...)})
+func (t *TrajReport) add(code string, sev finding.Severity, file string, line int, format string, args ...any) {
+	t.Problems = append(t.Problems, finding.Finding{Code: code, Severity: sev, Location: finding.Location{File: file, Line: line}, Message: fmt.Sprintf(format, args...)})
+}
+
+// addUnit records a unit problem (P8) about one unit kind.
+func (t *TrajReport) addUnit(kind quantity.Kind, format string, args ...any) {
+	t.Problems = append(t.Problems, finding.Finding{Code: PUnit, Severity: finding.Error, Quantity: string(kind), Message: fmt.Sprintf(format, args...)})
 }
 
 // Refusal is the first problem that forbids converting this trajectory,
 // or nil: any error, except a cut last frame when dropPartial is set
 // (that frame is then dropped and recorded). Convert and pack refuse by
 // this one rule, all or nothing.
-func (t *TrajReport) Refusal(dropPartial bool) *Problem {
+func (t *TrajReport) Refusal(dropPartial bool) *finding.Finding {
 	for i, p := range t.Problems {
-		if p.Severity == "error" && !(dropPartial && p.Code == PTruncated) {
+		if p.Severity == finding.Error && !(dropPartial && p.Code == PTruncated) {
 			return &t.Problems[i]
 		}
 	}
@@ -137,112 +136,95 @@ func (t *TrajReport) Refusal(dropPartial bool) *Problem {
 }
 
 // Errors counts problems of severity error.
-func (t *TrajReport) Errors() int {
-	n := 0
-	for _, p := range t.Problems {
-		if p.Severity == "error" {
-			n++
-		}
-	}
-	return n
-}
+func (t *TrajReport) Errors() int { return finding.Count(t.Problems, finding.Error) }
 
 // Findings counts errors and warnings (notes excluded).
 func (t *TrajReport) Findings() int {
-	n := 0
-	for _, p := range t.Problems {
-		if p.Severity != "note" {
-			n++
-		}
-	}
-	return n
+	return finding.Count(t.Problems, finding.Error) + finding.Count(t.Problems, finding.Warning)
 }
 
-func openSources(t *Trajectory, opt Options) ([]source, []string, error) {
+// openSources opens every input of t with its reader, in order.
+func openSources(t *Trajectory, opt Options) ([]source, error) {
 	var srcs []source
-	var kinds []string
-	if t.Geometry != "" {
-		s, err := openXYZ(t.Geometry, opt.Recipe)
-		if err != nil {
-			return nil, nil, err
-		}
-		srcs, kinds = append(srcs, s), append(kinds, "xyz")
-	}
-	for i, p := range t.Tables {
-		s, err := openTable(p, t.tableSpec[i])
+	for _, in := range t.Inputs {
+		s, err := in.reader.Open(in.Path, in.spec, opt.Recipe)
 		if err != nil {
 			for _, s := range srcs {
 				s.close()
 			}
-			return nil, nil, err
+			return nil, err
 		}
-		srcs, kinds = append(srcs, s), append(kinds, "table")
+		srcs = append(srcs, s)
 	}
-	for i, p := range t.Logs {
-		s, err := openLog(p, t.logSpec[i])
-		if err != nil {
-			for _, s := range srcs {
-				s.close()
-			}
-			return nil, nil, err
-		}
-		srcs, kinds = append(srcs, s), append(kinds, "log")
-	}
-	return srcs, kinds, nil
+	return srcs, nil
 }
+
+// checkEvery is how many records pass between looks at the context.
+const checkEvery = 64
 
 // Scan reads every file of a trajectory once (streaming) and reports what
-// it holds and what is wrong with it.
-func Scan(t *Trajectory, opt Options) *TrajReport {
+// it holds and what is wrong with it. It stops early with ctx.Err() when
+// ctx is cancelled; problems in the logs are findings in the report, not
+// errors.
+func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) {
 	rep := &TrajReport{Name: t.Name, traj: t, Units: map[string]string{}, Precision: map[string]string{},
-		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []Problem{}}
+		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []finding.Finding{}}
 	for _, m := range t.missing {
-		rep.add(PMissing, "error", t.Dir, 0, "no file matches the recipe pattern %q", m)
+		rep.add(PMissing, finding.Error, t.Dir, 0, "no file matches the recipe pattern %q", m)
 	}
 	for _, u := range t.unknown {
-		rep.add(PUnknownFile, "note", u, 0, "not read (not .xyz/.extxyz or a table extension); name it in a recipe to use it")
+		rep.add(PUnknownFile, finding.Note, u, 0, "not read (no reader takes its extension: %s); name it in a recipe to use it", knownExtensions())
 	}
-	if t.Geometry == "" {
-		rep.add(PNoGeometry, "error", t.Dir, 0, "no geometry file (.xyz or extended .xyz): a trajectory needs positions")
+	if t.geometry() == "" {
+		rep.add(PNoGeometry, finding.Error, t.Dir, 0, "no geometry file (.xyz or extended .xyz): a trajectory needs positions")
 	}
-	// Files that are not tables are skipped with a problem, not fatal.
-	var kept []string
-	var keptSpec []*TableSpec
-	for i, p := range t.Tables {
-		f, err := os.Open(p)
-		if err == nil {
-			_, err = NewTableReader(f, p)
-			f.Close()
+	// Files that fail their reader's probe are skipped with a note, not
+	// fatal.
+	var kept []Input
+	for _, in := range t.Inputs {
+		if in.reader.Probe != nil {
+			if err := in.reader.Probe(in.Path); err != nil {
+				rep.add(PUnknownFile, finding.Note, in.Path, 0, "not read as a %s: %v", in.reader.Kind, err)
+				continue
+			}
 		}
-		if err != nil {
-			rep.add(PUnknownFile, "note", p, 0, "not read as a table: %v", err)
-			continue
-		}
-		kept, keptSpec = append(kept, p), append(keptSpec, t.tableSpec[i])
+		kept = append(kept, in)
 	}
-	t.Tables, t.tableSpec = kept, keptSpec
-	srcs, kinds, err := openSources(t, opt)
+	t.Inputs = kept
+	srcs, err := openSources(t, opt)
 	if err != nil {
-		rep.add(PUnreadable, "error", t.Dir, 0, "%v", err)
-		return rep
+		rep.add(PUnreadable, finding.Error, t.Dir, 0, "%v", err)
+		return rep, nil
 	}
+	defer func() {
+		for _, s := range srcs {
+			s.close()
+		}
+	}()
 	for i, s := range srcs {
-		fr := scanSource(rep, s, kinds[i], opt)
+		fr, err := scanSource(ctx, rep, s, t.Inputs[i].reader)
+		if err != nil {
+			return nil, err
+		}
 		rep.Files = append(rep.Files, fr)
-		s.close()
 	}
 	rep.combine(opt)
-	return rep
+	return rep, nil
 }
 
-func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport {
-	fr := &FileReport{File: s.file(), Format: kind, src: s, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1}
+func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*FileReport, error) {
+	fr := &FileReport{File: s.file(), Format: r.Kind, src: s, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
 	havePrev := false
 	atoms := 0
 	for ; ; idx++ {
+		if idx%checkEvery == 0 {
+			if err := ctx.Err(); err != nil {
+				return nil, err
+			}
+		}
 		rec, err := s.next()
 		if err == io.EOF {
 			break
@@ -258,7 +240,7 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			case errors.Is(err, ErrAtomCount):
 				code = PAtomCount
 			}
-			p := Problem{Code: code, Severity: "error", File: s.file(), Message: msg}
+			p := finding.Finding{Code: code, Severity: finding.Error, Location: finding.Location{File: s.file()}, Message: msg}
 			var pe *ParseError
 			if errors.As(err, &pe) {
 				p.Line, p.Column, p.Message = pe.Line, pe.Column, pe.Err.Error()
@@ -270,41 +252,39 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			fr.failed = code != PTruncated
 			break
 		}
-		if rec.frame != nil {
+		if rec.symbols != nil {
 			if atoms == 0 {
-				atoms = len(rec.frame.Symbols)
+				atoms = len(rec.symbols)
 				if len(rep.symbols) == 0 {
-					rep.symbols = append([]string(nil), rec.frame.Symbols...)
-					if c := rec.frame.Column("masses"); c != nil {
-						rep.masses = append([]float64(nil), c.Values...)
-					} else if c := rec.frame.Column("mass"); c != nil {
-						rep.masses = append([]float64(nil), c.Values...)
+					rep.symbols = append([]string(nil), rec.symbols...)
+					if m := rec.atom(quantity.MassQ); m != nil {
+						rep.masses = append([]float64(nil), m...)
 					}
 				}
 			}
-			for _, c := range rec.frame.Columns {
-				q := s.(*xyzSource).columnQuantity(c.Name)
-				for _, v := range c.Values {
-					fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(v))
+			for _, c := range rec.atoms {
+				for _, v := range c.values {
+					fr.maxAbs[c.quantity] = math.Max(fr.maxAbs[c.quantity], math.Abs(v))
 				}
 			}
 		}
 		for i, ok := range rec.hasScalar {
 			if ok {
-				fr.maxAbs[scalarNames[i]] = math.Max(fr.maxAbs[scalarNames[i]], math.Abs(rec.scalar[i]))
+				q := quantity.ScalarNames[i]
+				fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(rec.scalar[i]))
 			}
 		}
 		if rec.hasTime {
-			fr.maxAbs["time"] = math.Max(fr.maxAbs["time"], math.Abs(rec.time))
+			fr.maxAbs[quantity.TimeQ] = math.Max(fr.maxAbs[quantity.TimeQ], math.Abs(rec.time))
 		}
 		for _, v := range rec.stateE {
 			if !math.IsNaN(v) { // NaN marks a state index the log skipped
-				fr.maxAbs["state_energy"] = math.Max(fr.maxAbs["state_energy"], math.Abs(v))
+				fr.maxAbs[quantity.StateEnergy] = math.Max(fr.maxAbs[quantity.StateEnergy], math.Abs(v))
 			}
 		}
 		for _, v := range rec.pop {
 			if !math.IsNaN(v) {
-				fr.maxAbs["population"] = math.Max(fr.maxAbs["population"], math.Abs(v))
+				fr.maxAbs[quantity.Population] = math.Max(fr.maxAbs[quantity.Population], math.Abs(v))
 			}
 		}
 		fr.states = max(fr.states, len(rec.stateE), len(rec.pop))
@@ -341,9 +321,9 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 			if n > 1 {
 				what = "overlaps"
 			}
-			rep.add(PRestart, "warning", s.file(), rec.line, "step %d %s %d earlier record(s) (a restart); the later occurrence is kept and the earlier dropped", key, what, n)
+			rep.add(PRestart, finding.Warning, s.file(), rec.line, "step %d %s %d earlier record(s) (a restart); the later occurrence is kept and the earlier dropped", key, what, n)
 		} else if havePrev && rec.hasTime && (!rec.hasStep || rec.step > prevStep) && rec.time < prevTime {
-			rep.add(PTime, "error", s.file(), rec.line, "time %g after %g while the step advances: the clock goes backwards; check the log", rec.time, prevTime)
+			rep.add(PTime, finding.Error, s.file(), rec.line, "time %g after %g while the step advances: the clock goes backwards; check the log", rec.time, prevTime)
 		}
 		fr.keys.push(idx, key)
 		fr.checkUniform(rec, key, s.timeFormat())
@@ -358,18 +338,18 @@ func scanSource(rep *TrajReport, s source, kind string, opt Options) *FileReport
 		l, _ := fr.keys.last()
 		fr.FirstStep, fr.LastStep = &f, &l
 	}
-	fr.fmts = s.formats()
+	fr.fmts = s.provides()
 	fr.Formats = map[string]string{}
 	for q, f := range fr.fmts {
 		fr.Formats[q] = f.String()
 	}
 	fr.units = s.units()
-	if kind == "xyz" {
+	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
 	}
 	fr.Hops = len(s.hops())
 	rep.Hops += fr.Hops
-	return fr
+	return fr, nil
 }
 
 // stateBase is how the logs number electronic states: as the recipe
@@ -384,34 +364,25 @@ func (t *TrajReport) stateBase(opt Options) int {
 
 // unitFor resolves the unit of a kind: the files, then the recipe, then
 // the command line.
-func (t *TrajReport) unitFor(kind string, opt Options) string {
+func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
+	k := string(kind)
 	for _, f := range t.Files {
-		if u := f.units[kind]; u != "" {
+		if u := f.units[k]; u != "" {
 			return u
 		}
 	}
 	if opt.Recipe != nil {
-		u := opt.Recipe.Units
-		if v := map[string]string{"position": u.Position, "velocity": u.Velocity, "force": u.Force, "momentum": u.Momentum,
-			"mass": u.Mass, "time": u.Time, "energy": u.Energy}[kind]; v != "" {
+		if v := opt.Recipe.Units[k]; v != "" {
 			return v
 		}
 	}
-	return opt.Units[kind]
-}
-
-var unitDims = map[string]units.Dim{
-	"position": units.Length, "velocity": units.Velocity, "force": units.Force, "momentum": units.Momentum,
-	"mass": units.Mass, "time": units.Time, "energy": units.Energy,
+	return opt.Units[k]
 }
 
 // combine checks the files against each other and fills the summary.
 func (t *TrajReport) combine(opt Options) {
-	var geo *FileReport
+	geo := t.geometry()
 	for _, f := range t.Files {
-		if f.Format == "xyz" {
-			geo = f
-		}
 		for q, fm := range f.fmts {
 			if old, ok := t.formats[q]; ok {
 				t.formats[q] = old.Merge(fm)
@@ -438,7 +409,7 @@ func (t *TrajReport) combine(opt Options) {
 	sort.Strings(given)
 	for _, q := range given {
 		if g := givers[q]; len(g) > 1 {
-			t.add(PConflict, "warning", g[1], 0, "%s is also given by %s; the first file's values are used (map the column to ignore in a recipe to silence this)", q, g[0])
+			t.add(PConflict, finding.Warning, g[1], 0, "%s is also given by %s; the first file's values are used (map the column to ignore in a recipe to silence this)", q, g[0])
 		}
 	}
 	minState := -1
@@ -449,7 +420,7 @@ func (t *TrajReport) combine(opt Options) {
 	}
 	if minState == 1 && (opt.Recipe == nil || opt.Recipe.StateBase == nil) {
 		t.base = 1
-		t.add(PUnknownFile, "note", "", 0, "states are numbered from 1 in the logs (no state 0 found); set state_base in a recipe if that is wrong")
+		t.add(PStateBase, finding.Note, "", 0, "states are numbered from 1 in the logs (no state 0 found); set state_base in a recipe if that is wrong")
 	}
 	base := t.stateBase(opt)
 	for _, f := range t.Files {
@@ -477,7 +448,7 @@ func (t *TrajReport) combine(opt Options) {
 		for _, f := range t.Files {
 			if f != geo && f.hasSteps {
 				if f.Kept != geo.Kept {
-					t.add(PLength, "error", f.File, 0, "%d records but the geometry file has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, geo.Kept)
+					t.add(PLength, finding.Error, f.File, 0, "%d records but the geometry file has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, geo.Kept)
 				}
 				clock = f
 				break
@@ -490,10 +461,10 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		if f.hasSteps && clock.hasSteps {
 			if ok, miss := contains(&f.keys, &clock.keys); !ok {
-				t.add(PLength, "error", f.File, 0, "no record for step %d, which the geometry has; every frame needs its row", miss)
+				t.add(PLength, finding.Error, f.File, 0, "no record for step %d, which the geometry has; every frame needs its row", miss)
 			}
 		} else if f.Kept != geo.Kept {
-			t.add(PLength, "error", f.File, 0, "%d records for %d frames, and no steps to match them by", f.Kept, geo.Kept)
+			t.add(PLength, finding.Error, f.File, 0, "%d records for %d frames, and no steps to match them by", f.Kept, geo.Kept)
 		}
 	}
 	if clock.hasSteps {
@@ -521,47 +492,51 @@ func (t *TrajReport) combine(opt Options) {
 		t.clock = &trajfile.FixedClock{StepOffset: tf.s0, StepIncrement: tf.stride, TimeOffset: tf.t0, TimeIncrement: tf.dt}
 	}
 	// Units for every quantity present.
-	need := map[string]bool{"position": true}
+	need := map[quantity.Kind]bool{quantity.Position: true}
 	for _, q := range t.Quantities {
-		k := unitKind(q)
-		if k == "momentum" {
-			// Momenta are stored as velocities (p/m, masses in u): the
-			// unit asked for is that of the result.
-			k = "velocity"
-		}
-		if unitDims[k] != (units.Dim{}) {
+		if k := quantity.StoredUnit(q); k != "" {
 			need[k] = true
 		}
 	}
-	if _, ok := t.formats["time"]; !ok {
+	if _, ok := t.formats[quantity.TimeQ]; !ok {
 		if opt.Dt > 0 {
-			need["time"] = true
+			need[quantity.Time] = true
 		} else {
-			t.add(PNoTime, "error", geo.File, 0, "no times in the logs (no time column, no time= on comment lines); give the time per step with --dt and --unit time=fs")
+			t.add(PNoTime, finding.Error, geo.File, 0, "no times in the logs (no time column, no time= on comment lines); give the time per step with --dt and --unit time=fs")
 		}
 	}
-	for k := range need {
+	for _, ki := range quantity.Kinds() {
+		k := ki.Kind
+		if !need[k] {
+			continue
+		}
 		u := t.unitFor(k, opt)
 		if u == "" {
-			t.add(PUnit, "error", "", 0, "no unit for %s: write it in the table header (e.g. %s[%s]), in the recipe (units: %s: ...), or give --unit %s=%s", k, k, exampleUnit[k], k, k, exampleUnit[k])
+			t.addUnit(k, "no unit for %s: write it in the table header (e.g. %s[%s]), in the recipe (units: %s: ...), or give --unit %s=%s", k, k, ki.Example, k, k, ki.Example)
 			continue
 		}
 		pu, err := units.Parse(u)
 		if err != nil {
-			t.add(PUnit, "error", "", 0, "unit of %s: %v", k, err)
+			t.addUnit(k, "unit of %s: %v", k, err)
 			continue
 		}
-		if !pu.Is(unitDims[k]) {
-			t.add(PUnit, "error", "", 0, "unit %q given for %s is a %v", u, k, pu.Dim)
+		if !pu.Is(ki.Dim) {
+			t.addUnit(k, "unit %q given for %s is a %v", u, k, pu.Dim)
 			continue
 		}
-		t.Units[k] = u
+		t.Units[string(k)] = u
 	}
 }
 
-var exampleUnit = map[string]string{
-	"position": "angstrom", "velocity": "angstrom fs-1", "force": "hartree bohr-1", "momentum": "u angstrom fs-1",
-	"mass": "u", "time": "fs", "energy": "hartree",
+// geometry is the report of the geometry file (found by its reader's
+// role), or nil.
+func (t *TrajReport) geometry() *FileReport {
+	for _, f := range t.Files {
+		if f.reader.Role == RoleGeometry {
+			return f
+		}
+	}
+	return nil
 }
 
 // checkUniform follows whether the records so far are uniformly sampled

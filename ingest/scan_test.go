@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -36,7 +37,7 @@ func TestScanPlanted(t *testing.T) {
 	for _, tr := range trajs {
 		want := strings.ToUpper(strings.SplitN(tr.Name, "-", 2)[0])
 		t.Run(tr.Name, func(t *testing.T) {
-			rep := Scan(tr, posUnit)
+			rep, _ := Scan(context.Background(), tr, posUnit)
 			found := false
 			for _, p := range rep.Problems {
 				if p.Code == want {
@@ -57,7 +58,7 @@ func TestScanPlanted(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if rep := Scan(trajs[0], Options{Recipe: rc}); !hasCode(rep, PMissing) {
+	if rep, _ := Scan(context.Background(), trajs[0], Options{Recipe: rc}); !hasCode(rep, PMissing) {
 		t.Errorf("want P2, got %+v", rep.Problems)
 	}
 }
@@ -77,7 +78,7 @@ func TestScanClean(t *testing.T) {
 		t.Fatal(err)
 	}
 	for _, tr := range trajs {
-		rep := Scan(tr, posUnit)
+		rep, _ := Scan(context.Background(), tr, posUnit)
 		if rep.Findings() != 0 {
 			t.Errorf("%s: %+v", tr.Name, rep.Problems)
 		}
@@ -112,7 +113,7 @@ func TestParseErrorsLocate(t *testing.T) {
 // DropPartial, which is recorded too.
 func TestConvertRestartAndPartial(t *testing.T) {
 	tr, _ := TrajectoryFrom([]string{testdata("ensembles", "problems", "p5-restart")}, nil)
-	rep := Scan(tr, posUnit)
+	rep, _ := Scan(context.Background(), tr, posUnit)
 	out := filepath.Join(t.TempDir(), "r.h5")
 	res, err := Convert(rep, out, ConvertOptions{Options: posUnit})
 	if err != nil {
@@ -127,7 +128,7 @@ func TestConvertRestartAndPartial(t *testing.T) {
 	}
 
 	tr, _ = TrajectoryFrom([]string{testdata("ensembles", "problems", "p1-truncated-frame")}, nil)
-	rep = Scan(tr, posUnit)
+	rep, _ = Scan(context.Background(), tr, posUnit)
 	if _, err := Convert(rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: posUnit}); err == nil {
 		t.Error("a cut frame converted without DropPartial")
 	}

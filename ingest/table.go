@@ -2,11 +2,12 @@ package ingest
 
 import (
 	"bytes"
-	"fmt"
 	"io"
+	"os"
 	"regexp"
 	"strings"
 
+	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 )
 
@@ -118,7 +119,7 @@ func (t *TableReader) header(b []byte, line int) error {
 			return &ParseError{File: t.file, Line: line, Column: f.col, Err: detail(ErrHeader, "column %q repeats column %d; give columns distinct names", name, prev+1)}
 		}
 		seen[name] = len(t.Columns)
-		q, k := Vocabulary(name)
+		q, k := quantity.Column(name)
 		t.Columns = append(t.Columns, &TableColumn{Name: name, Unit: unit, Quantity: q, State: k})
 	}
 	return nil
@@ -185,39 +186,126 @@ func (t *TableReader) names() string {
 	return strings.Join(n, " ")
 }
 
-// Vocabulary maps a column name to a layout quantity and, for per-state
-// quantities, a state index as written (not yet shifted to 0-based). The
-// table is documented in README.md; names are compared case-insensitively
-// with '_', '-' and spaces removed.
-func Vocabulary(name string) (string, int) {
-	n := strings.ToLower(nameNoise.Replace(name))
-	switch n {
-	case "step", "nstep", "istep", "steps":
-		return "step", -1
-	case "time", "t", "simtime":
-		return "time", -1
-	case "ekin", "kinetic", "kineticenergy", "ke", "ek":
-		return "kinetic_energy", -1
-	case "epot", "potential", "potentialenergy", "pe", "ep":
-		return "potential_energy", -1
-	case "etot", "total", "totalenergy", "energy", "e", "etotal":
-		return "total_energy", -1
-	case "state", "activestate", "surface", "istate", "currentstate", "active":
-		return "active_state", -1
-	}
-	if m := stateCol.FindStringSubmatch(n); m != nil {
-		var k int
-		fmt.Sscan(m[2], &k)
-		switch m[1] {
-		case "e", "en", "energy", "v", "es", "estate":
-			return "state_energy", k
-		case "p", "pop", "population", "rho":
-			return "population", k
+// tableFormat reads column tables. A file found by extension that is not
+// a table (no header naming its columns) is skipped with a note.
+var tableFormat = Reader{
+	Kind: KindTable, Role: RoleRecords, Fallback: true, ProvenanceRole: "table",
+	Extensions: []string{".dat", ".csv", ".tsv", ".txt", ".tab", ".ene"},
+	Probe: func(path string) error {
+		f, err := os.Open(path)
+		if err != nil {
+			return err
 		}
-	}
-	return "", -1
+		defer f.Close()
+		_, err = NewTableReader(f, path)
+		return err
+	},
+	Open: func(path string, spec any, _ *Recipe) (source, error) {
+		ts, _ := spec.(*TableSpec)
+		return openTable(path, ts)
+	},
 }
 
-var nameNoise = strings.NewReplacer("_", "", "-", "", " ", "", ".", "")
+type tableSource struct {
+	path  string
+	f     *os.File
+	t     *TableReader
+	row   []float64
+	quant []string
+	state []int
+	unit  map[string]string
+}
 
-var stateCol = regexp.MustCompile(`^([a-z]+?)s?(\d+)$`)
+func openTable(path string, spec *TableSpec) (*tableSource, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	t, err := NewTableReader(f, path)
+	if err != nil {
+		f.Close()
+		return nil, err
+	}
+	s := &tableSource{path: path, f: f, t: t, row: make([]float64, len(t.Columns)), unit: map[string]string{}}
+	for _, c := range t.Columns {
+		q, k := c.Quantity, c.State
+		if spec != nil {
+			if m, ok := spec.Columns[c.Name]; ok {
+				q, k, _ = quantity.Recipe(m)
+			}
+		}
+		if q == quantity.Ignore {
+			q = ""
+		}
+		c.Quantity, c.State = q, k
+		s.quant = append(s.quant, q)
+		s.state = append(s.state, k)
+		if kind := string(quantity.UnitKind(q)); c.Unit != "" && kind != "" {
+			if old, ok := s.unit[kind]; ok && old != c.Unit {
+				f.Close()
+				return nil, &ParseError{File: path, Line: 1, Err: detail(ErrHeader, "columns of %s are in %q and %q; trajvault stores numbers as printed, so one unit per kind of quantity", kind, old, c.Unit)}
+			}
+			s.unit[kind] = c.Unit
+		}
+	}
+	return s, nil
+}
+
+func (s *tableSource) file() string             { return s.path }
+func (s *tableSource) units() map[string]string { return s.unit }
+func (s *tableSource) hops() []hop              { return nil }
+func (s *tableSource) close()                   { s.f.Close() }
+
+func (s *tableSource) timeFormat() textnum.Format {
+	var f textnum.Format
+	for i, q := range s.quant {
+		if q == quantity.TimeQ {
+			f = f.Merge(s.t.Columns[i].Format)
+		}
+	}
+	return f
+}
+
+func (s *tableSource) provides() map[string]textnum.Format {
+	out := map[string]textnum.Format{}
+	for i, c := range s.t.Columns {
+		q := s.quant[i]
+		if q == "" || !c.seen {
+			continue
+		}
+		if old, ok := out[q]; ok {
+			out[q] = old.Merge(c.Format)
+		} else {
+			out[q] = c.Format
+		}
+	}
+	return out
+}
+
+func (s *tableSource) next() (*record, error) {
+	line, err := s.t.Next(s.row)
+	if err != nil {
+		return nil, err
+	}
+	rec := &record{line: line}
+	for i, v := range s.row {
+		switch q := s.quant[i]; q {
+		case "":
+		case quantity.Step:
+			rec.step, rec.hasStep = int64(v), true
+		case quantity.TimeQ:
+			rec.time, rec.hasTime = v, true
+		case quantity.ActiveState:
+			rec.active, rec.hasActive = int(v), true
+		case quantity.StateEnergy:
+			rec.stateE = setState(rec.stateE, s.state[i], v)
+		case quantity.Population:
+			rec.pop = setState(rec.pop, s.state[i], v)
+		default:
+			if k := quantity.ScalarIndex(q); k >= 0 {
+				rec.scalar[k], rec.hasScalar[k] = v, true
+			}
+		}
+	}
+	return rec, nil
+}

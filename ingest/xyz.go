@@ -3,9 +3,12 @@ package ingest
 import (
 	"fmt"
 	"io"
+	"os"
+	"sort"
 	"strconv"
 	"strings"
 
+	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 )
 
@@ -311,4 +314,128 @@ func validKey(k string) bool {
 		}
 	}
 	return true
+}
+
+// xyzFormat reads XYZ and extended XYZ geometry files.
+var xyzFormat = Reader{
+	Kind: KindXYZ, Role: RoleGeometry, Extensions: []string{".xyz", ".extxyz"}, ProvenanceRole: "geometry",
+	Open: func(path string, _ any, rc *Recipe) (source, error) { return openXYZ(path, rc) },
+}
+
+type xyzSource struct {
+	path    string
+	f       *os.File
+	r       *XYZReader
+	recipe  *Recipe
+	fmts    formatSet
+	columns map[string]string
+}
+
+func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	s := &xyzSource{path: path, f: f, r: NewXYZReader(f, path), recipe: rc, fmts: formatSet{}, columns: map[string]string{}}
+	if rc != nil && rc.Geometry != nil {
+		for k, v := range rc.Geometry.Columns {
+			s.columns[k] = v
+		}
+	}
+	return s, nil
+}
+
+func (s *xyzSource) file() string                        { return s.path }
+func (s *xyzSource) provides() map[string]textnum.Format { return s.fmts }
+func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts[quantity.TimeQ] }
+func (s *xyzSource) units() map[string]string            { return nil }
+func (s *xyzSource) hops() []hop                         { return nil }
+func (s *xyzSource) close()                              { s.f.Close() }
+
+// columnQuantity maps an extended XYZ property name to a quantity: the
+// recipe's geometry columns, then the vocabulary.
+func (s *xyzSource) columnQuantity(name string) string {
+	if q, ok := s.columns[name]; ok {
+		return q
+	}
+	return quantity.Property(name)
+}
+
+func (s *xyzSource) next() (*record, error) {
+	fr, err := s.r.Next()
+	if err != nil {
+		return nil, err
+	}
+	rec := &record{line: fr.Line, symbols: fr.Symbols}
+	for _, c := range fr.Columns {
+		if q := s.columnQuantity(c.Name); q != "" {
+			s.fmts.merge(q, c.Format)
+			rec.atoms = append(rec.atoms, atomColumn{q, c.Values})
+		}
+	}
+	// Step, time and energies from the comment line: extended XYZ keys,
+	// then the recipe's patterns.
+	set := func(key, val string, col int) error {
+		q := quantity.CommentKey(key)
+		if q == "" {
+			return nil
+		}
+		v, fm, err := textnum.Parse(val)
+		if err != nil {
+			cause := ErrNumber
+			if nonFinite(val) {
+				cause = ErrNonFinite
+			}
+			return &ParseError{File: s.path, Line: fr.Line + 1, Column: col, Err: detail(cause, "%s: expected a number, found %q", key, val)}
+		}
+		switch q {
+		case quantity.Step:
+			if fm.Decimals != 0 || fm.Exp {
+				return &ParseError{File: s.path, Line: fr.Line + 1, Column: col, Err: detail(ErrNumber, "step: expected an integer, found %q", val)}
+			}
+			rec.step, rec.hasStep = int64(v), true
+		case quantity.TimeQ:
+			rec.time, rec.hasTime = v, true
+			s.fmts.merge(q, fm)
+		default:
+			if i := quantity.ScalarIndex(q); i >= 0 {
+				rec.scalar[i], rec.hasScalar[i] = v, true
+				s.fmts.merge(q, fm)
+			}
+		}
+		return nil
+	}
+	for _, k := range sortedInfoKeys(fr.Info) {
+		if err := set(k, fr.Info[k], strings.Index(fr.Comment, k+"=")+len(k)+2); err != nil {
+			return nil, err
+		}
+	}
+	if s.recipe != nil {
+		for _, re := range s.recipe.comment {
+			m := re.FindStringSubmatchIndex(fr.Comment)
+			if m == nil {
+				continue
+			}
+			for gi, name := range re.SubexpNames() {
+				if name == "" || m[2*gi] < 0 {
+					continue
+				}
+				if err := set(name, fr.Comment[m[2*gi]:m[2*gi+1]], m[2*gi]+1); err != nil {
+					return nil, err
+				}
+			}
+		}
+	}
+	return rec, nil
+}
+
+func sortedInfoKeys(m map[string]string) []string {
+	keys := make([]string, 0, len(m))
+	for k := range m {
+		if k != "Properties" && k != "Lattice" && k != "pbc" {
+			keys = append(keys, k)
+		}
+	}
+	sort.Strings(keys)
+	return keys
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -76,13 +77,13 @@ Exit status: 0 success, 1 the logs have problems (as scan reports them),
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runConvert(g, o, args) },
+		RunE: func(c *cobra.Command, args []string) error { return runConvert(commandContext(c), g, o, args) },
 	}
 	o.AddFlags(c)
 	return c
 }
 
-func runConvert(g *globals, o convertOptions, args []string) error {
+func runConvert(ctx context.Context, g *globals, o convertOptions, args []string) error {
 	opt, err := o.options()
 	if err != nil {
 		return err
@@ -96,10 +97,10 @@ func runConvert(g *globals, o convertOptions, args []string) error {
 	}
 	if len(args) == 1 {
 		if trajs, err := ingest.Discover(args[0], opt.Recipe); err == nil && (len(trajs) > 1 || filepath.Clean(trajs[0].Dir) != filepath.Clean(args[0])) {
-			return convertEnsemble(g, o, opt, tol, trajs)
+			return convertEnsemble(ctx, g, o, opt, tol, trajs)
 		}
 	}
-	rep, res, err := ingest.ConvertFiles(args, o.out, o.packOptions(opt, tol))
+	rep, res, err := ingest.ConvertFilesContext(ctx, args, o.out, o.packOptions(opt, tol))
 	if errors.Is(err, ingest.ErrRefused) {
 		printScan(g, rep)
 		fmt.Fprintf(g.stderr, "trajvault: convert: %v\n", err)
@@ -146,10 +147,11 @@ func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64)
 }
 
 // convertEnsemble converts every trajectory of an ensemble folder into
-// o.out/<name>.h5, o.jobs at a time. Parsing runs in parallel; HDF5 calls
-// are serialised by the HDF5 layer.
-func convertEnsemble(g *globals, o convertOptions, opt ingest.Options, tol map[string]float64, trajs []*ingest.Trajectory) error {
-	reps, err := scanAll(g, "convert", trajs, opt, o.jobs, o.dropPartial)
+// o.out/<name>.h5, o.jobs at a time, all or nothing: the files are
+// written into a hidden folder renamed into place only when every
+// conversion succeeded.
+func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt ingest.Options, tol map[string]float64, trajs []*ingest.Trajectory) error {
+	reps, err := scanEnsemble(ctx, g, "convert", trajs, opt, o.jobs, o.dropPartial)
 	if err != nil {
 		return err
 	}
@@ -158,17 +160,10 @@ func convertEnsemble(g *globals, o convertOptions, opt ingest.Options, tol map[s
 	if err := os.MkdirAll(tmp, 0o755); err != nil {
 		return &exitError{exitUsage, err}
 	}
-	copt := o.packOptions(opt, tol)
-	results := make([]*ingest.Result, len(trajs))
-	errs := make([]error, len(trajs))
-	parallel(len(trajs), o.jobs, func(i int) {
-		results[i], errs[i] = ingest.Convert(reps[i], filepath.Join(tmp, trajs[i].Name+".h5"), copt)
-	})
-	for _, err := range errs {
-		if err != nil {
-			os.RemoveAll(tmp)
-			return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
-		}
+	results, err := ingest.ConvertAll(ctx, reps, tmp, o.packOptions(opt, tol), o.jobs)
+	if err != nil {
+		os.RemoveAll(tmp)
+		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
 	if err := os.Rename(tmp, o.out); err != nil {
 		os.RemoveAll(tmp)
@@ -188,6 +183,10 @@ func convertEnsemble(g *globals, o convertOptions, opt ingest.Options, tol map[s
 }
 
 // parallel calls fn(0..n-1) with at most jobs calls at once.
+//
+// Deprecated: only cmd_pack.go uses it, until it switches to
+// ingest.ConvertAll (errgroup, first error cancels the rest); delete it
+// then.
 func parallel(n, jobs int, fn func(int)) {
 	if jobs < 1 {
 		jobs = 1
@@ -206,12 +205,22 @@ func parallel(n, jobs int, fn func(int)) {
 	wg.Wait()
 }
 
-// scanAll scans every trajectory (jobs at a time) and refuses, printing
-// the problems, when any has errors (a cut last frame is allowed with
-// dropPartial): convert and pack write all or nothing.
+// scanAll is scanEnsemble without a way to stop it.
+//
+// Deprecated: only cmd_pack.go uses it, until it passes its command's
+// context to scanEnsemble; delete it then.
 func scanAll(g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
-	reps := make([]*ingest.TrajReport, len(trajs))
-	parallel(len(trajs), jobs, func(i int) { reps[i] = ingest.Scan(trajs[i], opt) })
+	return scanEnsemble(context.Background(), g, verb, trajs, opt, jobs, dropPartial)
+}
+
+// scanEnsemble scans every trajectory (jobs at a time) and refuses,
+// printing the problems, when any has errors (a cut last frame is
+// allowed with dropPartial): convert and pack write all or nothing.
+func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
+	reps, err := ingest.ScanAll(ctx, trajs, opt, jobs)
+	if err != nil {
+		return nil, &exitError{exitUsage, fmt.Errorf("%s: %w", verb, err)}
+	}
 	bad := 0
 	for _, r := range reps {
 		if r.Refusal(dropPartial) != nil {

@@ -1,14 +1,17 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
+	"runtime"
 	"sort"
 	"strings"
 
-	"trajvault/ingest"
-
 	"github.com/spf13/cobra"
+
+	"trajvault/ingest"
+	"trajvault/internal/quantity"
 )
 
 type scanOptions struct {
@@ -37,13 +40,13 @@ Exit status: 0 no problems, 1 problems found (notes do not count),
 2 usage or I/O error.`,
 		Example: "  trajvault scan runs/\n  trajvault scan --recipe lab.yaml --json runs/",
 		Args:    cobra.ExactArgs(1),
-		RunE:    func(c *cobra.Command, args []string) error { return runScan(g, o, args[0]) },
+		RunE:    func(c *cobra.Command, args []string) error { return runScan(commandContext(c), g, o, args[0]) },
 	}
 	o.AddFlags(c)
 	return c
 }
 
-func runScan(g *globals, o scanOptions, dir string) error {
+func runScan(ctx context.Context, g *globals, o scanOptions, dir string) error {
 	opt, err := o.options()
 	if err != nil {
 		return err
@@ -52,12 +55,13 @@ func runScan(g *globals, o scanOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
 	}
-	var reps []*ingest.TrajReport
+	reps, err := ingest.ScanAll(ctx, trajs, opt, runtime.NumCPU())
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
+	}
 	problems := 0
-	for _, t := range trajs {
-		r := ingest.Scan(t, opt)
+	for _, r := range reps {
 		problems += r.Findings()
-		reps = append(reps, r)
 	}
 	if o.json {
 		b, err := json.MarshalIndent(reps, "", "  ")
@@ -85,7 +89,7 @@ func printScan(g *globals, r *ingest.TrajReport) {
 	fmt.Fprintln(g.stdout)
 	for _, f := range r.Files {
 		switch {
-		case f.Format == "log" && f.Records == 0:
+		case f.Records == 0 && f.Hops > 0:
 			fmt.Fprintf(g.stdout, "  %-6s %s: %d hop events\n", f.Format, f.File, f.Hops)
 		case f.Records != f.Kept:
 			fmt.Fprintf(g.stdout, "  %-6s %s: %d records, %d kept\n", f.Format, f.File, f.Records, f.Kept)
@@ -96,7 +100,7 @@ func printScan(g *globals, r *ingest.TrajReport) {
 	var qs []string
 	for _, q := range r.Quantities {
 		s := q + " " + r.Precision[q]
-		if u := r.Units[unitKindOf(q)]; u != "" {
+		if u := r.Units[string(quantity.UnitKind(q))]; u != "" {
 			s += " [" + u + "]"
 		}
 		qs = append(qs, s)
@@ -106,24 +110,15 @@ func printScan(g *globals, r *ingest.TrajReport) {
 		fmt.Fprintf(g.stdout, "  precision: %s\n", strings.Join(qs, "; "))
 	}
 	for _, p := range r.Problems {
-		loc := p.File
-		if p.Line > 0 {
-			loc = fmt.Sprintf("%s:%d", p.File, p.Line)
-		}
-		if p.Column > 0 {
-			loc = fmt.Sprintf("%s:%d", loc, p.Column)
-		}
-		if loc != "" {
-			loc += ": "
-		}
-		fmt.Fprintf(g.stdout, "  %-7s %-3s %s%s\n", p.Severity, p.Code, loc, p.Message)
+		fmt.Fprintf(g.stdout, "  %s\n", p)
 	}
 }
 
-func unitKindOf(q string) string {
-	switch q {
-	case "kinetic_energy", "potential_energy", "total_energy", "state_energy":
-		return "energy"
+// commandContext is the command's context (cancelled on Ctrl-C once main
+// passes a signal-aware one), or a background context.
+func commandContext(c *cobra.Command) context.Context {
+	if ctx := c.Context(); ctx != nil {
+		return ctx
 	}
-	return q
+	return context.Background()
 }

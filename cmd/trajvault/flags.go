@@ -5,9 +5,10 @@ import (
 	"strconv"
 	"strings"
 
-	"trajvault/ingest"
-
 	"github.com/spf13/cobra"
+
+	"trajvault/ingest"
+	"trajvault/internal/quantity"
 )
 
 // readFlags are the options shared by scan and convert.
@@ -19,18 +20,17 @@ type readFlags struct {
 
 func (o *readFlags) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.recipe, "recipe", "", "recipe file (YAML) describing the logs; see README, section Recipes")
-	c.Flags().StringArrayVar(&o.units, "unit", nil, "unit of a kind of quantity the logs do not state, e.g. --unit position=angstrom (kinds: position, velocity, force, momentum, mass, time, energy)")
+	c.Flags().StringArrayVar(&o.units, "unit", nil, "unit of a kind of quantity the logs do not state, e.g. --unit position=angstrom (kinds: "+quantity.KindNames()+")")
 	c.Flags().Float64Var(&o.dt, "dt", 0, "time per step, in the time unit, when the logs give no times (with --unit time=fs)")
 }
-
-var unitKinds = map[string]bool{"position": true, "velocity": true, "force": true, "momentum": true, "mass": true, "time": true, "energy": true}
 
 func (o *readFlags) options() (ingest.Options, error) {
 	opt := ingest.Options{Units: map[string]string{}, Dt: o.dt}
 	for _, u := range o.units {
 		k, v, ok := strings.Cut(u, "=")
-		if !ok || !unitKinds[k] || strings.TrimSpace(v) == "" {
-			return opt, &exitError{exitUsage, fmt.Errorf("--unit %q: expected KIND=UNIT with KIND one of position, velocity, force, momentum, mass, time, energy, e.g. --unit position=angstrom", u)}
+		_, known := quantity.LookupKind(k)
+		if !ok || !known || strings.TrimSpace(v) == "" {
+			return opt, &exitError{exitUsage, fmt.Errorf("--unit %q: expected KIND=UNIT with KIND one of %s, e.g. --unit position=angstrom", u, quantity.KindNames())}
 		}
 		opt.Units[k] = v
 	}
