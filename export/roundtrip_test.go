@@ -1,6 +1,7 @@
 package export_test
 
 import (
+	"context"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -17,7 +18,7 @@ import (
 func convertDir(t *testing.T, dir string) string {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "out.h5")
-	if _, _, err := ingest.ConvertFiles([]string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Units: testenv.LegacyLogUnits}}); err != nil {
+	if _, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Units: testenv.LegacyLogUnits}}); err != nil {
 		t.Fatal(err)
 	}
 	return out

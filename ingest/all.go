@@ -43,7 +43,7 @@ func ConvertAll(ctx context.Context, reps []*TrajReport, dir string, opt Convert
 			if err := gctx.Err(); err != nil {
 				return err
 			}
-			res, err := ConvertContext(gctx, r, filepath.Join(dir, r.Name+".h5"), opt)
+			res, err := Convert(gctx, r, filepath.Join(dir, r.Name+".h5"), opt)
 			results[i] = res
 			return err
 		})

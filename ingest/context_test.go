@@ -46,7 +46,7 @@ func TestConvertCancelledLeavesNothing(t *testing.T) {
 	dir := t.TempDir()
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if _, err := ConvertContext(ctx, rep, filepath.Join(dir, "o.h5"), legacyOpt); !errors.Is(err, context.Canceled) {
+	if _, err := Convert(ctx, rep, filepath.Join(dir, "o.h5"), legacyOpt); !errors.Is(err, context.Canceled) {
 		t.Fatalf("err = %v, want context.Canceled", err)
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 0 {

@@ -85,19 +85,10 @@ var DefaultFile = h5.CreateOptions{Format: h5.Format110}
 // inside float64's 2^53 integers, so x 10^D rounds to the printed integer.
 const maxExactScaled = 1 << 50
 
-// Convert writes one trajectory, scanned by Scan, to out in the layout,
-// without a way to stop it.
-//
-// Deprecated: kept for callers that have no context yet (cmd_pack.go
-// until it uses ConvertAll); use ConvertContext.
-func Convert(rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
-	return ConvertContext(context.Background(), rep, out, opt)
-}
-
-// ConvertContext writes one trajectory, scanned by Scan, to out in the
+// Convert writes one trajectory, scanned by Scan, to out in the
 // layout. When ctx is cancelled it stops promptly and returns ctx.Err();
 // as on any error, nothing is left under out.
-func ConvertContext(ctx context.Context, rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
+func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
@@ -623,20 +614,12 @@ func mergeRecord(dst, r *record) {
 // conversion (see TrajReport.Refusal); nothing was written.
 var ErrRefused = errors.New("the logs have problems; nothing written")
 
-// ConvertFiles is ConvertFilesContext without a way to stop it.
-//
-// Deprecated: kept for callers without a context (export's round-trip
-// test); use ConvertFilesContext.
-func ConvertFiles(paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
-	return ConvertFilesContext(context.Background(), paths, out, opt)
-}
-
-// ConvertFilesContext converts the trajectory made of paths (files, or one
+// ConvertFiles converts the trajectory made of paths (files, or one
 // folder, as TrajectoryFrom reads them) to out: scan, refuse by the one
 // rule, convert. The report is returned whenever the scan ran, so that
 // the caller can show its problems. When ctx is cancelled it returns
 // ctx.Err() and leaves nothing under out.
-func ConvertFilesContext(ctx context.Context, paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
+func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOptions) (*TrajReport, *Result, error) {
 	t, err := TrajectoryFrom(paths, opt.Recipe)
 	if err != nil {
 		return nil, nil, err
@@ -648,6 +631,6 @@ func ConvertFilesContext(ctx context.Context, paths []string, out string, opt Co
 	if rep.Refusal(opt.DropPartial) != nil {
 		return rep, nil, fmt.Errorf("%s: %w", t.Name, ErrRefused)
 	}
-	res, err := ConvertContext(ctx, rep, out, opt)
+	res, err := Convert(ctx, rep, out, opt)
 	return rep, res, err
 }

@@ -6,7 +6,7 @@
 // an ensemble; Scan, a first pass that records printed precision,
 // restarts and problems (finding.Finding, codes P1..P14);
 // TrajReport.Refusal, the one rule that decides whether a scanned
-// trajectory may be converted; and ConvertContext, a second pass that
+// trajectory may be converted; and Convert, a second pass that
 // writes numbers exactly at their printed precision. ScanAll and
 // ConvertAll run many trajectories under one context, a limited number at
 // once, the first error cancelling the rest. Names of quantities and

@@ -77,7 +77,7 @@ func TestConvertMemoryIsFlat(t *testing.T) {
 		tr, _ := TrajectoryFrom([]string{dir}, nil)
 		return peakHeap(func() {
 			rep, _ := Scan(context.Background(), tr, opt.Options)
-			if _, err := Convert(rep, filepath.Join(t.TempDir(), "o.h5"), opt); err != nil {
+			if _, err := Convert(context.Background(), rep, filepath.Join(t.TempDir(), "o.h5"), opt); err != nil {
 				t.Fatal(err)
 			}
 		})

@@ -100,7 +100,7 @@ func TestToyReader(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, "run.toy"), []byte("0 0.0 H 0.000 0.000 0.000 H 0.000 0.000 0.741\n10 5.0 H 0.000 0.000 0.010 H 0.000 0.000 0.751\n"), 0o644)
 	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte("# step Etot[hartree]\n0 -1.17447\n10 -1.17440\n"), 0o644)
 	out := filepath.Join(t.TempDir(), "toy.h5")
-	rep, res, err := ConvertFilesContext(context.Background(), []string{dir}, out,
+	rep, res, err := ConvertFiles(context.Background(), []string{dir}, out,
 		ConvertOptions{Options: Options{Units: map[string]string{"position": "angstrom", "time": "fs"}}})
 	if err != nil {
 		if rep != nil {

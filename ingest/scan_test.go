@@ -115,7 +115,7 @@ func TestConvertRestartAndPartial(t *testing.T) {
 	tr, _ := TrajectoryFrom([]string{testdata("ensembles", "problems", "p5-restart")}, nil)
 	rep, _ := Scan(context.Background(), tr, posUnit)
 	out := filepath.Join(t.TempDir(), "r.h5")
-	res, err := Convert(rep, out, ConvertOptions{Options: posUnit})
+	res, err := Convert(context.Background(), rep, out, ConvertOptions{Options: posUnit})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -129,12 +129,12 @@ func TestConvertRestartAndPartial(t *testing.T) {
 
 	tr, _ = TrajectoryFrom([]string{testdata("ensembles", "problems", "p1-truncated-frame")}, nil)
 	rep, _ = Scan(context.Background(), tr, posUnit)
-	if _, err := Convert(rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: posUnit}); err == nil {
+	if _, err := Convert(context.Background(), rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: posUnit}); err == nil {
 		t.Error("a cut frame converted without DropPartial")
 	}
 	o := posUnit
 	o.DropPartial = true
-	res, err = Convert(rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: o})
+	res, err = Convert(context.Background(), rep, filepath.Join(t.TempDir(), "p.h5"), ConvertOptions{Options: o})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"context"
 	"math"
 	"path/filepath"
 	"testing"
@@ -12,7 +13,7 @@ import (
 func convertDir(t *testing.T, dir string, opt ConvertOptions) string {
 	t.Helper()
 	out := filepath.Join(t.TempDir(), "out.h5")
-	rep, _, err := ConvertFiles([]string{dir}, out, opt)
+	rep, _, err := ConvertFiles(context.Background(), []string{dir}, out, opt)
 	if rep != nil {
 		for _, p := range rep.Problems {
 			t.Logf("scan: %+v", p)

@@ -1,6 +1,7 @@
 package provenance_test
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"path/filepath"
@@ -30,7 +31,7 @@ func TestRoundTrip(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "traj.h5")
-	if _, _, err := ingest.ConvertFiles([]string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Recipe: rc}, ToolVersion: "1.2.3", CommandLine: []string{"trajvault", "convert"}}); err != nil {
+	if _, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Recipe: rc}, ToolVersion: "1.2.3", CommandLine: []string{"trajvault", "convert"}}); err != nil {
 		t.Fatal(err)
 	}
 	f, err := h5.Open(out)

@@ -1,6 +1,7 @@
 package validate
 
 import (
+	"context"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -44,7 +45,7 @@ func converted(t *testing.T) string {
 	o.Steps = 100
 	mustDo(t, demo.WriteLogs(dir, o))
 	out := filepath.Join(t.TempDir(), "traj.h5")
-	_, _, err = ingest.ConvertFiles([]string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Recipe: rc}, ToolVersion: "test"})
+	_, _, err = ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{Options: ingest.Options{Recipe: rc}, ToolVersion: "test"})
 	mustDo(t, err)
 	return out
 }

@@ -9,7 +9,6 @@ import (
 	"path/filepath"
 	"runtime"
 	"sort"
-	"sync"
 
 	"trajvault/ingest"
 
@@ -100,7 +99,7 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 			return convertEnsemble(ctx, g, o, opt, tol, trajs)
 		}
 	}
-	rep, res, err := ingest.ConvertFilesContext(ctx, args, o.out, o.packOptions(opt, tol))
+	rep, res, err := ingest.ConvertFiles(ctx, args, o.out, o.packOptions(opt, tol))
 	if errors.Is(err, ingest.ErrRefused) {
 		printScan(g, rep)
 		fmt.Fprintf(g.stderr, "trajvault: convert: %v\n", err)
@@ -180,37 +179,6 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 	}
 	fmt.Fprintf(g.stdout, "%d trajectories, %d frames -> %s/\n", len(results), frames, filepath.Clean(o.out))
 	return nil
-}
-
-// parallel calls fn(0..n-1) with at most jobs calls at once.
-//
-// Deprecated: only cmd_pack.go uses it, until it switches to
-// ingest.ConvertAll (errgroup, first error cancels the rest); delete it
-// then.
-func parallel(n, jobs int, fn func(int)) {
-	if jobs < 1 {
-		jobs = 1
-	}
-	sem := make(chan struct{}, jobs)
-	var wg sync.WaitGroup
-	for i := 0; i < n; i++ {
-		wg.Add(1)
-		sem <- struct{}{}
-		go func(i int) {
-			defer wg.Done()
-			defer func() { <-sem }()
-			fn(i)
-		}(i)
-	}
-	wg.Wait()
-}
-
-// scanAll is scanEnsemble without a way to stop it.
-//
-// Deprecated: only cmd_pack.go uses it, until it passes its command's
-// context to scanEnsemble; delete it then.
-func scanAll(g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
-	return scanEnsemble(context.Background(), g, verb, trajs, opt, jobs, dropPartial)
 }
 
 // scanEnsemble scans every trajectory (jobs at a time) and refuses,

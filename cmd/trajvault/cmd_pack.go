@@ -110,7 +110,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	reps, err := scanAll(g, "pack", trajs, opt, o.jobs, false)
+	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, false)
 	if err != nil {
 		return err
 	}
@@ -125,17 +125,13 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
+	results, err := ingest.ConvertAll(ctx, reps, filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), copt, o.jobs)
+	if err != nil {
+		return fail(err)
+	}
 	conv := make([]pack.Converted, len(trajs))
-	errs := make([]error, len(trajs))
-	parallel(len(trajs), o.jobs, func(i int) {
-		rel := schema.TrajectoriesDir + "/" + trajs[i].Name + schema.TrajectoryExt
-		res, err := ingest.Convert(reps[i], filepath.Join(tmp, filepath.FromSlash(rel)), copt)
-		conv[i], errs[i] = pack.Converted{Report: reps[i], Result: res, File: rel}, err
-	})
-	for _, err := range errs {
-		if err != nil {
-			return fail(err)
-		}
+	for i, r := range reps {
+		conv[i] = pack.Converted{Report: r, Result: results[i], File: schema.TrajectoriesDir + "/" + r.Name + schema.TrajectoryExt}
 	}
 	bo := pack.BundleOptions{Deposit: dep, Algorithms: []string{"sha512", "sha256"}, KeepSources: o.keepSources,
 		Jobs: o.jobs, ToolVersion: toolVersion(), Now: time.Now(), Plots: map[string][]byte{}}
