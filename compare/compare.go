@@ -207,21 +207,6 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 		}
 		p.A, p.B = sa.label[n], sb.label[nb]
 		rep.Pairs = append(rep.Pairs, p)
-		loc := finding.Location{File: p.B}
-		switch p.Verdict {
-		case Setup:
-			list.Add(finding.Finding{Code: "C2", Severity: finding.Error, Location: loc, Message: n + ": " + p.Reason})
-		case Diverged:
-			list.Add(finding.Finding{Code: "C3", Severity: finding.Note, Location: loc, Message: n + ": " + p.Reason})
-		}
-	}
-	for _, n := range rep.OnlyA {
-		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: sa.label[n]},
-			Message: "only in A: no trajectory of this name in B"})
-	}
-	for _, n := range rep.OnlyB {
-		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: sb.label[n]},
-			Message: "only in B: no trajectory of this name in A"})
 	}
 
 	// 3. Ensembles.
@@ -234,21 +219,55 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 		return nil, err
 	}
 	rep.Ensemble = CompareEnsembles(ea, eb, max(states, sb2), s)
-	switch rep.Ensemble.Verdict {
-	case Different:
-		list.Add(finding.Finding{Code: "C5", Severity: finding.Error, Message: fmt.Sprintf(
-			"ensembles differ: %s, p = %.2g after Holm's correction (alpha %g)", rep.Ensemble.MinTest, rep.Ensemble.MinP, s.Alpha)})
-	case TooFew:
-		list.Add(finding.Finding{Code: "C6", Severity: finding.Warning, Message: fmt.Sprintf(
-			"%d and %d trajectories: differences of active-state fractions below %.2f would go unnoticed; run more trajectories",
-			rep.Ensemble.NA, rep.Ensemble.NB, rep.Ensemble.Detectable)})
-	}
+	rep.Verdict = overall(rep)
+	rep.findings(&list, sa, sb)
 	rep.Findings = list.Findings()
 	if rep.Findings == nil {
 		rep.Findings = []finding.Finding{}
 	}
-	rep.Verdict = overall(rep)
 	return rep, nil
+}
+
+// findings records what the comparison found. A finding is an error when
+// it decides a verdict other than agreement: pairs that differ from the
+// start are errors unless the ensembles are judged as samples (then the
+// pairs merely started from other initial conditions).
+func (rep *Report) findings(list *finding.List, sa, sb *side) {
+	sev := func(bad bool) finding.Severity {
+		if bad && !rep.OK() {
+			return finding.Error
+		}
+		return finding.Warning
+	}
+	// Pair findings are placed at B, so that many fold into one line.
+	pairSetup := rep.Ensemble.Verdict != Equivalent && rep.Ensemble.Verdict != Different
+	for _, p := range rep.Pairs {
+		loc := finding.Location{File: rep.B}
+		switch p.Verdict {
+		case Setup:
+			list.Add(finding.Finding{Code: "C2", Severity: sev(pairSetup), Location: loc, Message: p.Name + ": " + p.Reason})
+		case Diverged:
+			list.Add(finding.Finding{Code: "C3", Severity: finding.Note, Location: loc, Message: p.Name + ": " + p.Reason})
+		}
+	}
+	for _, n := range rep.OnlyA {
+		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.A},
+			Message: "only in A: " + n})
+	}
+	for _, n := range rep.OnlyB {
+		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.B},
+			Message: "only in B: " + n})
+	}
+	e := rep.Ensemble
+	switch e.Verdict {
+	case Different:
+		list.Add(finding.Finding{Code: "C5", Severity: finding.Error, Message: fmt.Sprintf(
+			"ensembles differ: %s, p = %.2g after Holm's correction (alpha %g)", e.MinTest, e.MinP, rep.Settings.Alpha)})
+	case TooFew:
+		list.Add(finding.Finding{Code: "C6", Severity: sev(true), Message: fmt.Sprintf(
+			"%d and %d trajectories: differences of active-state fractions below %.2f would go unnoticed; run more trajectories",
+			e.NA, e.NB, e.Detectable)})
+	}
 }
 
 // overall: the ensemble decides when it can; otherwise the pairs.
