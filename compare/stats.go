@@ -30,7 +30,15 @@ func Wilson(k, n int, z float64) (lo, hi float64) {
 	d := 1 + z*z/nf
 	c := (p + z*z/(2*nf)) / d
 	h := z / d * math.Sqrt(p*(1-p)/nf+z*z/(4*nf*nf))
-	return math.Max(0, c-h), math.Min(1, c+h)
+	lo, hi = math.Max(0, c-h), math.Min(1, c+h)
+	// Exact ends: at k = 0 (k = n) c = h analytically; keep round-off out.
+	if k == 0 {
+		lo = 0
+	}
+	if k == n {
+		hi = 1
+	}
+	return lo, hi
 }
 
 // Homogeneity is Pearson's chi-squared test that two samples of counts
