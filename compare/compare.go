@@ -170,6 +170,9 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 	if rep.Setup, err = setupDiff(sa.files[sa.names[0]], sb.files[sb.names[0]]); err != nil {
 		return nil, err
 	}
+	if rep.Setup == nil {
+		rep.Setup = []SetupDiff{}
+	}
 	for _, d := range rep.Setup {
 		list.Add(finding.Finding{Code: "C1", Severity: finding.Warning, Location: finding.Location{File: b},
 			Quantity: d.Item, Message: fmt.Sprintf("%s differs: A %s, B %s", d.Item, d.A, d.B)})
@@ -220,7 +223,7 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 	}
 	rep.Ensemble = CompareEnsembles(ea, eb, max(states, sb2), s)
 	rep.Verdict = overall(rep)
-	rep.findings(&list, sa, sb)
+	rep.findings(&list)
 	rep.Findings = list.Findings()
 	if rep.Findings == nil {
 		rep.Findings = []finding.Finding{}
@@ -232,7 +235,7 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 // it decides a verdict other than agreement: pairs that differ from the
 // start are errors unless the ensembles are judged as samples (then the
 // pairs merely started from other initial conditions).
-func (rep *Report) findings(list *finding.List, sa, sb *side) {
+func (rep *Report) findings(list *finding.List) {
 	sev := func(bad bool) finding.Severity {
 		if bad && !rep.OK() {
 			return finding.Error
@@ -416,12 +419,8 @@ func setupDiff(fa, fb string) ([]SetupDiff, error) {
 	add("electronic states", fmt.Sprint(ra.States), fmt.Sprint(rb.States))
 	add("atoms", fmt.Sprint(ra.Species), fmt.Sprint(rb.Species))
 	add("masses (u)", masses(ra), masses(rb))
-	for _, d := range diffMaps("parameter ", without(sa.Parameters, trajfile.ProvenanceAttr), without(sb.Parameters, trajfile.ProvenanceAttr)) {
-		out = append(out, d)
-	}
-	for _, d := range provenanceDiff(sa.Parameters[trajfile.ProvenanceAttr], sb.Parameters[trajfile.ProvenanceAttr]) {
-		out = append(out, d)
-	}
+	out = append(out, diffMaps("parameter ", without(sa.Parameters), without(sb.Parameters))...)
+	out = append(out, provenanceDiff(sa.Parameters[trajfile.ProvenanceAttr], sb.Parameters[trajfile.ProvenanceAttr])...)
 	ua, ub := map[string]string{}, map[string]string{}
 	for k, v := range sa.Units {
 		ua[shortName(ra, k)] = v
@@ -461,10 +460,14 @@ func masses(r *trajfile.Reader) string {
 	return fmt.Sprint(out)
 }
 
-func without(m map[string]string, key string) map[string]string {
+// perRun are /parameters attributes that differ between any two runs
+// (the provenance record is compared field by field, provenanceDiff).
+var perRun = map[string]bool{trajfile.ProvenanceAttr: true, "trajvault_sources": true}
+
+func without(m map[string]string) map[string]string {
 	out := map[string]string{}
 	for k, v := range m {
-		if k != key {
+		if !perRun[k] {
 			out[k] = v
 		}
 	}

@@ -186,14 +186,18 @@ func CompareEnsembles(a, b []*Series, states int, s Settings) *EnsembleResult {
 			}
 		}
 	}
+	oneState := 0
 	for _, i := range picks {
 		ca, cb := ha[grid[i]], hb[grid[i]]
 		x2, df, p := Homogeneity(ca.k, cb.k)
-		t := Test{Name: fmt.Sprintf("states at %.4g fs", float64(grid[i])/1e6), Statistic: x2, DF: df, P: p}
 		if df == 0 {
-			t.Note = "one state only on both sides"
+			oneState++ // nothing to test; left out of the family
+			continue
 		}
-		r.Tests = append(r.Tests, t)
+		r.Tests = append(r.Tests, Test{Name: fmt.Sprintf("states at %.4g fs", float64(grid[i])/1e6), Statistic: x2, DF: df, P: p})
+	}
+	if oneState > 0 {
+		r.Skipped = append(r.Skipped, fmt.Sprintf("states at %d of %d test times: every trajectory of both sides in one state", oneState, len(picks)))
 	}
 	ta, tb := firstHops(a), firstHops(b)
 	if d, p := KS(ta, tb); !math.IsNaN(p) {
@@ -203,9 +207,12 @@ func CompareEnsembles(a, b []*Series, states int, s Settings) *EnsembleResult {
 		r.Skipped = append(r.Skipped, fmt.Sprintf("first hop times: %d and %d trajectories hopped; the KS test needs na nb/(na+nb) >= 4", len(ta), len(tb)))
 	}
 	fa, fb := finalStates(a, states), finalStates(b, states)
-	x2, df, p := Homogeneity(fa, fb)
-	r.Tests = append(r.Tests, Test{Name: "final states", Statistic: x2, DF: df, P: p,
-		Note: fmt.Sprintf("A %v, B %v", fa, fb)})
+	if x2, df, p := Homogeneity(fa, fb); df > 0 {
+		r.Tests = append(r.Tests, Test{Name: "final states", Statistic: x2, DF: df, P: p,
+			Note: fmt.Sprintf("A %v, B %v", fa, fb)})
+	} else {
+		r.Skipped = append(r.Skipped, "final states: all in one state on both sides")
+	}
 	ps := make([]float64, len(r.Tests))
 	for i, t := range r.Tests {
 		ps[i] = t.P

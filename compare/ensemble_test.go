@@ -15,7 +15,13 @@ import (
 // first..first+n-1 (DefaultOptions' step, length and temperature) and
 // keeps every 10th step.
 func demoEnsemble(m demo.Model, first uint64, n int) []*Series {
+	return demoEnsembleSteps(m, first, n, demo.DefaultOptions.Steps)
+}
+
+// demoEnsembleSteps is demoEnsemble with runs of the given length.
+func demoEnsembleSteps(m demo.Model, first uint64, n, steps int) []*Series {
 	o := demo.DefaultOptions
+	o.Steps = steps
 	f, _ := units.Factor("fs", "au_time")
 	out := make([]*Series, n)
 	for i := range out {
@@ -93,12 +99,16 @@ func TestEnsembleTooFew(t *testing.T) {
 // TestFalseAlarmRate repeats the same-physics comparison of 64 against
 // 64 trajectories 40 times with fresh seeds: Holm's procedure holds the
 // family-wise error at alpha = 0.05, so at least 95 % of the repetitions
-// (38 of 40) must be judged equivalent (issue 16).
+// (38 of 40) must be judged equivalent (issue 16). Runs only without
+// -short: about a minute.
 func TestFalseAlarmRate(t *testing.T) {
 	if testing.Short() {
 		t.Skip("slow: 5120 demo trajectories")
 	}
 	base := demo.Tarnol()
+	// 50 fs runs (half the default) keep the test near a minute; the
+	// populations move most in the first 50 fs.
+	const steps = 1000
 	results := make([]*EnsembleResult, 40)
 	var wg sync.WaitGroup
 	sem := make(chan struct{}, runtime.NumCPU())
@@ -108,8 +118,8 @@ func TestFalseAlarmRate(t *testing.T) {
 			defer wg.Done()
 			sem <- struct{}{}
 			defer func() { <-sem }()
-			a := demoEnsemble(base, uint64(10000+rep*200), 64)
-			b := demoEnsemble(base, uint64(10100+rep*200), 64)
+			a := demoEnsembleSteps(base, uint64(10000+rep*200), 64, steps)
+			b := demoEnsembleSteps(base, uint64(10100+rep*200), 64, steps)
 			results[rep] = CompareEnsembles(a, b, 2, DefaultSettings)
 		}()
 	}

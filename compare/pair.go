@@ -36,11 +36,26 @@ type QuantityDiff struct {
 
 // HopDiff is the first differing hop of a pair.
 type HopDiff struct {
-	Index int             `json:"index"`
-	A     *trajfile.Hop   `json:"a,omitempty"`
-	B     *trajfile.Hop   `json:"b,omitempty"`
-	TimeA *float64        `json:"time_a_fs,omitempty"`
-	TimeB *float64        `json:"time_b_fs,omitempty"`
+	Index int         `json:"index"`
+	A     *HopAttempt `json:"a,omitempty"`
+	B     *HopAttempt `json:"b,omitempty"`
+	TimeA *float64    `json:"time_a_fs,omitempty"`
+	TimeB *float64    `json:"time_b_fs,omitempty"`
+}
+
+// HopAttempt is one hop attempt as stored (states count from 0).
+type HopAttempt struct {
+	Step       int64 `json:"step"`
+	From       int   `json:"from"`
+	To         int   `json:"to"`
+	Frustrated bool  `json:"frustrated"`
+}
+
+func attempt(h *trajfile.Hop) *HopAttempt {
+	if h == nil {
+		return nil
+	}
+	return &HopAttempt{h.Step, h.From, h.To, h.Frustrated}
 }
 
 // Point is one point of the divergence curve.
@@ -409,7 +424,7 @@ func (p *Pair) hops(ra, rb *trajfile.Reader) error {
 		if a != nil && b != nil && *a == *b {
 			continue
 		}
-		hd := &HopDiff{Index: i, A: a, B: b}
+		hd := &HopDiff{Index: i, A: attempt(a), B: attempt(b)}
 		if a != nil {
 			hd.TimeA = ptr(stepTime(ra, a.Step))
 		}
@@ -439,9 +454,11 @@ func stepTime(r *trajfile.Reader, n int64) float64 {
 
 // judge gives the pair its verdict.
 func (p *Pair) judge(startBad string, s Settings) {
+	// A quantity only one side has is listed, not counted against
+	// agreement: there is nothing to compare.
 	agree := p.FirstHop == nil
 	for _, q := range p.Quantities {
-		if q.Frame != nil || q.Only != "" {
+		if q.Frame != nil {
 			agree = false
 		}
 	}

@@ -165,7 +165,7 @@ func Holm(p []float64) []float64 {
 //
 //	delta = (z_{1-alpha/2} + z_power) sqrt(p(1-p) (1/na + 1/nb))
 //
-// (the normal approximation without continuity correction).
+// (the normal approximation without continuity correction), capped at 1.
 // Source: J. L. Fleiss, B. Levin, M. C. Paik, Statistical Methods for
 // Rates and Proportions, 3rd ed. (Wiley, 2003), section 4.2, eq. 4.14
 // solved for the difference.
@@ -174,7 +174,8 @@ func Detectable(na, nb int, alpha, power float64) float64 {
 		return math.Inf(1)
 	}
 	z := distuv.UnitNormal.Quantile(1-alpha/2) + distuv.UnitNormal.Quantile(power)
-	return z * math.Sqrt(0.25*(1/float64(na)+1/float64(nb)))
+	// A difference of proportions is at most 1: larger means "none".
+	return math.Min(1, z*math.Sqrt(0.25*(1/float64(na)+1/float64(nb))))
 }
 
 // expFit fits ln d = a + rate t by least squares (gonum stat.LinearRegression)

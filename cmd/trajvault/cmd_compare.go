@@ -10,7 +10,6 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/compare"
-	"trajvault/internal/finding"
 )
 
 type compareOptions struct {
@@ -210,9 +209,8 @@ func printCompare(g *globals, r *compare.Report) {
 	}
 	if len(r.Findings) > 0 {
 		fmt.Fprintln(w, "findings:")
-		fs := append([]finding.Finding(nil), r.Findings...)
-		finding.Sort(fs)
-		for _, f := range fs {
+		// In recorded order: setup differences first.
+		for _, f := range r.Findings {
 			f.File = filepath.Base(f.File)
 			if f.File == "." {
 				f.File = ""
