@@ -1,6 +1,7 @@
 package compare
 
 import (
+	"encoding/json"
 	"math"
 	"runtime"
 	"sync"
@@ -136,5 +137,36 @@ func TestFalseAlarmRate(t *testing.T) {
 	t.Logf("false alarms: %d of 40; smallest adjusted p %.3g", alarms, minP)
 	if alarms > 2 {
 		t.Errorf("%d false alarms in 40 repetitions (at most 2 allowed at alpha 0.05)", alarms)
+	}
+}
+
+// TestCodesInSchema: every finding code is allowed by the JSON Schema and
+// the schema allows no other.
+func TestCodesInSchema(t *testing.T) {
+	var doc struct {
+		Defs struct {
+			Finding struct {
+				Properties struct {
+					Code struct {
+						Enum []string `json:"enum"`
+					} `json:"code"`
+				} `json:"properties"`
+			} `json:"finding"`
+		} `json:"$defs"`
+	}
+	if err := json.Unmarshal(SchemaJSON, &doc); err != nil {
+		t.Fatal(err)
+	}
+	enum := doc.Defs.Finding.Properties.Code.Enum
+	if len(enum) != len(Codes) {
+		t.Errorf("schema codes %v, package codes %d", enum, len(Codes))
+	}
+	for _, c := range enum {
+		if Codes[c] == "" {
+			t.Errorf("schema code %s not in Codes", c)
+		}
+	}
+	if _, err := Schema(); err != nil {
+		t.Error(err)
 	}
 }

@@ -282,8 +282,9 @@ func comparePair(name string, ra, rb *trajfile.Reader, s Settings) (*Pair, error
 func compareElement(name string, ra, rb *trajfile.Reader, ea, eb *trajfile.Element, ia, ib []int, ta []float64, s Settings) (*QuantityDiff, bool, error) {
 	qd := &QuantityDiff{Name: name, Unit: ea.Unit, Precision: [2]string{precisionName(ea), precisionName(eb)}}
 	if ea.Width() != eb.Width() {
+		// Other shapes (states, atoms): nothing to subtract; a setup
+		// difference at the first frame.
 		qd.Frame, qd.Time = ptr(0), ptr(ta[ia[0]])
-		qd.MaxDiff = math.NaN()
 		return qd, true, nil
 	}
 	f := 1.0
@@ -356,6 +357,11 @@ func (p *Pair) divergence(ra, rb *trajfile.Reader, ea, eb *trajfile.Element, ia,
 	})
 	if err != nil {
 		return err
+	}
+	for k, v := range d {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("%s or %s: positions not finite at common frame %d (time %g fs); run trajvault validate on both", ra.Path, rb.Path, k, ta[ia[k]])
+		}
 	}
 	p.InitialRMS = d[0]
 	stride := max(1, (len(d)+MaxCurve-1)/MaxCurve)

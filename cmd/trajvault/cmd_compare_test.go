@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"trajvault/compare"
 	"trajvault/internal/demo"
 	"trajvault/internal/testenv"
 )
@@ -55,7 +56,22 @@ func TestCompareCommand(t *testing.T) {
 	}
 	checkWidth(t, out)
 
-	// JSON: the envelope names the tool and carries the verdict and pairs.
+	// JSON follows compare.schema.json, and the envelope names the tool
+	// and carries the verdict and pairs.
+	sch, err := compare.Schema()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, b := range []string{rerun, other} {
+		_, out, _ := runCLI("compare", "--json", a, b)
+		var v any
+		if err := json.Unmarshal([]byte(out), &v); err != nil {
+			t.Fatalf("not JSON: %v\n%s", err, out)
+		}
+		if err := sch.Validate(v); err != nil {
+			t.Errorf("compare --json %s: %v", filepath.Base(b), err)
+		}
+	}
 	code, out, _ = runCLI("compare", "--json", a, other)
 	var doc struct {
 		Tool    struct{ Name string }
