@@ -72,6 +72,19 @@ func TestCompareCommand(t *testing.T) {
 			t.Errorf("compare --json %s: %v", filepath.Base(b), err)
 		}
 	}
+	// A bundle folder (trajectories under data/trajectories) holding
+	// two of the three: pairs by name, the third listed as unmatched.
+	bundle := filepath.Join(t.TempDir(), "bundle")
+	os.MkdirAll(filepath.Join(bundle, "data", "trajectories"), 0o755)
+	for _, n := range []string{"traj-001.h5", "traj-002.h5"} {
+		if err := os.Link(filepath.Join(rerun, n), filepath.Join(bundle, "data", "trajectories", n)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	code, out, _ = runCLI("compare", a, bundle)
+	if code != 1 || !strings.Contains(out, "2 identical") || !strings.Contains(out, "only in A: traj-003") {
+		t.Errorf("bundle with one trajectory missing: exit %d\n%s", code, out)
+	}
 	code, out, _ = runCLI("compare", "--json", a, other)
 	var doc struct {
 		Tool    struct{ Name string }
