@@ -191,7 +191,11 @@ func printCompare(g *globals, r *compare.Report) {
 	if len(e.Tests) > 0 {
 		fmt.Fprintf(w, "  %-34s %10s %4s %10s %10s\n", "test", "statistic", "df", "p", "p (Holm)")
 		for _, t := range e.Tests {
-			fmt.Fprintf(w, "  %-34s %10.4g %4d %10.3g %10.3g\n", short(t.Name, 34), t.Statistic, t.DF, t.P, t.Adjusted)
+			df := "-" // KS has no degrees of freedom
+			if t.DF > 0 {
+				df = fmt.Sprint(t.DF)
+			}
+			fmt.Fprintf(w, "  %-34s %10.4g %4s %10.3g %10.3g\n", short(t.Name, 34), t.Statistic, df, t.P, t.Adjusted)
 		}
 		wrap(g, fmt.Sprintf("smallest detectable difference of active-state fractions at these sizes: %.2f (power %g, alpha %g over %d tests)",
 			e.Detectable, compare.DefaultSettings.Power, r.Settings.Alpha, len(e.Tests)), "  ")
