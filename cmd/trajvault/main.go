@@ -94,6 +94,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newAuditCommand(g),
 		newPackCommand(g),
 		newInitCommand(g),
+		newCompareCommand(g),
 	)
 	return root
 }

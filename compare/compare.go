@@ -1,0 +1,506 @@
+// Package compare audits whether a rerun reproduces an archived run: the
+// setup of both first (program, version, method, time step, states,
+// units, constants), then each pair of trajectories of the same name
+// (first difference beyond printed precision, divergence curve with an
+// exponential growth rate, first differing hop), then the two ensembles
+// as samples (active-state fractions over time, first hop times, final
+// states) with a multiple-testing-aware verdict.
+//
+// Chaotic dynamics make two correct runs with different round-off
+// diverge exponentially, and stochastic hopping makes single trajectories
+// incomparable once one random number differs; so a pair is judged by
+// how it diverges, and agreement of ensembles by statistics.
+package compare
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"os"
+	"sort"
+
+	"trajvault/ingest"
+	"trajvault/internal/finding"
+	"trajvault/internal/trajfile"
+	"trajvault/internal/units"
+)
+
+// Settings are the thresholds of the comparison. DefaultSettings
+// documents the defaults.
+type Settings struct {
+	// Threshold is the RMS position difference (angstrom) whose first
+	// crossing is reported, and the top of the growth-rate window.
+	Threshold float64
+	// RoundOff (angstrom) is the largest RMS position difference at the
+	// first frame, or extrapolated back to it, that counts as round-off;
+	// above it a pair is "different from the start".
+	RoundOff float64
+	// StartRelative: any other quantity differing at the first frame by
+	// more than this fraction of its size marks a setup difference.
+	StartRelative float64
+	// MinR2 is the smallest R^2 of the fit of ln d(t) accepted as
+	// exponential growth; MinFitPoints the fewest frames to fit.
+	MinR2        float64
+	MinFitPoints int
+	// Alpha is the family-wise significance level of the ensemble tests,
+	// Power the power at which the detectable difference is quoted, Z the
+	// normal quantile of the Wilson bands.
+	Alpha, Power, Z float64
+	// TestTimes is the number of times at which active-state fractions
+	// are tested.
+	TestTimes int
+	// MinTrajectories: smaller ensembles are "too few to tell"; so are
+	// ensembles whose detectable difference exceeds Margin.
+	MinTrajectories int
+	Margin          float64
+}
+
+// DefaultSettings: a threshold of 0.01 angstrom stays well below the
+// saturation of the divergence (bond lengths); round-off in double
+// precision starts near 1e-15 relative, so 1e-6 angstrom leaves room
+// for printed logs and a few steps of growth; alpha 0.05 and power 0.8
+// are common practice; 20 test times keep Holm's correction mild.
+var DefaultSettings = Settings{
+	Threshold: 0.01, RoundOff: 1e-6, StartRelative: 1e-6, MinR2: 0.9, MinFitPoints: 5,
+	Alpha: 0.05, Power: 0.8, Z: 1.959963984540054, TestTimes: 20, MinTrajectories: 10, Margin: 0.5,
+}
+
+// Options of Run.
+type Options struct {
+	Settings
+	// Convert are the conversion options for text logs given as A or B;
+	// they are converted into a temporary folder, removed afterwards.
+	Convert ingest.ConvertOptions
+}
+
+// Codes of compare's findings (finding.Finding.Code).
+var Codes = map[string]string{
+	"C1": "the setups differ (program, version, method, time step, states, units, constants)",
+	"C2": "a pair of trajectories differs from the start (a setup difference)",
+	"C3": "a pair of trajectories agrees, then diverges exponentially from round-off",
+	"C4": "a trajectory has no partner of the same name on the other side",
+	"C5": "the ensembles differ statistically",
+	"C6": "too few trajectories to tell whether the ensembles agree",
+}
+
+// Overall verdicts.
+const (
+	AllIdentical = "identical"
+	Reproduced   = "reproduced (pairs agree, then diverge as chaos does)"
+	Agree        = "statistically equivalent"
+	Differ       = "different"
+	Unclear      = "too few trajectories to tell"
+)
+
+// SetupDiff is one difference of the two setups.
+type SetupDiff struct {
+	Item string `json:"item"`
+	A    string `json:"a"`
+	B    string `json:"b"`
+}
+
+// Report is the whole comparison.
+type Report struct {
+	A, B string `json:"-"`
+	// FilesA and FilesB are the trajectory files compared (converted
+	// copies for text logs, named as the logs).
+	FilesA   []string          `json:"files_a"`
+	FilesB   []string          `json:"files_b"`
+	Setup    []SetupDiff       `json:"setup_differences"`
+	Pairs    []*Pair           `json:"pairs"`
+	OnlyA    []string          `json:"only_in_a"`
+	OnlyB    []string          `json:"only_in_b"`
+	Ensemble *EnsembleResult   `json:"ensemble"`
+	Findings []finding.Finding `json:"findings"`
+	Verdict  string            `json:"verdict"`
+	Settings SettingsJSON      `json:"settings"`
+}
+
+// SettingsJSON records the thresholds in the report.
+type SettingsJSON struct {
+	Threshold float64 `json:"threshold_angstrom"`
+	RoundOff  float64 `json:"round_off_angstrom"`
+	Alpha     float64 `json:"alpha"`
+	Power     float64 `json:"power"`
+	TestTimes int     `json:"test_times"`
+}
+
+// OK reports whether the runs agree: identical, reproduced or
+// statistically equivalent.
+func (r *Report) OK() bool {
+	return r.Verdict == AllIdentical || r.Verdict == Reproduced || r.Verdict == Agree
+}
+
+// side is one resolved input: trajectory files by name.
+type side struct {
+	names []string
+	files map[string]string
+	label map[string]string // name -> what to print (the source)
+}
+
+// Run compares A and B (trajectory files, folders of them, bundle
+// folders, or text logs).
+func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
+	tmp, err := os.MkdirTemp("", "trajvault-compare-")
+	if err != nil {
+		return nil, err
+	}
+	defer os.RemoveAll(tmp)
+	sa, err := resolve(ctx, a, tmp+"/a", o.Convert)
+	if err != nil {
+		return nil, err
+	}
+	sb, err := resolve(ctx, b, tmp+"/b", o.Convert)
+	if err != nil {
+		return nil, err
+	}
+	s := o.Settings
+	rep := &Report{A: a, B: b, Setup: []SetupDiff{}, Pairs: []*Pair{}, OnlyA: []string{}, OnlyB: []string{},
+		Settings: SettingsJSON{s.Threshold, s.RoundOff, s.Alpha, s.Power, s.TestTimes}}
+	for _, n := range sa.names {
+		rep.FilesA = append(rep.FilesA, sa.label[n])
+	}
+	for _, n := range sb.names {
+		rep.FilesB = append(rep.FilesB, sb.label[n])
+	}
+	var list finding.List
+	list.PerPlace = 5
+
+	// 1. Setup first: the first file of each side.
+	if rep.Setup, err = setupDiff(sa.files[sa.names[0]], sb.files[sb.names[0]]); err != nil {
+		return nil, err
+	}
+	if rep.Setup == nil {
+		rep.Setup = []SetupDiff{}
+	}
+	for _, d := range rep.Setup {
+		list.Add(finding.Finding{Code: "C1", Severity: finding.Warning, Location: finding.Location{File: b},
+			Quantity: d.Item, Message: fmt.Sprintf("%s differs: A %s, B %s", d.Item, d.A, d.B)})
+	}
+
+	// 2. Pairs by name; a single file on each side pairs whatever its name.
+	pairs := map[string]string{}
+	if len(sa.names) == 1 && len(sb.names) == 1 {
+		pairs[sa.names[0]] = sb.names[0]
+	} else {
+		for _, n := range sa.names {
+			if _, ok := sb.files[n]; ok {
+				pairs[n] = n
+			} else {
+				rep.OnlyA = append(rep.OnlyA, n)
+			}
+		}
+		for _, n := range sb.names {
+			if _, ok := sa.files[n]; !ok {
+				rep.OnlyB = append(rep.OnlyB, n)
+			}
+		}
+	}
+	for _, n := range sa.names {
+		nb, ok := pairs[n]
+		if !ok {
+			continue
+		}
+		if err := ctx.Err(); err != nil {
+			return nil, err
+		}
+		p, err := openPair(n, sa.files[n], sb.files[nb], s)
+		if err != nil {
+			return nil, err
+		}
+		p.A, p.B = sa.label[n], sb.label[nb]
+		rep.Pairs = append(rep.Pairs, p)
+	}
+
+	// 3. Ensembles.
+	ea, states, err := loadSide(ctx, sa)
+	if err != nil {
+		return nil, err
+	}
+	eb, sb2, err := loadSide(ctx, sb)
+	if err != nil {
+		return nil, err
+	}
+	rep.Ensemble = CompareEnsembles(ea, eb, max(states, sb2), s)
+	rep.Verdict = overall(rep)
+	rep.findings(&list)
+	rep.Findings = list.Findings()
+	if rep.Findings == nil {
+		rep.Findings = []finding.Finding{}
+	}
+	return rep, nil
+}
+
+// findings records what the comparison found. A finding is an error when
+// it decides a verdict other than agreement: pairs that differ from the
+// start are errors unless the ensembles are judged as samples (then the
+// pairs merely started from other initial conditions).
+func (rep *Report) findings(list *finding.List) {
+	sev := func(bad bool) finding.Severity {
+		if bad && !rep.OK() {
+			return finding.Error
+		}
+		return finding.Warning
+	}
+	// Pair findings are placed at B, so that many fold into one line.
+	pairSetup := rep.Ensemble.Verdict != Equivalent && rep.Ensemble.Verdict != Different
+	for _, p := range rep.Pairs {
+		loc := finding.Location{File: rep.B}
+		switch p.Verdict {
+		case Setup:
+			list.Add(finding.Finding{Code: "C2", Severity: sev(pairSetup), Location: loc, Message: p.Name + ": " + p.Reason})
+		case Diverged:
+			list.Add(finding.Finding{Code: "C3", Severity: finding.Note, Location: loc, Message: p.Name + ": " + p.Reason})
+		}
+	}
+	for _, n := range rep.OnlyA {
+		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.A},
+			Message: "only in A: " + n})
+	}
+	for _, n := range rep.OnlyB {
+		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.B},
+			Message: "only in B: " + n})
+	}
+	e := rep.Ensemble
+	switch e.Verdict {
+	case Different:
+		list.Add(finding.Finding{Code: "C5", Severity: finding.Error, Message: fmt.Sprintf(
+			"ensembles differ: %s, p = %.2g after Holm's correction (alpha %g)", e.MinTest, e.MinP, rep.Settings.Alpha)})
+	case TooFew:
+		list.Add(finding.Finding{Code: "C6", Severity: sev(true), Message: fmt.Sprintf(
+			"%d and %d trajectories: differences of active-state fractions below %.2f would go unnoticed; run more trajectories",
+			e.NA, e.NB, e.Detectable)})
+	}
+}
+
+// overall: the ensemble decides when it can; otherwise the pairs.
+func overall(r *Report) string {
+	identical, setup := len(r.Pairs) > 0, false
+	for _, p := range r.Pairs {
+		if p.Verdict != Identical {
+			identical = false
+		}
+		if p.Verdict == Setup {
+			setup = true
+		}
+	}
+	unmatched := len(r.OnlyA)+len(r.OnlyB) > 0
+	switch {
+	case identical && !unmatched:
+		return AllIdentical
+	case r.Ensemble.Verdict == Different:
+		return Differ
+	case r.Ensemble.Verdict == Equivalent:
+		return Agree
+	case len(r.Pairs) > 0 && !setup && !unmatched:
+		return Reproduced
+	case r.Ensemble.Verdict == TooFew:
+		return Unclear
+	}
+	return Differ
+}
+
+func openPair(name, fa, fb string, s Settings) (*Pair, error) {
+	ra, err := trajfile.OpenReader(fa)
+	if err != nil {
+		return nil, err
+	}
+	defer ra.Close()
+	rb, err := trajfile.OpenReader(fb)
+	if err != nil {
+		return nil, err
+	}
+	defer rb.Close()
+	return comparePair(name, ra, rb, s)
+}
+
+// loadSide reads every trajectory of a side for the ensemble comparison.
+func loadSide(ctx context.Context, s *side) ([]*Series, int, error) {
+	var out []*Series
+	states := 0
+	for _, n := range s.names {
+		if err := ctx.Err(); err != nil {
+			return nil, 0, err
+		}
+		r, err := trajfile.OpenReader(s.files[n])
+		if err != nil {
+			return nil, 0, err
+		}
+		se, err := loadSeries(n, r)
+		states = max(states, r.States)
+		r.Close()
+		if err != nil {
+			return nil, 0, fmt.Errorf("%s: %w", s.label[n], err)
+		}
+		out = append(out, se)
+	}
+	return out, states, nil
+}
+
+// loadSeries reads what the ensemble comparison needs of one file.
+func loadSeries(name string, r *trajfile.Reader) (*Series, error) {
+	s := &Series{Name: name, Times: timesFS(r), EnergySpread: math.NaN()}
+	if r.Has(trajfile.ActiveState) {
+		v, _, err := r.Values(trajfile.ActiveState, "")
+		if err != nil {
+			return nil, err
+		}
+		if len(v) != r.T {
+			return nil, fmt.Errorf("%s: %d values for %d frames", trajfile.ActiveState, len(v), r.T)
+		}
+		s.Active = make([]int, len(v))
+		for i, x := range v {
+			if x != math.Trunc(x) || x < 0 || (r.States > 0 && int(x) >= r.States) {
+				return nil, fmt.Errorf("%s, frame %d: active state %v outside 0..%d (n_states %d); run trajvault validate",
+					trajfile.ActiveState, i, x, r.States-1, r.States)
+			}
+			s.Active[i] = int(x)
+		}
+	}
+	if r.Has(trajfile.Populations) {
+		v, shape, err := r.Values(trajfile.Populations, "")
+		if err != nil {
+			return nil, err
+		}
+		if shape.Rank == 2 && shape.Dims[0] == r.T {
+			w := shape.Dims[1]
+			s.Populations = make([][]float64, r.T)
+			for i := range s.Populations {
+				s.Populations[i] = v[i*w : (i+1)*w]
+			}
+		}
+	}
+	hops, err := r.Hops()
+	if err != nil {
+		return nil, err
+	}
+	for _, h := range hops {
+		if !h.Frustrated && h.From != h.To {
+			s.HopTimes = append(s.HopTimes, stepTime(r, h.Step))
+		}
+	}
+	if r.Has(trajfile.TotalEnergy) {
+		e, _, err := r.Values(trajfile.TotalEnergy, "eV")
+		if err != nil {
+			return nil, err
+		}
+		spread := 0.0
+		for _, x := range e {
+			spread = math.Max(spread, math.Abs(x-e[0]))
+		}
+		if len(e) > 0 {
+			s.EnergySpread = spread
+		}
+	}
+	return s, nil
+}
+
+// setupDiff lists the differences of the two files' setups.
+func setupDiff(fa, fb string) ([]SetupDiff, error) {
+	ra, err := trajfile.OpenReader(fa)
+	if err != nil {
+		return nil, err
+	}
+	defer ra.Close()
+	rb, err := trajfile.OpenReader(fb)
+	if err != nil {
+		return nil, err
+	}
+	defer rb.Close()
+	sa, sb := ra.Setup(), rb.Setup()
+	var out []SetupDiff
+	add := func(item, a, b string) {
+		if a != b {
+			out = append(out, SetupDiff{item, a, b})
+		}
+	}
+	add("program", sa.Creator+" "+sa.CreatorVersion, sb.Creator+" "+sb.CreatorVersion)
+	add("time step", timeStep(sa), timeStep(sb))
+	add("electronic states", fmt.Sprint(ra.States), fmt.Sprint(rb.States))
+	add("atoms", fmt.Sprint(ra.Species), fmt.Sprint(rb.Species))
+	add("masses (u)", masses(ra), masses(rb))
+	out = append(out, diffMaps("parameter ", without(sa.Parameters), without(sb.Parameters))...)
+	out = append(out, provenanceDiff(sa.Parameters[trajfile.ProvenanceAttr], sb.Parameters[trajfile.ProvenanceAttr])...)
+	ua, ub := map[string]string{}, map[string]string{}
+	for k, v := range sa.Units {
+		ua[shortName(ra, k)] = v
+	}
+	for k, v := range sb.Units {
+		ub[shortName(rb, k)] = v
+	}
+	out = append(out, diffMaps("unit of ", ua, ub)...)
+	return out, nil
+}
+
+func shortName(r *trajfile.Reader, el string) string {
+	for _, q := range pairElements {
+		if el == q.el || (perAtom(q.el) && el == r.Particle(q.el)) {
+			return q.name
+		}
+	}
+	return el
+}
+
+func timeStep(s *trajfile.Setup) string {
+	if s.TimeStep == 0 {
+		return "not recorded"
+	}
+	if f, err := units.Factor(s.TimeStepUnit, "fs"); err == nil {
+		return fmt.Sprintf("%.6g fs", s.TimeStep*f)
+	}
+	return fmt.Sprintf("%g %s", s.TimeStep, s.TimeStepUnit)
+}
+
+func masses(r *trajfile.Reader) string {
+	f, _ := units.Factor("me", "u")
+	out := make([]string, len(r.Masses))
+	for i, m := range r.Masses {
+		out[i] = fmt.Sprintf("%.6g", m*f)
+	}
+	return fmt.Sprint(out)
+}
+
+// perRun are /parameters attributes that differ between any two runs
+// (the provenance record is compared field by field, provenanceDiff).
+var perRun = map[string]bool{trajfile.ProvenanceAttr: true, "trajvault_sources": true}
+
+func without(m map[string]string) map[string]string {
+	out := map[string]string{}
+	for k, v := range m {
+		if !perRun[k] {
+			out[k] = v
+		}
+	}
+	return out
+}
+
+// diffMaps lists keys whose values differ, in key order.
+func diffMaps(prefix string, a, b map[string]string) []SetupDiff {
+	keys := map[string]bool{}
+	for k := range a {
+		keys[k] = true
+	}
+	for k := range b {
+		keys[k] = true
+	}
+	var ks []string
+	for k := range keys {
+		ks = append(ks, k)
+	}
+	sort.Strings(ks)
+	var out []SetupDiff
+	for _, k := range ks {
+		va, oka := a[k]
+		vb, okb := b[k]
+		switch {
+		case !oka:
+			va = "(none)"
+		case !okb:
+			vb = "(none)"
+		}
+		if va != vb {
+			out = append(out, SetupDiff{prefix + k, va, vb})
+		}
+	}
+	return out
+}
