@@ -3,13 +3,16 @@ package compare
 import (
 	"encoding/json"
 	"math"
+	"os"
 	"runtime"
 	"sync"
 	"testing"
 	"time"
 
 	"trajvault/internal/demo"
+	"trajvault/internal/testenv"
 	"trajvault/internal/units"
+	"trajvault/schema"
 )
 
 // demoEnsemble runs n trajectories of the demo model m from seeds
@@ -154,7 +157,11 @@ func TestCodesInSchema(t *testing.T) {
 			} `json:"finding"`
 		} `json:"$defs"`
 	}
-	if err := json.Unmarshal(SchemaJSON, &doc); err != nil {
+	raw, err := os.ReadFile(testenv.Repo("schema", "compare.schema.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(raw, &doc); err != nil {
 		t.Fatal(err)
 	}
 	enum := doc.Defs.Finding.Properties.Code.Enum
@@ -166,7 +173,7 @@ func TestCodesInSchema(t *testing.T) {
 			t.Errorf("schema code %s not in Codes", c)
 		}
 	}
-	if _, err := Schema(); err != nil {
+	if _, err := schema.CompareSchema(); err != nil {
 		t.Error(err)
 	}
 }

@@ -100,7 +100,7 @@ func convertLogs(ctx context.Context, path string, dir bool, tmp string, co inge
 	}
 	if !dir {
 		out := filepath.Join(tmp, "0.h5")
-		rep, _, err := ingest.ConvertFiles([]string{path}, out, co)
+		rep, _, err := ingest.ConvertFiles(ctx, []string{path}, out, co)
 		if err != nil {
 			return refusal(path, rep, err)
 		}
@@ -114,12 +114,15 @@ func convertLogs(ctx context.Context, path string, dir bool, tmp string, co inge
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		rep := ingest.Scan(t, co.Options)
+		rep, err := ingest.Scan(ctx, t, co.Options)
+		if err != nil {
+			return err
+		}
 		if p := rep.Refusal(co.DropPartial); p != nil {
 			return refusal(t.Dir, rep, ingest.ErrRefused)
 		}
 		out := filepath.Join(tmp, fmt.Sprintf("%d.h5", i))
-		if _, err := ingest.Convert(rep, out, co); err != nil {
+		if _, err := ingest.Convert(ctx, rep, out, co); err != nil {
 			return err
 		}
 		if err := add(t.Name, out, t.Dir); err != nil {

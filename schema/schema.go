@@ -198,3 +198,11 @@ func Profile(name string) (*jsonschema.Schema, error) {
 	}
 	return nil, fmt.Errorf("unknown profile %q (built in: %s; or a JSON Schema file)", name, strings.Join(Profiles, ", "))
 }
+
+//go:embed compare.schema.json
+var compareSchemaJSON []byte
+
+// CompareSchema compiles the JSON Schema of `compare --json` output.
+func CompareSchema() (*jsonschema.Schema, error) {
+	return compile("compare.schema.json", compareSchemaJSON)
+}

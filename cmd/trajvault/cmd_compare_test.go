@@ -8,9 +8,9 @@ import (
 	"strings"
 	"testing"
 
-	"trajvault/compare"
 	"trajvault/internal/demo"
 	"trajvault/internal/testenv"
+	"trajvault/schema"
 )
 
 // demoDir writes n demo trajectories from seeds first.. into a new folder.
@@ -58,7 +58,7 @@ func TestCompareCommand(t *testing.T) {
 
 	// JSON follows compare.schema.json, and the envelope names the tool
 	// and carries the verdict and pairs.
-	sch, err := compare.Schema()
+	sch, err := schema.CompareSchema()
 	if err != nil {
 		t.Fatal(err)
 	}
