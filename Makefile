@@ -10,7 +10,7 @@ export CGO_ENABLED := 1
 # bundle it writes (creator version, provenance, Bag-Software-Agent).
 VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo unknown)
 
-.PHONY: all build demo test deps-build deps-test vet fmt-check fuzz bench clean
+.PHONY: all build install demo test readme deps-build deps-test vet fmt-check fuzz bench clean
 
 # Fuzz targets: package:Target. make test runs each for FUZZTIME_TEST.
 FUZZ_TARGETS := ./ingest:FuzzXYZ ./ingest:FuzzTable ./ingest:FuzzLog ./internal/textnum:FuzzParse
@@ -27,6 +27,16 @@ deps-test:
 
 build: deps-build
 	$(GO) build -ldflags "-X main.version=$(VERSION)" -o $(BIN) ./cmd/trajvault
+
+# install: put trajvault on PATH (GOBIN, or ~/go/bin).
+install: deps-build
+	$(GO) install -ldflags "-X main.version=$(VERSION)" ./cmd/trajvault
+
+# readme: rewrite README.md's example outputs and vocabulary table from
+# real runs (make test fails when they drift).
+readme: deps-test
+	$(GO) test -count=1 ./internal/quantity -run TestReadmeVocabulary -update-readme
+	$(GO) test -count=1 -timeout 30m ./cmd/trajvault -run TestReadmeExamples -update-readme
 
 # demo: the whole job on the invented demo ensemble: legacy text logs are
 # scanned, packed into a BagIt bundle (trajectory files, RO-Crate,
@@ -56,7 +66,7 @@ vet: deps-build
 	$(GO) vet ./...
 
 test: deps-test fmt-check vet
-	$(GO) test -count=1 ./...
+	$(GO) test -count=1 -timeout 45m ./...
 	@for t in $(FUZZ_TARGETS); do \
 		echo "fuzz $$t ($(FUZZTIME_TEST))"; \
 		$(GO) test $${t%%:*} -run '^$$' -fuzz "^$${t##*:}\$$" -fuzztime $(FUZZTIME_TEST) >.fuzz.log 2>&1 || { cat .fuzz.log; exit 1; }; \

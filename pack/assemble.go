@@ -23,9 +23,9 @@ type Limits struct {
 
 // Codes of the findings about repository limits.
 const (
-	LTooManyFiles = "R1" // more files than a record may hold
-	LRecordTooBig = "R2" // more bytes than a record may hold
-	LFileTooBig   = "R3" // one file larger than a record may hold
+	LTooManyFiles = "L1" // more files than a record may hold
+	LRecordTooBig = "L2" // more bytes than a record may hold
+	LFileTooBig   = "L3" // one file larger than a record may hold
 )
 
 // Bag is one bag written by Assemble.
