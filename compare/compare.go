@@ -300,17 +300,24 @@ func overall(r *Report) string {
 	return Differ
 }
 
+// openBoth opens the two files of a pair; close releases both.
+func openBoth(fa, fb string) (ra, rb *trajfile.Reader, close func(), err error) {
+	if ra, err = trajfile.OpenReader(fa); err != nil {
+		return nil, nil, nil, err
+	}
+	if rb, err = trajfile.OpenReader(fb); err != nil {
+		ra.Close()
+		return nil, nil, nil, err
+	}
+	return ra, rb, func() { ra.Close(); rb.Close() }, nil
+}
+
 func openPair(name, fa, fb string, s Settings) (*Pair, error) {
-	ra, err := trajfile.OpenReader(fa)
+	ra, rb, done, err := openBoth(fa, fb)
 	if err != nil {
 		return nil, err
 	}
-	defer ra.Close()
-	rb, err := trajfile.OpenReader(fb)
-	if err != nil {
-		return nil, err
-	}
-	defer rb.Close()
+	defer done()
 	return comparePair(name, ra, rb, s)
 }
 
@@ -397,16 +404,11 @@ func loadSeries(name string, r *trajfile.Reader) (*Series, error) {
 
 // setupDiff lists the differences of the two files' setups.
 func setupDiff(fa, fb string) ([]SetupDiff, error) {
-	ra, err := trajfile.OpenReader(fa)
+	ra, rb, done, err := openBoth(fa, fb)
 	if err != nil {
 		return nil, err
 	}
-	defer ra.Close()
-	rb, err := trajfile.OpenReader(fb)
-	if err != nil {
-		return nil, err
-	}
-	defer rb.Close()
+	defer done()
 	sa, sb := ra.Setup(), rb.Setup()
 	var out []SetupDiff
 	add := func(item, a, b string) {
