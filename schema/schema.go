@@ -9,6 +9,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"regexp"
+	"sort"
 	"strings"
 
 	"github.com/santhosh-tekuri/jsonschema/v5"
@@ -174,8 +175,19 @@ func DepositSchema() (*jsonschema.Schema, error) {
 var profilesFS embed.FS
 
 // Profiles are the built-in funder profiles, JSON Schemas applied to a
-// bundle's datacite.json.
-var Profiles = []string{"minimal", "fair", "eu-grant"}
+// bundle's datacite.json: one file schema/profiles/NAME.json each, found
+// here by name, so adding a profile is adding its file.
+var Profiles = func() []string {
+	entries, _ := profilesFS.ReadDir("profiles")
+	var names []string
+	for _, e := range entries {
+		if n, ok := strings.CutSuffix(e.Name(), ".json"); ok {
+			names = append(names, n)
+		}
+	}
+	sort.Strings(names)
+	return names
+}()
 
 // Profile compiles a built-in profile by name, or a user's JSON Schema
 // file when name is a path ending in .json.

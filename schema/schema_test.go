@@ -100,3 +100,19 @@ func TestSymbolsDocumented(t *testing.T) {
 		}
 	}
 }
+
+// TestProfilesCompile: every built-in funder profile is a valid JSON
+// Schema (draft 2020-12) and each can be named on the command line.
+func TestProfilesCompile(t *testing.T) {
+	if len(Profiles) < 3 {
+		t.Fatalf("built-in profiles %v: expected minimal, fair and eu-grant at least", Profiles)
+	}
+	for _, p := range Profiles {
+		if _, err := Profile(p); err != nil {
+			t.Errorf("profile %s: %v", p, err)
+		}
+	}
+	if _, err := Profile("no-such-profile"); err == nil {
+		t.Error("an unknown profile name was accepted")
+	}
+}
