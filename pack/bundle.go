@@ -17,6 +17,7 @@ import (
 
 	"trajvault/ingest"
 	"trajvault/internal/bagit"
+	"trajvault/internal/progress"
 	"trajvault/internal/trajfile"
 	"trajvault/schema"
 )
@@ -35,6 +36,8 @@ type BundleOptions struct {
 	// Split bundles: this bag's place in the group (RFC 8493 Bag-Count).
 	GroupID                string
 	GroupIndex, GroupCount int
+	// Progress counts payload bytes checksummed (nil: not counted).
+	Progress progress.Counter
 }
 
 // Converted is one trajectory in the bundle.
@@ -105,7 +108,7 @@ func WriteBundle(ctx context.Context, dir string, conv []Converted, o BundleOpti
 	if !slices.Contains(algs, "sha256") {
 		algs = append(slices.Clone(algs), "sha256")
 	}
-	digests, err := bagit.HashPayload(ctx, dir, algs, o.Jobs)
+	digests, err := bagit.HashPayload(ctx, dir, algs, o.Jobs, o.Progress)
 	if err != nil {
 		return err
 	}

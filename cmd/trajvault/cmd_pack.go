@@ -170,8 +170,11 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 			bo.Plots["energy-deviation.svg"] = svg
 		}
 	}
+	hashing := newBar(g, "checksums", "B")
+	bo.Progress = hashing
 	lim := pack.Limits{MaxFiles: o.maxFiles, MaxRecordBytes: int64(o.maxRecordGB * 1e9), MaxFileBytes: int64(o.maxFileGB * 1e9)}
 	bags, err := pack.Assemble(ctx, tmp, out, conv, bo, lim, o.split, o.force)
+	hashing.Finish()
 	if err != nil {
 		return fail(err)
 	}

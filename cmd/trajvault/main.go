@@ -46,7 +46,8 @@ func toolVersion() string {
 // globals are shared by every command.
 type globals struct {
 	stdout, stderr io.Writer
-	stderrTTY      bool
+	stderrTTY      bool // progress bars go to stderr only on a terminal
+	quiet          bool // --quiet: no progress bars
 }
 
 // exitError carries an exit status out of a command; findingsError is
@@ -79,6 +80,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		SilenceErrors: true,
 		Version:       toolVersion(),
 	}
+	root.PersistentFlags().BoolVarP(&g.quiet, "quiet", "q", false, "no progress bars (they are shown only when stderr is a terminal)")
 	root.SetOut(g.stdout)
 	root.SetErr(g.stderr)
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {

@@ -120,11 +120,7 @@ func TestReadmeExamples(t *testing.T) {
 		t.Fatal(err)
 	}
 	lines := strings.Split(string(raw), "\n")
-	bin := t.TempDir()
-	build := exec.Command("go", "build", "-ldflags", "-X main.version=0.0.0-readme", "-o", filepath.Join(bin, "trajvault"), ".")
-	if out, err := build.CombinedOutput(); err != nil {
-		t.Fatalf("build: %v\n%s", err, out)
-	}
+	bin := filepath.Dir(buildBinary(t))
 	work := t.TempDir()
 	if err := os.Symlink(repo("testdata"), filepath.Join(work, "testdata")); err != nil {
 		t.Fatal(err)
@@ -193,4 +189,16 @@ func TestReadmeExamples(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Logf("README.md: %d example outputs rewritten from real runs", len(edits))
+}
+
+// buildBinary builds trajvault for tests that run it as a process (the
+// version is fixed so that outputs do not depend on the checkout).
+func buildBinary(t *testing.T) string {
+	t.Helper()
+	bin := filepath.Join(t.TempDir(), "trajvault")
+	build := exec.Command("go", "build", "-ldflags", "-X main.version=0.0.0-readme", "-o", bin, ".")
+	if out, err := build.CombinedOutput(); err != nil {
+		t.Fatalf("build: %v\n%s", err, out)
+	}
+	return bin
 }

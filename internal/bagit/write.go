@@ -11,6 +11,8 @@ import (
 	"time"
 
 	"golang.org/x/sync/errgroup"
+
+	"trajvault/internal/progress"
 )
 
 // Digest is the size and checksums (algorithm -> hex) of one payload
@@ -46,16 +48,25 @@ func payloadList(dir string) ([]string, error) {
 
 // HashPayload reads every payload file of dir once, computing all of algs
 // in the same pass, workers files at a time, and returns their digests.
-// The first error cancels the rest.
-func HashPayload(ctx context.Context, dir string, algs []string, workers int) (Digests, error) {
+// The first error cancels the rest. done counts the bytes read (nil: not
+// counted).
+func HashPayload(ctx context.Context, dir string, algs []string, workers int, done progress.Counter) (Digests, error) {
 	files, err := payloadList(dir)
 	if err != nil {
 		return nil, err
 	}
-	return hashFiles(ctx, dir, files, algs, workers)
+	done = progress.Or(done)
+	var total int64
+	for _, f := range files {
+		if st, err := os.Stat(filepath.Join(dir, filepath.FromSlash(f))); err == nil {
+			total += st.Size()
+		}
+	}
+	done.SetTotal(total)
+	return hashFiles(ctx, dir, files, algs, workers, done)
 }
 
-func hashFiles(ctx context.Context, dir string, files, algs []string, workers int) (Digests, error) {
+func hashFiles(ctx context.Context, dir string, files, algs []string, workers int, done progress.Counter) (Digests, error) {
 	for _, a := range algs {
 		if Algorithms[a] == nil {
 			return nil, fmt.Errorf("bagit: unknown algorithm %q", a)
@@ -78,6 +89,7 @@ func hashFiles(ctx context.Context, dir string, files, algs []string, workers in
 			if err != nil {
 				return fmt.Errorf("bagit: %s: %w", name, err)
 			}
+			done.Add(n)
 			out[i] = Digest{n, s}
 			return nil
 		})
@@ -116,7 +128,7 @@ func Make(ctx context.Context, dir string, algs []string, info Info, known Diges
 		}
 		todo = append(todo, name)
 	}
-	fresh, err := hashFiles(ctx, dir, todo, algs, workers)
+	fresh, err := hashFiles(ctx, dir, todo, algs, workers, progress.Nop{})
 	if err != nil {
 		return err
 	}
