@@ -10,7 +10,7 @@
 #                       the Go module proxy when none is installed
 set -euo pipefail
 
-GO_FALLBACK=1.24.9 # used only when no Go is installed; at least the go.mod version
+GO_FALLBACK=1.26.8 # used only when no Go is installed; at least the go.mod version
 
 sudo_() {
 	if [ "$(id -u)" = 0 ]; then "$@"; else sudo "$@"; fi
