@@ -64,12 +64,12 @@ func (e *SelectionError) Unwrap() error { return ErrSelection }
 type kind int
 
 const (
-	perFrame kind = iota // [T]
-	perAtom              // [T][N][3]
-	perState             // [T][S]
-	perStatePair         // [T][S][S]
-	perStateReIm         // [T][S][2]
-	eventTable           // hops
+	perFrame     kind = iota // [T]
+	perAtom                  // [T][N][3]
+	perState                 // [T][S]
+	perStatePair             // [T][S][S]
+	perStateReIm             // [T][S][2]
+	eventTable               // hops
 )
 
 // quantityDef names one selectable quantity.

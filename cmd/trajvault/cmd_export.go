@@ -85,7 +85,9 @@ outside the data; the message says what the file holds).`,
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runExport(g, c.Flags().Changed("frame"), o, args[0]) },
+		RunE: func(c *cobra.Command, args []string) error {
+			return runExport(g, c.Flags().Changed("frame"), o, args[0])
+		},
 	}
 	o.AddFlags(c)
 	return c
