@@ -156,7 +156,9 @@ func (q *quantity) appendJSON(b []byte, v float64) []byte {
 type plan struct {
 	r      *trajfile.Reader
 	sel    Selection
-	clock  *clockColumns
+	// clock holds the steps and times of the selected frames only,
+	// indexed like frames.
+	clock *clockColumns
 	frames []int
 	atoms  []int // nil = all
 	states []int // nil = all
@@ -171,18 +173,18 @@ type plan struct {
 func resolve(r *trajfile.Reader, sel Selection, defaults []string) (*plan, error) {
 	p := &plan{r: r, sel: sel}
 	var err error
-	if p.clock, err = readClock(r); err != nil {
-		return nil, fmt.Errorf("%s: %w", r.Path, err)
-	}
 	switch {
 	case sel.Frames != "" && sel.Time != "":
 		return nil, &SelectionError{"--time", sel.Time, "give frames by index (--frames) or by time (--time), not both"}
 	case sel.Time != "":
-		p.frames, err = timeFrames(r, p.clock, sel.Time)
+		p.frames, err = timeFrames(r, sel.Time)
 	default:
 		p.frames, err = indexFrames(r, sel.Frames)
 	}
 	if err != nil {
+		return nil, err
+	}
+	if p.clock, err = clockAt(r, p.frames); err != nil {
 		return nil, err
 	}
 	if p.atoms, err = parseAtoms(r, sel.Atoms); err != nil {
@@ -326,7 +328,7 @@ func (p *plan) quantity(name string, explicit bool) (*quantity, error) {
 // selectHops keeps the hops from the first to the last selected frame's
 // step (inclusive) between selected states.
 func (p *plan) selectHops(all []trajfile.Hop) []trajfile.Hop {
-	lo, hi := p.clock.c.Steps[p.frames[0]], p.clock.c.Steps[p.frames[len(p.frames)-1]]
+	lo, hi := p.clock.c.Steps[0], p.clock.c.Steps[len(p.frames)-1]
 	out := []trajfile.Hop{}
 	for _, h := range all {
 		if h.Step < lo || h.Step > hi {
@@ -348,12 +350,29 @@ func seq(n int) []int {
 	return out
 }
 
+// clockAt reads the clock of the given frames, with the recorded format
+// of the times.
+func clockAt(r *trajfile.Reader, frames []int) (*clockColumns, error) {
+	pos := r.Particle(trajfile.Position)
+	c, err := r.ClockAt(pos, frames)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", r.Path, err)
+	}
+	cc := &clockColumns{c: c}
+	cc.time, cc.ok = r.TimeFormat(pos)
+	return cc, nil
+}
+
 // frameRange describes the file's frames for error messages.
 func frameRange(r *trajfile.Reader) string {
 	if r.T == 0 {
 		return "the file has no frames"
 	}
-	return fmt.Sprintf("the file has %d frames, 0..%d (steps %d..%d)", r.T, r.T-1, r.Steps[0], r.Steps[r.T-1])
+	s := fmt.Sprintf("the file has %d frames, 0..%d", r.T, r.T-1)
+	if cc, err := clockAt(r, []int{0, r.T - 1}[:min(r.T, 2)]); err == nil {
+		s += fmt.Sprintf(" (steps %d..%d)", cc.c.Steps[0], cc.c.Steps[len(cc.c.Steps)-1])
+	}
+	return s
 }
 
 // indexFrames parses a frame slice (see Selection.Frames).
@@ -445,11 +464,16 @@ func splitUnit(s string) (float64, string, error) {
 }
 
 // timeFrames parses a time window (see Selection.Time) and lists its
-// frames. Times compare in atomic units with a tolerance of 1e-6 of the
+// frames. Times compare in the stored time unit with a tolerance of 1e-6 of the
 // smallest frame spacing, so that "0.15fs" finds a frame stored as
 // 0.15000000000000002 fs.
-func timeFrames(r *trajfile.Reader, cc *clockColumns, spec string) ([]int, error) {
+func timeFrames(r *trajfile.Reader, spec string) ([]int, error) {
 	bad := func(msg string) error { return &SelectionError{"--time", spec, msg} }
+	// A time window needs every frame's time: the whole clock is read.
+	cc, err := readClock(r)
+	if err != nil {
+		return nil, err
+	}
 	have := func() string {
 		if r.T == 0 {
 			return "the file has no frames"
@@ -489,7 +513,7 @@ func timeFrames(r *trajfile.Reader, cc *clockColumns, spec string) ([]int, error
 		if !given[i] {
 			continue
 		}
-		f, err := units.Factor(u, "au_time")
+		f, err := units.Factor(u, cc.c.TimeUnit)
 		if err != nil {
 			return nil, bad(fmt.Sprintf("%q is not a time unit (%v)", u, err))
 		}
@@ -498,7 +522,7 @@ func timeFrames(r *trajfile.Reader, cc *clockColumns, spec string) ([]int, error
 	if r.T == 0 {
 		return nil, bad(have())
 	}
-	times := r.Times
+	times := cc.c.Times // in the stored unit, like vals
 	spacing := math.Inf(1)
 	for i := 1; i < len(times); i++ {
 		if d := times[i] - times[i-1]; d > 0 {

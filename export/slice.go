@@ -75,7 +75,7 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
 	}
-	r, err := trajfile.OpenReader(in)
+	r, err := trajfile.OpenWindowReader(in)
 	if err != nil {
 		return nil, err
 	}
@@ -151,7 +151,7 @@ func WriteValues(w io.Writer, in string, sel Selection, format string) error {
 	if format != FormatCSV && format != FormatJSON {
 		return &SelectionError{"--format", format, "values print as csv or json"}
 	}
-	r, err := trajfile.OpenReader(in)
+	r, err := trajfile.OpenWindowReader(in)
 	if err != nil {
 		return err
 	}
@@ -324,8 +324,9 @@ func (p *plan) header() Header {
 }
 
 // each calls fn for every batch of selected frames with the values of
-// every selected quantity (frame-major, as Window returns them).
-func (p *plan) each(qs []*quantity, fn func(frames []int, vals [][]float64) error) error {
+// every selected quantity (frame-major, as Window returns them); off is
+// the index in p.frames (and p.clock) of the batch's first frame.
+func (p *plan) each(qs []*quantity, fn func(off int, frames []int, vals [][]float64) error) error {
 	vals := make([][]float64, len(qs))
 	for b := 0; b < len(p.frames); b += batchFrames {
 		fr := p.frames[b:min(b+batchFrames, len(p.frames))]
@@ -335,7 +336,7 @@ func (p *plan) each(qs []*quantity, fn func(frames []int, vals [][]float64) erro
 				return fmt.Errorf("%s: %w", p.r.Path, err)
 			}
 		}
-		if err := fn(fr, vals); err != nil {
+		if err := fn(b, fr, vals); err != nil {
 			return err
 		}
 	}
@@ -366,13 +367,13 @@ func (p *plan) writeCSV(w *bufio.Writer, comment bool) error {
 		}
 	}
 	w.Write(append(b, '\n'))
-	return p.each(p.qs, func(frames []int, vals [][]float64) error {
+	return p.each(p.qs, func(off int, frames []int, vals [][]float64) error {
 		for t, f := range frames {
 			b = strconv.AppendInt(b[:0], int64(f), 10)
 			b = append(b, ',')
-			b = strconv.AppendInt(b, p.clock.c.Steps[f], 10)
+			b = strconv.AppendInt(b, p.clock.c.Steps[off+t], 10)
 			b = append(b, ',')
-			b = p.clock.appendTime(b, f)
+			b = p.clock.appendTime(b, off+t)
 			for i, q := range p.qs {
 				wd := q.width()
 				for _, v := range vals[i][t*wd : (t+1)*wd] {
@@ -388,7 +389,7 @@ func (p *plan) writeCSV(w *bufio.Writer, comment bool) error {
 
 func (p *plan) writeHopsCSV(w *bufio.Writer) {
 	fmt.Fprintf(w, "# hops between frames %d and %d (steps %d..%d), states %s: %d\n",
-		p.frames[0], p.frames[len(p.frames)-1], p.clock.c.Steps[p.frames[0]], p.clock.c.Steps[p.frames[len(p.frames)-1]], rangeText(p.stateList()), len(p.hops))
+		p.frames[0], p.frames[len(p.frames)-1], p.clock.c.Steps[0], p.clock.c.Steps[len(p.frames)-1], rangeText(p.stateList()), len(p.hops))
 	w.WriteString("step,from_state,to_state,kind\n")
 	for _, h := range p.hops {
 		fmt.Fprintf(w, "%d,%d,%d,%s\n", h.Step, h.From, h.To, hopKind(h))
@@ -430,7 +431,7 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 	}
 	all := append(append([]*quantity{}, perAtomQ...), frameQ...)
 	var b []byte
-	return p.each(all, func(frames []int, vals [][]float64) error {
+	return p.each(all, func(off int, frames []int, vals [][]float64) error {
 		for t, f := range frames {
 			b = strconv.AppendInt(b[:0], int64(len(atoms)), 10)
 			b = append(b, '\n')
@@ -462,9 +463,9 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 				b = append(b, ` pbc="F F F" `...)
 			}
 			b = append(b, "step="...)
-			b = strconv.AppendInt(b, p.clock.c.Steps[f], 10)
+			b = strconv.AppendInt(b, p.clock.c.Steps[off+t], 10)
 			b = append(b, " time="...)
-			b = p.clock.appendTime(b, f)
+			b = p.clock.appendTime(b, off+t)
 			b = append(b, " frame="...)
 			b = strconv.AppendInt(b, int64(f), 10)
 			b = append(b, '\n')
@@ -497,26 +498,28 @@ func (p *plan) writeJSON(w *bufio.Writer) error {
 	w.WriteString(`{"selection":`)
 	w.Write(hb)
 	var b []byte
-	list := func(key string, f func(b []byte, frame int) []byte) {
+	// list writes one value per selected frame; f gets the frame's index
+	// in p.frames.
+	list := func(key string, f func(b []byte, i int) []byte) {
 		w.WriteString(",\n\"" + key + "\":[")
-		for i, fr := range p.frames {
+		for i := range p.frames {
 			b = b[:0]
 			if i > 0 {
 				b = append(b, ',')
 			}
-			w.Write(f(b, fr))
+			w.Write(f(b, i))
 		}
 		w.WriteString("]")
 	}
-	list("frame", func(b []byte, f int) []byte { return strconv.AppendInt(b, int64(f), 10) })
-	list("step", func(b []byte, f int) []byte { return strconv.AppendInt(b, p.clock.c.Steps[f], 10) })
-	list("time", func(b []byte, f int) []byte {
+	list("frame", func(b []byte, i int) []byte { return strconv.AppendInt(b, int64(p.frames[i]), 10) })
+	list("step", func(b []byte, i int) []byte { return strconv.AppendInt(b, p.clock.c.Steps[i], 10) })
+	list("time", func(b []byte, i int) []byte {
 		if p.clock.ok && p.clock.time.Exp {
 			tf := p.clock.time
 			tf.ExpChar = 'e'
-			return tf.Append(b, p.clock.c.Times[f])
+			return tf.Append(b, p.clock.c.Times[i])
 		}
-		return p.clock.appendTime(b, f)
+		return p.clock.appendTime(b, i)
 	})
 	w.WriteString(",\n\"values\":{")
 	for qi, q := range p.qs {
@@ -525,7 +528,7 @@ func (p *plan) writeJSON(w *bufio.Writer) error {
 		}
 		w.WriteString("\n\"" + q.def.name + "\":[")
 		first := true
-		err := p.each([]*quantity{q}, func(frames []int, vals [][]float64) error {
+		err := p.each([]*quantity{q}, func(_ int, frames []int, vals [][]float64) error {
 			wd := q.width()
 			for t := range frames {
 				b = b[:0]
@@ -608,16 +611,16 @@ func (p *plan) writeNPY(dir string, written *[]string) error {
 	})
 	if err == nil {
 		err = write("step.npy", "<i8", []int{nf}, func(n *npyWriter) error {
-			for _, f := range p.frames {
-				binary64(n, p.clock.c.Steps[f])
+			for _, s := range p.clock.c.Steps {
+				binary64(n, s)
 			}
 			return nil
 		})
 	}
 	if err == nil {
 		err = write("time.npy", "<f8", []int{nf}, func(n *npyWriter) error {
-			for _, f := range p.frames {
-				n.put(p.clock.c.Times[f])
+			for _, t := range p.clock.c.Times {
+				n.put(t)
 			}
 			return nil
 		})
@@ -631,7 +634,7 @@ func (p *plan) writeNPY(dir string, written *[]string) error {
 			descr = "<i8"
 		}
 		err = write(q.def.name+".npy", descr, append([]int{nf}, q.dims...), func(n *npyWriter) error {
-			return p.each([]*quantity{q}, func(_ []int, vals [][]float64) error {
+			return p.each([]*quantity{q}, func(_ int, _ []int, vals [][]float64) error {
 				for _, v := range vals[0] {
 					n.put(v)
 				}
