@@ -154,11 +154,11 @@ func (q *quantity) appendJSON(b []byte, v float64) []byte {
 
 // plan is a selection resolved against one open file.
 type plan struct {
-	r      *trajfile.Reader
-	sel    Selection
+	r   *trajfile.Reader
+	sel Selection
 	// clock holds the steps and times of the selected frames only,
 	// indexed like frames.
-	clock *clockColumns
+	clock  *clockColumns
 	frames []int
 	atoms  []int // nil = all
 	states []int // nil = all
