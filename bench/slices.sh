@@ -76,7 +76,7 @@ win_xz() { { xz -dc "$work/geom.xyz.xz" 2>/dev/null || true; } | grep -m1 -A$((w
 # Check that the methods agree before timing them: the frame's atom lines
 # from the text and from trajvault are the same digits.
 one_zstd | tail -n 3 >"$work/want"
-one_export
+one_export >/dev/null
 tail -n 3 "$work/o/traj.extxyz" | awk '{ print $1, $2, $3, $4, $5, $6, $7, $8, $9, $10 }' >"$work/got"
 awk '{ print $1, $2, $3, $4, $5, $6, $7, $8, $9, $10 }' "$work/want" >"$work/want2"
 cmp -s "$work/want2" "$work/got" || { echo "bench: slices: exported frame differs from the text" >&2; diff "$work/want2" "$work/got" >&2; exit 1; }
@@ -99,18 +99,24 @@ row "xz -6 text: decompress frames $mid..$((mid + win - 1))" "$XZRUNS" win_xz
 section=$(
 	echo "## Slices: one frame and a window out of a long run"
 	echo
-	echo "Made by \`make bench\` (bench/slices.sh) on $(date -u +%Y-%m-%d), same machine; load average at the end: $(cut -d' ' -f1-3 /proc/loadavg)."
+	echo "Made by bench/slices.sh (the last part of \`make bench\`) on $(date -u +%Y-%m-%d), same machine; load average at the end: $(cut -d' ' -f1-3 /proc/loadavg)."
 	echo "Input: one invented demo trajectory, $frames frames x 3 atoms; trajectory file $(stat -c %s "$h5") bytes;"
 	echo "geometry text up to the end of the window $(stat -c %s "$work/geom-head.xyz") bytes, zstd -3 $(stat -c %s "$work/geom.xyz.zst") bytes, xz -6 $(stat -c %s "$work/geom.xyz.xz") bytes."
 	echo "Wall time of the whole command (process start included), warm page cache; median of $RUNS runs ($XZRUNS for xz)."
 	echo "The exported frame was checked digit for digit against the text before timing. The floor rows show what"
 	echo "starting any process costs on this machine at the time of the run; compare the rows with them."
 	echo
-	echo "| command | median ms | fastest ms | slowest ms |"
-	echo "|---|---:|---:|---:|"
+	echo "| command | median ms | fastest ms | slowest ms | median over trajvault --version ms |"
+	echo "|---|---:|---:|---:|---:|"
+	floor=""
 	for r in "${rows[@]}"; do
 		IFS=';' read -r name med lo hi <<<"$r"
-		echo "| ${name//|/\\|} | $med | $lo | $hi |"
+		over="-"
+		case $name in
+		"floor: trajvault --version") floor=$med ;;
+		trajvault*) over=$(awk -v a="$med" -v b="$floor" 'BEGIN { printf "%.1f", a - b }') ;;
+		esac
+		echo "| ${name//|/\\|} | $med | $lo | $hi | $over |"
 	done
 )
 # Replace an earlier section (from its heading to the end) or append.

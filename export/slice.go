@@ -39,8 +39,11 @@ type Options struct {
 
 // defaults are the quantities a format writes when the selection names
 // none.
-func defaults(format string, restart bool) []string {
+func defaults(format string, restart bool, sel Selection) []string {
 	switch {
+	case format == FormatCSV && sel.Atoms != "":
+		// Atoms were chosen: their positions are what was asked for.
+		return []string{"position", "kinetic_energy", "potential_energy", "total_energy", "active_state", "state_energies", "populations"}
 	case restart:
 		return []string{"position", "velocity", "force", "kinetic_energy", "potential_energy", "total_energy",
 			"active_state", "state_energies", "populations", "amplitudes", "couplings"}
@@ -80,7 +83,7 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 		return nil, err
 	}
 	defer r.Close()
-	p, err := resolve(r, o.Sel, defaults(o.Format, o.Restart))
+	p, err := resolve(r, o.Sel, defaults(o.Format, o.Restart, o.Sel))
 	if err != nil {
 		return nil, err
 	}
@@ -156,7 +159,7 @@ func WriteValues(w io.Writer, in string, sel Selection, format string) error {
 		return err
 	}
 	defer r.Close()
-	p, err := resolve(r, sel, defaults(FormatJSON, false))
+	p, err := resolve(r, sel, defaults(FormatJSON, false, sel))
 	if err != nil {
 		return err
 	}

@@ -308,3 +308,21 @@ func TestSelectionErrors(t *testing.T) {
 		})
 	}
 }
+
+// TestCSVAtomsDefault: choosing atoms without naming quantities writes
+// their positions (besides the per-frame observables), never nothing.
+func TestCSVAtomsDefault(t *testing.T) {
+	h5path := convertDir(t, testenv.LegacyLogs(t, 20))
+	out := filepath.Join(t.TempDir(), "c")
+	if _, err := export.ExportSelection(h5path, out, export.Options{Format: export.FormatCSV, Sel: export.Selection{Atoms: "H", Frames: "2:4"}}); err != nil {
+		t.Fatal(err)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "values.csv"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(strings.TrimSpace(string(b)), "\n")
+	if len(lines) != 4 || !strings.HasPrefix(lines[1], "frame,step,time[fs],position_1_x[angstrom],") || strings.Contains(lines[1], "position_0_") {
+		t.Errorf("values.csv:\n%s", b)
+	}
+}
