@@ -106,3 +106,8 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 		echo "| $c | $bytes |"
 	done
 } | tee bench/results.md
+
+# Slices (bench/slices.sh): one frame and a 1,000-frame window out of a
+# 1e6-frame run against reaching them in compressed text; appends its
+# own section to bench/results.md.
+bench/slices.sh

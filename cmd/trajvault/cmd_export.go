@@ -3,52 +3,113 @@ package main
 import (
 	"errors"
 	"fmt"
+	"strconv"
+	"strings"
 
 	"github.com/spf13/cobra"
 
 	"trajvault/export"
 )
 
+// selectFlags are the selection options shared by export and inspect
+// --values.
+type selectFlags struct {
+	sel        export.Selection
+	quantities string
+}
+
+func (o *selectFlags) AddFlags(c *cobra.Command) {
+	c.Flags().StringVar(&o.sel.Frames, "frames", "", "frames by index from 0: N or START:STOP[:STRIDE] (STOP excluded, negatives count from the end), e.g. 500000:501000")
+	c.Flags().StringVar(&o.sel.Time, "time", "", "frames by time: T0:T1[:DT] with a unit (T1 excluded), e.g. 10fs:20fs or 0:1:0.1ps")
+	c.Flags().StringVar(&o.sel.Atoms, "atoms", "", "atoms by index from 0, inclusive range or element, e.g. 0-2,7,H")
+	c.Flags().StringVar(&o.quantities, "quantities", "", "comma-separated quantities: "+strings.Join(export.QuantityNames(), ", "))
+	c.Flags().StringVar(&o.sel.States, "states", "", "electronic states by index from 0, e.g. 0,1 (subsets state energies, populations, amplitudes, couplings, hops)")
+}
+
+func (o *selectFlags) selection() export.Selection {
+	s := o.sel
+	if o.quantities != "" {
+		s.Quantities = strings.Split(o.quantities, ",")
+	}
+	return s
+}
+
 type exportOptions struct {
 	out    string
 	format string
+	frame  int
+	selectFlags
 }
 
 func (o *exportOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVarP(&o.out, "output", "o", "", "folder to write (must not exist)")
-	c.Flags().StringVar(&o.format, "format", "xyz", "xyz, extxyz (with velocities, forces, energy) or csv (observables per frame)")
+	c.Flags().StringVar(&o.format, "format", "xyz", "xyz, extxyz (with velocities, forces, energy), csv (observables per frame), json or npy (NumPy arrays, one file per quantity)")
+	c.Flags().IntVar(&o.frame, "frame", -1, "write one whole frame (all stored quantities) for a restart, e.g. --frame 5000 --format extxyz")
+	o.selectFlags.AddFlags(c)
 }
 
 func newExportCommand(g *globals) *cobra.Command {
 	var o exportOptions
 	c := &cobra.Command{
 		Use:   "export FILE.h5 -o DIR",
-		Short: "Write a trajectory file back to text (XYZ, extended XYZ or CSV)",
+		Short: "Write a trajectory file, or a window of it, as text or NumPy arrays",
 		Long: `export writes a trajectory file back to text, printing every number in the
 precision recorded at conversion, so that converted logs come back digit
 for digit; numbers without a recorded precision are printed in the
 shortest form that reads back to the same float64.
 
-Exit status: 0 success, 2 usage or I/O error.`,
-		Example: "  trajvault export traj-001.h5 -o traj-001-text --format extxyz",
-		Args:    cobra.ExactArgs(1),
+Selections (--frames or --time, --atoms, --quantities, --states) write a
+window of the file, reading only the chunks that hold it; selection.json
+in DIR says what was selected. Indices count from 0. --format npy writes
+one NumPy .npy file per quantity (numpy.load reads it without h5py).
+--frame N writes frame N whole (positions, velocities, forces, energies,
+active state, populations, amplitudes where stored) to restart from.
+
+Exit status: 0 success, 2 usage or I/O error (including a selection
+outside the data; the message says what the file holds).`,
+		Example: `  trajvault export traj-001.h5 -o traj-001-text --format extxyz
+  trajvault export run.h5 -o window --frames 500000:501000 --atoms 0-2 --quantities position,total_energy --format npy
+  trajvault export run.h5 -o restart --frame 5000 --format extxyz`,
+		Args: cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("export: name the output folder with -o, e.g. -o traj-001-text")}
 			}
+			if c.Flags().Changed("frame") {
+				if o.sel.Frames != "" || o.sel.Time != "" {
+					return &exitError{exitUsage, errors.New("export: --frame names one frame; drop --frames/--time, e.g. --frame 5000")}
+				}
+				if o.frame < 0 {
+					return &exitError{exitUsage, errors.New("export: --frame must be a frame index from 0, e.g. --frame 5000")}
+				}
+			}
 			return nil
 		},
 		RunE: func(c *cobra.Command, args []string) error {
-			files, err := export.Export(args[0], o.out, o.format)
-			if err != nil {
-				return &exitError{exitUsage, err}
-			}
-			for _, f := range files {
-				fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
-			}
-			return nil
+			return runExport(g, c.Flags().Changed("frame"), o, args[0])
 		},
 	}
 	o.AddFlags(c)
 	return c
+}
+
+func runExport(g *globals, restart bool, o exportOptions, in string) error {
+	sel := o.selection()
+	var files []string
+	var err error
+	if sel.Empty() && !restart && (o.format == export.FormatXYZ || o.format == export.FormatExtXYZ || o.format == export.FormatCSV) {
+		files, err = export.Export(in, o.out, o.format) // the whole file, as converted
+	} else {
+		if restart {
+			sel.Frames = strconv.Itoa(o.frame)
+		}
+		files, err = export.ExportSelection(in, o.out, export.Options{Format: o.format, Sel: sel, Restart: restart})
+	}
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
+	}
+	for _, f := range files {
+		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
+	}
+	return nil
 }

@@ -8,15 +8,20 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"trajvault/export"
 	"trajvault/internal/trajfile"
 )
 
 type inspectOptions struct {
-	json bool
+	json   bool
+	values bool
+	selectFlags
 }
 
 func (o *inspectOptions) AddFlags(c *cobra.Command) {
-	c.Flags().BoolVar(&o.json, "json", false, "print the summary as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print the summary (or, with --values, the values) as JSON")
+	c.Flags().BoolVar(&o.values, "values", false, "print the values of a selection (CSV, or JSON with --json) instead of the summary")
+	o.selectFlags.AddFlags(c)
 }
 
 func newInspectCommand(g *globals) *cobra.Command {
@@ -29,10 +34,31 @@ its bulk data: atoms and species, frames, steps and time span, electronic
 states and hops, and every dataset with its type, shape, unit, filters and
 compression ratio (logical size / stored size).
 
-Exit status: 0 success, 2 the file could not be read.`,
-		Example: "  trajvault inspect run-001.h5\n  trajvault inspect --json run-001.h5",
-		Args:    cobra.ExactArgs(1),
-		RunE:    func(c *cobra.Command, args []string) error { return runInspect(g, o, args[0]) },
+--values prints the numbers of a selection instead (--frames or --time,
+--atoms, --quantities, --states; indices from 0), as CSV after a comment
+line saying what was selected, or as JSON with --json; only the chunks
+that hold the selection are read, and numbers keep their recorded digits.
+
+Exit status: 0 success, 2 the file could not be read or the selection
+is outside the data (the message says what the file holds).`,
+		Example: `  trajvault inspect run-001.h5
+  trajvault inspect --json run-001.h5
+  trajvault inspect --values --frames 100:110 --atoms O --quantities position,total_energy run-001.h5`,
+		Args: cobra.ExactArgs(1),
+		PreRunE: func(c *cobra.Command, args []string) error {
+			for _, f := range []string{"frames", "time", "atoms", "quantities", "states"} {
+				if c.Flags().Changed(f) && !o.values {
+					return &exitError{exitUsage, fmt.Errorf("inspect: --%s selects values to print; add --values, e.g. inspect --values --%s ...", f, f)}
+				}
+			}
+			return nil
+		},
+		RunE: func(c *cobra.Command, args []string) error {
+			if o.values {
+				return runValues(g, o, args[0])
+			}
+			return runInspect(g, o, args[0])
+		},
 	}
 	o.AddFlags(c)
 	return c
@@ -89,6 +115,18 @@ func runInspect(g *globals, o inspectOptions, path string) error {
 		fmt.Fprintf(w, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", d.Path, d.Type, shape, unit, filters, human(d.Stored), ratio)
 	}
 	return w.Flush()
+}
+
+// runValues prints the values of a selection.
+func runValues(g *globals, o inspectOptions, path string) error {
+	format := export.FormatCSV
+	if o.json {
+		format = export.FormatJSON
+	}
+	if err := export.WriteValues(g.stdout, path, o.selection(), format); err != nil {
+		return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
+	}
+	return nil
 }
 
 // human formats a byte count with binary prefixes.
