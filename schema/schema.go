@@ -11,6 +11,7 @@ import (
 	"regexp"
 	"sort"
 	"strings"
+	"sync"
 
 	"github.com/santhosh-tekuri/jsonschema/v5"
 )
@@ -96,18 +97,18 @@ func (l *Layout) Find(path string) (Element, bool) {
 	return Element{}, false
 }
 
-var current *Layout
-
-func init() {
+// current parses the embedded layout on first use, not at start-up:
+// commands that never validate (export, inspect) start faster.
+var current = sync.OnceValue(func() *Layout {
 	l, err := parseLayout(layoutJSON)
 	if err != nil {
 		panic("schema: embedded layout.json: " + err.Error())
 	}
-	current = l
-}
+	return l
+})
 
 // Current is the layout this build checks against.
-func Current() *Layout { return current }
+func Current() *Layout { return current() }
 
 func compile(name string, src []byte) (*jsonschema.Schema, error) {
 	c := jsonschema.NewCompiler()

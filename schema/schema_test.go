@@ -45,7 +45,7 @@ func TestLayoutMatchesMarkdown(t *testing.T) {
 		return s
 	}
 	yes := map[bool]string{true: "yes", false: "no"}
-	for _, e := range current.Elements {
+	for _, e := range Current().Elements {
 		r, ok := rows[e.Path]
 		if !ok {
 			t.Errorf("%s: in layout.json, missing from layout.md", e.Path)
