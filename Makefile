@@ -40,7 +40,7 @@ readme: deps-test
 
 # demo: the whole job on the invented demo ensemble: legacy text logs are
 # scanned, packed into a BagIt bundle (trajectory files, RO-Crate,
-# DataCite, dataset card), validated (folder and archive), inspected,
+# DataCite, data description), validated (folder and archive), inspected,
 # audited and exported back to text.
 RECIPE := testdata/recipes/tarnol.yaml
 demo: build
@@ -56,7 +56,7 @@ demo: build
 	$(BIN) inspect demo/bundle/data/trajectories/traj-001.h5
 	$(BIN) audit --report demo/audit.html demo/bundle/data/trajectories
 	$(BIN) export demo/bundle/data/trajectories/traj-001.h5 -o demo/export --format extxyz
-	@echo "demo: bundle demo/bundle (upload file demo/bundle.tar.zst), dataset card demo/bundle/data/README.md, audit report demo/audit.html"
+	@echo "demo: bundle demo/bundle (upload file demo/bundle.tar.zst), data description demo/bundle/data/README.md, audit report demo/audit.html"
 
 fmt-check:
 	@out="$$($(dir $(GO))gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))"; \

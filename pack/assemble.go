@@ -114,7 +114,7 @@ func replace(dir, final string, force bool) error {
 
 // metadataFiles counts what a bag holds besides the trajectory files and
 // their provenance records: tag files (bagit.txt, bag-info.txt, a payload
-// and a tag manifest per algorithm), the card, the crate, the DataCite
+// and a tag manifest per algorithm), the data description, the crate, the DataCite
 // record and the plots. Kept sources are counted per trajectory.
 func metadataFiles(bo BundleOptions) int {
 	return 2 + 2*len(bo.Algorithms) + 3 + len(bo.Plots)

@@ -91,8 +91,8 @@ func WriteBundle(ctx context.Context, dir string, conv []Converted, o BundleOpti
 		}
 		summaries[i] = s
 	}
-	card := datasetCard(conv, summaries, o)
-	if err := os.WriteFile(filepath.Join(data, "README.md"), []byte(card), 0o644); err != nil {
+	desc := dataDescription(conv, summaries, o)
+	if err := os.WriteFile(filepath.Join(data, "README.md"), []byte(desc), 0o644); err != nil {
 		return err
 	}
 	dc, err := json.MarshalIndent(dataCite(o.Deposit, dir, o), "", "  ")

@@ -41,7 +41,7 @@ func newInitCommand(g *globals) *cobra.Command {
 		Use:   "init [FILE]",
 		Short: "Write a commented deposit.yaml template, or check one",
 		Long: `init writes deposit.yaml, the description of a deposit that pack turns into
-RO-Crate and DataCite metadata and the dataset card: title, description,
+RO-Crate and DataCite metadata and the data description: title, description,
 licence (SPDX), creators with ORCID and affiliation, funding, and the
 simulation record (method, electronic structure, states, time step,
 initial conditions, program and version). Fill in what the flags did not.

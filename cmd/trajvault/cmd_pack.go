@@ -47,7 +47,7 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().IntVar(&o.maxFiles, "max-files", 100, "repository limit: files per record (warn above)")
 	c.Flags().Float64Var(&o.maxRecordGB, "max-record-gb", 50, "repository limit: GB per record (warn above)")
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
-	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the dataset card")
+	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the data description")
 	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
@@ -61,7 +61,7 @@ func newPackCommand(g *globals) *cobra.Command {
 BagIt 1.0 bag (RFC 8493): bagit.txt, bag-info.txt, sha512 and sha256
 manifests (and md5 with --md5), tag manifests, and under data/ the
 trajectory files, ro-crate-metadata.json (RO-Crate 1.1), datacite.json
-(DataCite 4.5), a README.md dataset card with the physics audit and plots,
+(DataCite 4.5), a README.md data description with the physics audit and plots,
 and with --keep-sources the original logs compressed with zstd.
 
 The bundle is written to BUNDLE.partial and renamed at the end: an
@@ -186,7 +186,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(bags), b.Dir, b.Trajectories)
 			continue
 		}
-		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\ncard:   %s\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, schema.PayloadDir, "README.md"))
+		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\nabout:  %s (data description)\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, schema.PayloadDir, "README.md"))
 		if o.archive != "" {
 			arch := b.Dir + "." + o.archive
 			if err := pack.WriteArchive(b.Dir, arch, o.archive, o.force); err != nil {

@@ -9,10 +9,10 @@ import (
 	"trajvault/schema"
 )
 
-// datasetCard writes the bundle's README.md: what the data are, who made
+// dataDescription writes the bundle's README.md: what the data are, who made
 // them, how they were produced, how to read them, units, one row per
 // trajectory, the audit summary and the plots.
-func datasetCard(conv []Converted, sums []*trajfile.Summary, o BundleOptions) string {
+func dataDescription(conv []Converted, sums []*trajfile.Summary, o BundleOptions) string {
 	d := o.Deposit
 	var b strings.Builder
 	w := func(format string, args ...any) { fmt.Fprintf(&b, format, args...) }
