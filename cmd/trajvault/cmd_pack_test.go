@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -9,6 +10,8 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"trajvault/internal/testenv"
 )
 
 func packFixture(t *testing.T, trajectories, steps string) (dir, deposit string) {
@@ -202,5 +205,44 @@ func TestPackRequireAudit(t *testing.T) {
 	}
 	if entries, _ := os.ReadDir(dir); len(entries) != 3 {
 		t.Errorf("pack left files behind: %v", entries)
+	}
+}
+
+// TestDataDescriptionCodeRuns: the Python snippets of a bundle's data
+// description run as written with Debian's python3-h5py in the bundle's
+// data folder, and the time axis they rebuild has one entry per frame,
+// starting at 0 and increasing.
+func TestDataDescriptionCodeRuns(t *testing.T) {
+	dir, deposit := packFixture(t, "1", "300")
+	bag := filepath.Join(dir, "bag")
+	if code, _, errs := runCLI("pack", filepath.Join(dir, "logs"), "-o", bag, "--deposit", deposit,
+		"--recipe", repo("testdata", "recipes", "tarnol.yaml"), "--no-audit"); code != 0 {
+		t.Fatalf("pack: %s", errs)
+	}
+	desc, err := os.ReadFile(filepath.Join(bag, "data", "README.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var code []string
+	for _, block := range strings.Split(string(desc), "```python\n")[1:] {
+		code = append(code, strings.SplitN(block, "```", 2)[0])
+	}
+	if len(code) < 2 {
+		t.Fatalf("expected the reading and the time-axis snippets, found %d", len(code))
+	}
+	code = append(code, `print(len(time), x.shape[0], repr(float(time[0])), repr(float(time[-1])))`)
+	cmd := exec.Command(testenv.Python(), "-c", strings.Join(code, "\n"))
+	cmd.Dir = filepath.Join(bag, "data")
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("the data description's Python does not run: %v\n%s\n%s", err, strings.Join(code, "\n"), out)
+	}
+	var n, frames int
+	var t0, t1 float64
+	if _, err := fmt.Sscan(string(out), &n, &frames, &t0, &t1); err != nil {
+		t.Fatalf("output %q: %v", out, err)
+	}
+	if n != frames || frames != 301 || t0 != 0 || t1 <= t0 {
+		t.Errorf("time axis of %d entries for %d frames (want 301), from %g to %g", n, frames, t0, t1)
 	}
 }

@@ -155,7 +155,7 @@ func Make(ctx context.Context, dir string, algs []string, info Info, known Diges
 		}
 	}
 	info.Add("Bagging-Date", now.UTC().Format("2006-01-02"))
-	info.Add("Bag-Size", humanSize(octets))
+	info.Add("Bag-Size", HumanSize(octets))
 	info.Add("Payload-Oxum", fmt.Sprintf("%d.%d", octets, len(files)))
 	if err := write("bag-info.txt", info.Format()); err != nil {
 		return err
@@ -198,7 +198,9 @@ func (d Digest) complete(algs []string) bool {
 	return true
 }
 
-func humanSize(n int64) string {
+// HumanSize writes a byte count in SI units (kB = 1000 B), as Bag-Size
+// does (RFC 8493 sec. 2.2.2).
+func HumanSize(n int64) string {
 	const unit = 1000
 	if n < unit {
 		return fmt.Sprintf("%d B", n)
