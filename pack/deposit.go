@@ -12,6 +12,7 @@ import (
 	"github.com/santhosh-tekuri/jsonschema/v5"
 	"gopkg.in/yaml.v3"
 
+	"trajvault/internal/finding"
 	"trajvault/schema"
 )
 
@@ -75,14 +76,48 @@ type Program struct {
 	Commit  string `yaml:"commit" json:"commit,omitempty"`
 }
 
-// DepositError lists what is wrong with deposit.yaml, field by field.
+// Codes of the findings about deposit.yaml.
+const (
+	DSyntax      = "D1" // not valid YAML
+	DSchema      = "D2" // against schema/deposit.schema.json
+	DPlaceholder = "D3" // a template placeholder is left
+	DLicense     = "D4" // not an SPDX License List identifier
+	DORCID       = "D5" // ORCID check digit wrong
+)
+
+// DepositError lists what is wrong with deposit.yaml, field by field: each
+// finding's Path is the field (a JSON pointer such as /creators/0/orcid).
 type DepositError struct {
 	File     string
-	Problems []string
+	Findings []finding.Finding
 }
 
 func (e *DepositError) Error() string {
-	return fmt.Sprintf("%s: %d problems:\n  %s", e.File, len(e.Problems), strings.Join(e.Problems, "\n  "))
+	var b strings.Builder
+	fmt.Fprintf(&b, "%s: %d problem", e.File, len(e.Findings))
+	if len(e.Findings) != 1 {
+		b.WriteString("s")
+	}
+	b.WriteString(":")
+	for _, f := range e.Findings {
+		fmt.Fprintf(&b, "\n  %s %s: %s", f.Code, f.Path, f.Message)
+	}
+	return b.String()
+}
+
+// problems collects deposit findings from "field: message" lines.
+type problems struct {
+	file string
+	list []finding.Finding
+}
+
+func (p *problems) add(code, line string) {
+	field, msg, ok := strings.Cut(line, ": ")
+	if !ok || !strings.HasPrefix(field, "/") {
+		field, msg = "/", line
+	}
+	p.list = append(p.list, finding.Finding{Code: code, Severity: finding.Error,
+		Location: finding.Location{File: p.file, Path: field}, Message: msg})
 }
 
 // LoadDeposit reads and checks deposit.yaml.
@@ -91,9 +126,11 @@ func LoadDeposit(path string) (*Deposit, error) {
 	if err != nil {
 		return nil, err
 	}
+	probs := &problems{file: path}
 	var doc any
 	if err := yaml.Unmarshal(raw, &doc); err != nil {
-		return nil, &DepositError{File: path, Problems: []string{"not valid YAML: " + err.Error()}}
+		probs.add(DSyntax, "not valid YAML: "+err.Error())
+		return nil, &DepositError{File: path, Findings: probs.list}
 	}
 	js, _ := json.Marshal(doc)
 	var generic any
@@ -102,34 +139,37 @@ func LoadDeposit(path string) (*Deposit, error) {
 	if err != nil {
 		return nil, err
 	}
-	var problems []string
 	if err := sch.Validate(generic); err != nil {
 		var ve *jsonschema.ValidationError
 		if errors.As(err, &ve) {
-			problems = append(problems, flatten(ve)...)
+			for _, l := range flatten(ve) {
+				probs.add(DSchema, l)
+			}
 		} else {
-			problems = append(problems, err.Error())
+			probs.add(DSchema, err.Error())
 		}
 	}
 	var d Deposit
 	dec := yaml.NewDecoder(bytes.NewReader(raw))
 	dec.KnownFields(true)
-	if err := dec.Decode(&d); err != nil && len(problems) == 0 {
-		problems = append(problems, err.Error())
+	if err := dec.Decode(&d); err != nil && len(probs.list) == 0 {
+		probs.add(DSchema, err.Error())
 	}
-	problems = append(problems, d.placeholders()...)
+	for _, l := range d.placeholders() {
+		probs.add(DPlaceholder, l)
+	}
 	if d.License != "" {
 		if ok, _ := spdxexp.ActiveLicense(d.License); !ok {
-			problems = append(problems, fmt.Sprintf("/license: %q is not an identifier of the SPDX License List; write one such as CC-BY-4.0 or CC0-1.0 (https://spdx.org/licenses/)", d.License))
+			probs.add(DLicense, fmt.Sprintf("/license: %q is not an identifier of the SPDX License List; write one such as CC-BY-4.0 or CC0-1.0 (https://spdx.org/licenses/)", d.License))
 		}
 	}
 	for i, c := range d.Creators {
 		if c.ORCID != "" && !ValidORCID(c.ORCID) {
-			problems = append(problems, fmt.Sprintf("/creators/%d/orcid: %s fails the ORCID check digit (ISO 7064 MOD 11-2); copy it from orcid.org", i, c.ORCID))
+			probs.add(DORCID, fmt.Sprintf("/creators/%d/orcid: %s fails the ORCID check digit (ISO 7064 MOD 11-2); copy it from orcid.org", i, c.ORCID))
 		}
 	}
-	if len(problems) > 0 {
-		return nil, &DepositError{File: path, Problems: problems}
+	if len(probs.list) > 0 {
+		return nil, &DepositError{File: path, Findings: probs.list}
 	}
 	return &d, nil
 }

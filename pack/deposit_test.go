@@ -28,10 +28,17 @@ func TestLoadDepositNamesFields(t *testing.T) {
 	if !ok {
 		t.Fatalf("err = %v", err)
 	}
-	text := strings.Join(de.Problems, "\n")
+	text := de.Error()
 	for _, want := range []string{"description", "/title", "/creators/0/orcid"} {
 		if !strings.Contains(text, want) {
 			t.Errorf("problems lack %q:\n%s", want, text)
 		}
+	}
+	codes := map[string]string{}
+	for _, f := range de.Findings {
+		codes[f.Path] = f.Code
+	}
+	if codes["/creators/0/orcid"] != DORCID || codes["/title"] != DSchema {
+		t.Errorf("codes by field: %v", codes)
 	}
 }

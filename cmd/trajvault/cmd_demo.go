@@ -16,6 +16,7 @@ type demoOptions struct {
 	steps        int
 	seed         uint64
 	text         bool
+	json         bool
 	stride       int
 	decimals     int
 	molecules    int
@@ -29,6 +30,7 @@ type demoOptions struct {
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().IntVar(&o.trajectories, "trajectories", 4, "number of trajectories in the invented ensemble")
+	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
 	c.Flags().IntVar(&o.steps, "steps", demo.DefaultOptions.Steps, "integration steps per trajectory")
 	c.Flags().Uint64Var(&o.seed, "seed", 1, "seed of the first trajectory (the others follow)")
 	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
@@ -101,6 +103,13 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 	if o.text {
 		kind = "text-log folders"
 	}
-	fmt.Fprintf(g.stdout, "wrote %d invented demo %s to %s\n", o.trajectories, kind, dir)
+	if o.json {
+		return printEnvelope(g, "demo", nil, map[string]any{"output": dir, "trajectories": o.trajectories, "kind": kind})
+	}
+	noun := "trajectory"
+	if o.trajectories != 1 {
+		noun = "trajectories"
+	}
+	fmt.Fprintf(g.stdout, "wrote %d invented demo %s (%s) to %s\n", o.trajectories, noun, kind, dir)
 	return nil
 }

@@ -38,6 +38,7 @@ type exportOptions struct {
 	out    string
 	format string
 	frame  int
+	json   bool
 	selectFlags
 }
 
@@ -45,6 +46,7 @@ func (o *exportOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVarP(&o.out, "output", "o", "", "folder to write (must not exist)")
 	c.Flags().StringVar(&o.format, "format", "xyz", "xyz, extxyz (with velocities, forces, energy), csv (observables per frame), json or npy (NumPy arrays, one file per quantity)")
 	c.Flags().IntVar(&o.frame, "frame", -1, "write one whole frame (all stored quantities) for a restart, e.g. --frame 5000 --format extxyz")
+	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
 	o.selectFlags.AddFlags(c)
 }
 
@@ -107,6 +109,9 @@ func runExport(g *globals, restart bool, o exportOptions, in string) error {
 	}
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
+	}
+	if o.json {
+		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": o.format, "files": files})
 	}
 	for _, f := range files {
 		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)

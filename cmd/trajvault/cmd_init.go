@@ -2,18 +2,21 @@ package main
 
 import (
 	"bufio"
+	"errors"
 	"fmt"
 	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
 
+	"trajvault/internal/finding"
 	"trajvault/pack"
 )
 
 type initOptions struct {
 	out      string
 	check    bool
+	json     bool
 	title    string
 	desc     string
 	license  string
@@ -26,6 +29,7 @@ type initOptions struct {
 func (o *initOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVarP(&o.out, "output", "o", "deposit.yaml", "file to write (must not exist)")
 	c.Flags().BoolVar(&o.check, "check", false, "check an existing deposit.yaml instead of writing one")
+	c.Flags().BoolVar(&o.json, "json", false, "print the result as one JSON document (tool, command, findings, result)")
 	c.Flags().StringVar(&o.title, "title", "", "title")
 	c.Flags().StringVar(&o.desc, "description", "", "description: what was simulated, why, and what the files hold")
 	c.Flags().StringVar(&o.license, "license", "CC-BY-4.0", "SPDX licence identifier (CC-BY-4.0 suggested, or CC0-1.0)")
@@ -76,13 +80,22 @@ Exit status: 0 success (or a valid file), 1 the file has problems,
 }
 
 func runInit(g *globals, o initOptions) error {
+	result := map[string]string{"file": o.out}
 	if o.check {
 		if _, err := pack.LoadDeposit(o.out); err != nil {
-			if de, ok := err.(*pack.DepositError); ok {
-				fmt.Fprintln(g.stdout, de.Error())
-				return errFindings
+			var de *pack.DepositError
+			if !errors.As(err, &de) {
+				return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
 			}
-			return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
+			if o.json {
+				printEnvelope(g, "init --check", de.Findings, result)
+			} else {
+				fmt.Fprintln(g.stdout, de.Error())
+			}
+			return errFindings
+		}
+		if o.json {
+			return printEnvelope(g, "init --check", nil, result)
 		}
 		fmt.Fprintf(g.stdout, "%s: ok\n", o.out)
 		return nil
@@ -121,8 +134,21 @@ func runInit(g *globals, o initOptions) error {
 	if err := writeAtomically(o.out, func(w *os.File) error { _, err := w.Write(text); return err }); err != nil {
 		return &exitError{exitUsage, fmt.Errorf("init: %w", err)}
 	}
+	// What is still to fill in: findings of the new file, as warnings
+	// (writing it succeeded; init --check and pack refuse them).
+	var todo []finding.Finding
+	_, err = pack.LoadDeposit(o.out)
+	if de := (*pack.DepositError)(nil); errors.As(err, &de) {
+		for _, f := range de.Findings {
+			f.Severity = finding.Warning
+			todo = append(todo, f)
+		}
+	}
+	if o.json {
+		return printEnvelope(g, "init", todo, result)
+	}
 	fmt.Fprintf(g.stdout, "wrote %s; fill in the rest, then: trajvault init --check %s\n", o.out, o.out)
-	if _, err := pack.LoadDeposit(o.out); err != nil {
+	if err != nil {
 		fmt.Fprintln(g.stdout, err)
 	}
 	return nil

@@ -14,6 +14,7 @@ import (
 
 	"trajvault/audit"
 	"trajvault/ingest"
+	"trajvault/internal/finding"
 	"trajvault/pack"
 	"trajvault/schema"
 )
@@ -32,6 +33,7 @@ type packOptions struct {
 	maxFileGB   float64
 	noAudit     bool
 	require     string
+	json        bool
 	split       bool
 }
 
@@ -48,6 +50,7 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.maxRecordGB, "max-record-gb", 50, "repository limit: GB per record (warn above)")
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
 	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the data description")
+	c.Flags().BoolVar(&o.json, "json", false, "print the result as one JSON document (tool, command, findings, result)")
 	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
@@ -138,6 +141,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if o.md5 {
 		bo.Algorithms = append(bo.Algorithms, "md5")
 	}
+	auditVerdict := "not run"
 	if !o.noAudit {
 		var files []string
 		for _, c := range conv {
@@ -152,6 +156,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 				return fail(errors.New(t.Error))
 			}
 		}
+		auditVerdict = string(rep.Verdict)
 		verdict := fmt.Sprintf("%s; %d of %d trajectories flagged", rep.Verdict, rep.Flagged, len(rep.Trajectories))
 		fmt.Fprintf(g.stderr, "trajvault: pack: audit verdict %s (details in the bundle's data/README.md;\n  run trajvault audit --report FILE.html on the bundle for the full report)\n", verdict)
 		if !auditAccepted(rep.Verdict, o.require) {
@@ -178,21 +183,39 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return fail(err)
 	}
-	for i, b := range bags {
-		for _, f := range pack.CheckLimits(b.Dir, lim) {
-			fmt.Fprintf(g.stderr, "trajvault: pack: %s\n", f)
-		}
-		if len(bags) > 1 {
-			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(bags), b.Dir, b.Trajectories)
-			continue
-		}
-		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\nabout:  %s (data description)\n", b.Dir, b.Trajectories, strings.Join(bo.Algorithms, ", "), filepath.Join(b.Dir, schema.PayloadDir, "README.md"))
-		if o.archive != "" {
-			arch := b.Dir + "." + o.archive
-			if err := pack.WriteArchive(b.Dir, arch, o.archive, o.force); err != nil {
+	type bagResult struct {
+		Dir          string `json:"dir"`
+		Trajectories int    `json:"trajectories"`
+		Description  string `json:"data_description"`
+		Archive      string `json:"archive,omitempty"`
+	}
+	var made []bagResult
+	var findings []finding.Finding
+	for _, b := range bags {
+		r := bagResult{Dir: b.Dir, Trajectories: b.Trajectories, Description: filepath.Join(b.Dir, schema.PayloadDir, "README.md")}
+		if o.archive != "" && len(bags) == 1 {
+			r.Archive = b.Dir + "." + o.archive
+			if err := pack.WriteArchive(b.Dir, r.Archive, o.archive, o.force); err != nil {
 				return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 			}
-			fmt.Fprintf(g.stdout, "upload: %s\n", arch)
+		}
+		made = append(made, r)
+		findings = append(findings, pack.CheckLimits(b.Dir, lim)...)
+	}
+	if o.json {
+		return printEnvelope(g, "pack", findings, map[string]any{"bags": made, "audit_verdict": auditVerdict})
+	}
+	for _, f := range findings {
+		fmt.Fprintf(g.stderr, "trajvault: pack: %s\n", f)
+	}
+	for i, r := range made {
+		if len(made) > 1 {
+			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(made), r.Dir, r.Trajectories)
+			continue
+		}
+		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\nabout:  %s (data description)\n", r.Dir, r.Trajectories, strings.Join(bo.Algorithms, ", "), r.Description)
+		if r.Archive != "" {
+			fmt.Fprintf(g.stdout, "upload: %s\n", r.Archive)
 		}
 	}
 	return nil
