@@ -33,7 +33,7 @@ func TestJSONEnvelope(t *testing.T) {
 			continue
 		}
 		var e struct {
-			Tool struct{ Name, Version string }
+			Tool     struct{ Name, Version string }
 			Command  string
 			OK       *bool
 			Findings []map[string]any
