@@ -2,7 +2,10 @@ package main
 
 import (
 	"encoding/json"
+	"errors"
 	"fmt"
+	"path"
+	"sort"
 	"strings"
 	"text/tabwriter"
 
@@ -27,7 +30,7 @@ func (o *inspectOptions) AddFlags(c *cobra.Command) {
 func newInspectCommand(g *globals) *cobra.Command {
 	var o inspectOptions
 	c := &cobra.Command{
-		Use:   "inspect FILE.h5",
+		Use:   "inspect FILE.h5...",
 		Short: "Summarise a trajectory file: atoms, frames, time span, states, units, compression",
 		Long: `inspect prints a compact summary of one trajectory file without reading
 its bulk data: atoms and species, frames, steps and time span, electronic
@@ -44,7 +47,7 @@ is outside the data (the message says what the file holds).`,
 		Example: `  trajvault inspect run-001.h5
   trajvault inspect --json run-001.h5
   trajvault inspect --values --frames 100:110 --atoms O --quantities position,total_energy run-001.h5`,
-		Args: cobra.ExactArgs(1),
+		Args: cobra.MinimumNArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			for _, f := range []string{"frames", "time", "atoms", "quantities", "states"} {
 				if c.Flags().Changed(f) && !o.values {
@@ -55,13 +58,45 @@ is outside the data (the message says what the file holds).`,
 		},
 		RunE: func(c *cobra.Command, args []string) error {
 			if o.values {
+				if len(args) > 1 {
+					return &exitError{exitUsage, errors.New("inspect: --values reads one file; run it once per file")}
+				}
 				return runValues(g, o, args[0])
 			}
-			return runInspect(g, o, args[0])
+			if o.json && len(args) > 1 {
+				return inspectJSON(g, args)
+			}
+			for i, a := range args {
+				if i > 0 {
+					fmt.Fprintln(g.stdout)
+				}
+				if err := runInspect(g, o, a); err != nil {
+					return err
+				}
+			}
+			return nil
 		},
 	}
 	o.AddFlags(c)
 	return c
+}
+
+// inspectJSON prints the summaries of several files as one JSON array.
+func inspectJSON(g *globals, paths []string) error {
+	var all []*trajfile.Summary
+	for _, p := range paths {
+		s, err := trajfile.Summarize(p)
+		if err != nil {
+			return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
+		}
+		all = append(all, s)
+	}
+	b, err := json.MarshalIndent(all, "", "  ")
+	if err != nil {
+		return err
+	}
+	_, err = fmt.Fprintln(g.stdout, string(b))
+	return err
 }
 
 func runInspect(g *globals, o inspectOptions, path string) error {
@@ -78,7 +113,8 @@ func runInspect(g *globals, o inspectOptions, path string) error {
 		return nil
 	}
 	w := tabwriter.NewWriter(g.stdout, 0, 0, 2, ' ', 0)
-	fmt.Fprintf(w, "file\t%s (%s, H5MD %s, written by %s)\n", s.File, human(s.FileBytes), s.H5MD, s.Creator)
+	fmt.Fprintf(w, "file\t%s\n", s.File)
+	fmt.Fprintf(w, "format\t%s, H5MD %s, written by %s\n", human(s.FileBytes), s.H5MD, s.Creator)
 	fmt.Fprintf(w, "author\t%s\n", s.Author)
 	fmt.Fprintf(w, "modules\t%s\n", strings.Join(s.Modules, ", "))
 	for _, p := range s.Groups {
@@ -95,26 +131,109 @@ func runInspect(g *globals, o inspectOptions, path string) error {
 	fmt.Fprintf(w, "storage\t%s of data in %s (ratio %.2f)\n", human(s.Logical), human(s.Stored), s.Ratio)
 	w.Flush()
 	fmt.Fprintln(g.stdout)
-	w = tabwriter.NewWriter(g.stdout, 0, 0, 2, ' ', 0)
-	fmt.Fprintln(w, "DATASET\tTYPE\tSHAPE\tUNIT\tFILTERS\tSTORED\tRATIO")
+	// One row per dataset, under the group that holds it, within 80
+	// columns: filters abbreviated, with a legend.
+	paths := map[string]bool{}
 	for _, d := range s.Datasets {
-		shape := "scalar"
+		paths[d.Path] = true
+	}
+	type row struct{ dir, name, shape, unit, filters, stored, ratio string }
+	var rows []row
+	used := map[string]bool{}
+	for _, d := range s.Datasets {
+		r := row{shape: "scalar", unit: d.Unit, filters: "-", stored: human(d.Stored), ratio: "-"}
+		r.dir, r.name = datasetPlace(d.Path, paths)
 		if len(d.Shape) > 0 {
-			shape = strings.Trim(strings.ReplaceAll(fmt.Sprint(d.Shape), " ", "x"), "[]")
+			r.shape = strings.Trim(strings.ReplaceAll(fmt.Sprint(d.Shape), " ", "x"), "[]")
 		}
-		unit, filters, ratio := d.Unit, strings.Join(d.Filters, "+"), "-"
-		if unit == "" {
-			unit = "-"
+		if r.unit == "" {
+			r.unit = "-"
 		}
-		if filters == "" {
-			filters = "-"
+		var fl []string
+		for _, f := range d.Filters {
+			fl = append(fl, filterAbbrev(f))
+			used[f] = true
+		}
+		if len(fl) > 0 {
+			r.filters = strings.Join(fl, "+")
 		}
 		if d.Ratio > 0 {
-			ratio = fmt.Sprintf("%.2f", d.Ratio)
+			r.ratio = fmt.Sprintf("%.2f", d.Ratio)
 		}
-		fmt.Fprintf(w, "%s\t%s\t%s\t%s\t%s\t%s\t%s\n", d.Path, d.Type, shape, unit, filters, human(d.Stored), ratio)
+		rows = append(rows, r)
 	}
-	return w.Flush()
+	sort.SliceStable(rows, func(a, b int) bool {
+		if rows[a].dir != rows[b].dir {
+			return rows[a].dir < rows[b].dir
+		}
+		return rows[a].name < rows[b].name
+	})
+	width := func(col func(row) string, head string) int {
+		n := len(head)
+		for _, r := range rows {
+			n = max(n, len(col(r)))
+		}
+		return n
+	}
+	wn := width(func(r row) string { return "  " + r.name }, "DATASET")
+	ws := width(func(r row) string { return r.shape }, "SHAPE")
+	wu := width(func(r row) string { return r.unit }, "UNIT")
+	wf := width(func(r row) string { return r.filters }, "FILTERS")
+	wb := width(func(r row) string { return r.stored }, "STORED")
+	line := func(a, b, c, d, e, f string) {
+		fmt.Fprintf(g.stdout, "%-*s %-*s %-*s %-*s %*s %6s\n", wn, a, ws, b, wu, c, wf, d, wb, e, f)
+	}
+	line("DATASET", "SHAPE", "UNIT", "FILTERS", "STORED", "RATIO")
+	group := ""
+	for _, r := range rows {
+		if r.dir != group {
+			fmt.Fprintln(g.stdout, r.dir)
+			group = r.dir
+		}
+		line("  "+r.name, r.shape, r.unit, r.filters, r.stored, r.ratio)
+	}
+	if len(used) > 0 {
+		var legend []string
+		for f := range used {
+			legend = append(legend, filterAbbrev(f)+" "+f)
+		}
+		sort.Strings(legend)
+		fmt.Fprintf(g.stdout, "filters: %s\nRATIO is the data size over the stored size.\n", strings.Join(legend, ", "))
+	}
+	return nil
+}
+
+// datasetPlace splits a dataset path into the group it is listed under
+// and the name shown: a time-dependent element (a group with value,
+// H5MD 1.1) is shown by its name, its step and time as element/step and
+// element/time.
+func datasetPlace(p string, paths map[string]bool) (dir, name string) {
+	el := strings.TrimSuffix(p, trajfile.Value)
+	dir, name = path.Split(el)
+	if (name == "step" || name == "time") && paths[dir+"value"] {
+		d, e := path.Split(strings.TrimSuffix(dir, "/"))
+		return d, e + "/" + name
+	}
+	return dir, name
+}
+
+// filterAbbrev is the short name of an HDF5 filter in inspect's table.
+func filterAbbrev(f string) string {
+	switch f {
+	case "scaleoffset":
+		return "so"
+	case "deflate":
+		return "z"
+	case "shuffle":
+		return "sh"
+	case "fletcher32":
+		return "f32"
+	case "nbit":
+		return "nb"
+	case "szip":
+		return "sz"
+	}
+	return f
 }
 
 // runValues prints the values of a selection.

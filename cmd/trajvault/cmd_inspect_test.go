@@ -44,3 +44,18 @@ func TestInspectValues(t *testing.T) {
 		t.Errorf("json values: exit %d, %s", code, stdout)
 	}
 }
+
+// TestInspectSeveralFiles: inspect takes several files (issue 15), one
+// summary each, or one JSON array with --json.
+func TestInspectSeveralFiles(t *testing.T) {
+	a, b := demoFile(t), demoFile(t)
+	code, out, errs := runCLI("inspect", a, b)
+	if code != 0 || strings.Count(out, "DATASET") != 2 || !strings.Contains(out, a) || !strings.Contains(out, b) {
+		t.Fatalf("exit %d\n%s%s", code, out, errs)
+	}
+	code, out, _ = runCLI("inspect", "--json", a, b)
+	var all []map[string]any
+	if code != 0 || json.Unmarshal([]byte(out), &all) != nil || len(all) != 2 {
+		t.Errorf("inspect --json of two files: exit %d, %q", code, out)
+	}
+}

@@ -108,9 +108,14 @@ func TestInspect(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
-	for _, want := range []string{"3 atoms (H2O)", "51 frames", "0..2.5 fs, 0.05 fs per step", "2 electronic states", "/particles/all/position/value", "angstrom", "shuffle+deflate+fletcher32"} {
+	for _, want := range []string{"3 atoms (H2O)", "51 frames", "0..2.5 fs, 0.05 fs per step", "2 electronic states", "/particles/all/\n", "  position ", "angstrom", "sh+z+f32", "sh shuffle"} {
 		if !strings.Contains(out, want) {
 			t.Errorf("inspect output lacks %q:\n%s", want, out)
+		}
+	}
+	for i, line := range strings.Split(out, "\n") {
+		if len(line) > 80 && !strings.HasPrefix(line, "file ") {
+			t.Errorf("inspect line %d is %d columns wide (80 at most):\n%s", i+1, len(line), line)
 		}
 	}
 	code, out, _ = runCLI("inspect", "--json", demoFile(t))
