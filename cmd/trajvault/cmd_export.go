@@ -1,8 +1,11 @@
 package main
 
 import (
+	"bytes"
 	"errors"
 	"fmt"
+	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 
@@ -39,11 +42,13 @@ type exportOptions struct {
 	format string
 	frame  int
 	json   bool
+	// formatSet says --format was given (not its default).
+	formatSet bool
 	selectFlags
 }
 
 func (o *exportOptions) AddFlags(c *cobra.Command) {
-	c.Flags().StringVarP(&o.out, "output", "o", "", "folder to write (must not exist)")
+	c.Flags().StringVarP(&o.out, "output", "o", "", "folder to write, or one file NAME.xyz|.extxyz|.csv|.json (must not exist)")
 	c.Flags().StringVar(&o.format, "format", "xyz", "xyz, extxyz (with velocities, forces, energy), csv (observables per frame), json or npy (NumPy arrays, one file per quantity)")
 	c.Flags().IntVar(&o.frame, "frame", -1, "write one whole frame (all stored quantities) for a restart, e.g. --frame 5000 --format extxyz")
 	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
@@ -88,6 +93,7 @@ outside the data; the message says what the file holds).`,
 			return nil
 		},
 		RunE: func(c *cobra.Command, args []string) error {
+			o.formatSet = c.Flags().Changed("format")
 			return runExport(g, c.Flags().Changed("frame"), o, args[0])
 		},
 	}
@@ -95,7 +101,14 @@ outside the data; the message says what the file holds).`,
 	return c
 }
 
+// fileFormats are the formats whose output is one file: -o NAME.EXT
+// writes that file rather than a folder.
+var fileFormats = map[string]string{".xyz": export.FormatXYZ, ".extxyz": export.FormatExtXYZ, ".csv": export.FormatCSV, ".json": export.FormatJSON}
+
 func runExport(g *globals, restart bool, o exportOptions, in string) error {
+	if format, ok := fileFormats[strings.ToLower(filepath.Ext(o.out))]; ok {
+		return exportFile(g, restart, o, in, format)
+	}
 	sel := o.selection()
 	var files []string
 	var err error
@@ -116,5 +129,49 @@ func runExport(g *globals, restart bool, o exportOptions, in string) error {
 	for _, f := range files {
 		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
 	}
+	return nil
+}
+
+// exportFile writes one output file, o.out, in format: export into a
+// temporary folder beside it (ours to remove), then link the one data
+// file into place, never over an existing file.
+func exportFile(g *globals, restart bool, o exportOptions, in, format string) error {
+	if o.formatSet && o.format != format {
+		return &exitError{exitUsage, fmt.Errorf("export: -o %s names a .%s file but --format is %s; drop one of them", o.out, format, o.format)}
+	}
+	if _, err := os.Lstat(o.out); err == nil {
+		return &exitError{exitUsage, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", o.out)}
+	}
+	tmp, err := os.MkdirTemp(filepath.Dir(o.out), ".trajvault-export-*")
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
+	}
+	defer os.RemoveAll(tmp)
+	folder := o
+	folder.out, folder.format, folder.json = filepath.Join(tmp, "out"), format, false
+	var quiet bytes.Buffer
+	if err := runExport(&globals{stdout: &quiet, stderr: g.stderr}, restart, folder, in); err != nil {
+		return err
+	}
+	entries, err := os.ReadDir(folder.out)
+	if err != nil {
+		return &exitError{exitUsage, err}
+	}
+	var data []string
+	for _, e := range entries {
+		if e.Name() != "selection.json" {
+			data = append(data, e.Name())
+		}
+	}
+	if len(data) != 1 {
+		return &exitError{exitUsage, fmt.Errorf("export: this selection writes %d files (%s); give a folder name with -o", len(data), strings.Join(data, ", "))}
+	}
+	if err := os.Link(filepath.Join(folder.out, data[0]), o.out); err != nil {
+		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
+	}
+	if o.json {
+		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": format, "files": []string{filepath.Base(o.out)}})
+	}
+	fmt.Fprintf(g.stdout, "wrote %s\n", o.out)
 	return nil
 }

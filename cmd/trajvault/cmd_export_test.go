@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -77,5 +78,40 @@ func TestExportRestartFiles(t *testing.T) {
 	sb, _ := os.ReadFile(filepath.Join(dir, "selection.json"))
 	if err := json.Unmarshal(sb, &h); err != nil || h.FrameCount != 1 || h.FirstFrame != 17 {
 		t.Errorf("selection.json %s: %v", sb, err)
+	}
+}
+
+// TestExportToOneFile: -o NAME.xyz writes that file, not a folder (issue
+// 15), with the same text as the folder form; an existing file is never
+// overwritten; a --format that contradicts the name is a usage error.
+func TestExportToOneFile(t *testing.T) {
+	f := demoFile(t)
+	dir := t.TempDir()
+	one := filepath.Join(dir, "run.xyz")
+	if code, _, errs := runCLI("export", f, "-o", one); code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	if code, _, errs := runCLI("export", f, "-o", filepath.Join(dir, "folder")); code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	got, err := os.ReadFile(one)
+	if err != nil {
+		t.Fatal(err)
+	}
+	want, _ := os.ReadFile(filepath.Join(dir, "folder", "traj.xyz"))
+	if len(want) == 0 || !bytes.Equal(got, want) {
+		t.Errorf("run.xyz (%d bytes) differs from the folder export (%d bytes)", len(got), len(want))
+	}
+	if code, _, errs := runCLI("export", f, "-o", one); code != 2 || !strings.Contains(errs, "already exists") {
+		t.Errorf("second export over run.xyz: exit %d %s", code, errs)
+	}
+	if code, _, _ := runCLI("export", f, "-o", filepath.Join(dir, "x.csv"), "--format", "xyz"); code != 2 {
+		t.Errorf("contradicting --format: exit %d, want 2", code)
+	}
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		if strings.HasPrefix(e.Name(), ".trajvault-export-") {
+			t.Errorf("temporary folder left behind: %s", e.Name())
+		}
 	}
 }
