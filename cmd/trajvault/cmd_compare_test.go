@@ -51,7 +51,7 @@ func TestCompareCommand(t *testing.T) {
 	// Other seeds, three trajectories a side: pairs start apart and the
 	// ensembles are too small to tell; exit 1.
 	code, out, _ = runCLI("compare", a, other)
-	if code != 1 || !strings.Contains(out, "verdict: too few trajectories to tell") || !strings.Contains(out, "error C2") {
+	if code != 1 || !strings.Contains(out, "verdict: too few trajectories to tell") || !strings.Contains(out, "error   C2") {
 		t.Errorf("other seeds: exit %d\n%s", code, out)
 	}
 	checkWidth(t, out)
