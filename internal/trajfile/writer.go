@@ -26,7 +26,7 @@ const (
 )
 
 // ModuleVersion is written as /h5md/modules/trajvault_electronic@version.
-var ModuleVersion = []int32{1, 0}
+var ModuleVersion = []int32{1, 1}
 
 // Units are the unit strings (H5MD grammar, internal/units symbols) of the
 // stored numbers. They describe the data as given; the writer converts
@@ -79,10 +79,17 @@ type Spec struct {
 	SeriesFrames int
 	// File sets the HDF5 file format and chunk-index shape (h5.CreateWith).
 	File h5.CreateOptions
-	// Clock, when set, stores step and time in H5MD fixed mode: frame i is
-	// at step StepOffset + i StepIncrement and time TimeOffset + i
+	// Clock, when set, is the uniform clock of the run: frame i is at
+	// step StepOffset + i StepIncrement and time TimeOffset + i
 	// TimeIncrement. WriteFrame checks every frame against it.
 	Clock *FixedClock
+	// FixedMode stores a Clock in H5MD fixed mode (scalar step and time
+	// with an offset attribute) instead of one step and time per frame.
+	// It saves a few kilobytes, but readers that index step[i] and
+	// time[i] - python3-mdanalysis 2.4's H5MD reader, plain h5py code -
+	// fail on it, so the default is explicit mode (schema/layout.md,
+	// "Written for readers").
+	FixedMode bool
 }
 
 // FixedClock is a uniformly sampled frame clock (H5MD fixed mode).
@@ -118,7 +125,7 @@ func (w *Writer) filtersFor(name string) (h5.Filters, Storage, bool) {
 
 func (w *Writer) storageAttrs(path string, st Storage) {
 	if st.Format != "" {
-		w.do(w.f.SetString(path, FormatAttr, st.Format))
+		w.do(w.f.SetVarString(path, FormatAttr, st.Format))
 	}
 	if st.Tolerance > 0 {
 		w.do(w.f.SetFloats(path, ToleranceAttr, []float64{st.Tolerance}, true))
@@ -247,15 +254,15 @@ func (w *Writer) header() {
 	w.do(f.CreateGroup(AuthorGroup))
 	w.do(f.CreateGroup(CreatorGroup))
 	w.do(f.SetInts(H5MDGroup, "version", []int32{1, 1}, false))
-	w.do(f.SetString(AuthorGroup, "name", s.Author))
+	w.do(f.SetVarString(AuthorGroup, "name", s.Author))
 	if s.Email != "" {
-		w.do(f.SetString(AuthorGroup, "email", s.Email))
+		w.do(f.SetVarString(AuthorGroup, "email", s.Email))
 	}
-	w.do(f.SetString(CreatorGroup, "name", s.Creator))
-	w.do(f.SetString(CreatorGroup, "version", s.CreatorVersion))
+	w.do(f.SetVarString(CreatorGroup, "name", s.Creator))
+	w.do(f.SetVarString(CreatorGroup, "version", s.CreatorVersion))
 	w.do(f.CreateGroup(UnitsModule))
 	w.do(f.SetInts(UnitsModule, "version", []int32{1, 0}, false))
-	w.do(f.SetString(UnitsModule, "system", "SI"))
+	w.do(f.SetVarString(UnitsModule, "system", "SI"))
 	if s.NStates > 0 {
 		m := OurModule
 		w.do(f.CreateGroup(m))
@@ -263,13 +270,13 @@ func (w *Writer) header() {
 	}
 	w.do(f.CreateGroup(ParametersGroup))
 	if s.Integrator != "" {
-		w.do(f.SetString(ParametersGroup, "integrator", s.Integrator))
+		w.do(f.SetVarString(ParametersGroup, "integrator", s.Integrator))
 	}
 	if s.Method != "" {
-		w.do(f.SetString(ParametersGroup, "method", s.Method))
+		w.do(f.SetVarString(ParametersGroup, "method", s.Method))
 	}
 	for _, k := range sortedKeys(s.Attrs) {
-		w.do(f.SetString(ParametersGroup, k, s.Attrs[k]))
+		w.do(f.SetVarString(ParametersGroup, k, s.Attrs[k]))
 	}
 	if s.TimeStep > 0 {
 		w.scalarFloat(TimeStep, s.TimeStep, s.Units.Time)
@@ -292,7 +299,7 @@ func (w *Writer) scalarFloat(path string, v float64, unit string) {
 	}
 	w.do(ww.Write([]float64{v}))
 	w.do(ww.Close())
-	w.do(w.f.SetString(path, UnitAttr, unit))
+	w.do(w.f.SetVarString(path, UnitAttr, unit))
 }
 
 func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DType) {
@@ -304,7 +311,7 @@ func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DT
 	w.do(ww.Write(data))
 	w.do(ww.Close())
 	if unit != "" {
-		w.do(w.f.SetString(path, UnitAttr, unit))
+		w.do(w.f.SetVarString(path, UnitAttr, unit))
 	}
 }
 
@@ -327,7 +334,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	ww, err := w.f.CreateDataset(group+Value, h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
 	w.do(err)
 	if unit != "" {
-		w.do(w.f.SetString(group+Value, UnitAttr, unit))
+		w.do(w.f.SetVarString(group+Value, UnitAttr, unit))
 	}
 	if stored {
 		w.storageAttrs(group+Value, st)
@@ -337,7 +344,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		row *= d
 	}
 	e := &element{path: group + Value, row: row, w: ww}
-	if w.step == nil && w.spec.Clock != nil {
+	if w.step == nil && w.spec.Clock != nil && w.spec.FixedMode {
 		c := w.spec.Clock
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
 		w.do(err)
@@ -353,7 +360,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 			w.do(tw.Close())
 		}
 		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset}, true))
-		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
+		w.do(w.f.SetVarString(group+Time, UnitAttr, w.spec.Units.Time))
 		if _, tst, ok := w.filtersFor("time"); ok {
 			w.storageAttrs(group+Time, tst)
 		}
@@ -367,7 +374,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: tfl})
 		w.do(err)
-		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
+		w.do(w.f.SetVarString(group+Time, UnitAttr, w.spec.Units.Time))
 		if tstored {
 			w.storageAttrs(group+Time, tst)
 		}
@@ -386,7 +393,7 @@ func (w *Writer) layout() {
 	d := len(s.Boundary)
 	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
 	w.do(w.f.SetInts(Particle(pgroup, Box), "dimension", []int32{int32(d)}, true))
-	w.do(w.f.SetStrings(Particle(pgroup, Box), "boundary", s.Boundary))
+	w.do(w.f.SetVarStrings(Particle(pgroup, Box), "boundary", s.Boundary))
 	if len(s.Edges) > 0 {
 		w.fixed(Particle(pgroup, BoxEdges), s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
 	}
@@ -473,6 +480,7 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 		return errors.New("trajfile: WriteFrame after Close")
 	}
 	if c := w.spec.Clock; c != nil {
+		// Checked in both storage modes: a Clock claims uniform sampling.
 		i := int64(w.frames)
 		wantT := c.TimeOffset + float64(i)*c.TimeIncrement
 		if fr.Step != c.StepOffset+i*c.StepIncrement || math.Abs(fr.Time-wantT) > 1e-9*math.Max(math.Abs(c.TimeIncrement), math.Abs(wantT)) {
@@ -566,7 +574,7 @@ func (w *Writer) writeHops() {
 	w.fixed(HopFrom, from, []int{nh}, "", h5.Int32)
 	w.fixed(HopTo, to, []int{nh}, "", h5.Int32)
 	w.fixed(HopKind, kind, []int{nh}, "", h5.Int32)
-	w.do(w.f.SetStrings(HopKind, "kind_names", []string{"accepted", "frustrated"}))
+	w.do(w.f.SetVarStrings(HopKind, "kind_names", []string{"accepted", "frustrated"}))
 }
 
 // SetParameter writes a string attribute on /parameters, e.g. the
@@ -578,7 +586,7 @@ func (w *Writer) SetParameter(name, value string) error {
 	if w.closed {
 		return errors.New("trajfile: SetParameter after Close")
 	}
-	w.do(w.f.SetString(ParametersGroup, name, value))
+	w.do(w.f.SetVarString(ParametersGroup, name, value))
 	return w.err
 }
 
