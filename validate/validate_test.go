@@ -178,8 +178,8 @@ func TestWriterOutputIsClean(t *testing.T) {
 }
 
 const (
-	pg  = "/particles/all"
-	obs = "/observables"
+	pg   = "/particles/all"
+	obs  = "/observables"
 	hops = trajfile.HopsGroup
 )
 
@@ -200,9 +200,13 @@ func TestRules(t *testing.T) {
 		{"V3", finding.Error, "creator version missing", func(t *testing.T, f *h5.File) { mustDo(t, f.DeleteAttr("/h5md/creator", "version")) }, nil},
 		{"V3", finding.Error, "author name not a string", func(t *testing.T, f *h5.File) { mustDo(t, f.SetInts("/h5md/author", "name", []int32{7}, true)) }, nil},
 		{"V39", finding.Warning, "fixed-length author", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString("/h5md/author", "name", "A. Nonymous")) }, nil},
-		{"V39", finding.Warning, "fixed-length boundary", func(t *testing.T, f *h5.File) { mustDo(t, f.SetStrings(pg+"/box", "boundary", []string{"none", "none", "none"})) }, nil},
+		{"V39", finding.Warning, "fixed-length boundary", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetStrings(pg+"/box", "boundary", []string{"none", "none", "none"}))
+		}, nil},
 		{"V38", finding.Warning, "position in Angstrom", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "Angstrom")) }, nil},
-		{"V38", finding.Warning, "energy in kcal/mol", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(obs+"/total_energy/value", "unit", "kcal/mol")) }, nil},
+		{"V38", finding.Warning, "energy in kcal/mol", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetVarString(obs+"/total_energy/value", "unit", "kcal/mol"))
+		}, nil},
 		{"V5", finding.Error, "module without version", func(t *testing.T, f *h5.File) { mustDo(t, f.DeleteAttr("/h5md/modules/units", "version")) }, nil},
 		{"V6", finding.Error, "element without step", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete(pg+"/velocity/step")) }, nil},
 		{"V6", finding.Error, "element without value", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete(obs+"/kinetic_energy/value")) }, nil},

@@ -130,8 +130,8 @@ func TestParse(t *testing.T) {
 		{"g mol-1", Mass, 1e-3 / Avogadro, nil},
 		{"", Dimensionless, 1, nil},
 		{"A", Dim{0, 0, 0, 1, 0}, 1, nil}, // ampere, not angstrom
-		{"Angstrom", Length, 1e-10, nil}, // alias, see TestAliases
-		{"Å", Length, 1e-10, nil},        // alias
+		{"Angstrom", Length, 1e-10, nil},  // alias, see TestAliases
+		{"Å", Length, 1e-10, nil},         // alias
 		{"furlong", Dim{}, 0, ErrUnknown},
 		{"é", Dim{}, 0, ErrSyntax},
 		{"s 60", Dim{}, 0, ErrSyntax},
