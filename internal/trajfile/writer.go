@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/units"
 )
 
 // Module is the name and version of trajvault's electronic-state module.
@@ -41,6 +42,15 @@ var DefaultUnits = Units{
 	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
 }
 
+// ReaderUnits are units that both the H5MD unit grammar (with this
+// project's symbol table) and the fixed unit list of python3-mdanalysis
+// 2.4's H5MD reader accept: the molecular-dynamics set nm, ps, u,
+// kJ mol-1 (common practice). Spec.ForReaders stores numbers in them.
+var ReaderUnits = Units{
+	Length: "nm", Time: "ps", Velocity: "nm ps-1", Force: "kJ mol-1 nm-1",
+	Energy: "kJ mol-1", Mass: "u", InverseTime: "ps-1",
+}
+
 // Spec describes the file to write. Zero values of optional parts leave
 // the element out.
 type Spec struct {
@@ -53,6 +63,13 @@ type Spec struct {
 	Edges    []float64 // [D], required when any boundary is periodic
 
 	Units Units
+	// ForReaders converts every number from Units into ReaderUnits before
+	// storing it (units.Factor, CODATA 2018), so that readers with a
+	// fixed unit list open the file. The stored values are then not the
+	// printed ones: Storage is ignored (lossless float64, no recorded
+	// format), and export cannot give back the source's digits. Off by
+	// default: a converted log keeps its units and digits.
+	ForReaders bool
 
 	Velocity, Force               bool
 	Kinetic, Potential, Total     bool
@@ -186,6 +203,31 @@ type Writer struct {
 	lastStep int64
 	err      error
 	closed   bool
+	// src are the units of the numbers given; spec.Units those stored.
+	// tf converts given times to stored ones.
+	src Units
+	tf  float64
+}
+
+// factor is the factor from the given to the stored unit picked by sel.
+func (w *Writer) factor(sel func(Units) string) float64 {
+	if sel(w.src) == sel(w.spec.Units) {
+		return 1
+	}
+	f, err := units.Factor(sel(w.src), sel(w.spec.Units))
+	w.do(err)
+	return f
+}
+
+func scaled(v []float64, f float64) []float64 {
+	if f == 1 {
+		return v
+	}
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = x * f
+	}
+	return out
 }
 
 var pgroup = OurGroup
@@ -232,7 +274,12 @@ func Create(path string, spec Spec) (*Writer, error) {
 	if err != nil {
 		return nil, err
 	}
-	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk}
+	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk, src: spec.Units, tf: 1}
+	if spec.ForReaders {
+		w.spec.Units = ReaderUnits
+		w.spec.Storage = nil
+		w.tf = w.factor(func(u Units) string { return u.Time })
+	}
 	w.header()
 	w.layout()
 	if w.err != nil {
@@ -279,7 +326,7 @@ func (w *Writer) header() {
 		w.do(f.SetVarString(ParametersGroup, k, s.Attrs[k]))
 	}
 	if s.TimeStep > 0 {
-		w.scalarFloat(TimeStep, s.TimeStep, s.Units.Time)
+		w.scalarFloat(TimeStep, s.TimeStep*w.tf, s.Units.Time)
 	}
 	if s.NStates > 0 {
 		ww, err := f.CreateDataset(NStates, h5.DatasetSpec{Type: h5.Int32})
@@ -356,10 +403,10 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64})
 		w.do(err)
 		if err == nil {
-			w.do(tw.Write([]float64{c.TimeIncrement}))
+			w.do(tw.Write([]float64{c.TimeIncrement * w.tf}))
 			w.do(tw.Close())
 		}
-		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset}, true))
+		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset * w.tf}, true))
 		w.do(w.f.SetVarString(group+Time, UnitAttr, w.spec.Units.Time))
 		if _, tst, ok := w.filtersFor("time"); ok {
 			w.storageAttrs(group+Time, tst)
@@ -394,20 +441,37 @@ func (w *Writer) layout() {
 	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
 	w.do(w.f.SetInts(Particle(pgroup, Box), "dimension", []int32{int32(d)}, true))
 	w.do(w.f.SetVarStrings(Particle(pgroup, Box), "boundary", s.Boundary))
+	fLen := w.factor(func(u Units) string { return u.Length })
 	if len(s.Edges) > 0 {
-		w.fixed(Particle(pgroup, BoxEdges), s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
+		w.fixed(Particle(pgroup, BoxEdges), scaled(s.Edges, fLen), []int{len(s.Edges)}, s.Units.Length, h5.Float64)
 	}
 	sp := make([]int32, n)
 	for i, z := range s.Species {
 		sp[i] = int32(z)
 	}
 	w.fixed(Particle(pgroup, Species), sp, []int{n}, "", h5.Int32)
-	w.fixed(Particle(pgroup, Mass), s.Masses, []int{n}, s.Units.Mass, h5.Float64)
+	w.fixed(Particle(pgroup, Mass), scaled(s.Masses, w.factor(func(u Units) string { return u.Mass })), []int{n}, s.Units.Mass, h5.Float64)
 
-	add := func(group string, shape []int, typ h5.DType, unit string, get func(*Frame) ([]float64, error)) {
+	// add creates an element whose numbers get returns in the given
+	// units; sel picks its unit (nil: dimensionless or integer).
+	add := func(group string, shape []int, typ h5.DType, sel func(Units) string, get func(*Frame) ([]float64, error)) {
+		unit, f := "", 1.0
+		if sel != nil {
+			unit, f = sel(w.spec.Units), w.factor(sel)
+		}
 		w.timeDep(group, shape, typ, unit)
-		w.get = append(w.get, get)
+		w.get = append(w.get, func(fr *Frame) ([]float64, error) {
+			v, err := get(fr)
+			return scaled(v, f), err
+		})
 	}
+	var (
+		uLength   = func(u Units) string { return u.Length }
+		uVelocity = func(u Units) string { return u.Velocity }
+		uForce    = func(u Units) string { return u.Force }
+		uEnergy   = func(u Units) string { return u.Energy }
+		uInvTime  = func(u Units) string { return u.InverseTime }
+	)
 	vec := func(name string, pick func(*Frame) []float64) func(*Frame) ([]float64, error) {
 		return func(fr *Frame) ([]float64, error) {
 			v := pick(fr)
@@ -429,31 +493,31 @@ func (w *Writer) layout() {
 			return v, nil
 		}
 	}
-	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, s.Units.Length, vec("position", func(f *Frame) []float64 { return f.Position }))
+	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
 	if s.Velocity {
-		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, s.Units.Velocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
+		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, uVelocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
 	}
 	if s.Force {
-		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, s.Units.Force, vec("force", func(f *Frame) []float64 { return f.Force }))
+		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, uForce, vec("force", func(f *Frame) []float64 { return f.Force }))
 	}
 	if s.Kinetic {
-		add(KineticEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Kinetic }))
+		add(KineticEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Kinetic }))
 	}
 	if s.Potential {
-		add(PotentialEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Potential }))
+		add(PotentialEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Potential }))
 	}
 	if s.Total {
-		add(TotalEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Total }))
+		add(TotalEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Total }))
 	}
 	ns := s.NStates
 	if ns <= 0 {
 		return
 	}
 	if s.StateEnergies {
-		add(StateEnergies, []int{ns}, h5.Float64, s.Units.Energy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
+		add(StateEnergies, []int{ns}, h5.Float64, uEnergy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
 	}
 	if s.ActiveState {
-		add(ActiveState, nil, h5.Int32, "", func(f *Frame) ([]float64, error) {
+		add(ActiveState, nil, h5.Int32, nil, func(f *Frame) ([]float64, error) {
 			if f.ActiveState < 0 || f.ActiveState >= ns {
 				return nil, fmt.Errorf("active state %d outside 0..%d", f.ActiveState, ns-1)
 			}
@@ -461,13 +525,13 @@ func (w *Writer) layout() {
 		})
 	}
 	if s.Populations {
-		add(Populations, []int{ns}, h5.Float64, "", sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
+		add(Populations, []int{ns}, h5.Float64, nil, sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
 	}
 	if s.Amplitudes {
-		add(Amplitudes, []int{ns, 2}, h5.Float64, "", sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
+		add(Amplitudes, []int{ns, 2}, h5.Float64, nil, sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
 	}
 	if s.Couplings {
-		add(Couplings, []int{ns, ns}, h5.Float64, s.Units.InverseTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
+		add(Couplings, []int{ns, ns}, h5.Float64, uInvTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
 	}
 }
 
@@ -502,7 +566,7 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 		w.elems[i].buf = append(w.elems[i].buf, v...)
 	}
 	w.step.ibuf = append(w.step.ibuf, fr.Step)
-	w.time.buf = append(w.time.buf, fr.Time)
+	w.time.buf = append(w.time.buf, fr.Time*w.tf)
 	w.frames++
 	if len(w.step.ibuf) >= w.chunk {
 		w.flush()
@@ -563,7 +627,7 @@ func (w *Writer) writeHops() {
 	to := make([]int32, nh)
 	kind := make([]int32, nh)
 	for i, h := range w.hops {
-		step[i], tm[i], from[i], to[i] = h.Step, h.Time, int32(h.From), int32(h.To)
+		step[i], tm[i], from[i], to[i] = h.Step, h.Time*w.tf, int32(h.From), int32(h.To)
 		if h.Frustrated {
 			kind[i] = 1
 		}
