@@ -42,13 +42,15 @@ var DefaultUnits = Units{
 	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
 }
 
-// ReaderUnits are units that both the H5MD unit grammar (with this
-// project's symbol table) and the fixed unit list of python3-mdanalysis
-// 2.4's H5MD reader accept: the molecular-dynamics set nm, ps, u,
-// kJ mol-1 (common practice). Spec.ForReaders stores numbers in them.
+// ReaderUnits are the units Spec.ForReaders stores in. Those of the
+// quantities python3-mdanalysis 2.4's H5MD reader reads - time, position,
+// velocity, force - are in both the H5MD unit grammar (with this
+// project's symbol table) and that reader's fixed unit list: angstrom, fs,
+// nm ps-1 and kJ mol-1 nm-1 (no spelling of angstrom fs-1 or
+// hartree bohr-1 is in both). The others keep DefaultUnits.
 var ReaderUnits = Units{
-	Length: "nm", Time: "ps", Velocity: "nm ps-1", Force: "kJ mol-1 nm-1",
-	Energy: "kJ mol-1", Mass: "u", InverseTime: "ps-1",
+	Length: "angstrom", Time: "fs", Velocity: "nm ps-1", Force: "kJ mol-1 nm-1",
+	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
 }
 
 // Spec describes the file to write. Zero values of optional parts leave
