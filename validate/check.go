@@ -121,6 +121,8 @@ type checker struct {
 	list    *finding.List
 	profile Profile // never ProfileAuto
 
+	fixedStrings []string // string attributes stored fixed-length (V39)
+
 	minor       int  // H5MD minor version
 	unitAttrs   bool // some dataset has a unit attribute
 	unitsModule bool
@@ -175,6 +177,7 @@ func (c *checker) run() {
 	c.electronic()
 	c.connectivity()
 	c.provenance()
+	c.reportFixedStrings()
 }
 
 // ---------------------------------------------------------------- header
@@ -348,10 +351,23 @@ func (c *checker) unitAttr(path string) {
 // stored as a variable-length string, which h5py returns as str; a
 // fixed-length one comes back as bytes, and a common Python analysis
 // library's H5MD reader then fails to match unit names.
+// They are reported once per file (report, at the end of run).
 func (c *checker) fixedString(at string, a h5.Attr) {
 	if a.Type.Class == h5.ClassString && !a.Type.VarLen {
-		c.warnf("V39", at, "fixed-length string: h5py returns it as bytes, not str; rewrite it as a variable-length UTF-8 string (trajvault convert writes them so)")
+		c.fixedStrings = append(c.fixedStrings, at)
 	}
+}
+
+func (c *checker) reportFixedStrings() {
+	n := len(c.fixedStrings)
+	if n == 0 {
+		return
+	}
+	what := "a fixed-length string"
+	if n > 1 {
+		what = fmt.Sprintf("a fixed-length string, like %d more string attributes of the file", n-1)
+	}
+	c.warnf("V39", c.fixedStrings[0], "%s: h5py returns such strings as bytes, not str, and a common Python H5MD reader then fails on the units; rewrite them as variable-length UTF-8 strings (trajvault writes them so)", what)
 }
 
 // physical reports whether a dataset holds a physical quantity (V26).
