@@ -341,6 +341,19 @@ func TestRules(t *testing.T) {
 		{"E4", finding.Error, "active state out of range", func(t *testing.T, f *h5.File) {
 			rewrite(t, f, obs+"/active_state/value", h5.Int32, func(v []float64, d []int) ([]float64, []int) { v[3] = 5; return v, d })
 		}, nil},
+		// Module version 1.0 kept its elements under /observables/electronic;
+		// its rules still apply there.
+		{"E5", finding.Error, "population above 1, module 1.0 layout", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetInts(trajfile.OurModule, "version", []int32{1, 0}, false))
+			mustDo(t, f.CreateGroup(trajfile.LegacyElectronicGroup))
+			for _, p := range []string{trajfile.Populations, trajfile.HopsGroup} {
+				old, _ := trajfile.Legacy(p)
+				mustDo(t, f.HardLink(p, old))
+				mustDo(t, f.Delete(p))
+			}
+			old, _ := trajfile.Legacy(trajfile.Populations)
+			rewrite(t, f, old+"/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) { v[0] = 1.2; return v, d })
+		}, nil},
 		{"E5", finding.Error, "population above 1", func(t *testing.T, f *h5.File) {
 			rewrite(t, f, obs+"/populations/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) { v[0] = 1.2; return v, d })
 		}, nil},
@@ -534,6 +547,30 @@ func TestProfilesDocumented(t *testing.T) {
 	for code := range RuleProfiles {
 		if !slices.Contains(Codes, code) {
 			t.Errorf("RuleProfiles names %s, which is not in Codes", code)
+		}
+	}
+}
+
+// TestModule10Clean: a valid file in the layout of electronic module
+// version 1.0 (elements under /observables/electronic) stays valid.
+func TestModule10Clean(t *testing.T) {
+	path := base(t)
+	f, err := h5.OpenRW(path)
+	mustDo(t, err)
+	mustDo(t, f.SetInts(trajfile.OurModule, "version", []int32{1, 0}, false))
+	mustDo(t, f.CreateGroup(trajfile.LegacyElectronicGroup))
+	for _, p := range append(append([]string(nil), trajfile.ElectronicElements...), trajfile.HopsGroup) {
+		old, _ := trajfile.Legacy(p)
+		mustDo(t, f.HardLink(p, old))
+		mustDo(t, f.Delete(p))
+	}
+	mustDo(t, f.Close())
+	rep, err := File(path, Options{})
+	mustDo(t, err)
+	if rep.Profile != string(ProfileTrajvault) || rep.Errors != 0 || rep.Warnings != 0 {
+		t.Errorf("profile %s, %d errors, %d warnings; want trajvault and none", rep.Profile, rep.Errors, rep.Warnings)
+		for _, f := range rep.Findings {
+			t.Log(f)
 		}
 	}
 }
