@@ -10,8 +10,10 @@ package trajfile_test
 import (
 	"encoding/json"
 	"math"
+	"os"
 	"os/exec"
 	"slices"
+	"strings"
 	"testing"
 
 	"trajvault/internal/testenv"
@@ -150,5 +152,94 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 	}
 	if len(got.UnitTypes) < 5 {
 		t.Errorf("h5py saw %d unit attributes", len(got.UnitTypes))
+	}
+}
+
+// TestLayoutRecipeReads runs the plain-h5py recipe of schema/layout.md
+// ("Reading every dataset with plain h5py") on a demo file, once as
+// written (explicit clock) and once with the clock rewritten in fixed
+// mode, and compares what it gets with trajvault's reader.
+func TestLayoutRecipeReads(t *testing.T) {
+	md, err := os.ReadFile(testenv.Repo("schema", "layout.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	doc := string(md)
+	i := strings.Index(doc, "### Reading every dataset with plain h5py")
+	if i < 0 {
+		t.Fatal("layout.md lacks the h5py recipe")
+	}
+	start := strings.Index(doc[i:], "```python\n")
+	end := strings.Index(doc[i+start+10:], "```")
+	if start < 0 || end < 0 {
+		t.Fatal("layout.md: recipe block not found")
+	}
+	recipe := doc[i+start+10 : i+start+10+end]
+	check := `
+import json, sys
+json.dump({"steps": [int(s) for s in steps], "times": [float(x) for x in times],
+           "x0": [float(v) for v in x[0].ravel()], "unit": p["position/value"].attrs["unit"],
+           "e_shape": list(e.shape), "active": [int(a) for a in active], "hops": len(hops["step"])}, sys.stdout)
+`
+	for _, fixed := range []bool{false, true} {
+		path := demoFile(t)
+		if fixed {
+			// Rewrite the shared clock in H5MD fixed mode with h5py.
+			fix := `
+import sys, h5py, numpy as np
+f = h5py.File(sys.argv[1], "a")
+p = f["particles/all/position"]
+st, tm = p["step"][:], p["time"][:]
+for g in ["particles/all/position", "particles/all/velocity", "particles/all/force"] + ["observables/" + k for k in f["observables"]]:
+    del f[g + "/step"], f[g + "/time"]
+p["step"] = np.int64(st[1] - st[0]); p["step"].attrs["offset"] = st[0]
+p["time"] = tm[1] - tm[0]; p["time"].attrs["offset"] = tm[0]; p["time"].attrs["unit"] = "fs"
+for g in ["particles/all/velocity", "particles/all/force"] + ["observables/" + k for k in f["observables"]]:
+    f[g + "/step"] = p["step"]; f[g + "/time"] = p["time"]
+f.close()
+`
+			if out, err := exec.Command(testenv.Python(), "-c", fix, path).CombinedOutput(); err != nil {
+				t.Fatalf("h5py rewrite: %v\n%s", err, out)
+			}
+		}
+		script := strings.Replace(recipe, `"traj-001.h5"`, "sys.argv[1]", 1) + check
+		out, err := exec.Command(testenv.Python(), "-c", "import sys\n"+script, path).Output()
+		if err != nil {
+			t.Fatalf("fixed %v: the layout.md recipe fails: %v", fixed, err)
+		}
+		var got struct {
+			Steps  []int64
+			Times  []float64
+			X0     []float64
+			Unit   string
+			EShape []int `json:"e_shape"`
+			Active []int
+			Hops   int
+		}
+		if err := json.Unmarshal(out, &got); err != nil {
+			t.Fatal(err)
+		}
+		r, err := trajfile.OpenReader(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		c, err := r.Clock(r.Particle(trajfile.Position))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if c.Fixed != fixed || !slices.Equal(got.Steps, c.Steps) || len(got.Times) != len(c.Times) {
+			t.Fatalf("fixed %v (reader: %v): recipe steps %d, reader %d", fixed, c.Fixed, len(got.Steps), len(c.Steps))
+		}
+		for k := range c.Times {
+			if math.Abs(got.Times[k]-c.Times[k]) > 1e-12*math.Max(1, math.Abs(c.Times[k])) {
+				t.Fatalf("fixed %v: time %d: recipe %.17g, reader %.17g", fixed, k, got.Times[k], c.Times[k])
+			}
+		}
+		hops, _ := r.Hops()
+		act, _, _ := r.Values(trajfile.ActiveState, "")
+		r.Close()
+		if got.Hops != len(hops) || len(got.Active) != len(act) || got.Unit != "angstrom" || len(got.EShape) != 2 {
+			t.Errorf("fixed %v: recipe read %d hops, %d active states, unit %q, energies %v; reader %d, %d", fixed, got.Hops, len(got.Active), got.Unit, got.EShape, len(hops), len(act))
+		}
 	}
 }
