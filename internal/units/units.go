@@ -10,7 +10,9 @@
 //
 // Symbols are the SI ones with SI prefixes, plus a small documented table
 // of non-SI units of this field (see Symbols). "A" is the ampere, as in SI;
-// the angstrom is written "angstrom" (or "0.1 nm" in pure SI).
+// the angstrom is written "angstrom" (or "0.1 nm" in pure SI). Spellings
+// of other writers ("Angstrom", "kcal/mol", "amu") are read through the
+// alias table (Aliases, Canonicalize) and flagged as such (Unit.Alias).
 //
 // Constants are CODATA 2018 (Rev. Mod. Phys. 93,
 // 025010 (2021), doi:10.1103/RevModPhys.93.025010; physics.nist.gov/cuu)
