@@ -71,7 +71,7 @@ func init() {
 		"V15", "V17", "V18", "V19", "V22", "V28", "V29", "V30", "V31", "V32", "V33", "V35", "V36", "V37", "V38", "V40"} {
 		RuleProfiles[c] = ProfileH5MD
 	}
-	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39",
+	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39", "V41",
 		"E1", "E2", "E3", "E4", "E5", "E6", "E7", "E8", "E9", "E10", "E11",
 		"R1", "R2", "R3", "R4", "R5", "R6", "R7"} {
 		RuleProfiles[c] = ProfileTrajvault
@@ -171,7 +171,7 @@ func (c *checker) run() {
 			c.particles(trajfile.ParticleGroup(g))
 		}
 	} else {
-		c.errorf("V32", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
+		c.errorf("V41", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
 	}
 	c.observables()
 	c.electronic()

@@ -300,7 +300,8 @@ func TestRules(t *testing.T) {
 			pyRun(t, py, path)
 			return path
 		}},
-		{"V32", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V41", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V32", finding.Error, "particle group is a dataset", func(t *testing.T, f *h5.File) { create(t, f, "/particles/extra", h5.Float64, []int{1}, []float64{0}) }, nil},
 		{"V33", finding.Error, "damaged object header", nil, func(t *testing.T) string {
 			// h5py (Debian python3-h5py, HDF5 1.10 API) gives the object
 			// header's address; its first bytes (version or "OHDR"
