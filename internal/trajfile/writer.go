@@ -65,12 +65,14 @@ type Spec struct {
 	Edges    []float64 // [D], required when any boundary is periodic
 
 	Units Units
-	// ForReaders converts every number from Units into ReaderUnits before
-	// storing it (units.Factor, CODATA 2018), so that readers with a
-	// fixed unit list open the file. The stored values are then not the
-	// printed ones: Storage is ignored (lossless float64, no recorded
-	// format), and export cannot give back the source's digits. Off by
-	// default: a converted log keeps its units and digits.
+	// ForReaders writes for readers with a fixed unit list and per-frame
+	// clocks: every number is converted from Units into ReaderUnits before
+	// it is stored (units.Factor, CODATA 2018), and the clock is stored in
+	// explicit mode even when a Clock is given. The stored values are then
+	// not the printed ones: Storage is ignored (lossless float64, no
+	// recorded format), and export cannot give back the source's digits.
+	// Off by default: a converted log keeps its units, digits and compact
+	// clock.
 	ForReaders bool
 
 	Velocity, Force               bool
@@ -100,15 +102,13 @@ type Spec struct {
 	File h5.CreateOptions
 	// Clock, when set, is the uniform clock of the run: frame i is at
 	// step StepOffset + i StepIncrement and time TimeOffset + i
-	// TimeIncrement. WriteFrame checks every frame against it.
+	// TimeIncrement. WriteFrame checks every frame against it, and it is
+	// stored in H5MD fixed mode (scalar step and time with an offset
+	// attribute) - unless ForReaders is set: readers that index step[i]
+	// and time[i], python3-mdanalysis 2.4's H5MD reader among them, fail
+	// on fixed mode (schema/layout.md, "Written for readers"). Without a
+	// Clock the writer stores explicit mode, one step and time per frame.
 	Clock *FixedClock
-	// FixedMode stores a Clock in H5MD fixed mode (scalar step and time
-	// with an offset attribute) instead of one step and time per frame.
-	// It saves a few kilobytes, but readers that index step[i] and
-	// time[i] - python3-mdanalysis 2.4's H5MD reader, plain h5py code -
-	// fail on it, so the default is explicit mode (schema/layout.md,
-	// "Written for readers").
-	FixedMode bool
 }
 
 // FixedClock is a uniformly sampled frame clock (H5MD fixed mode).
@@ -393,7 +393,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		row *= d
 	}
 	e := &element{path: group + Value, row: row, w: ww}
-	if w.step == nil && w.spec.Clock != nil && w.spec.FixedMode {
+	if w.step == nil && w.spec.Clock != nil && !w.spec.ForReaders {
 		c := w.spec.Clock
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
 		w.do(err)

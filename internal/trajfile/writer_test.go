@@ -57,14 +57,14 @@ func writeSmall(t *testing.T, spec Spec) string {
 	return path
 }
 
-// TestWriterClockModes: a uniform Clock is checked in both modes but
-// stored in H5MD fixed mode only with FixedMode (H5MD 1.1,
-// "time-dependent data": scalar step and time in fixed mode, one entry
-// per frame in explicit mode).
+// TestWriterClockModes: a uniform Clock is stored in H5MD fixed mode,
+// but in explicit mode with ForReaders (H5MD 1.1, "time-dependent data":
+// scalar step and time in fixed mode, one entry per frame in explicit
+// mode); both read back as the same clock.
 func TestWriterClockModes(t *testing.T) {
 	clock := &FixedClock{StepOffset: 0, StepIncrement: 10, TimeOffset: 0, TimeIncrement: 0.5}
 	for _, fixed := range []bool{false, true} {
-		path := writeSmall(t, Spec{Clock: clock, FixedMode: fixed})
+		path := writeSmall(t, Spec{Clock: clock, ForReaders: !fixed})
 		f, err := h5.Open(path)
 		if err != nil {
 			t.Fatal(err)
@@ -75,7 +75,7 @@ func TestWriterClockModes(t *testing.T) {
 			t.Fatal(err)
 		}
 		if want := map[bool]int{false: 1, true: 0}[fixed]; info.Shape.Rank != want {
-			t.Errorf("FixedMode %v: step has rank %d, want %d", fixed, info.Shape.Rank, want)
+			t.Errorf("fixed %v: step has rank %d, want %d", fixed, info.Shape.Rank, want)
 		}
 		r, err := OpenReader(path)
 		if err != nil {
@@ -84,7 +84,7 @@ func TestWriterClockModes(t *testing.T) {
 		c, err := r.Clock(r.Particle(Position))
 		r.Close()
 		if err != nil || !slices.Equal(c.Steps, []int64{0, 10, 20}) || !slices.Equal(c.Times, []float64{0, 0.5, 1}) {
-			t.Errorf("FixedMode %v: clock %+v, %v", fixed, c, err)
+			t.Errorf("fixed %v: clock %+v, %v", fixed, c, err)
 		}
 	}
 }
