@@ -51,7 +51,7 @@ find_go() {
 
 case "${1:-}" in
 build) apt_install libhdf5-dev pkg-config gcc ;;
-test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase python3-scipy chromium ;;
+test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase python3-scipy python3-mdanalysis chromium ;;
 bench) apt_install libhdf5-dev pkg-config gcc zstd xz-utils gzip time ;;
 go) find_go ;;
 *) echo "usage: $0 build|test|bench|go" >&2; exit 2 ;;

@@ -152,7 +152,7 @@ func TestEveryCheckRunsAndIsSummarised(t *testing.T) {
 		if !ok || spec.Code != f.Code || spec.Quantity != f.Quantity {
 			t.Errorf("finding %v does not match its check %+v", f, spec)
 		}
-		if !strings.HasPrefix(f.Path, trajfile.ObservablesGroup) && !strings.HasPrefix(f.Path, trajfile.ParticlesGroup) {
+		if !strings.HasPrefix(f.Path, trajfile.ObservablesGroup) && !strings.HasPrefix(f.Path, trajfile.ParticlesGroup) && !strings.HasPrefix(f.Path, trajfile.ElectronicGroup) {
 			t.Errorf("finding %v: path outside the layout", f)
 		}
 	}

@@ -90,6 +90,24 @@ func TestModule(t *testing.T) {
 	}
 }
 
+// TestAliasesDocumented checks that every entry of the alias table is
+// shown in layout.md's table of accepted spellings with its canonical
+// symbol.
+func TestAliasesDocumented(t *testing.T) {
+	md := string(layoutMD)
+	for _, a := range units.Aliases {
+		found := false
+		for _, line := range strings.Split(md, "\n") {
+			if strings.Contains(line, "`"+a.Spelling+"`") && strings.Contains(line, "| `"+a.Canonical+"` |") {
+				found = true
+			}
+		}
+		if !found && a.Spelling != "\u212b" { // U+212B shares the row of U+00C5
+			t.Errorf("alias %q -> %q is not in layout.md's alias table", a.Spelling, a.Canonical)
+		}
+	}
+}
+
 // TestSymbolsDocumented checks that every unit symbol the parser knows is
 // named in layout.md, so the documented table is the real one.
 func TestSymbolsDocumented(t *testing.T) {

@@ -22,6 +22,9 @@ import (
 type BundleOptions struct {
 	ToolVersion string
 	Profile     string // built-in name or JSON Schema file; "" = minimal
+	// FileProfile chooses the rules for the trajectory files inside
+	// (Options.Profile); "" lets each file say.
+	FileProfile Profile
 	Limits      bagit.Limits
 	// MaxImageBytes bounds a trajectory file read into memory from an
 	// archive for its layout check (larger ones are reported, not read).
@@ -89,7 +92,7 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 				rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
 				return nil
 			}
-			rep.Findings = append(rep.Findings, check(f, name)...)
+			rep.Findings = append(rep.Findings, check(f, name, opt.FileProfile)...)
 			return f.Close()
 		}
 		// The declared size is checked against the limit above and the
@@ -105,7 +108,7 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 			rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
 			return nil
 		}
-		rep.Findings = append(rep.Findings, check(f, name)...)
+		rep.Findings = append(rep.Findings, check(f, name, opt.FileProfile)...)
 		return f.Close()
 	}
 	res := bagit.Check(src, bagit.Options{OnPayload: onPayload})

@@ -17,6 +17,65 @@ import (
 type Options struct {
 	// ToolVersion is recorded in the report.
 	ToolVersion string
+	// Profile chooses the rules: ProfileH5MD, ProfileTrajvault, or ""
+	// (ProfileAuto) to let the file say (see Select).
+	Profile Profile
+}
+
+// Profile is a set of rules a file is checked against.
+type Profile string
+
+// The profiles. Every rule belongs to one (RuleProfiles): the h5md
+// profile holds what the H5MD 1.0/1.1 specification requires of every
+// file, plus warnings about things that stop readers (unknown or
+// non-canonical unit spellings, plugin filters, links out of the file);
+// the trajvault profile adds trajvault's stricter policy, its module's
+// rules and the provenance rules.
+const (
+	ProfileAuto      Profile = ""
+	ProfileH5MD      Profile = "h5md"
+	ProfileTrajvault Profile = "trajvault"
+)
+
+// ParseProfile checks a profile name given by a user.
+func ParseProfile(s string) (Profile, error) {
+	switch p := Profile(s); p {
+	case ProfileAuto, ProfileH5MD, ProfileTrajvault:
+		return p, nil
+	}
+	return "", fmt.Errorf("unknown rule profile %q; use h5md (what the H5MD specification requires) or trajvault (trajvault's stricter layout)", s)
+}
+
+// Select resolves ProfileAuto for an open file: a file that claims
+// trajvault's layout - it declares the trajvault_electronic module or
+// carries trajvault's provenance record - is checked under the trajvault
+// profile, any other under h5md.
+func Select(f *h5.File, p Profile) Profile {
+	if p != ProfileAuto {
+		return p
+	}
+	if f.Kind(trajfile.OurModule) == h5.Group || f.HasAttr(trajfile.ParametersGroup, trajfile.ProvenanceAttr) {
+		return ProfileTrajvault
+	}
+	return ProfileH5MD
+}
+
+// RuleProfiles names the profile of every code: codes of ProfileH5MD
+// are checked on every file, codes of ProfileTrajvault only under the
+// trajvault profile. schema/layout.md shows the same in its Profile
+// column (TestProfilesDocumented).
+var RuleProfiles = map[string]Profile{}
+
+func init() {
+	for _, c := range []string{"V1", "V2", "V3", "V5", "V6", "V7", "V8", "V9", "V10", "V11", "V12", "V13", "V14",
+		"V15", "V17", "V18", "V19", "V22", "V28", "V29", "V30", "V31", "V32", "V33", "V35", "V36", "V37", "V38", "V40"} {
+		RuleProfiles[c] = ProfileH5MD
+	}
+	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39", "V41",
+		"E1", "E2", "E3", "E4", "E5", "E6", "E7", "E8", "E9", "E10", "E11",
+		"R1", "R2", "R3", "R4", "R5", "R6", "R7"} {
+		RuleProfiles[c] = ProfileTrajvault
+	}
 }
 
 // File validates the file at path. The error is non-nil only when the file
@@ -34,29 +93,35 @@ func File(path string, opt Options) (*Report, error) {
 // Opened validates an already opened file (e.g. one read from an archive
 // into memory); name is what the report calls it.
 func Opened(f *h5.File, path string, opt Options) *Report {
+	p := Select(f, opt.Profile)
 	rep := &Report{
 		Tool:          Tool{Name: "trajvault", Version: opt.ToolVersion},
 		File:          path,
 		LayoutVersion: schema.Current().Version,
+		Profile:       string(p),
 	}
-	rep.Findings = check(f, "")
+	rep.Findings = check(f, "", p)
 	rep.finish()
 	return rep
 }
 
-// check runs every file rule on f; file (may be "") goes into each
-// finding's location, for files inside a bundle.
-func check(f *h5.File, file string) []finding.Finding {
-	c := &checker{f: f, file: file, layout: schema.Current(), list: &finding.List{PerPlace: perPlace}}
+// check runs the file rules of profile p (ProfileAuto: Select) on f;
+// file (may be "") goes into each finding's location, for files inside a
+// bundle.
+func check(f *h5.File, file string, p Profile) []finding.Finding {
+	c := &checker{f: f, file: file, layout: schema.Current(), list: &finding.List{PerPlace: perPlace}, profile: Select(f, p)}
 	c.run()
 	return c.list.Findings()
 }
 
 type checker struct {
-	f      *h5.File
-	file   string
-	layout *schema.Layout
-	list   *finding.List
+	f       *h5.File
+	file    string
+	layout  *schema.Layout
+	list    *finding.List
+	profile Profile // never ProfileAuto
+
+	fixedStrings []string // string attributes stored fixed-length (V39)
 
 	minor       int  // H5MD minor version
 	unitAttrs   bool // some dataset has a unit attribute
@@ -65,6 +130,9 @@ type checker struct {
 }
 
 func (c *checker) add(code string, sev finding.Severity, path, format string, args ...any) {
+	if RuleProfiles[code] == ProfileTrajvault && c.profile != ProfileTrajvault {
+		return
+	}
 	c.list.Addf(code, sev, finding.Location{File: c.file, Path: path}, format, args...)
 }
 
@@ -103,35 +171,34 @@ func (c *checker) run() {
 			c.particles(trajfile.ParticleGroup(g))
 		}
 	} else {
-		c.errorf("V32", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
+		c.errorf("V41", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
 	}
 	c.observables()
 	c.electronic()
 	c.connectivity()
 	c.provenance()
+	c.reportFixedStrings()
 }
 
 // ---------------------------------------------------------------- header
 
 // stringAttr reads a scalar string attribute, reporting code (missing or
-// not a scalar string) and V4 (variable-length).
+// not a scalar string) and V39 (fixed-length).
 func (c *checker) stringAttr(path, name, code string) (string, bool) {
 	at := attrPath(path, name)
 	if !c.f.HasAttr(path, name) {
-		c.errorf(code, at, "missing; add a scalar fixed-length string attribute %q to %s", name, path)
+		c.errorf(code, at, "missing; add a scalar string attribute %q to %s", name, path)
 		return "", false
 	}
 	a, err := c.f.Attr(path, name)
 	if err != nil || a.Type.Class != h5.ClassString || len(a.Strings) == 0 {
-		c.errorf(code, at, "must be a string, found %s; rewrite it as a scalar fixed-length string", a.Type)
+		c.errorf(code, at, "must be a string, found %s; rewrite it as a scalar string", a.Type)
 		return "", false
 	}
 	if a.Shape.Rank != 0 {
 		c.errorf(code, at, "must be a scalar string, found shape %s", a.Shape)
 	}
-	if a.Type.VarLen {
-		c.warnf("V4", at, "variable-length string; H5MD asks for fixed-length strings (read anyway); rewrite with a fixed-length string type for strict readers")
-	}
+	c.fixedString(at, a)
 	return a.Strings[0], true
 }
 
@@ -268,16 +335,39 @@ func (c *checker) unitAttr(path string) {
 		c.errorf("V18", at, "unit must be a scalar string, found %s %s", a.Type, a.Shape)
 		return
 	}
-	if a.Type.VarLen {
-		c.warnf("V4", at, "variable-length string; the units module asks for a fixed-length ASCII string")
-	}
-	_, perr := units.Parse(a.Strings[0])
+	c.fixedString(at, a)
+	u, perr := units.Parse(a.Strings[0])
 	switch {
 	case errors.Is(perr, units.ErrSyntax):
 		c.errorf("V18", at, "%v", perr)
 	case errors.Is(perr, units.ErrUnknown):
 		c.warnf("V18", at, "%v", perr)
+	case perr == nil && u.Alias:
+		c.warnf("V38", at, "unit %q is read as %q, but it is not the canonical spelling (H5MD unit grammar and the symbol table of schema/layout.md); write %q", u.Text, u.Canonical, u.Canonical)
 	}
+}
+
+// fixedString checks V39 (trajvault profile): a string attribute is
+// stored as a variable-length string, which h5py returns as str; a
+// fixed-length one comes back as bytes, and a common Python analysis
+// library's H5MD reader then fails to match unit names.
+// They are reported once per file (report, at the end of run).
+func (c *checker) fixedString(at string, a h5.Attr) {
+	if a.Type.Class == h5.ClassString && !a.Type.VarLen {
+		c.fixedStrings = append(c.fixedStrings, at)
+	}
+}
+
+func (c *checker) reportFixedStrings() {
+	n := len(c.fixedStrings)
+	if n == 0 {
+		return
+	}
+	what := "a fixed-length string"
+	if n > 1 {
+		what = fmt.Sprintf("a fixed-length string, like %d more string attributes of the file", n-1)
+	}
+	c.warnf("V39", c.fixedStrings[0], "%s: h5py returns such strings as bytes, not str, and a common Python H5MD reader then fails on the units; rewrite them as variable-length UTF-8 strings (trajvault writes them so)", what)
 }
 
 // physical reports whether a dataset holds a physical quantity (V26).

@@ -7,16 +7,32 @@ import (
 	"trajvault/internal/trajfile"
 )
 
-const elGroup = trajfile.ElectronicGroup
+// at is where the file keeps the module's object at path: path itself,
+// or in files of module version 1.0 the nested path (trajfile.Legacy).
+func (c *checker) at(path string) string {
+	if c.f.Kind(path) != h5.Missing {
+		return path
+	}
+	if old, ok := trajfile.Legacy(path); ok && c.f.Kind(old) != h5.Missing {
+		return old
+	}
+	return path
+}
 
 // electronic checks the trajvault_electronic module (E1-E10).
 func (c *checker) electronic() {
-	if c.f.Kind(elGroup) != h5.Group {
+	var found string
+	for _, p := range append(append([]string(nil), trajfile.ElectronicElements...), trajfile.HopsGroup) {
+		if q := c.at(p); c.f.Kind(q) != h5.Missing && found == "" {
+			found = q
+		}
+	}
+	if found == "" {
 		return
 	}
 	mod := trajfile.OurModule
 	if c.f.Kind(mod) != h5.Group {
-		c.errorf("E1", mod, "electronic-state data under %s but the module is not declared; add group %s with version=(%d, %d)", elGroup, mod, c.layout.Module.Version[0], c.layout.Module.Version[1])
+		c.errorf("E1", mod, "electronic-state data (%s) but the module is not declared; add group %s with version=(%d, %d)", found, mod, c.layout.Module.Version[0], c.layout.Module.Version[1])
 	}
 	if c.nStates == 0 && c.f.Kind(trajfile.NStates) == h5.Missing {
 		c.errorf("E2", trajfile.NStates, "missing; with electronic data, store the number of states as an integer scalar dataset")
@@ -26,14 +42,15 @@ func (c *checker) electronic() {
 		b["S"] = c.nStates
 	}
 	elems := map[string]*tdElement{}
-	for _, p := range []string{trajfile.StateEnergies, trajfile.ActiveState, trajfile.Populations, trajfile.Amplitudes, trajfile.Couplings} {
-		if !c.isElement(p) {
-			if c.f.Kind(p) != h5.Missing {
-				c.errorf("V6", p, "must be a time-dependent element (group with step, time, value)")
+	for _, p := range trajfile.ElectronicElements {
+		q := c.at(p)
+		if !c.isElement(q) {
+			if c.f.Kind(q) != h5.Missing {
+				c.errorf("V6", q, "must be a time-dependent element (group with step, time, value)")
 			}
 			continue
 		}
-		e := c.element(p)
+		e := c.element(q)
 		if e == nil {
 			continue
 		}
@@ -53,7 +70,7 @@ func (c *checker) electronic() {
 	if e := elems[trajfile.Couplings]; e != nil {
 		c.antisymmetric(e)
 	}
-	if c.f.Kind(trajfile.HopsGroup) == h5.Group {
+	if c.f.Kind(c.at(trajfile.HopsGroup)) == h5.Group {
 		c.hops(S, elems[trajfile.ActiveState], b)
 	}
 }
@@ -141,35 +158,36 @@ func (c *checker) antisymmetric(e *tdElement) {
 
 // hops checks the hop table (E7, E8, E10).
 func (c *checker) hops(S int, active *tdElement, b bindings) {
-	g := trajfile.HopsGroup
+	g := c.at(trajfile.HopsGroup)
 	cols := map[string][]int64{}
 	for _, p := range []string{trajfile.HopStep, trajfile.HopFrom, trajfile.HopTo, trajfile.HopKind} {
-		if c.f.Kind(p) != h5.Dataset {
-			c.errorf("E7", p, "missing; the hops table needs step, time, from_state, to_state and kind")
+		q := c.at(p)
+		if c.f.Kind(q) != h5.Dataset {
+			c.errorf("E7", q, "missing; the hops table needs step, time, from_state, to_state and kind")
 			return
 		}
-		info, _ := c.f.Info(p)
+		info, _ := c.f.Info(q)
 		if el, ok := c.layout.Find(p); ok {
-			c.shape(p, el, info, b, false)
+			c.shape(q, el, info, b, false)
 		}
-		v, _, err := c.f.ReadInt64(p)
+		v, _, err := c.f.ReadInt64(q)
 		if err != nil {
 			return
 		}
 		cols[p] = v
 	}
-	if c.f.Kind(trajfile.HopTime) == h5.Dataset {
-		info, _ := c.f.Info(trajfile.HopTime)
+	if ht := c.at(trajfile.HopTime); c.f.Kind(ht) == h5.Dataset {
+		info, _ := c.f.Info(ht)
 		if el, ok := c.layout.Find(trajfile.HopTime); ok {
-			c.shape(trajfile.HopTime, el, info, b, false)
+			c.shape(ht, el, info, b, false)
 		}
-		c.unitDim(trajfile.HopTime, "time")
+		c.unitDim(ht, "time")
 	}
 	steps := cols[trajfile.HopStep]
 	n := len(steps)
 	for _, p := range []string{trajfile.HopFrom, trajfile.HopTo, trajfile.HopKind} {
 		if len(cols[p]) != n {
-			c.errorf("E7", p, "%d rows but step has %d; every hop column needs one row per attempt", len(cols[p]), n)
+			c.errorf("E7", c.at(p), "%d rows but step has %d; every hop column needs one row per attempt", len(cols[p]), n)
 			return
 		}
 	}
@@ -177,14 +195,14 @@ func (c *checker) hops(S int, active *tdElement, b bindings) {
 		from, to, kind := cols[trajfile.HopFrom][i], cols[trajfile.HopTo][i], cols[trajfile.HopKind][i]
 		switch {
 		case kind != 0 && kind != 1:
-			c.errorf("E7", trajfile.HopKind, "row %d: kind %d; use 0 (accepted) or 1 (frustrated)", i, kind)
+			c.errorf("E7", c.at(trajfile.HopKind), "row %d: kind %d; use 0 (accepted) or 1 (frustrated)", i, kind)
 		case S > 0 && (from < 0 || from >= int64(S) || to < 0 || to >= int64(S)):
 			c.errorf("E7", g, "row %d: hop %d -> %d outside states 0..%d", i, from, to, S-1)
 		case from == to:
 			c.errorf("E7", g, "row %d: hop from state %d to itself", i, from)
 		}
 		if i > 0 && steps[i] < steps[i-1] {
-			c.errorf("E8", trajfile.HopStep, "row %d: step %d before step %d; hops must be in time order", i, steps[i], steps[i-1])
+			c.errorf("E8", c.at(trajfile.HopStep), "row %d: step %d before step %d; hops must be in time order", i, steps[i], steps[i-1])
 		}
 	}
 	if active == nil || len(active.steps) == 0 {
@@ -193,7 +211,7 @@ func (c *checker) hops(S int, active *tdElement, b bindings) {
 	run := active.steps
 	for i, s := range steps {
 		if s < run[0] || s > run[len(run)-1] {
-			c.errorf("E8", trajfile.HopStep, "row %d: hop at step %d outside the run (steps %d..%d)", i, s, run[0], run[len(run)-1])
+			c.errorf("E8", c.at(trajfile.HopStep), "row %d: hop at step %d outside the run (steps %d..%d)", i, s, run[0], run[len(run)-1])
 			break
 		}
 	}

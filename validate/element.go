@@ -55,7 +55,7 @@ func (c *checker) element(path string) *tdElement {
 		return nil
 	}
 	if e.value.Shape.Rank < 1 {
-		c.errorf("V27", valueP, "value of a time-dependent element must have a frame dimension, found %s", e.value.Shape)
+		c.errorf("V6", valueP, "value of a time-dependent element must have a frame dimension, found %s", e.value.Shape)
 		return nil
 	}
 	e.T = e.value.Shape.Dims[0]
@@ -209,9 +209,9 @@ func (c *checker) clock(e *tdElement) {
 	}
 }
 
-// unitDim checks V20: the unit attribute of path has the named dimension.
-// A missing unit on a dimensional dataset is an error; an unparsable one
-// was already reported by V18.
+// unitDim checks V20 (trajvault profile: a dimensional dataset carries a
+// unit) and V40 (any profile: a unit it carries has the named
+// dimension); an unparsable unit was already reported by V18.
 func (c *checker) unitDim(path, dimName string) {
 	if dimName == "" {
 		return
@@ -239,7 +239,7 @@ func (c *checker) unitDim(path, dimName string) {
 		return
 	}
 	if !u.Is(want) {
-		c.errorf("V20", path, "unit %q is a %v but this dataset holds a %s; use a %s unit such as %q", a.Strings[0], u.Dim, dimName, dimName, example[dimName])
+		c.errorf("V40", path, "unit %q is a %v but this dataset holds a %s; use a %s unit such as %q", a.Strings[0], u.Dim, dimName, dimName, example[dimName])
 	}
 }
 

@@ -2,6 +2,7 @@ package validate
 
 import (
 	"math"
+	"slices"
 	"strings"
 
 	"trajvault/internal/h5"
@@ -17,7 +18,7 @@ func (c *checker) observables() {
 	}
 	var visit func(string)
 	visit = func(p string) {
-		if p == trajfile.ElectronicGroup || strings.HasPrefix(p, trajfile.ElectronicGroup+"/") {
+		if p == trajfile.LegacyElectronicGroup || strings.HasPrefix(p, trajfile.LegacyElectronicGroup+"/") || slices.Contains(trajfile.ElectronicElements, p) {
 			return // module elements: electronic()
 		}
 		if c.isElement(p) {

@@ -13,7 +13,7 @@ func template(name string) string { return trajfile.ParticleGroup("{group}") + "
 // V13-V15, V20, V27, V34, V35).
 func (c *checker) particles(g string) {
 	if c.f.Kind(g) != h5.Group {
-		c.errorf("V27", g, "a particle group must be an HDF5 group")
+		c.errorf("V32", g, "a particle group must be an HDF5 group")
 		return
 	}
 	b := bindings{}
@@ -133,9 +133,7 @@ func (c *checker) box(g string) (int, []string) {
 		c.errorf("V11", bndAt, "must be strings, found %s", a.Type)
 	} else {
 		boundary = a.Strings
-		if a.Type.VarLen {
-			c.warnf("V4", bndAt, "variable-length strings; H5MD asks for fixed-length strings")
-		}
+		c.fixedString(bndAt, a)
 		if dim > 0 && len(boundary) != dim {
 			c.errorf("V11", bndAt, "has %d entries for dimension %d; give one per axis", len(boundary), dim)
 		}

@@ -26,6 +26,7 @@ type Report struct {
 	Tool          Tool              `json:"tool"`
 	File          string            `json:"file"`
 	LayoutVersion string            `json:"layout_version"`
+	Profile       string            `json:"profile,omitempty"` // rules checked: h5md or trajvault (files only)
 	Errors        int               `json:"errors"`
 	Warnings      int               `json:"warnings"`
 	Notes         int               `json:"notes,omitempty"`
@@ -101,11 +102,11 @@ func codeLess(a, b string) bool {
 
 // Codes lists every rule code the file checks can report. The tests check
 // that layout.md documents each one and that a fixture makes each fire.
-// Codes are never reused: V16, V21, V23 and V24 are retired.
+// Codes are never reused: V4, V16, V21, V23 and V24 are retired.
 var Codes = []string{
-	"V1", "V2", "V3", "V4", "V5", "V6", "V7", "V8", "V9", "V10", "V11", "V12", "V13", "V14",
+	"V1", "V2", "V3", "V5", "V6", "V7", "V8", "V9", "V10", "V11", "V12", "V13", "V14",
 	"V15", "V17", "V18", "V19", "V20", "V22", "V25", "V26", "V27", "V28", "V29",
-	"V30", "V31", "V32", "V33", "V34", "V35", "V36", "V37",
+	"V30", "V31", "V32", "V33", "V34", "V35", "V36", "V37", "V38", "V39", "V40", "V41",
 	"E1", "E2", "E3", "E4", "E5", "E6", "E7", "E8", "E9", "E10", "E11",
 	"R1", "R2", "R3", "R4", "R5", "R6", "R7",
 }

@@ -9,6 +9,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"strings"
 	"testing"
 
@@ -17,6 +18,7 @@ import (
 	"trajvault/internal/finding"
 	"trajvault/internal/h5"
 	"trajvault/internal/testenv"
+	"trajvault/internal/trajfile"
 	"trajvault/schema"
 )
 
@@ -56,7 +58,7 @@ func editRecord(edit func(string) string) func(t *testing.T, f *h5.File) {
 		t.Helper()
 		a, err := f.Attr("/parameters", "trajvault_provenance")
 		mustDo(t, err)
-		mustDo(t, f.SetString("/parameters", "trajvault_provenance", edit(a.Strings[0])))
+		mustDo(t, f.SetVarString("/parameters", "trajvault_provenance", edit(a.Strings[0])))
 	}
 }
 
@@ -91,7 +93,7 @@ func rewrite(t *testing.T, f *h5.File, path string, typ h5.DType, edit func(v []
 	mustDo(t, f.Delete(path))
 	create(t, f, path, typ, dims, v)
 	if unit != "" {
-		mustDo(t, f.SetString(path, "unit", unit))
+		mustDo(t, f.SetVarString(path, "unit", unit))
 	}
 }
 
@@ -176,9 +178,9 @@ func TestWriterOutputIsClean(t *testing.T) {
 }
 
 const (
-	pg  = "/particles/all"
-	obs = "/observables"
-	el  = "/observables/electronic"
+	pg   = "/particles/all"
+	obs  = "/observables"
+	hops = trajfile.HopsGroup
 )
 
 // TestRules: one fixture per rule, each breaking exactly that rule of a
@@ -197,7 +199,14 @@ func TestRules(t *testing.T) {
 		{"V2", finding.Error, "version not int[2]", func(t *testing.T, f *h5.File) { mustDo(t, f.SetInts("/h5md", "version", []int32{1}, true)) }, nil},
 		{"V3", finding.Error, "creator version missing", func(t *testing.T, f *h5.File) { mustDo(t, f.DeleteAttr("/h5md/creator", "version")) }, nil},
 		{"V3", finding.Error, "author name not a string", func(t *testing.T, f *h5.File) { mustDo(t, f.SetInts("/h5md/author", "name", []int32{7}, true)) }, nil},
-		{"V4", finding.Warning, "variable-length author", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString("/h5md/author", "name", "A. Nonymous")) }, nil},
+		{"V39", finding.Warning, "fixed-length author", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString("/h5md/author", "name", "A. Nonymous")) }, nil},
+		{"V39", finding.Warning, "fixed-length boundary", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetStrings(pg+"/box", "boundary", []string{"none", "none", "none"}))
+		}, nil},
+		{"V38", finding.Warning, "position in Angstrom", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "Angstrom")) }, nil},
+		{"V38", finding.Warning, "energy in kcal/mol", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetVarString(obs+"/total_energy/value", "unit", "kcal/mol"))
+		}, nil},
 		{"V5", finding.Error, "module without version", func(t *testing.T, f *h5.File) { mustDo(t, f.DeleteAttr("/h5md/modules/units", "version")) }, nil},
 		{"V6", finding.Error, "element without step", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete(pg+"/velocity/step")) }, nil},
 		{"V6", finding.Error, "element without value", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete(obs+"/kinetic_energy/value")) }, nil},
@@ -247,12 +256,12 @@ func TestRules(t *testing.T) {
 		{"V17", finding.Error, "connectivity index out of range", func(t *testing.T, f *h5.File) {
 			create(t, f, "/connectivity/bonds", h5.Int32, []int{2, 2}, []float64{0, 1, 0, 7})
 		}, nil},
-		{"V18", finding.Error, "unit grammar", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString(pg+"/position/value", "unit", "nm nm")) }, nil},
-		{"V18", finding.Warning, "unknown symbol", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString(pg+"/position/value", "unit", "Angstrom")) }, nil},
+		{"V18", finding.Error, "unit grammar", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "nm nm")) }, nil},
+		{"V18", finding.Warning, "unknown symbol", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "furlong")) }, nil},
 		{"V19", finding.Warning, "units module missing", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/h5md/modules/units")) }, nil},
 		{"V20", finding.Error, "position without unit", func(t *testing.T, f *h5.File) { mustDo(t, f.DeleteAttr(pg+"/position/value", "unit")) }, nil},
-		{"V20", finding.Error, "position in fs", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString(pg+"/position/value", "unit", "fs")) }, nil},
-		{"V20", finding.Error, "A is the ampere", func(t *testing.T, f *h5.File) { mustDo(t, f.SetString(pg+"/position/value", "unit", "A")) }, nil},
+		{"V40", finding.Error, "position in fs", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "fs")) }, nil},
+		{"V40", finding.Error, "A is the ampere", func(t *testing.T, f *h5.File) { mustDo(t, f.SetVarString(pg+"/position/value", "unit", "A")) }, nil},
 		{"V22", finding.Error, "trailing fill frames", func(t *testing.T, f *h5.File) {
 			ownClock(t, f, obs+"/kinetic_energy", func(s []float64) {
 				for i := len(s) - 3; i < len(s); i++ {
@@ -291,7 +300,8 @@ func TestRules(t *testing.T) {
 			pyRun(t, py, path)
 			return path
 		}},
-		{"V32", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V41", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V32", finding.Error, "particle group is a dataset", func(t *testing.T, f *h5.File) { create(t, f, "/particles/extra", h5.Float64, []int{1}, []float64{0}) }, nil},
 		{"V33", finding.Error, "damaged object header", nil, func(t *testing.T) string {
 			// h5py (Debian python3-h5py, HDF5 1.10 API) gives the object
 			// header's address; its first bytes (version or "OHDR"
@@ -330,13 +340,26 @@ func TestRules(t *testing.T) {
 			rewrite(t, f, "/parameters/n_states", h5.Int32, func(v []float64, d []int) ([]float64, []int) { return []float64{3}, d })
 		}, nil},
 		{"E4", finding.Error, "active state out of range", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/active_state/value", h5.Int32, func(v []float64, d []int) ([]float64, []int) { v[3] = 5; return v, d })
+			rewrite(t, f, obs+"/active_state/value", h5.Int32, func(v []float64, d []int) ([]float64, []int) { v[3] = 5; return v, d })
+		}, nil},
+		// Module version 1.0 kept its elements under /observables/electronic;
+		// its rules still apply there.
+		{"E5", finding.Error, "population above 1, module 1.0 layout", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetInts(trajfile.OurModule, "version", []int32{1, 0}, false))
+			mustDo(t, f.CreateGroup(trajfile.LegacyElectronicGroup))
+			for _, p := range []string{trajfile.Populations, trajfile.HopsGroup} {
+				old, _ := trajfile.Legacy(p)
+				mustDo(t, f.HardLink(p, old))
+				mustDo(t, f.Delete(p))
+			}
+			old, _ := trajfile.Legacy(trajfile.Populations)
+			rewrite(t, f, old+"/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) { v[0] = 1.2; return v, d })
 		}, nil},
 		{"E5", finding.Error, "population above 1", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/populations/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) { v[0] = 1.2; return v, d })
+			rewrite(t, f, obs+"/populations/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) { v[0] = 1.2; return v, d })
 		}, nil},
 		{"E6", finding.Warning, "populations do not sum to 1", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/populations/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) {
+			rewrite(t, f, obs+"/populations/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) {
 				for i := range v {
 					v[i] = 0.3
 				}
@@ -344,13 +367,13 @@ func TestRules(t *testing.T) {
 			})
 		}, nil},
 		{"E7", finding.Error, "hop kind 2", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/hops/kind", h5.Int32, func(v []float64, d []int) ([]float64, []int) { v[0] = 2; return v, d })
+			rewrite(t, f, hops+"/kind", h5.Int32, func(v []float64, d []int) ([]float64, []int) { v[0] = 2; return v, d })
 		}, nil},
 		{"E8", finding.Error, "hop outside run", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/hops/step", h5.Int64, func(v []float64, d []int) ([]float64, []int) { v[len(v)-1] = 99999; return v, d })
+			rewrite(t, f, hops+"/step", h5.Int64, func(v []float64, d []int) ([]float64, []int) { v[len(v)-1] = 99999; return v, d })
 		}, nil},
 		{"E9", finding.Warning, "symmetric couplings", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/couplings/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) {
+			rewrite(t, f, obs+"/couplings/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) {
 				for i := 0; i < len(v); i += 4 {
 					v[i+2] = v[i+1]
 				}
@@ -358,7 +381,7 @@ func TestRules(t *testing.T) {
 			})
 		}, nil},
 		{"E10", finding.Warning, "state change without hop", func(t *testing.T, f *h5.File) {
-			rewrite(t, f, el+"/hops/kind", h5.Int32, func(v []float64, d []int) ([]float64, []int) {
+			rewrite(t, f, hops+"/kind", h5.Int32, func(v []float64, d []int) ([]float64, []int) {
 				for i := range v {
 					v[i] = 1
 				}
@@ -413,7 +436,8 @@ func TestRules(t *testing.T) {
 				c.mutate(t, f)
 			}
 			mustDo(t, f.Close())
-			rep, err := File(path, Options{})
+			// The fixtures break trajvault files: every rule applies.
+			rep, err := File(path, Options{Profile: ProfileTrajvault})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -499,5 +523,55 @@ func TestRepeatsFolded(t *testing.T) {
 	}
 	if rep.Errors != 3 {
 		t.Errorf("errors = %d, want 3 (folded ones counted)", rep.Errors)
+	}
+}
+
+// TestProfilesDocumented: the Profile column of layout.md's rules
+// tables names, for every code, the profile RuleProfiles gives it.
+func TestProfilesDocumented(t *testing.T) {
+	md := string(schema.LayoutMarkdown())
+	row := regexp.MustCompile(`(?m)^\| ([VER]\d+) \| [^|]+ \| ([a-z0-9]+) \|`)
+	doc := map[string]string{}
+	for _, m := range row.FindAllStringSubmatch(md, -1) {
+		doc[m[1]] = m[2]
+	}
+	for _, code := range Codes {
+		p, ok := RuleProfiles[code]
+		if !ok {
+			t.Errorf("%s has no profile in RuleProfiles", code)
+			continue
+		}
+		if doc[code] != string(p) {
+			t.Errorf("%s: layout.md says profile %q, the validator %q", code, doc[code], p)
+		}
+	}
+	for code := range RuleProfiles {
+		if !slices.Contains(Codes, code) {
+			t.Errorf("RuleProfiles names %s, which is not in Codes", code)
+		}
+	}
+}
+
+// TestModule10Clean: a valid file in the layout of electronic module
+// version 1.0 (elements under /observables/electronic) stays valid.
+func TestModule10Clean(t *testing.T) {
+	path := base(t)
+	f, err := h5.OpenRW(path)
+	mustDo(t, err)
+	mustDo(t, f.SetInts(trajfile.OurModule, "version", []int32{1, 0}, false))
+	mustDo(t, f.CreateGroup(trajfile.LegacyElectronicGroup))
+	for _, p := range append(append([]string(nil), trajfile.ElectronicElements...), trajfile.HopsGroup) {
+		old, _ := trajfile.Legacy(p)
+		mustDo(t, f.HardLink(p, old))
+		mustDo(t, f.Delete(p))
+	}
+	mustDo(t, f.Close())
+	rep, err := File(path, Options{})
+	mustDo(t, err)
+	if rep.Profile != string(ProfileTrajvault) || rep.Errors != 0 || rep.Warnings != 0 {
+		t.Errorf("profile %s, %d errors, %d warnings; want trajvault and none", rep.Profile, rep.Errors, rep.Warnings)
+		for _, f := range rep.Findings {
+			t.Log(f)
+		}
 	}
 }

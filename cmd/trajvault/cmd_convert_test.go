@@ -15,6 +15,7 @@ import (
 
 	"trajvault/internal/h5"
 	"trajvault/internal/testenv"
+	"trajvault/internal/trajfile"
 )
 
 func repo(parts ...string) string {
@@ -74,7 +75,7 @@ func TestTextToDepositFile(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer f.Close()
-	for _, p := range []string{"/particles/all/position/value", "/observables/electronic/populations/value", "/particles/all/position/time"} {
+	for _, p := range []string{"/particles/all/position/value", trajfile.Populations + trajfile.Value, "/particles/all/position/time"} {
 		v, _, _ := f.ReadFloat64(p)
 		b := make([]byte, 8*len(v))
 		for i, x := range v {

@@ -58,6 +58,11 @@ func TestValidateExitCodes(t *testing.T) {
 	}{
 		{"clean", []string{"validate", good}, 0, "ok, 0 errors, 0 warnings", "", false},
 		{"findings", []string{"validate", bad}, 1, "error   V20", "", false},
+		// V20 (every dimensional dataset carries a unit) is a trajvault
+		// rule: under the h5md profile a missing unit is not an error.
+		{"h5md profile", []string{"validate", "--profile", "h5md", bad}, 0, "ok, 0 errors, 0 warnings (layout 1.1, h5md profile)", "", false},
+		{"trajvault profile", []string{"validate", "--profile", "trajvault,minimal", bad}, 1, "trajvault profile", "", false},
+		{"two rule profiles", []string{"validate", "--profile", "h5md,trajvault", good}, 2, "", "two rule profiles", true},
 		{"empty", []string{"validate", write("empty.h5", nil)}, 2, "", "file is empty", true},
 		{"not hdf5", []string{"validate", write("x.xyz", []byte("1\n\nH 0 0 0\n"))}, 2, "", "not an HDF5 file", true},
 		{"truncated", []string{"validate", write("cut.h5", raw[:len(raw)/2])}, 2, "", "truncated or damaged", true},

@@ -32,7 +32,8 @@ func mustFactor(from, to string) float64 {
 }
 
 // WriteH5 runs one demo trajectory and writes it with the trajectory
-// writer, in the units a typical log would use.
+// writer: the numbers are given in the units a typical log would use and
+// stored in trajfile.ReaderUnits, so that common readers open the file.
 func WriteH5(path string, o Options) error {
 	m := Tarnol()
 	m.Faults = o.Faults
@@ -49,7 +50,7 @@ func WriteH5(path string, o Options) error {
 	}
 	w, err := trajfile.Create(path, trajfile.Spec{
 		Author: o.Author, Creator: "trajvault demo", CreatorVersion: o.Tool,
-		Species: []int{8, 1, 1}, Masses: masses,
+		Species: []int{8, 1, 1}, Masses: masses, ForReaders: true,
 		Velocity: true, Force: true, Kinetic: true, Potential: true, Total: true,
 		NStates: 2, StateEnergies: true, ActiveState: true, Populations: true, Amplitudes: true,
 		Couplings: true, Hops: true,

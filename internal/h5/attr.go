@@ -324,10 +324,15 @@ func (f *File) SetStrings(path, name string, values []string) error {
 	return f.setStrings(path, name, values, 1, false)
 }
 
-// SetVarString writes a scalar variable-length string attribute. trajvault's
-// own writer does not use it; tests use it to build files as other tools do.
+// SetVarString writes a scalar variable-length UTF-8 string attribute,
+// the form h5py returns as str (trajfile's writer uses it).
 func (f *File) SetVarString(path, name, value string) error {
 	return f.setStrings(path, name, []string{value}, 0, true)
+}
+
+// SetVarStrings writes a 1-D variable-length UTF-8 string array attribute.
+func (f *File) SetVarStrings(path, name string, values []string) error {
+	return f.setStrings(path, name, values, 1, true)
 }
 
 func (f *File) setStrings(path, name string, values []string, rank int, vlen bool) error {

@@ -24,6 +24,7 @@ import (
 	"trajvault/internal/demo"
 	"trajvault/internal/h5"
 	"trajvault/internal/testenv"
+	"trajvault/internal/trajfile"
 )
 
 func demoFile(t *testing.T) string {
@@ -218,8 +219,7 @@ func TestH5dumpReadsOurFiles(t *testing.T) {
 	defer f.Close()
 	for _, p := range []string{
 		"/particles/all/position/value", "/particles/all/position/step", "/particles/all/mass",
-		"/particles/all/species", "/observables/electronic/populations/value",
-		"/observables/electronic/active_state/value", "/observables/electronic/hops/kind",
+		"/particles/all/species", trajfile.Populations + trajfile.Value, trajfile.ActiveState + trajfile.Value, trajfile.HopKind,
 	} {
 		bin := filepath.Join(t.TempDir(), "out.bin")
 		// -b LE: raw little-endian binary of the dataset (HDF5 tools guide).
@@ -240,7 +240,7 @@ func TestH5dumpReadsOurFiles(t *testing.T) {
 	}
 	for _, want := range []string{
 		`DATASET "value"`, "H5T_IEEE_F64LE", "( 301, 3, 3 ) / ( H5S_UNLIMITED, 3, 3 )",
-		`"angstrom"`, `"hartree bohr-1"`, "CSET H5T_CSET_ASCII", `(0): 1, 1`, `"trajvault demo"`,
+		`"angstrom"`, `"kJ mol-1 nm-1"`, "STRSIZE H5T_VARIABLE", `(0): 1, 1`, `"trajvault demo"`,
 		`(0): "none", "none", "none"`, "H5T_STR_NULLTERM",
 	} {
 		if !strings.Contains(string(out), want) {
@@ -259,7 +259,7 @@ func TestH5lsListsOurFiles(t *testing.T) {
 	for _, want := range []string{
 		"/particles/all/position/value Dataset {301/Inf, 3, 3}",
 		"/particles/all/species   Dataset {3}",
-		"/observables/electronic/couplings/value Dataset {301/Inf, 2, 2}",
+		"/observables/couplings/value Dataset {301/Inf, 2, 2}",
 		"/parameters/n_states     Dataset {SCALAR}",
 	} {
 		if !strings.Contains(string(out), want) {

@@ -1,5 +1,7 @@
 package trajfile
 
+import "strings"
+
 // The layout's paths (schema/layout.md), in one place. Everything that
 // reads or writes the layout names its objects through these constants;
 // no other package spells an HDF5 path.
@@ -27,19 +29,28 @@ const (
 	PotentialEnergy = ObservablesGroup + "/potential_energy"
 	TotalEnergy     = ObservablesGroup + "/total_energy"
 
-	// The electronic-state module.
-	ElectronicGroup = ObservablesGroup + "/electronic"
-	StateEnergies   = ElectronicGroup + "/state_energies"
-	ActiveState     = ElectronicGroup + "/active_state"
-	Populations     = ElectronicGroup + "/populations"
-	Amplitudes      = ElectronicGroup + "/amplitudes"
-	Couplings       = ElectronicGroup + "/couplings"
+	// The electronic-state module, version 1.1. Its time-dependent
+	// elements sit directly under /observables: a common Python H5MD
+	// reader (python3-mdanalysis) reads every member of /observables as
+	// an element with one value per frame and fails on a nested group.
+	// The hop table (one row per attempt, not per frame) lives in the
+	// module's own root group, ElectronicGroup.
+	StateEnergies   = ObservablesGroup + "/state_energies"
+	ActiveState     = ObservablesGroup + "/active_state"
+	Populations     = ObservablesGroup + "/populations"
+	Amplitudes      = ObservablesGroup + "/amplitudes"
+	Couplings       = ObservablesGroup + "/couplings"
+	ElectronicGroup = "/" + ModuleName
 	HopsGroup       = ElectronicGroup + "/hops"
 	HopStep         = HopsGroup + "/step"
 	HopTime         = HopsGroup + "/time"
 	HopFrom         = HopsGroup + "/from_state"
 	HopTo           = HopsGroup + "/to_state"
 	HopKind         = HopsGroup + "/kind"
+	// LegacyElectronicGroup held every element of module version 1.0
+	// (/observables/electronic/state_energies, .../hops/step, ...);
+	// Legacy maps a path to it, for reading files of that version.
+	LegacyElectronicGroup = ObservablesGroup + "/electronic"
 
 	// Parameters.
 	NStates  = ParametersGroup + "/n_states"
@@ -93,3 +104,21 @@ func Particle(group, el string) string { return group + "/" + el }
 // IntegerValued reports whether an element's values are integers (stored
 // as an integer type): state indices.
 func IntegerValued(el string) bool { return el == ActiveState }
+
+// ElectronicElements are the module's time-dependent elements.
+var ElectronicElements = []string{StateEnergies, ActiveState, Populations, Amplitudes, Couplings}
+
+// Legacy returns where module version 1.0 kept the module's object at
+// path (an electronic element or part of the hop table), and false for
+// any other path.
+func Legacy(path string) (string, bool) {
+	for _, e := range ElectronicElements {
+		if path == e || strings.HasPrefix(path, e+"/") {
+			return LegacyElectronicGroup + strings.TrimPrefix(path, ObservablesGroup), true
+		}
+	}
+	if path == ElectronicGroup || strings.HasPrefix(path, ElectronicGroup+"/") {
+		return LegacyElectronicGroup + strings.TrimPrefix(path, ElectronicGroup), true
+	}
+	return "", false
+}

@@ -140,7 +140,19 @@ type Clock struct {
 
 // Clock reads the steps and times (in the stored time unit) of a
 // time-dependent element.
-func (r *Reader) Clock(el string) (*Clock, error) { return readClock(r.f, el) }
+func (r *Reader) Clock(el string) (*Clock, error) { return readClock(r.f, r.at(el)) }
+
+// at is where the file keeps el: el itself, or for files of the
+// electronic module version 1.0 the nested path (Legacy).
+func (r *Reader) at(el string) string {
+	if r.f.Kind(el) != h5.Missing {
+		return el
+	}
+	if old, ok := Legacy(el); ok && r.f.Kind(old) != h5.Missing {
+		return old
+	}
+	return el
+}
 
 // readClock reads el/step and el/time, explicit or fixed (H5MD 1.1,
 // "time-dependent data"), for every frame of el/value.
@@ -196,7 +208,7 @@ func numAttr(f *h5.File, path, name string) float64 {
 }
 
 // TimeFormat is the printed format recorded for el's times, if any.
-func (r *Reader) TimeFormat(el string) (textnum.Format, bool) { return r.format(el + Time) }
+func (r *Reader) TimeFormat(el string) (textnum.Format, bool) { return r.format(r.at(el) + Time) }
 
 func (r *Reader) format(path string) (textnum.Format, bool) {
 	a, err := r.f.Attr(path, FormatAttr)
@@ -233,6 +245,7 @@ func (r *Reader) Element(el string) (*Element, error) {
 	if !r.Has(el) {
 		return nil, nil
 	}
+	el = r.at(el)
 	info, err := r.f.Info(el + Value)
 	if err != nil {
 		return nil, err
@@ -255,11 +268,12 @@ func (r *Reader) Raw(e *Element, start, count int) ([]float64, error) {
 
 // Has reports whether the time-dependent element exists (e.g.
 // r.Particle(Velocity), TotalEnergy).
-func (r *Reader) Has(el string) bool { return r.f.Kind(el+Value) == h5.Dataset }
+func (r *Reader) Has(el string) bool { return r.f.Kind(r.at(el)+Value) == h5.Dataset }
 
 // Values reads a whole time-dependent element converted to unit ("" for
 // dimensionless or integer data), with its shape.
 func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
+	el = r.at(el)
 	v, shape, err := r.f.ReadFloat64(el + Value)
 	if err != nil {
 		return nil, shape, err
@@ -279,6 +293,7 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 // Frames reads frames [start, start+count) of a per-atom element
 // ([T][N][3]) converted to unit: the streaming path for long runs.
 func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
+	el = r.at(el)
 	info, err := r.f.Info(el + Value)
 	if err != nil {
 		return nil, err
@@ -299,16 +314,16 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 
 // Hops are the hop attempts of the file (nil when none are stored).
 func (r *Reader) Hops() ([]Hop, error) {
-	if r.f.Kind(HopsGroup) != h5.Group {
+	if r.f.Kind(r.at(HopsGroup)) != h5.Group {
 		return nil, nil
 	}
-	st, _, err := r.f.ReadInt64(HopStep)
+	st, _, err := r.f.ReadInt64(r.at(HopStep))
 	if err != nil {
 		return nil, err
 	}
-	from, _, _ := r.f.ReadInt64(HopFrom)
-	to, _, _ := r.f.ReadInt64(HopTo)
-	kind, _, _ := r.f.ReadInt64(HopKind)
+	from, _, _ := r.f.ReadInt64(r.at(HopFrom))
+	to, _, _ := r.f.ReadInt64(r.at(HopTo))
+	kind, _, _ := r.f.ReadInt64(r.at(HopKind))
 	if len(from) != len(st) || len(to) != len(st) || len(kind) != len(st) {
 		return nil, fmt.Errorf("hops table columns differ in length")
 	}

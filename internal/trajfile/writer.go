@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/units"
 )
 
 // Module is the name and version of trajvault's electronic-state module.
@@ -26,7 +27,7 @@ const (
 )
 
 // ModuleVersion is written as /h5md/modules/trajvault_electronic@version.
-var ModuleVersion = []int32{1, 0}
+var ModuleVersion = []int32{1, 1}
 
 // Units are the unit strings (H5MD grammar, internal/units symbols) of the
 // stored numbers. They describe the data as given; the writer converts
@@ -38,6 +39,17 @@ type Units struct {
 // DefaultUnits are the units of most quantum-chemistry logs.
 var DefaultUnits = Units{
 	Length: "angstrom", Time: "fs", Velocity: "angstrom fs-1", Force: "hartree bohr-1",
+	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
+}
+
+// ReaderUnits are the units Spec.ForReaders stores in. Those of the
+// quantities python3-mdanalysis 2.4's H5MD reader reads - time, position,
+// velocity, force - are in both the H5MD unit grammar (with this
+// project's symbol table) and that reader's fixed unit list: angstrom, fs,
+// nm ps-1 and kJ mol-1 nm-1 (no spelling of angstrom fs-1 or
+// hartree bohr-1 is in both). The others keep DefaultUnits.
+var ReaderUnits = Units{
+	Length: "angstrom", Time: "fs", Velocity: "nm ps-1", Force: "kJ mol-1 nm-1",
 	Energy: "hartree", Mass: "u", InverseTime: "fs-1",
 }
 
@@ -53,6 +65,15 @@ type Spec struct {
 	Edges    []float64 // [D], required when any boundary is periodic
 
 	Units Units
+	// ForReaders writes for readers with a fixed unit list and per-frame
+	// clocks: every number is converted from Units into ReaderUnits before
+	// it is stored (units.Factor, CODATA 2018), and the clock is stored in
+	// explicit mode even when a Clock is given. The stored values are then
+	// not the printed ones: Storage is ignored (lossless float64, no
+	// recorded format), and export cannot give back the source's digits.
+	// Off by default: a converted log keeps its units, digits and compact
+	// clock.
+	ForReaders bool
 
 	Velocity, Force               bool
 	Kinetic, Potential, Total     bool
@@ -79,9 +100,14 @@ type Spec struct {
 	SeriesFrames int
 	// File sets the HDF5 file format and chunk-index shape (h5.CreateWith).
 	File h5.CreateOptions
-	// Clock, when set, stores step and time in H5MD fixed mode: frame i is
-	// at step StepOffset + i StepIncrement and time TimeOffset + i
-	// TimeIncrement. WriteFrame checks every frame against it.
+	// Clock, when set, is the uniform clock of the run: frame i is at
+	// step StepOffset + i StepIncrement and time TimeOffset + i
+	// TimeIncrement. WriteFrame checks every frame against it, and it is
+	// stored in H5MD fixed mode (scalar step and time with an offset
+	// attribute) - unless ForReaders is set: readers that index step[i]
+	// and time[i], python3-mdanalysis 2.4's H5MD reader among them, fail
+	// on fixed mode (schema/layout.md, "Written for readers"). Without a
+	// Clock the writer stores explicit mode, one step and time per frame.
 	Clock *FixedClock
 }
 
@@ -118,7 +144,7 @@ func (w *Writer) filtersFor(name string) (h5.Filters, Storage, bool) {
 
 func (w *Writer) storageAttrs(path string, st Storage) {
 	if st.Format != "" {
-		w.do(w.f.SetString(path, FormatAttr, st.Format))
+		w.do(w.f.SetVarString(path, FormatAttr, st.Format))
 	}
 	if st.Tolerance > 0 {
 		w.do(w.f.SetFloats(path, ToleranceAttr, []float64{st.Tolerance}, true))
@@ -179,6 +205,31 @@ type Writer struct {
 	lastStep int64
 	err      error
 	closed   bool
+	// src are the units of the numbers given; spec.Units those stored.
+	// tf converts given times to stored ones.
+	src Units
+	tf  float64
+}
+
+// factor is the factor from the given to the stored unit picked by sel.
+func (w *Writer) factor(sel func(Units) string) float64 {
+	if sel(w.src) == sel(w.spec.Units) {
+		return 1
+	}
+	f, err := units.Factor(sel(w.src), sel(w.spec.Units))
+	w.do(err)
+	return f
+}
+
+func scaled(v []float64, f float64) []float64 {
+	if f == 1 {
+		return v
+	}
+	out := make([]float64, len(v))
+	for i, x := range v {
+		out[i] = x * f
+	}
+	return out
 }
 
 var pgroup = OurGroup
@@ -225,7 +276,12 @@ func Create(path string, spec Spec) (*Writer, error) {
 	if err != nil {
 		return nil, err
 	}
-	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk}
+	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk, src: spec.Units, tf: 1}
+	if spec.ForReaders {
+		w.spec.Units = ReaderUnits
+		w.spec.Storage = nil
+		w.tf = w.factor(func(u Units) string { return u.Time })
+	}
 	w.header()
 	w.layout()
 	if w.err != nil {
@@ -247,15 +303,15 @@ func (w *Writer) header() {
 	w.do(f.CreateGroup(AuthorGroup))
 	w.do(f.CreateGroup(CreatorGroup))
 	w.do(f.SetInts(H5MDGroup, "version", []int32{1, 1}, false))
-	w.do(f.SetString(AuthorGroup, "name", s.Author))
+	w.do(f.SetVarString(AuthorGroup, "name", s.Author))
 	if s.Email != "" {
-		w.do(f.SetString(AuthorGroup, "email", s.Email))
+		w.do(f.SetVarString(AuthorGroup, "email", s.Email))
 	}
-	w.do(f.SetString(CreatorGroup, "name", s.Creator))
-	w.do(f.SetString(CreatorGroup, "version", s.CreatorVersion))
+	w.do(f.SetVarString(CreatorGroup, "name", s.Creator))
+	w.do(f.SetVarString(CreatorGroup, "version", s.CreatorVersion))
 	w.do(f.CreateGroup(UnitsModule))
 	w.do(f.SetInts(UnitsModule, "version", []int32{1, 0}, false))
-	w.do(f.SetString(UnitsModule, "system", "SI"))
+	w.do(f.SetVarString(UnitsModule, "system", "SI"))
 	if s.NStates > 0 {
 		m := OurModule
 		w.do(f.CreateGroup(m))
@@ -263,16 +319,16 @@ func (w *Writer) header() {
 	}
 	w.do(f.CreateGroup(ParametersGroup))
 	if s.Integrator != "" {
-		w.do(f.SetString(ParametersGroup, "integrator", s.Integrator))
+		w.do(f.SetVarString(ParametersGroup, "integrator", s.Integrator))
 	}
 	if s.Method != "" {
-		w.do(f.SetString(ParametersGroup, "method", s.Method))
+		w.do(f.SetVarString(ParametersGroup, "method", s.Method))
 	}
 	for _, k := range sortedKeys(s.Attrs) {
-		w.do(f.SetString(ParametersGroup, k, s.Attrs[k]))
+		w.do(f.SetVarString(ParametersGroup, k, s.Attrs[k]))
 	}
 	if s.TimeStep > 0 {
-		w.scalarFloat(TimeStep, s.TimeStep, s.Units.Time)
+		w.scalarFloat(TimeStep, s.TimeStep*w.tf, s.Units.Time)
 	}
 	if s.NStates > 0 {
 		ww, err := f.CreateDataset(NStates, h5.DatasetSpec{Type: h5.Int32})
@@ -292,7 +348,7 @@ func (w *Writer) scalarFloat(path string, v float64, unit string) {
 	}
 	w.do(ww.Write([]float64{v}))
 	w.do(ww.Close())
-	w.do(w.f.SetString(path, UnitAttr, unit))
+	w.do(w.f.SetVarString(path, UnitAttr, unit))
 }
 
 func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DType) {
@@ -304,7 +360,7 @@ func (w *Writer) fixed(path string, data any, dims []int, unit string, typ h5.DT
 	w.do(ww.Write(data))
 	w.do(ww.Close())
 	if unit != "" {
-		w.do(w.f.SetString(path, UnitAttr, unit))
+		w.do(w.f.SetVarString(path, UnitAttr, unit))
 	}
 }
 
@@ -327,7 +383,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	ww, err := w.f.CreateDataset(group+Value, h5.DatasetSpec{Type: typ, Dims: dims, MaxDims: maxd, Chunk: chunk, Filters: fl})
 	w.do(err)
 	if unit != "" {
-		w.do(w.f.SetString(group+Value, UnitAttr, unit))
+		w.do(w.f.SetVarString(group+Value, UnitAttr, unit))
 	}
 	if stored {
 		w.storageAttrs(group+Value, st)
@@ -337,7 +393,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		row *= d
 	}
 	e := &element{path: group + Value, row: row, w: ww}
-	if w.step == nil && w.spec.Clock != nil {
+	if w.step == nil && w.spec.Clock != nil && !w.spec.ForReaders {
 		c := w.spec.Clock
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
 		w.do(err)
@@ -349,11 +405,11 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64})
 		w.do(err)
 		if err == nil {
-			w.do(tw.Write([]float64{c.TimeIncrement}))
+			w.do(tw.Write([]float64{c.TimeIncrement * w.tf}))
 			w.do(tw.Close())
 		}
-		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset}, true))
-		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
+		w.do(w.f.SetFloats(group+Time, OffsetAttr, []float64{c.TimeOffset * w.tf}, true))
+		w.do(w.f.SetVarString(group+Time, UnitAttr, w.spec.Units.Time))
 		if _, tst, ok := w.filtersFor("time"); ok {
 			w.storageAttrs(group+Time, tst)
 		}
@@ -367,7 +423,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		tw, err := w.f.CreateDataset(group+Time, h5.DatasetSpec{Type: h5.Float64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: tfl})
 		w.do(err)
-		w.do(w.f.SetString(group+Time, UnitAttr, w.spec.Units.Time))
+		w.do(w.f.SetVarString(group+Time, UnitAttr, w.spec.Units.Time))
 		if tstored {
 			w.storageAttrs(group+Time, tst)
 		}
@@ -386,21 +442,38 @@ func (w *Writer) layout() {
 	d := len(s.Boundary)
 	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
 	w.do(w.f.SetInts(Particle(pgroup, Box), "dimension", []int32{int32(d)}, true))
-	w.do(w.f.SetStrings(Particle(pgroup, Box), "boundary", s.Boundary))
+	w.do(w.f.SetVarStrings(Particle(pgroup, Box), "boundary", s.Boundary))
+	fLen := w.factor(func(u Units) string { return u.Length })
 	if len(s.Edges) > 0 {
-		w.fixed(Particle(pgroup, BoxEdges), s.Edges, []int{len(s.Edges)}, s.Units.Length, h5.Float64)
+		w.fixed(Particle(pgroup, BoxEdges), scaled(s.Edges, fLen), []int{len(s.Edges)}, s.Units.Length, h5.Float64)
 	}
 	sp := make([]int32, n)
 	for i, z := range s.Species {
 		sp[i] = int32(z)
 	}
 	w.fixed(Particle(pgroup, Species), sp, []int{n}, "", h5.Int32)
-	w.fixed(Particle(pgroup, Mass), s.Masses, []int{n}, s.Units.Mass, h5.Float64)
+	w.fixed(Particle(pgroup, Mass), scaled(s.Masses, w.factor(func(u Units) string { return u.Mass })), []int{n}, s.Units.Mass, h5.Float64)
 
-	add := func(group string, shape []int, typ h5.DType, unit string, get func(*Frame) ([]float64, error)) {
+	// add creates an element whose numbers get returns in the given
+	// units; sel picks its unit (nil: dimensionless or integer).
+	add := func(group string, shape []int, typ h5.DType, sel func(Units) string, get func(*Frame) ([]float64, error)) {
+		unit, f := "", 1.0
+		if sel != nil {
+			unit, f = sel(w.spec.Units), w.factor(sel)
+		}
 		w.timeDep(group, shape, typ, unit)
-		w.get = append(w.get, get)
+		w.get = append(w.get, func(fr *Frame) ([]float64, error) {
+			v, err := get(fr)
+			return scaled(v, f), err
+		})
 	}
+	var (
+		uLength   = func(u Units) string { return u.Length }
+		uVelocity = func(u Units) string { return u.Velocity }
+		uForce    = func(u Units) string { return u.Force }
+		uEnergy   = func(u Units) string { return u.Energy }
+		uInvTime  = func(u Units) string { return u.InverseTime }
+	)
 	vec := func(name string, pick func(*Frame) []float64) func(*Frame) ([]float64, error) {
 		return func(fr *Frame) ([]float64, error) {
 			v := pick(fr)
@@ -422,31 +495,31 @@ func (w *Writer) layout() {
 			return v, nil
 		}
 	}
-	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, s.Units.Length, vec("position", func(f *Frame) []float64 { return f.Position }))
+	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
 	if s.Velocity {
-		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, s.Units.Velocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
+		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, uVelocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
 	}
 	if s.Force {
-		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, s.Units.Force, vec("force", func(f *Frame) []float64 { return f.Force }))
+		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, uForce, vec("force", func(f *Frame) []float64 { return f.Force }))
 	}
 	if s.Kinetic {
-		add(KineticEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Kinetic }))
+		add(KineticEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Kinetic }))
 	}
 	if s.Potential {
-		add(PotentialEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Potential }))
+		add(PotentialEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Potential }))
 	}
 	if s.Total {
-		add(TotalEnergy, nil, h5.Float64, s.Units.Energy, scalar(func(f *Frame) float64 { return f.Total }))
+		add(TotalEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Total }))
 	}
 	ns := s.NStates
 	if ns <= 0 {
 		return
 	}
 	if s.StateEnergies {
-		add(StateEnergies, []int{ns}, h5.Float64, s.Units.Energy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
+		add(StateEnergies, []int{ns}, h5.Float64, uEnergy, sized("state energies", ns, func(f *Frame) []float64 { return f.StateEnergies }))
 	}
 	if s.ActiveState {
-		add(ActiveState, nil, h5.Int32, "", func(f *Frame) ([]float64, error) {
+		add(ActiveState, nil, h5.Int32, nil, func(f *Frame) ([]float64, error) {
 			if f.ActiveState < 0 || f.ActiveState >= ns {
 				return nil, fmt.Errorf("active state %d outside 0..%d", f.ActiveState, ns-1)
 			}
@@ -454,13 +527,13 @@ func (w *Writer) layout() {
 		})
 	}
 	if s.Populations {
-		add(Populations, []int{ns}, h5.Float64, "", sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
+		add(Populations, []int{ns}, h5.Float64, nil, sized("populations", ns, func(f *Frame) []float64 { return f.Populations }))
 	}
 	if s.Amplitudes {
-		add(Amplitudes, []int{ns, 2}, h5.Float64, "", sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
+		add(Amplitudes, []int{ns, 2}, h5.Float64, nil, sized("amplitudes", 2*ns, func(f *Frame) []float64 { return f.Amplitudes }))
 	}
 	if s.Couplings {
-		add(Couplings, []int{ns, ns}, h5.Float64, s.Units.InverseTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
+		add(Couplings, []int{ns, ns}, h5.Float64, uInvTime, sized("couplings", ns*ns, func(f *Frame) []float64 { return f.Couplings }))
 	}
 }
 
@@ -473,6 +546,7 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 		return errors.New("trajfile: WriteFrame after Close")
 	}
 	if c := w.spec.Clock; c != nil {
+		// Checked in both storage modes: a Clock claims uniform sampling.
 		i := int64(w.frames)
 		wantT := c.TimeOffset + float64(i)*c.TimeIncrement
 		if fr.Step != c.StepOffset+i*c.StepIncrement || math.Abs(fr.Time-wantT) > 1e-9*math.Max(math.Abs(c.TimeIncrement), math.Abs(wantT)) {
@@ -494,7 +568,7 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 		w.elems[i].buf = append(w.elems[i].buf, v...)
 	}
 	w.step.ibuf = append(w.step.ibuf, fr.Step)
-	w.time.buf = append(w.time.buf, fr.Time)
+	w.time.buf = append(w.time.buf, fr.Time*w.tf)
 	w.frames++
 	if len(w.step.ibuf) >= w.chunk {
 		w.flush()
@@ -555,7 +629,7 @@ func (w *Writer) writeHops() {
 	to := make([]int32, nh)
 	kind := make([]int32, nh)
 	for i, h := range w.hops {
-		step[i], tm[i], from[i], to[i] = h.Step, h.Time, int32(h.From), int32(h.To)
+		step[i], tm[i], from[i], to[i] = h.Step, h.Time*w.tf, int32(h.From), int32(h.To)
 		if h.Frustrated {
 			kind[i] = 1
 		}
@@ -566,7 +640,7 @@ func (w *Writer) writeHops() {
 	w.fixed(HopFrom, from, []int{nh}, "", h5.Int32)
 	w.fixed(HopTo, to, []int{nh}, "", h5.Int32)
 	w.fixed(HopKind, kind, []int{nh}, "", h5.Int32)
-	w.do(w.f.SetStrings(HopKind, "kind_names", []string{"accepted", "frustrated"}))
+	w.do(w.f.SetVarStrings(HopKind, "kind_names", []string{"accepted", "frustrated"}))
 }
 
 // SetParameter writes a string attribute on /parameters, e.g. the
@@ -578,7 +652,7 @@ func (w *Writer) SetParameter(name, value string) error {
 	if w.closed {
 		return errors.New("trajfile: SetParameter after Close")
 	}
-	w.do(w.f.SetString(ParametersGroup, name, value))
+	w.do(w.f.SetVarString(ParametersGroup, name, value))
 	return w.err
 }
 

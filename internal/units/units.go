@@ -10,7 +10,9 @@
 //
 // Symbols are the SI ones with SI prefixes, plus a small documented table
 // of non-SI units of this field (see Symbols). "A" is the ampere, as in SI;
-// the angstrom is written "angstrom" (or "0.1 nm" in pure SI).
+// the angstrom is written "angstrom" (or "0.1 nm" in pure SI). Spellings
+// of other writers ("Angstrom", "kcal/mol", "amu") are read through the
+// alias table (Aliases, Canonicalize) and flagged as such (Unit.Alias).
 //
 // Constants are CODATA 2018 (Rev. Mod. Phys. 93,
 // 025010 (2021), doi:10.1103/RevModPhys.93.025010; physics.nist.gov/cuu)
@@ -139,7 +141,6 @@ var Symbols = []Symbol{
 	{"cal", Energy, CalorieJoules, true, "thermochemical calorie, 4.184 J"},
 	{"u", Mass, DaltonKg, false, "unified atomic mass unit (CODATA 2018)"},
 	{"Da", Mass, DaltonKg, true, "dalton, = u"},
-	{"amu", Mass, DaltonKg, false, "alias of u, common in logs"},
 	{"angstrom", Length, AngstromMetre, false, "angstrom, 1e-10 m (trajvault symbol; A is the ampere)"},
 	{"bohr", Length, BohrMetre, false, "bohr radius a0, atomic unit of length (CODATA 2018)"},
 	{"hartree", Energy, HartreeJoule, false, "hartree energy Eh (CODATA 2018)"},
@@ -156,12 +157,10 @@ var prefixes = []struct {
 	{"n", 1e-9}, {"p", 1e-12}, {"f", 1e-15}, {"a", 1e-18}, {"z", 1e-21}, {"y", 1e-24},
 }
 
-// Hints for strings often found in legacy files that are not symbols.
+// Hints for strings found in legacy files that are neither symbols nor
+// aliases: they are ambiguous, so the user must choose.
 var hints = map[string]string{
-	"Angstrom": "angstrom", "Ang": "angstrom", "ang": "angstrom", "AA": "angstrom", "Å": "angstrom",
-	"Bohr": "bohr", "au": "hartree, bohr or au_time", "a.u.": "hartree, bohr or au_time",
-	"Hartree": "hartree", "Eh": "hartree", "Ha": "hartree", "kcal/mol": "kcal mol-1",
-	"kJ/mol": "kJ mol-1", "cm^-1": "cm-1", "1/cm": "cm-1", "amu": "u", "AMU": "u",
+	"au": "hartree, bohr or au_time", "a.u.": "hartree, bohr or au_time",
 }
 
 func lookup(sym string) (Symbol, float64, bool) {
@@ -188,6 +187,12 @@ type Unit struct {
 	Text  string
 	Scale float64
 	Dim   Dim
+	// Canonical is the spelling under the H5MD grammar and the symbol
+	// table; it equals Text unless Alias is set.
+	Canonical string
+	// Alias is set when Text is a spelling from the alias table (see
+	// Aliases), not the canonical one.
+	Alias bool
 }
 
 // Errors from Parse. Syntax errors break the H5MD grammar; ErrUnknown is a
@@ -243,8 +248,29 @@ func isNumber(s string) bool {
 }
 
 // Parse parses a unit string. The empty string is dimensionless with
-// scale 1.
+// scale 1. A string outside the grammar or the symbol table that the
+// alias table rewrites to a canonical one (Canonicalize) parses as that
+// one, with Unit.Alias set; otherwise the error is the strict parser's.
 func Parse(text string) (Unit, error) {
+	u, err := parseStrict(text)
+	if err == nil {
+		u.Canonical = text
+		return u, nil
+	}
+	canon, ok := Canonicalize(text)
+	if !ok {
+		return u, err
+	}
+	v, err2 := parseStrict(canon)
+	if err2 != nil {
+		return u, err
+	}
+	v.Text, v.Canonical, v.Alias = text, canon, true
+	return v, nil
+}
+
+// parseStrict parses text under the grammar and the symbol table only.
+func parseStrict(text string) (Unit, error) {
 	u := Unit{Text: text, Scale: 1}
 	if text == "" {
 		return u, nil

@@ -130,13 +130,16 @@ func TestParse(t *testing.T) {
 		{"g mol-1", Mass, 1e-3 / Avogadro, nil},
 		{"", Dimensionless, 1, nil},
 		{"A", Dim{0, 0, 0, 1, 0}, 1, nil}, // ampere, not angstrom
-		{"Angstrom", Dim{}, 0, ErrUnknown},
-		{"Å", Dim{}, 0, ErrSyntax},
+		{"Angstrom", Length, 1e-10, nil},  // alias, see TestAliases
+		{"Å", Length, 1e-10, nil},         // alias
+		{"furlong", Dim{}, 0, ErrUnknown},
+		{"é", Dim{}, 0, ErrSyntax},
 		{"s 60", Dim{}, 0, ErrSyntax},
 		{"nm nm", Dim{}, 0, ErrSyntax},
 		{"nm+0", Dim{}, 0, ErrSyntax},
 		{"nm  s", Dim{}, 0, ErrSyntax},
-		{"kcal/mol", Dim{}, 0, ErrUnknown},
+		{"kcal/mol", Energy, CalorieJoules * 1e3 / Avogadro, nil}, // alias
+		{"kJ/mol/nm", Dim{}, 0, ErrUnknown},                       // a/b/c is ambiguous
 		{"kbohr", Dim{}, 0, ErrUnknown},
 	}
 	for _, c := range cases {
@@ -163,5 +166,86 @@ func TestFactorDimensionMismatch(t *testing.T) {
 	}
 	if !MustParse("cm-1").Is(Energy) || MustParse("A").Is(Length) {
 		t.Error("Is: wavenumber should count as energy, ampere not as length")
+	}
+}
+
+// TestAliases: spellings found in other writers' files and what they mean
+// (the alias table, schema/layout.md). Rows are common practice of MD and
+// quantum-chemistry files; the canonical forms follow the H5MD units
+// module grammar (nongnu.org/h5md/modules/units.html).
+func TestAliases(t *testing.T) {
+	cases := []struct{ in, canonical string }{
+		{"Angstrom", "angstrom"},
+		{"Angstrom ps-1", "angstrom ps-1"},
+		{"kJ mol-1 Angstrom-1", "kJ mol-1 angstrom-1"},
+		{"kJ/(mol*nm)", "kJ mol-1 nm-1"},
+		{"kcal/mol", "kcal mol-1"},
+		{"kJ/mol", "kJ mol-1"},
+		{"ANGSTROMS", "angstrom"},
+		{"Bohr", "bohr"},
+		{"Hartree/Bohr", "hartree bohr-1"},
+		{"amu", "u"},
+		{"cm^-1", "cm-1"},
+		{"1/cm", "cm-1"},
+		{"nm^3", "nm+3"},
+		{"1/ps", "ps-1"},
+		{"Newton", "N"},
+		{"Å", "angstrom"},
+	}
+	for _, c := range cases {
+		u, err := Parse(c.in)
+		if err != nil {
+			t.Errorf("Parse(%q): %v", c.in, err)
+			continue
+		}
+		if !u.Alias || u.Canonical != c.canonical {
+			t.Errorf("Parse(%q): alias %v canonical %q, want %q", c.in, u.Alias, u.Canonical, c.canonical)
+		}
+		w := MustParse(c.canonical)
+		if w.Alias || w.Dim != u.Dim || w.Scale != u.Scale {
+			t.Errorf("%q = %v %g, canonical %q = %v %g", c.in, u.Dim, u.Scale, c.canonical, w.Dim, w.Scale)
+		}
+	}
+	// Canonical strings and SI symbols are not aliases; case is never
+	// folded for SI symbols (Ms is a megasecond, not ms).
+	for _, in := range []string{"nm", "ps", "fs", "eV", "bohr", "Da", "u", "kJ mol-1", "A", "Ms"} {
+		if u, err := Parse(in); err != nil || u.Alias {
+			t.Errorf("Parse(%q): alias %v, err %v; want canonical", in, u.Alias, err)
+		}
+	}
+	if u := MustParse("Ms"); u.Scale != 1e6 {
+		t.Errorf("Ms = %g s, want 1e6 (megasecond)", u.Scale)
+	}
+}
+
+// TestAliasFactors converts spellings of other writers with published
+// values: CODATA 2018 (NIST, physics.nist.gov/cuu/Constants; Rev. Mod.
+// Phys. 93, 025010 (2021)) for the Bohr radius, hartree and atomic mass
+// constant; the SI Brochure, 9th ed. (2019) for the exact electronvolt
+// and Faraday constant F = N_A e; NIST SP 811 (2008), appendix B, for the
+// thermochemical calorie, 1 cal_th = 4.184 J exactly.
+func TestAliasFactors(t *testing.T) {
+	cases := []struct{ from, to, want, source string }{
+		{"Bohr", "m", "5.29177210903e-11", "CODATA 2018, Bohr radius"},
+		{"Angstrom", "bohr", "1.889726124626", "derived, 1/(0.529177210903) from the CODATA 2018 Bohr radius"},
+		{"Hartree", "eV", "27.211386245988", "CODATA 2018, hartree-electron volt relationship"},
+		{"amu", "kg", "1.66053906660e-27", "CODATA 2018, atomic mass constant"},
+		{"Da", "kg", "1.66053906660e-27", "CODATA 2018, atomic mass constant"},
+		{"eV", "J", "1.602176634e-19", "SI Brochure 2019, exact"},
+		{"eV", "kJ/mol", "96.48533212", "F/1000, F = 96 485.332 12... C mol-1 (exact, SI 2019; CODATA 2018)"},
+		{"kcal/mol", "kJ/mol", "4.184", "NIST SP 811, thermochemical calorie"},
+		{"kcal/mol", "kJ mol-1", "4.184", "NIST SP 811, thermochemical calorie"},
+		{"Hartree/Bohr", "kJ/(mol*nm)", "49614.7525892", "derived: 2625.4996394798 kJ mol-1 (Eh N_A) / 0.0529177210903 nm (a0), CODATA 2018"},
+		{"Angstrom/ps", "nm ps-1", "0.1", "exact, 1 angstrom = 0.1 nm"},
+	}
+	for _, c := range cases {
+		got, err := Factor(c.from, c.to)
+		if err != nil {
+			t.Errorf("%s -> %s: %v", c.from, c.to, err)
+			continue
+		}
+		if !roundsTo(got, c.want) {
+			t.Errorf("%s -> %s = %.15g, want %s (%s)", c.from, c.to, got, c.want, c.source)
+		}
 	}
 }

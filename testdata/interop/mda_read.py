@@ -1,0 +1,63 @@
+"""Read an H5MD file with Debian's python3-mdanalysis (its H5MDReader,
+with unit conversion on, as MDAnalysis.Universe does) and with plain h5py,
+and print what they return as JSON, for trajvault's interop tests.
+
+Usage: python3 mda_read.py FILE.h5
+Output: {"mda_version", "base_units": MDAnalysis's own units,
+         "file_units": the units the reader understood,
+         "frames": [{"time", "positions", "velocities", "forces"}],
+         "universe_frames": frames seen through MDAnalysis.Universe,
+         "h5py_unit_types": {path: Python type name of the unit attribute}}
+"""
+import json
+import sys
+import warnings
+
+warnings.simplefilter("ignore")
+
+import h5py  # noqa: E402
+import MDAnalysis  # noqa: E402
+from MDAnalysis.coordinates.H5MD import H5MDReader  # noqa: E402
+from MDAnalysis.units import MDANALYSIS_BASE_UNITS  # noqa: E402
+
+path = sys.argv[1]
+# MDAnalysis 2.4's Timestep holds coordinates as float32 (hard-wired,
+# see its docstring); time is a Python float.
+r = H5MDReader(path, convert_units=True)
+frames = []
+for ts in r:
+    fr = {"time": float(ts.time)}
+    if ts.has_positions:
+        fr["positions"] = ts.positions.astype(float).ravel().tolist()
+    if ts.has_velocities:
+        fr["velocities"] = ts.velocities.astype(float).ravel().tolist()
+    if ts.has_forces:
+        fr["forces"] = ts.forces.astype(float).ravel().tolist()
+    fr["observables"] = sorted(ts.data.keys())
+    frames.append(fr)
+units = dict(r.units)
+n_atoms = r.n_atoms
+r.close()
+
+# The same file through a Universe, as users open a trajectory whose
+# topology comes from elsewhere.
+u = MDAnalysis.Universe.empty(n_atoms, trajectory=True)
+u.load_new(path, format="H5MD")
+universe_frames = len(u.trajectory)
+
+types = {}
+with h5py.File(path, "r") as f:
+    def visit(name, obj):
+        if "unit" in obj.attrs:
+            types["/" + name] = type(obj.attrs["unit"]).__name__
+    f.visititems(visit)
+    types["/h5md/author@name"] = type(f["h5md/author"].attrs["name"]).__name__
+
+json.dump({
+    "mda_version": MDAnalysis.__version__,
+    "base_units": {k: MDANALYSIS_BASE_UNITS[k] for k in ("length", "time", "speed", "force")},
+    "file_units": units,
+    "frames": frames,
+    "universe_frames": universe_frames,
+    "h5py_unit_types": types,
+}, sys.stdout)

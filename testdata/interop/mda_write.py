@@ -1,0 +1,34 @@
+"""Write an H5MD file with Debian's python3-mdanalysis H5MD writer
+(MDAnalysis.coordinates.H5MD.H5MDWriter) from a small universe built
+here: 5 atoms, 4 frames in memory, a periodic box, positions, velocities
+and forces. For validate's tests of the h5md profile.
+
+Usage: python3 mda_write.py OUT.h5
+"""
+import sys
+import warnings
+
+warnings.simplefilter("ignore")
+
+import numpy as np  # noqa: E402
+import MDAnalysis  # noqa: E402
+from MDAnalysis.coordinates.memory import MemoryReader  # noqa: E402
+
+n, T = 5, 4
+rng = np.random.default_rng(3)
+u = MDAnalysis.Universe.empty(n, trajectory=False)
+u.load_new(
+    20.0 * rng.random((T, n, 3)).astype("f4"),
+    format=MemoryReader,
+    velocities=rng.standard_normal((T, n, 3)).astype("f4"),
+    forces=rng.standard_normal((T, n, 3)).astype("f4"),
+    dimensions=np.tile([20.0, 20.0, 20.0, 90.0, 90.0, 90.0], (T, 1)).astype("f4"),
+    dt=0.5,
+)
+# MDAnalysis's own units (MDAnalysis.units); the writer stores them.
+u.trajectory.units = {"time": "ps", "length": "Angstrom", "velocity": "Angstrom/ps",
+                      "force": "kJ/(mol*Angstrom)"}
+with MDAnalysis.Writer(sys.argv[1], n_atoms=n, format="H5MD", n_frames=T,
+                       positions=True, velocities=True, forces=True) as w:
+    for ts in u.trajectory:
+        w.write(u.atoms)
