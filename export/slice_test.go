@@ -247,11 +247,11 @@ for tok in shlex.split(head):
     kv[k] = v
 assert kv["Properties"] == "species:S:1:pos:R:3:velo:R:3:forces:R:3", kv["Properties"]
 assert int(kv["step"]) == 321 and int(kv["frame"]) == 321
-assert int(kv["active_state"]) == f["observables/electronic/active_state/value"][321]
+assert int(kv["active_state"]) == f["observables/active_state/value"][321]
 amp = [float(x) for x in kv["amplitudes"].split()]
-assert amp == list(f["observables/electronic/amplitudes/value"][321].reshape(-1)), amp
+assert amp == list(f["observables/amplitudes/value"][321].reshape(-1)), amp
 pop = [float(x) for x in kv["populations"].split()]
-assert pop == list(f["observables/electronic/populations/value"][321]), pop
+assert pop == list(f["observables/populations/value"][321]), pop
 pos = f["particles/all/position/value"][321]
 vel = f["particles/all/velocity/value"][321]
 frc = f["particles/all/force/value"][321]

@@ -180,7 +180,7 @@ const timeAxisHelp = "Time of each frame: every time-dependent element (e.g. `pa
 // stateNumbering says how electronic states are numbered in the files and
 // whether the logs numbered them otherwise.
 func stateNumbering(conv []Converted) string {
-	s := "Electronic states are numbered from 0 (the lowest) in `observables/electronic` (active state, columns of state energies and populations, hops' `from_state` and `to_state`)."
+	s := "Electronic states are numbered from 0 (the lowest): `observables/active_state`, the columns of `observables/state_energies` and `observables/populations`, and the hop table's `from_state` and `to_state` (`" + strings.TrimPrefix(trajfile.HopsGroup, "/") + "`)."
 	for _, c := range conv {
 		if c.Report == nil {
 			continue
