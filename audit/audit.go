@@ -41,6 +41,9 @@ type Check struct {
 	Verdict Verdict            `json:"verdict"`
 	Summary string             `json:"summary"`
 	Values  map[string]float64 `json:"values"`
+	// Steps are the integration steps the verdict points at (e.g. hops
+	// that change the total energy), in increasing order.
+	Steps []int64 `json:"steps,omitempty"`
 
 	path string // HDF5 path of the quantity judged, for the finding
 }
@@ -176,6 +179,8 @@ type auditor struct {
 	pops, amps []float64 // per frame x state; amps as re, im pairs
 	cpl        []float64 // couplings, au_time-1
 	cplErr     error     // why stored couplings could not be read
+	se         []float64 // state energies per frame x state, hartree
+	seErr      error     // why stored state energies could not be read
 }
 
 // safeRun is run with a panic turned into an error, so that data no
