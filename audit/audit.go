@@ -207,10 +207,12 @@ func (a *auditor) run() error {
 	if err := a.loadEnergy(); err != nil {
 		return err
 	}
-	if err := a.scanFrames(); err != nil {
+	// Electronic data first: the frame scan leaves out the force jumps
+	// at changes of the active state.
+	if err := a.loadElectronic(); err != nil {
 		return err
 	}
-	if err := a.loadElectronic(); err != nil {
+	if err := a.scanFrames(); err != nil {
 		return err
 	}
 	var d derived
@@ -295,7 +297,8 @@ func (a *auditor) scanFrames() error {
 		for t := 0; t < n; t++ {
 			xs := x[t*3*r.N : (t+1)*3*r.N]
 			if start == 0 && t == 0 {
-				tau = newTauCollector(nearPairs(xs, r.N, 3/0.529177210903), 2_000_000)
+				pairs, cuts := bondedPairs(xs, r.Species, r.N)
+				tau = newTauCollector(pairs, cuts)
 				if a.hasVel {
 					mom = newMomentumTracker(r.Masses)
 					zpe = newZPETracker(a.s, r, xs)
@@ -307,7 +310,9 @@ func (a *auditor) scanFrames() error {
 				for i := range fs {
 					acc[i] = fs[i] / r.Masses[i/3]
 				}
-				tau.add(xs, acc)
+				fr := start + t
+				act := a.res.Active
+				tau.add(xs, acc, fr > 0 && fr < len(act) && act[fr] != act[fr-1])
 			}
 			if a.hasVel {
 				vs := v[t*3*r.N : (t+1)*3*r.N]
@@ -453,25 +458,35 @@ func (a *auditor) noise(d *derived) (Check, string) {
 	return result(v, vals, "the total energy random-walks as force noise sigma_F = %.2g hartree/bohr per component would (noisy gradients, or integration errors where surfaces change fast)%s", f.SigmaF, sys), path
 }
 
-// timeStep compares the integration step with the shortest period and
-// gives that period (FastestPeriod).
+// timeStep compares the integration step with the shortest period T of
+// the bonded pairs and gives that period (FastestPeriod). The suggested
+// step is the warn fraction of T, the largest step the rule calls safe.
 func (a *auditor) timeStep(d *derived) (Check, string) {
 	path := a.r.Particle(trajfile.Force)
 	if a.tau == nil || !a.hasForce {
 		return result(NA, nil, "needs positions and forces"), path
 	}
-	st := a.tau.stats(a.frameInterval())
+	delta := a.frameInterval()
+	st := a.tau.stats(delta)
+	if st.Pairs == 0 {
+		return result(NA, nil, "no bonded pairs (separation below %g times the sum of covalent radii at the start or on average): the fastest motion is not a bond vibration", bondFactor), path
+	}
 	if st.Samples == 0 {
-		return result(Unknown, nil, "no pair motion resolved"), path
+		return result(Unknown, nil, "no bond motion resolved between stored frames"), path
 	}
 	d.fastestPeriod = st.Period
 	dt := a.integrationStep()
+	suggest := a.s.StepWarnFraction * st.Period
 	vals := map[string]float64{
 		"tau_fs": st.Tau * auFs, "period_fs": st.Period * auFs, "wavenumber_cm-1": st.Wavenumber,
-		"time_step_fs": dt * auFs, "suggested_step_fs": 0.1 * st.Tau * auFs, "step_over_period": dt / st.Period,
+		"time_step_fs": dt * auFs, "suggested_step_fs": suggest * auFs, "step_over_period": dt / st.Period,
+		"bonded_pairs": float64(st.Pairs),
 	}
-	if !st.Reliable {
-		return result(Unknown, vals, "frames are stored %.3g fs apart, too far for the %.3g fs period seen; store frames more often to check the step", a.frameInterval()*auFs, st.Period*auFs), path
+	// Every step stored: frames cannot be closer, and a period under four
+	// of them means the step itself is too large.
+	everyStep := delta <= 1.5*dt
+	if !st.Reliable && !everyStep {
+		return result(Unknown, vals, "frames are stored %.3g fs apart, too far for the %.3g fs period seen; store frames more often to check the step", delta*auFs, st.Period*auFs), path
 	}
 	v := OK
 	switch {
@@ -480,6 +495,10 @@ func (a *auditor) timeStep(d *derived) (Check, string) {
 	case dt > a.s.StepWarnFraction*st.Period:
 		v = Warn
 	}
-	return result(v, vals, "fastest motion %.0f cm-1 (period %.3g fs); step %.3g fs = T/%.0f (T/20 or less is safe; about %.2g fs suggested)",
-		st.Wavenumber, st.Period*auFs, dt*auFs, st.Period/dt, 0.1*st.Tau*auFs), path
+	verb := "is"
+	if v != OK {
+		verb = "is not"
+	}
+	return result(v, vals, "fastest bond motion %.0f cm-1 (period %.3g fs, %d bonded pairs); step %.3g fs = T/%.1f %s safe (T/%.0f or less; %.2g fs suggested)",
+		st.Wavenumber, st.Period*auFs, st.Pairs, dt*auFs, st.Period/dt, verb, 1/a.s.StepWarnFraction, suggest*auFs), path
 }

@@ -84,9 +84,9 @@ var checks = []Spec{
 	},
 	{
 		Name: timeStepName, Code: "A3", Quantity: "force",
-		Doc: "Shortest period T = 2 pi tau from pairwise tau_ij = sqrt(|Delta r_ij| / |Delta a_ij|), exact 1/omega for a harmonic pair (derived; pairwise form of N-body time-step criteria), against the integration step; see TimeStepStats.",
+		Doc: "Shortest period T = 2 pi / omega of the fastest bond, omega^2 = -sum Delta a_s Delta s / sum (Delta s)^2 from frame differences of bond length s and projected relative acceleration a_s, exact for a harmonic bond and never above the fastest normal mode (derived); bonds: separation below 1.3 times the sum of covalent radii (Dalton Trans. 2008, 2832, doi:10.1039/b801115j; common practice); see TimeStepStats.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("fail when dt > %g T; warn when dt > %g T; unknown when frames are stored more than T/4 apart", s.StepFailFraction, s.StepWarnFraction)
+			return fmt.Sprintf("fail when dt > %g T; warn when dt > %g T and suggest %g T; unknown when frames are stored more than T/4 apart but not every step", s.StepFailFraction, s.StepWarnFraction, s.StepWarnFraction)
 		},
 		Gives: []Value{FastestPeriod},
 		file:  (*auditor).timeStep,

@@ -74,6 +74,10 @@ type Faults struct {
 	// this many bohr before the run (negative: inward), a systematic
 	// change of the initial conditions.
 	StartDisplacement float64
+	// StartLower starts on the lower adiabatic state (thermal dynamics
+	// near the minimum) instead of the upper one (a photoexcited run,
+	// which after its first hop down carries the gap as kinetic energy).
+	StartLower bool
 }
 
 // vc is the diabatic coupling in force after CouplingScale.
@@ -206,6 +210,9 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 	}
 	active := 1
 	c := [2]complex128{0, 1}
+	if m.Faults.StartLower {
+		active, c = 0, [2]complex128{1, 0}
+	}
 	s := m.Eval(x)
 	st := &Step{X: x, V: v, HopTo: -1}
 	planted, unrescaled := false, false
