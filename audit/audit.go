@@ -80,6 +80,14 @@ type Settings struct {
 	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; warn when that
 	// holds for more than ZPEWarnFraction of the run.
 	ZPEMargin, ZPEWarnFraction float64
+	// NoiseGapEV: when the shadow energy cannot be formed (not every step
+	// stored), the force-noise estimate leaves out frames where the
+	// adiabatic gap of the active state to a neighbour is below this (eV),
+	// as it leaves out hops: near avoided crossings the integration error
+	// itself random-walks (physics notes: about 1e-4 hartree/bohr
+	// equivalent on a model triatomic; the mixing adds curvature growing
+	// as the inverse cube of the gap, derived).
+	NoiseGapEV float64
 	// ZPEPairs lists atom pairs (0-based) to watch; empty = every X-H pair
 	// closer than 1.3 angstrom in the first frame.
 	ZPEPairs [][2]int
@@ -95,6 +103,7 @@ var DefaultSettings = Settings{
 	NoiseWarn:        1e-5,
 	StepFailFraction: 0.1, StepWarnFraction: 0.05,
 	NormTolerance: 1e-4,
+	NoiseGapEV:    0.5,
 	Temperature:   300, MomentumWarnFraction: 0.01,
 	ZPEMargin: 0.1, ZPEWarnFraction: 0.2,
 	ConsistencyFailFraction: 0.1,
@@ -167,13 +176,15 @@ type auditor struct {
 
 	etot, kin []float64 // hartree per frame
 	sumV2     float64   // <sum |v|^2>, au
+	v2        []float64 // sum |v|^2 per frame, au
 	hasVel    bool
 	hasForce  bool
 
 	// Collected in the one pass over the frames (scanFrames).
-	tau *tauCollector
-	mom *momentumTracker
-	zpe *zpeTracker
+	tau    *tauCollector
+	shadow *shadowTracker // nil unless every step is stored with v and F
+	mom    *momentumTracker
+	zpe    *zpeTracker
 
 	// Electronic data (loadElectronic).
 	pops, amps []float64 // per frame x state; amps as re, im pairs
@@ -274,6 +285,13 @@ func (a *auditor) scanFrames() error {
 	var mom *momentumTracker
 	var zpe *zpeTracker
 	var sumV2 float64
+	if a.hasVel {
+		a.v2 = make([]float64, r.T)
+	}
+	var shadow *shadowTracker
+	if h := a.frameInterval(); a.hasVel && a.hasForce && h > 0 && math.Abs(h-a.integrationStep()) <= 0.01*h {
+		shadow = newShadowTracker(h, r.T, r.Masses)
+	}
 	for start := 0; start < r.T; start += frameBlock {
 		if err := a.ctx.Err(); err != nil {
 			return err
@@ -322,11 +340,15 @@ func (a *auditor) scanFrames() error {
 					s2 += vi * vi
 				}
 				sumV2 += s2
+				a.v2[start+t] = s2
 				if needKin {
 					a.kin[start+t] = k
 				}
 				mom.add(xs, vs)
 				zpe.add(xs, vs)
+				if shadow != nil {
+					shadow.add(vs, f[t*3*r.N:(t+1)*3*r.N])
+				}
 			}
 		}
 	}
@@ -338,7 +360,7 @@ func (a *auditor) scanFrames() error {
 	if a.hasVel {
 		a.sumV2 = sumV2 / float64(r.T)
 	}
-	a.tau, a.mom, a.zpe = tau, mom, zpe
+	a.tau, a.mom, a.zpe, a.shadow = tau, mom, zpe, shadow
 	return nil
 }
 
@@ -405,57 +427,6 @@ func (a *auditor) energy(*derived) (Check, string) {
 	}
 	return result(v, vals, "total energy moves at most %.3g eV from its start, largest step jump %.3g eV (frame %d), drift %.3g eV/ps",
 		dev, jump, st.JumpFrame, vals["drift_eV_per_ps"]), a.energyPath()
-}
-
-// noise: the force-noise estimate from the energy structure function.
-// It needs the fastest period from time-step (FastestPeriod).
-func (a *auditor) noise(d *derived) (Check, string) {
-	path := a.energyPath()
-	if a.etot == nil || !a.hasVel {
-		return result(NA, nil, "needs total energy and velocities"), path
-	}
-	delta := a.frameInterval()
-	dt := a.integrationStep()
-	invMass := 0.0
-	for _, m := range a.r.Masses {
-		invMass += 3 / (2 * m)
-	}
-	// Start the lags after the fastest motion has decorrelated the bounded
-	// Verlet term: one period of the fastest mode, in frames.
-	kmin := 1
-	if d.fastestPeriod > 0 {
-		kmin = max(1, int(math.Ceil(d.fastestPeriod/delta)))
-	}
-	f := fitNoise(a.etot, kmin, dt, delta, a.sumV2, invMass)
-	if !f.Fitted {
-		return result(Unknown, nil, "the run is too short to measure force noise: it needs at least 80 periods of the fastest motion (%d frames each)", kmin), path
-	}
-	vals := map[string]float64{
-		"sigma_F_hartree_per_bohr": f.SigmaF, "bounded_sigma_w_eV": f.SigmaW * hartreeEV,
-		"random_walk_eV2_per_frame": f.S2 * hartreeEV * hartreeEV, "drift_rate_eV_per_ps": f.Rate * hartreeEV * 1000 / auFs,
-		"heating_from_noise_eV_per_ps": f.HeatingRate * hartreeEV * 1000 / auFs,
-	}
-	if !f.Determined {
-		vals["upper_bound_hartree_per_bohr"] = f.UpperBound
-		v := Unknown
-		if f.UpperBound < a.s.NoiseWarn {
-			v = OK
-		}
-		return result(v, vals, "no random walk above the bounded integrator error: the run is too short to measure force noise; sigma_F < %.2g hartree/bohr", f.UpperBound), path
-	}
-	v := OK
-	if f.SigmaF >= a.s.NoiseWarn {
-		v = Warn
-	}
-	sys := ""
-	// Systematic when the fitted drift over the run exceeds both the
-	// heating the noise causes and three random-walk spreads.
-	run := a.r.Times[len(a.r.Times)-1] - a.r.Times[0]
-	walk := math.Sqrt(f.S2 * float64(len(a.etot)))
-	if f.Rate*run > 3*walk && f.Rate > 10*f.HeatingRate {
-		sys = "; the drift is larger than the noise explains: systematic (gradients inconsistent with energies, or the step too large)"
-	}
-	return result(v, vals, "the total energy random-walks as force noise sigma_F = %.2g hartree/bohr per component would (noisy gradients, or integration errors where surfaces change fast)%s", f.SigmaF, sys), path
 }
 
 // timeStep compares the integration step with the shortest period T of

@@ -3,7 +3,11 @@ package audit
 import (
 	"context"
 	"math"
+	"math/rand/v2"
+	"sort"
 	"testing"
+
+	"trajvault/internal/demo"
 )
 
 // wells: 30 hydrogen atoms in isotropic harmonic wells of 80-120 cm-1
@@ -57,4 +61,120 @@ func TestNoiseWarnLevel(t *testing.T) {
 	if v := check(t, res, "force-noise").Verdict; v != Warn {
 		t.Errorf("1e-4 hartree/bohr judged %s", v)
 	}
+}
+
+// hopRichNoise are scenario knobs of the demo model for the force-noise
+// tests: a diabatic coupling 0.3 of Tarnol's gives 50-150 accepted hops
+// in 2 ps (one every 13-40 fs) and passes through avoided crossings with
+// a seam gap of 0.006 hartree.
+var hopRichNoise = demo.Faults{CouplingScale: 0.3}
+
+// noiseRun audits one 2 ps demo run (0.05 fs steps, every step stored)
+// and returns its force-noise check and accepted hop count.
+func noiseRun(t *testing.T, seed uint64, f demo.Faults) (Check, float64) {
+	t.Helper()
+	res, err := File(context.Background(), demoRun(t, seed, 40000, f), DefaultSettings)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return check(t, res, "force-noise"), check(t, res, "hops").Values["accepted"]
+}
+
+// TestForceNoiseHopRich: Gaussian force noise drawn once per step (so the
+// effective sigma is the injected one; physics notes) at 1e-6, 1e-5 and
+// 1e-4 hartree/bohr on hop-rich runs is recovered with a median within
+// 30 % (issue 13 measured 9.3e-5, 7.6e-5 and 7.3e-5 for all three: the
+// integration error near crossings and hops swamped the estimator), and
+// the clean runs of the same seeds are never called noisy: they report an
+// upper bound below the smallest injected level, or cannot tell.
+func TestForceNoiseHopRich(t *testing.T) {
+	if testing.Short() {
+		t.Skip("2 ps runs")
+	}
+	const seeds = 5
+	for _, sigma := range []float64{1e-6, 1e-5, 1e-4} {
+		var ratios []float64
+		for seed := uint64(1); seed <= seeds; seed++ {
+			f := hopRichNoise
+			f.ForceNoise = sigma
+			c, hops := noiseRun(t, seed, f)
+			got := c.Values["sigma_F_hartree_per_bohr"]
+			if c.Values["upper_bound_hartree_per_bohr"] > 0 {
+				got = math.NaN() // a bound is not a value
+			}
+			ratios = append(ratios, got/sigma)
+			t.Logf("injected %.0e seed %d (%g accepted hops): ratio %.2f, %s: %s", sigma, seed, hops, got/sigma, c.Verdict, c.Summary)
+		}
+		med := median(ratios)
+		t.Logf("injected %.0e: median ratio %.2f", sigma, med)
+		if !(math.Abs(med-1) <= 0.3) {
+			t.Errorf("injected %.0e: median estimate %.2f of it, want within 30 %%", sigma, med)
+		}
+	}
+	for seed := uint64(1); seed <= seeds; seed++ {
+		c, _ := noiseRun(t, seed, hopRichNoise)
+		ub := c.Values["upper_bound_hartree_per_bohr"]
+		t.Logf("clean seed %d: %s, upper bound %.2g", seed, c.Verdict, ub)
+		if c.Verdict != Unknown && !(ub > 0 && ub < 1e-6) {
+			t.Errorf("clean seed %d: %s: %s", seed, c.Verdict, c.Summary)
+		}
+	}
+}
+
+// TestCleanHopRichNeverNoisy: clean hop-rich runs of 20 seeds give no
+// force-noise warning (issue 13: 4 of 7 warnings fell on clean or weakly
+// noisy runs).
+func TestCleanHopRichNeverNoisy(t *testing.T) {
+	if testing.Short() {
+		t.Skip("20 runs")
+	}
+	for seed := uint64(101); seed <= 120; seed++ {
+		res, err := File(context.Background(), demoRun(t, seed, 20000, hopRichNoise), DefaultSettings)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if c := check(t, res, "force-noise"); c.Verdict == Warn || c.Verdict == Fail {
+			t.Errorf("clean seed %d: %s: %s", seed, c.Verdict, c.Summary)
+		}
+	}
+}
+
+// TestNotFooledAtOnePeriod: a bounded periodic energy error whose first
+// lag falls exactly at its period (where it cancels, so D(kmin) ~ 0 and
+// every later lag looks like growth) is not taken for a random walk
+// (issue 13: flat structure functions from the second lag on were called
+// noise); a random walk of the same size is.
+func TestNotFooledAtOnePeriod(t *testing.T) {
+	const n, period = 40000, 180
+	rng := rand.New(rand.NewPCG(5, 6))
+	bounded := make([]float64, n)
+	walk := make([]float64, n)
+	w := 0.0
+	for i := range bounded {
+		bounded[i] = 1e-5*math.Sin(2*math.Pi*float64(i)/period) + 1e-9*rng.NormFloat64()
+		w += 1e-7 * rng.NormFloat64()
+		walk[i] = w + 1e-9*math.Sin(2*math.Pi*float64(i)/period)
+	}
+	segs := []segment{{0, n}}
+	if f := fitNoise(bounded, segs, period, period, 1, 1, 1, 1); f.Determined {
+		t.Errorf("bounded periodic term taken for a random walk: %+v", f)
+	}
+	if f := fitNoise(walk, segs, period, period, 1, 1, 1, 1); !f.Determined || math.Abs(f.S2/1e-14-1) > 0.3 {
+		t.Errorf("random walk of 1e-14 per frame not determined: %+v", f)
+	}
+}
+
+// median of v; a NaN (a bound where a value was wanted) sorts first and
+// so counts as a miss below the others.
+func median(v []float64) float64 {
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	n := len(s)
+	if n == 0 {
+		return math.NaN()
+	}
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
 }

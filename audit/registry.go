@@ -93,9 +93,9 @@ var checks = []Spec{
 	},
 	{
 		Name: "force-noise", Code: "A2", Quantity: "total_energy",
-		Doc: "Structure function D(k) = <(E(n+k) - E(n))^2> ~ 2 sigma_w^2 + k s^2 + (k Delta r)^2 fitted with non-negative coefficients; sigma_F = sqrt(s^2 / (dt Delta <sum v^2>)) for Gaussian force errors in velocity Verlet (derived); see NoiseFit.",
+		Doc: "Structure function D(k) = <(E(n+k) - E(n))^2> ~ 2 sigma_w^2 + k s^2 + (k Delta r)^2 over frame pairs inside segments free of hops and energy bursts, fitted with non-negative coefficients; E is the shadow energy E + h^2/12 v.V''.v - h^2/24 F.M^-1.F of velocity Verlet when every step is stored (Hairer, Lubich, Wanner, Geometric Numerical Integration, 2006, ch. IX), else the stored energy with small-gap frames left out too; sigma_F = sqrt(s^2 / (dt Delta <sum v^2>)) for Gaussian force errors (derived); see NoiseFit.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("warn when sigma_F >= %g hartree/bohr; unknown when the run is too short to separate the random walk", s.NoiseWarn)
+			return fmt.Sprintf("warn when sigma_F >= %g hartree/bohr; cannot tell, with an upper bound, when the clean segments do not show a random walk rising over lags beyond the fastest period", s.NoiseWarn)
 		},
 		Needs: []Value{FastestPeriod},
 		file:  (*auditor).noise,
