@@ -29,6 +29,18 @@ const (
 	NA      Verdict = "n/a"     // the file lacks what the check needs
 )
 
+// Label is the verdict as a reader should read it: "not run" and
+// "cannot tell" are never a pass.
+func (v Verdict) Label() string {
+	switch v {
+	case NA:
+		return "not run"
+	case Unknown:
+		return "cannot tell"
+	}
+	return string(v)
+}
+
 func (v Verdict) rank() int {
 	return map[Verdict]int{NA: 0, OK: 1, Unknown: 2, Warn: 3, Fail: 4}[v]
 }

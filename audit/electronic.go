@@ -100,7 +100,12 @@ func (a *auditor) populations(*derived) (Check, string) {
 	case worstNorm > a.s.NormTolerance:
 		v = Warn
 	}
-	return result(v, vals, "populations sum to 1 within %.2g (worst at frame %d); %d values outside [0,1]", worstNorm, worstFrame, outOfRange), path
+	if v == OK {
+		return result(v, vals, "populations sum to 1 within %.2g (worst at frame %d); none outside [0,1]", worstNorm, worstFrame), path
+	}
+	// A failure states the failure (issue 13: "sum to 1 within 0.02" was
+	// printed on a fail).
+	return result(v, vals, "populations do not sum to 1: off by up to %.2g (frame %d, tolerance %g); %d values outside [0,1]", worstNorm, worstFrame, a.s.NormTolerance, outOfRange), path
 }
 
 // hopProbability recomputes fewest-switches probabilities from the stored
