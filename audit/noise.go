@@ -354,14 +354,22 @@ func (a *auditor) noise(d *derived) (Check, string) {
 		"shadow_energy": b2f(a.shadow != nil),
 		"left_out_hops": float64(why["hops"]), "left_out_small_gap": float64(why["small gap"]), "left_out_bursts": float64(why["energy bursts"]),
 		"lag_min_frames": float64(f.KMin), "lag_max_frames": float64(f.KMax)}
-	left := fmt.Sprintf("%.0f %% of the frames are away from hops, small gaps and energy bursts", 100*float64(clean)/float64(T))
+	avoid := "hops, small gaps and energy bursts"
+	if a.shadow != nil {
+		avoid = "hops and energy bursts"
+	}
+	left := fmt.Sprintf("%.0f %% of the frames are away from %s", 100*float64(clean)/float64(T), avoid)
 	if why["hops"]+why["small gap"]+why["energy bursts"] == 0 {
-		left = "no hops, small gaps or energy bursts to leave out"
+		left = "nothing to leave out (no hops or energy bursts)"
 	}
 	if !f.Fitted {
 		if f.UpperBound > 0 {
 			vals["upper_bound_hartree_per_bohr"] = f.UpperBound
-			return result(Unknown, vals, "cannot tell below sigma_F = %.2g hartree/bohr: %s, too little to fit lags of %d to %d frames", f.UpperBound, left, f.KMin, minLagSpan*f.KMin), path
+			v := Unknown
+			if f.UpperBound < a.s.NoiseWarn {
+				v = OK // below the warn level whatever hides under the bound
+			}
+			return result(v, vals, "a bound, not a value: sigma_F < %.2g hartree/bohr (%s, too little to fit lags of %d to %d frames)", f.UpperBound, left, f.KMin, minLagSpan*f.KMin), path
 		}
 		return result(Unknown, vals, "too short to measure force noise: %s, and lags from %d frames (1.5 periods of the fastest motion) need %d times that in clean segments", left, f.KMin, minLagSpan*lagWindows), path
 	}
