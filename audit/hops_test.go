@@ -220,3 +220,28 @@ func TestUnrescaledHopsEveryOne(t *testing.T) {
 		t.Errorf("flagged %d of %d planted", flaggedAll, plantedAll)
 	}
 }
+
+// TestStepFrames: a hop maps to the first stored frame at or after its
+// step, the frame whose energy change includes it (frames stored every
+// 10th step here, common practice for long runs); out-of-order steps
+// fall back to exact matches.
+func TestStepFrames(t *testing.T) {
+	cases := []struct {
+		name  string
+		steps []int64
+		hop   int64
+		want  int
+	}{
+		{"stored step", []int64{0, 10, 20}, 10, 1},
+		{"between frames", []int64{0, 10, 20}, 15, 2},
+		{"after the last frame", []int64{0, 10, 20}, 25, -1},
+		{"before the first frame", []int64{5, 10}, 0, 0},
+		{"out of order, exact", []int64{0, 20, 10}, 10, 2},
+		{"out of order, between", []int64{0, 20, 10}, 15, -1},
+	}
+	for _, c := range cases {
+		if got := stepFrames(c.steps)(c.hop); got != c.want {
+			t.Errorf("%s: step %d -> frame %d, want %d", c.name, c.hop, got, c.want)
+		}
+	}
+}
