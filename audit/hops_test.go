@@ -245,3 +245,48 @@ func TestStepFrames(t *testing.T) {
 		}
 	}
 }
+
+// TestUnrescaledHopsStrided: hop-rich runs stored every 10th step
+// (common practice for long runs), whose accepted hops all keep the
+// velocities and fall on about 4 % of the stored frames: no planted hop
+// is passed - each is flagged by step or counted as undecidable (its own
+// step and gap are not stored, or it shares a frame interval) - and
+// nothing else is flagged. Truth is the generator's record of unrescaled
+// hops.
+func TestUnrescaledHopsStrided(t *testing.T) {
+	const steps, stride = 20000, 10
+	f := demo.Faults{CouplingScale: 0.1, NoRescaleEvery: 1}
+	flagged, planted, frames := 0, 0, 0
+	for seed := uint64(1); seed <= 4; seed++ {
+		want, acc := unrescaledSteps(seed, steps, f)
+		isPlanted := map[int64]bool{}
+		for _, s := range want {
+			isPlanted[s] = true
+		}
+		p := filepath.Join(t.TempDir(), "s.h5")
+		o := demo.DefaultOptions
+		o.Seed, o.Steps, o.Faults, o.Stride = seed, steps, f, stride
+		if err := demo.WriteH5(p, o); err != nil {
+			t.Fatal(err)
+		}
+		res, err := File(context.Background(), p, DefaultSettings)
+		if err != nil {
+			t.Fatal(err)
+		}
+		h := check(t, res, "hops")
+		for _, s := range h.Steps {
+			if !isPlanted[s] {
+				t.Errorf("seed %d: hop at step %d flagged but not planted", seed, s)
+			}
+		}
+		// Frustrated hops are undecidable here (no coupling vectors).
+		passed := acc - int(h.Values["accepted_violating_energy"]) - int(h.Values["undecidable"]-h.Values["frustrated"])
+		if len(want) != acc || passed != 0 || h.Verdict != Fail {
+			t.Errorf("seed %d: %d accepted, %d planted, %d passed: %s", seed, acc, len(want), passed, h.Summary)
+		}
+		flagged += len(h.Steps)
+		planted += len(want)
+		frames += res.Frames
+	}
+	t.Logf("strided: flagged %d of %d planted by step, the rest undecidable (planted on %.1f %% of %d stored frames)", flagged, planted, 100*float64(planted)/float64(frames), frames)
+}
