@@ -26,6 +26,8 @@ type Report struct {
 	ByActive   [][]float64 `json:"-"` // [state][t]
 	ByAmpSq    [][]float64 `json:"-"`
 	NoiseLevel [][]float64 `json:"-"` // 3 binomial sigma
+
+	settings Settings // the thresholds in force, for the report
 }
 
 // Caution is printed with every audit.
@@ -36,7 +38,7 @@ const Caution = "An audit is evidence about the stored numbers, not a certificat
 // finding (and a failed trajectory) and the others go on; the only error
 // returned is ctx's, when it is cancelled before the audit ends.
 func Ensemble(ctx context.Context, paths []string, s Settings, jobs int) (*Report, error) {
-	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(paths))}
+	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(paths)), settings: s}
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
 	for i, p := range paths {
@@ -83,7 +85,10 @@ func Ensemble(ctx context.Context, paths []string, s Settings, jobs int) (*Repor
 }
 
 // flaggedSummary counts, for each registered per-file check, the
-// trajectories that fail or warn on it.
+// trajectories in each state: fail, warn, cannot tell, not run. Its
+// verdict is never ok while a trajectory's check did not run or could
+// not tell: n/a when none ran, unknown when some did not (issue 13: "ok
+// flagged: force-noise: 0 of 8 fail" read as a pass when nothing ran).
 func (rep *Report) flaggedSummary() []Check {
 	counts := map[string]map[Verdict]int{}
 	for _, t := range rep.Trajectories {
@@ -103,17 +108,41 @@ func (rep *Report) flaggedSummary() []Check {
 		if !ok {
 			continue // no file could be audited
 		}
+		n := len(rep.Trajectories)
 		v := OK
-		if c[Fail] > 0 {
+		switch {
+		case c[Fail] > 0:
 			v = Fail
-		} else if c[Warn] > 0 {
+		case c[Warn] > 0:
 			v = Warn
+		case c[NA] == n:
+			v = NA
+		case c[NA] > 0 || c[Unknown] > 0:
+			v = Unknown
 		}
-		out = append(out, Check{Name: FlaggedPrefix + spec.Name, Code: spec.Code, Verdict: v,
-			Summary: fmt.Sprintf("%d of %d trajectories fail, %d warn", c[Fail], len(rep.Trajectories), c[Warn]),
-			Values:  map[string]float64{"fail": float64(c[Fail]), "warn": float64(c[Warn]), "trajectories": float64(len(rep.Trajectories))}})
+		sum := fmt.Sprintf("%d of %d trajectories fail, %d warn", c[Fail], n, c[Warn])
+		if c[Unknown] > 0 {
+			sum += fmt.Sprintf(", %d cannot tell", c[Unknown])
+		}
+		if c[NA] > 0 {
+			sum += fmt.Sprintf(", %d not run", c[NA])
+		}
+		out = append(out, Check{Name: FlaggedPrefix + spec.Name, Code: spec.Code, Verdict: v, Summary: sum,
+			Values: map[string]float64{"fail": float64(c[Fail]), "warn": float64(c[Warn]), "unknown": float64(c[Unknown]),
+				"not_run": float64(c[NA]), "ok": float64(c[OK]), "trajectories": float64(n)}})
 	}
 	return out
+}
+
+// NotRun counts the checks of r that did not run.
+func (r *Result) NotRun() int {
+	n := 0
+	for _, c := range r.Checks {
+		if c.Verdict == NA {
+			n++
+		}
+	}
+	return n
 }
 
 // consistency compares the two surface-hopping population estimators,

@@ -2,8 +2,16 @@ package audit
 
 import (
 	"context"
+	"fmt"
 	"math"
+	"math/rand/v2"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"sync"
 	"testing"
+
+	"trajvault/internal/demo"
 )
 
 // wells: 30 hydrogen atoms in isotropic harmonic wells of 80-120 cm-1
@@ -57,4 +65,156 @@ func TestNoiseWarnLevel(t *testing.T) {
 	if v := check(t, res, "force-noise").Verdict; v != Warn {
 		t.Errorf("1e-4 hartree/bohr judged %s", v)
 	}
+}
+
+// hopRichNoise are scenario knobs of the demo model for the force-noise
+// tests: a diabatic coupling 0.3 of Tarnol's gives 50-150 accepted hops
+// in 2 ps (one every 13-40 fs) and passes through avoided crossings with
+// a seam gap of 0.006 hartree.
+var hopRichNoise = demo.Faults{CouplingScale: 0.3}
+
+// demoRuns writes and audits one demo run per seed and faults, all at
+// once (GOMAXPROCS at a time), and returns the results in order.
+func demoRuns(t *testing.T, steps int, seeds []uint64, faults []demo.Faults) []*Result {
+	t.Helper()
+	dir := t.TempDir()
+	out := make([]*Result, len(seeds))
+	errs := make([]error, len(seeds))
+	sem := make(chan struct{}, runtime.GOMAXPROCS(0))
+	var wg sync.WaitGroup
+	for i := range seeds {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			sem <- struct{}{}
+			defer func() { <-sem }()
+			p := filepath.Join(dir, fmt.Sprintf("run%03d.h5", i))
+			o := demo.DefaultOptions
+			o.Seed, o.Steps, o.Faults = seeds[i], steps, faults[i]
+			if errs[i] = demo.WriteH5(p, o); errs[i] == nil {
+				out[i], errs[i] = File(context.Background(), p, DefaultSettings)
+			}
+		}()
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			t.Fatal(err)
+		}
+	}
+	return out
+}
+
+// TestForceNoiseHopRich: Gaussian force noise drawn once per step (so the
+// effective sigma is the injected one; physics notes) at 1e-6, 1e-5 and
+// 1e-4 hartree/bohr on hop-rich 2 ps runs (0.05 fs steps, every step
+// stored) is recovered with a median within 30 % (issue 13 measured
+// 9.3e-5, 7.6e-5 and 7.3e-5 for all three: the integration error near
+// crossings and hops swamped the estimator), and the clean runs of the
+// same seeds are never called noisy: they report an upper bound below the
+// smallest injected level, or cannot tell.
+func TestForceNoiseHopRich(t *testing.T) {
+	if testing.Short() {
+		t.Skip("2 ps runs")
+	}
+	const seeds = 5
+	levels := []float64{1e-6, 1e-5, 1e-4, 0}
+	var ss []uint64
+	var fs []demo.Faults
+	for _, sigma := range levels {
+		for seed := uint64(1); seed <= seeds; seed++ {
+			f := hopRichNoise
+			f.ForceNoise = sigma
+			ss, fs = append(ss, seed), append(fs, f)
+		}
+	}
+	res := demoRuns(t, 40000, ss, fs)
+	for li, sigma := range levels {
+		var ratios []float64
+		for k := 0; k < seeds; k++ {
+			r := res[li*seeds+k]
+			c, hops := check(t, r, "force-noise"), check(t, r, "hops").Values["accepted"]
+			ub := c.Values["upper_bound_hartree_per_bohr"]
+			if sigma == 0 {
+				t.Logf("clean seed %d (%g accepted hops): %s, upper bound %.2g", k+1, hops, c.Verdict, ub)
+				if c.Verdict != Unknown && !(ub > 0 && ub < 1e-6) {
+					t.Errorf("clean seed %d: %s: %s", k+1, c.Verdict, c.Summary)
+				}
+				continue
+			}
+			got := c.Values["sigma_F_hartree_per_bohr"]
+			if ub > 0 {
+				got = math.NaN() // a bound is not a value
+			}
+			ratios = append(ratios, got/sigma)
+			t.Logf("injected %.0e seed %d (%g accepted hops): ratio %.2f, %s: %s", sigma, k+1, hops, got/sigma, c.Verdict, c.Summary)
+		}
+		if sigma == 0 {
+			continue
+		}
+		med := median(ratios)
+		t.Logf("injected %.0e: median ratio %.2f", sigma, med)
+		if !(math.Abs(med-1) <= 0.3) {
+			t.Errorf("injected %.0e: median estimate %.2f of it, want within 30 %%", sigma, med)
+		}
+	}
+}
+
+// TestCleanHopRichNeverNoisy: clean hop-rich runs of 20 seeds give no
+// force-noise warning (issue 13: 4 of 7 warnings fell on clean or weakly
+// noisy runs).
+func TestCleanHopRichNeverNoisy(t *testing.T) {
+	if testing.Short() {
+		t.Skip("20 runs")
+	}
+	var ss []uint64
+	var fs []demo.Faults
+	for seed := uint64(101); seed <= 120; seed++ {
+		ss, fs = append(ss, seed), append(fs, hopRichNoise)
+	}
+	for i, r := range demoRuns(t, 20000, ss, fs) {
+		if c := check(t, r, "force-noise"); c.Verdict == Warn || c.Verdict == Fail {
+			t.Errorf("clean seed %d: %s: %s", ss[i], c.Verdict, c.Summary)
+		}
+	}
+}
+
+// TestNotFooledAtOnePeriod: a bounded periodic energy error whose first
+// lag falls exactly at its period (where it cancels, so D(kmin) ~ 0 and
+// every later lag looks like growth) is not taken for a random walk
+// (issue 13: flat structure functions from the second lag on were called
+// noise); a random walk of the same size is.
+func TestNotFooledAtOnePeriod(t *testing.T) {
+	const n, period = 40000, 180
+	rng := rand.New(rand.NewPCG(5, 6))
+	bounded := make([]float64, n)
+	walk := make([]float64, n)
+	w := 0.0
+	for i := range bounded {
+		bounded[i] = 1e-5*math.Sin(2*math.Pi*float64(i)/period) + 1e-9*rng.NormFloat64()
+		w += 1e-7 * rng.NormFloat64()
+		walk[i] = w + 1e-9*math.Sin(2*math.Pi*float64(i)/period)
+	}
+	segs := []segment{{0, n}}
+	if f := fitNoise(bounded, segs, period, period, 1, 1, 1, 1); f.Determined {
+		t.Errorf("bounded periodic term taken for a random walk: %+v", f)
+	}
+	if f := fitNoise(walk, segs, period, period, 1, 1, 1, 1); !f.Determined || math.Abs(f.S2/1e-14-1) > 0.3 {
+		t.Errorf("random walk of 1e-14 per frame not determined: %+v", f)
+	}
+}
+
+// median of v; a NaN (a bound where a value was wanted) sorts first and
+// so counts as a miss below the others.
+func median(v []float64) float64 {
+	s := append([]float64(nil), v...)
+	sort.Float64s(s)
+	n := len(s)
+	if n == 0 {
+		return math.NaN()
+	}
+	if n%2 == 1 {
+		return s[n/2]
+	}
+	return (s[n/2-1] + s[n/2]) / 2
 }

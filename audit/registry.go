@@ -84,18 +84,18 @@ var checks = []Spec{
 	},
 	{
 		Name: timeStepName, Code: "A3", Quantity: "force",
-		Doc: "Shortest period T = 2 pi tau from pairwise tau_ij = sqrt(|Delta r_ij| / |Delta a_ij|), exact 1/omega for a harmonic pair (derived; pairwise form of N-body time-step criteria), against the integration step; see TimeStepStats.",
+		Doc: "Shortest period T = 2 pi / omega of the fastest bond, omega^2 = -sum Delta a_s Delta s / sum (Delta s)^2 from frame differences of bond length s and projected relative acceleration a_s, exact for a harmonic bond and never above the fastest normal mode (derived); bonds: separation below 1.3 times the sum of covalent radii (Dalton Trans. 2008, 2832, doi:10.1039/b801115j; common practice); see TimeStepStats.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("fail when dt > %g T; warn when dt > %g T; unknown when frames are stored more than T/4 apart", s.StepFailFraction, s.StepWarnFraction)
+			return fmt.Sprintf("fail when dt > %g T; warn when dt > %g T and suggest %g T; unknown when frames are stored more than T/4 apart but not every step", s.StepFailFraction, s.StepWarnFraction, s.StepWarnFraction)
 		},
 		Gives: []Value{FastestPeriod},
 		file:  (*auditor).timeStep,
 	},
 	{
 		Name: "force-noise", Code: "A2", Quantity: "total_energy",
-		Doc: "Structure function D(k) = <(E(n+k) - E(n))^2> ~ 2 sigma_w^2 + k s^2 + (k Delta r)^2 fitted with non-negative coefficients; sigma_F = sqrt(s^2 / (dt Delta <sum v^2>)) for Gaussian force errors in velocity Verlet (derived); see NoiseFit.",
+		Doc: "Structure function D(k) = <(E(n+k) - E(n))^2> ~ 2 sigma_w^2 + k s^2 + (k Delta r)^2 over frame pairs inside segments free of hops and energy bursts, fitted with non-negative coefficients; E is the shadow energy E + h^2/12 v.V''.v - h^2/24 F.M^-1.F of velocity Verlet when every step is stored (Hairer, Lubich, Wanner, Geometric Numerical Integration, 2006, ch. IX), else the stored energy with small-gap frames left out too; sigma_F = sqrt(s^2 / (dt Delta <sum v^2>)) for Gaussian force errors (derived); see NoiseFit.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("warn when sigma_F >= %g hartree/bohr; unknown when the run is too short to separate the random walk", s.NoiseWarn)
+			return fmt.Sprintf("warn when sigma_F >= %g hartree/bohr; cannot tell, with an upper bound, when the clean segments do not show a random walk rising over lags beyond the fastest period", s.NoiseWarn)
 		},
 		Needs: []Value{FastestPeriod},
 		file:  (*auditor).noise,
@@ -118,9 +118,9 @@ var checks = []Spec{
 	},
 	{
 		Name: "hops", Code: "A6", Quantity: "hops",
-		Doc: "Energy bookkeeping at logged hops: an accepted hop changes E_tot no more than ten times the 99th percentile of ordinary step changes; a frustrated hop must not be downhill (derived).",
+		Doc: "Energy bookkeeping per hop: an accepted hop with velocity rescaling keeps K + V, one without changes E_tot by the gap V_to - V_from; each hop's change is judged against the ordinary steps around it (never a level the hops themselves raise) and against its own gap; a frustrated hop must not be downhill (derived; J. Chem. Phys. 93, 1061 (1990), doi:10.1063/1.459170); see auditor.hops.",
 		Rule: func(Settings) string {
-			return "fail when an accepted hop changes the total energy or a frustrated hop was downhill; unknown when hops fall between stored frames"
+			return fmt.Sprintf("fail when an accepted hop changes the total energy by more than %d times the largest change of the %d ordinary frames on either side and by more than %g of its own gap, or a frustrated hop was downhill; a hop whose gap is below its tolerance cannot be judged", hopTolFactor, hopWindow, hopGapFraction)
 		},
 		file: (*auditor).hops,
 	},

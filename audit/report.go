@@ -138,7 +138,7 @@ figure{margin:1.5rem 0}
 <p>Overall verdict: <span class="{{.R.Verdict}}">{{.R.Verdict}}</span>; {{.R.Flagged}} trajectories flagged.</p>
 <h2>Ensemble</h2>
 <table><tr><th>check</th><th>verdict</th><th>finding</th></tr>
-{{range .R.Ensemble}}<tr><td>{{.Name}}</td><td class="{{.Verdict}}">{{.Verdict}}</td><td>{{.Summary}}</td></tr>
+{{range .R.Ensemble}}<tr><td>{{.Name}}</td><td class="{{.Verdict}}">{{.Verdict.Label}}</td><td>{{.Summary}}</td></tr>
 {{end}}</table>
 {{range .Figures}}<figure>{{.}}</figure>
 {{end}}
@@ -146,13 +146,26 @@ figure{margin:1.5rem 0}
 {{if .Flagged}}<table><tr><th>trajectory</th><th>check</th><th>verdict</th><th>reason</th></tr>
 {{range .Flagged}}<tr><td>{{.File}}</td><td>{{.Check}}</td><td class="{{.Verdict}}">{{.Verdict}}</td><td>{{.Summary}}</td></tr>
 {{end}}</table>{{else}}<p>None.</p>{{end}}
-<h2>All trajectories</h2>
-<table><tr><th>trajectory</th><th>frames</th><th>atoms</th><th>verdict</th></tr>
-{{range .R.Trajectories}}<tr><td>{{.File}}</td><td>{{.Frames}}</td><td>{{.Atoms}}</td><td class="{{.Verdict}}">{{.Verdict}}</td></tr>
+<h2>All trajectories, every check</h2>
+<p>"not run" means the file lacks what the check needs; "cannot tell" that the data do not decide. Neither is a pass. Hover a cell for its finding.</p>
+<table><tr><th>trajectory</th><th>frames</th>{{range .Columns}}<th>{{.}}</th>{{end}}</tr>
+{{range .Matrix}}<tr><td>{{.File}}</td><td>{{.Frames}}</td>{{range .Cells}}<td class="{{.Verdict}}" title="{{.Summary}}">{{.Verdict.Label}}</td>{{end}}</tr>
+{{end}}</table>
+<h2>Rules and thresholds in force</h2>
+<table><tr><th>code</th><th>check</th><th>rule</th></tr>
+{{range .Rules}}<tr><td>{{.Code}}</td><td>{{.Name}}</td><td>{{.Rule}}</td></tr>
 {{end}}</table>
 <p>Written by trajvault {{.Version}}.</p>
 </body></html>
 `))
+
+type matrixRow struct {
+	File   string
+	Frames int
+	Cells  []Check
+}
+
+type ruleRow struct{ Code, Name, Rule string }
 
 type flaggedRow struct {
 	File, Check, Summary string
@@ -194,7 +207,30 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 			}
 		}
 	}
-	return reportTmpl.Execute(w, map[string]any{"R": rep, "Figures": figs, "Flagged": flagged, "Version": version})
+	var cols []string
+	var rules []ruleRow
+	for _, spec := range checks {
+		rules = append(rules, ruleRow{Code: spec.Code, Name: spec.Name, Rule: spec.Rule(rep.settings)})
+		if spec.Scope == PerFile {
+			cols = append(cols, spec.Name)
+		}
+	}
+	var matrix []matrixRow
+	for _, t := range rep.Trajectories {
+		row := matrixRow{File: filepath.Base(t.File), Frames: t.Frames}
+		for _, name := range cols {
+			cell := Check{Verdict: NA, Summary: "cannot audit: " + t.Error}
+			for _, c := range t.Checks {
+				if c.Name == name {
+					cell = c
+				}
+			}
+			row.Cells = append(row.Cells, cell)
+		}
+		matrix = append(matrix, row)
+	}
+	return reportTmpl.Execute(w, map[string]any{"R": rep, "Figures": figs, "Flagged": flagged, "Version": version,
+		"Columns": cols, "Matrix": matrix, "Rules": rules})
 }
 
 // PopulationSVG is the ensemble population plot alone (for dataset

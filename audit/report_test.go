@@ -91,3 +91,45 @@ func TestReportRendersInChromium(t *testing.T) {
 		os.WriteFile(dst, data, 0o644)
 	}
 }
+
+// TestNotRunNeverOK: a trajectory without electronic states cannot run
+// the populations and hop checks; no output calls them ok (issue 13: "ok
+// flagged: force-noise: 0 of 8 fail" when nothing ran). JSON gives "n/a",
+// the finding says "not run:", the ensemble count says "not run", and the
+// HTML matrix says "not run" in those cells.
+func TestNotRunNeverOK(t *testing.T) {
+	o := wells(0, 77)
+	o.steps = 2000
+	rep, err := Ensemble(context.Background(), []string{o.run(t)}, DefaultSettings, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	notRun := map[string]bool{"populations": true, "hop-probability": true, "hops": true}
+	for _, c := range rep.Trajectories[0].Checks {
+		if notRun[c.Name] && c.Verdict != NA {
+			t.Errorf("%s on a file without states: %s", c.Name, c.Verdict)
+		}
+	}
+	for _, c := range rep.Ensemble {
+		name := strings.TrimPrefix(c.Name, FlaggedPrefix)
+		if notRun[name] && (c.Verdict != NA || !strings.Contains(c.Summary, "1 not run")) {
+			t.Errorf("%s: %s %q", c.Name, c.Verdict, c.Summary)
+		}
+	}
+	for _, f := range rep.Findings {
+		name, _, _ := strings.Cut(f.Message, ":")
+		if notRun[name] && !strings.HasPrefix(f.Message, name+": not run: ") {
+			t.Errorf("finding %q", f.Message)
+		}
+	}
+	var b bytes.Buffer
+	if err := rep.WriteHTML(&b, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(b.String(), `<td class="n/a" title="no electronic states stored">not run</td>`); n != len(notRun) {
+		t.Errorf("HTML matrix shows %d not-run cells, want %d", n, len(notRun))
+	}
+	if !strings.Contains(b.String(), "Rules and thresholds in force") {
+		t.Error("HTML lacks the thresholds")
+	}
+}

@@ -138,3 +138,21 @@ func (a *auditor) zpeCheck(*derived) (Check, string) {
 	}
 	return result(v, vals, "worst X-H pair (atoms %d-%d) has less than its zero-point kinetic energy %.0f %% of the time", ij[0], ij[1], 100*worstFrac), path
 }
+
+// nearPairs lists atom pairs closer than cutoff (bohr) in frame x.
+func nearPairs(x []float64, n int, cutoff float64) [][2]int {
+	var out [][2]int
+	for i := 0; i < n; i++ {
+		for j := i + 1; j < n; j++ {
+			d2 := 0.0
+			for k := 0; k < 3; k++ {
+				d := x[3*i+k] - x[3*j+k]
+				d2 += d * d
+			}
+			if d2 < cutoff*cutoff {
+				out = append(out, [2]int{i, j})
+			}
+		}
+	}
+	return out
+}

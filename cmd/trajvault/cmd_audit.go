@@ -192,6 +192,10 @@ func printAudit(g *globals, rep *audit.Report) {
 	}
 	for _, t := range rep.Trajectories {
 		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict, filepath.Base(t.File), t.Frames)
+		if n := t.NotRun(); n > 0 {
+			// "ok" covers only the checks that ran (issue 13).
+			line = fmt.Sprintf("%-5s %s (%d frames; %d of %d checks not run)", t.Verdict, filepath.Base(t.File), t.Frames, n, len(t.Checks))
+		}
 		fmt.Fprintln(g.stdout, line)
 		for _, f := range byFile[t.File] {
 			f.File = filepath.Base(f.File) // the line above names the file

@@ -12,20 +12,24 @@ import (
 )
 
 type demoOptions struct {
-	trajectories int
-	steps        int
-	seed         uint64
-	text         bool
-	json         bool
-	stride       int
-	decimals     int
-	molecules    int
-	forceNoise   float64
-	unrescaled   int
-	restart      int
-	truncate     bool
-	dt           float64
-	ampScale     float64
+	trajectories  int
+	steps         int
+	seed          uint64
+	text          bool
+	json          bool
+	stride        int
+	decimals      int
+	molecules     int
+	forceNoise    float64
+	unrescaled    int
+	restart       int
+	truncate      bool
+	dt            float64
+	ampScale      float64
+	couplingScale float64
+	epsShift      float64
+	startShift    float64
+	startLower    bool
 }
 
 func (o *demoOptions) AddFlags(c *cobra.Command) {
@@ -42,6 +46,10 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().IntVar(&o.unrescaled, "unrescaled-hops", 0, "fault: every n-th accepted hop keeps the velocities (energy not conserved)")
 	c.Flags().IntVar(&o.restart, "restart-overlap", 0, "fault, with --text: repeat this many frames at mid-run, as a restart does")
 	c.Flags().BoolVar(&o.truncate, "truncate-last", false, "fault, with --text: cut the last frame of the geometry file")
+	c.Flags().Float64Var(&o.couplingScale, "coupling-scale", 1, "scenario: scale the diabatic coupling (0.1-0.3 give hop-rich runs through narrow avoided crossings)")
+	c.Flags().Float64Var(&o.epsShift, "diabatic-shift", 0, "scenario: add this to the diabatic offset (hartree; negative narrows the diabatic gap at the start)")
+	c.Flags().Float64Var(&o.startShift, "start-stretch", 0, "scenario: move each H atom this far (bohr) outward along its bond before the run")
+	c.Flags().BoolVar(&o.startLower, "start-lower", false, "scenario: start on the lower state (thermal dynamics) instead of the upper one")
 	c.Flags().IntVar(&o.molecules, "molecules", 1, "with --text: copies of the molecule in the geometry (for benchmarks of larger systems)")
 }
 
@@ -59,6 +67,9 @@ Exit status: 0 success, 2 usage or I/O error.`,
 		Example: "  trajvault demo demo-data",
 		Args:    cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
+			if o.couplingScale <= 0 {
+				return &exitError{exitUsage, errors.New("demo: --coupling-scale must be positive, e.g. --coupling-scale 0.3")}
+			}
 			if o.trajectories < 1 || o.steps < 1 || o.dt <= 0 {
 				return &exitError{exitUsage, errors.New("demo: --trajectories, --steps and --dt must be positive, e.g. --trajectories 4 --steps 2000 --dt 0.05")}
 			}
@@ -83,7 +94,8 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 		opt := demo.DefaultOptions
 		opt.Seed, opt.Steps, opt.Tool = o.seed+uint64(i), o.steps, toolVersion()
 		opt.DtFs = o.dt
-		opt.Faults = demo.Faults{ForceNoise: o.forceNoise, NoRescaleEvery: o.unrescaled, AmplitudeScale: o.ampScale}
+		opt.Faults = demo.Faults{ForceNoise: o.forceNoise, NoRescaleEvery: o.unrescaled, AmplitudeScale: o.ampScale,
+			CouplingScale: o.couplingScale, EpsShift: o.epsShift, StartDisplacement: o.startShift, StartLower: o.startLower}
 		var err error
 		if o.text {
 			err = demo.WriteLogs(filepath.Join(tmp, fmt.Sprintf("traj-%03d", i+1)), demo.LogOptions{Options: opt, Stride: o.stride, Decimals: o.decimals, Molecules: o.molecules, RestartOverlap: o.restart, TruncateLast: o.truncate})

@@ -56,6 +56,36 @@ type Faults struct {
 	// AmplitudeScale multiplies the stored amplitudes (0 = 1): values
 	// other than 1 break the normalisation.
 	AmplitudeScale float64
+
+	// Scenario knobs: no error, but harder physics for the audit and
+	// different physics for ensemble comparisons.
+
+	// CouplingScale multiplies the diabatic coupling V_c (0 = 1). Below 1
+	// the avoided crossings narrow (adiabatic gap 2 V_c at the seam) and
+	// the time-derivative coupling peaks higher: more hops, and sharper
+	// curvature of the adiabatic surfaces where the integrator errs.
+	CouplingScale float64
+	// EpsShift is added to the diabatic offset eps (hartree). At the
+	// start geometry V_b - V_a = 0.0255 hartree for Tarnol; a negative
+	// shift narrows that diabatic gap, so the runs start nearer the seam
+	// and cross it more often.
+	EpsShift float64
+	// StartDisplacement moves each H atom outward along its X-H bond by
+	// this many bohr before the run (negative: inward), a systematic
+	// change of the initial conditions.
+	StartDisplacement float64
+	// StartLower starts on the lower adiabatic state (thermal dynamics
+	// near the minimum) instead of the upper one (a photoexcited run,
+	// which after its first hop down carries the gap as kinetic energy).
+	StartLower bool
+}
+
+// vc is the diabatic coupling in force after CouplingScale.
+func (m *Model) vc() float64 {
+	if s := m.Faults.CouplingScale; s != 0 {
+		return m.Vc * s
+	}
+	return m.Vc
 }
 
 var pairs = [3][2]int{{0, 1}, {0, 2}, {1, 2}}
@@ -107,10 +137,11 @@ func (m *Model) Eval(x []float64) Surfaces {
 			gb[3*j+k] -= m.K[p] * db * u
 		}
 	}
-	vb += m.Eps
+	vb += m.Eps + m.Faults.EpsShift
+	vc := m.vc()
 	var s Surfaces
 	delta := va - vb
-	root := math.Sqrt(delta*delta/4 + m.Vc*m.Vc)
+	root := math.Sqrt(delta*delta/4 + vc*vc)
 	s.E[0] = (va+vb)/2 - root
 	s.E[1] = (va+vb)/2 + root
 	for k := 0; k < 9; k++ {
@@ -120,7 +151,7 @@ func (m *Model) Eval(x []float64) Surfaces {
 		s.Grad[1][k] = mean + delta/4*dd/root
 		s.DDiab[k] = dd
 	}
-	s.Theta = 0.5 * math.Atan2(2*m.Vc, delta)
+	s.Theta = 0.5 * math.Atan2(2*vc, delta)
 	return s
 }
 
@@ -137,6 +168,9 @@ type Step struct {
 	HopTo      int     // -1 none
 	Frustrated bool    // as logged
 	Planted    bool    // a fault injected at this hop
+	// Unrescaled marks an accepted hop whose velocities were kept
+	// (Faults.NoRescaleEvery): K + V changes by the gap at this step.
+	Unrescaled bool
 }
 
 // Run integrates one trajectory of nsteps steps of dt (au_time) from a
@@ -146,6 +180,14 @@ type Step struct {
 func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step)) {
 	rng := rand.New(rand.NewPCG(seed, 0x7a3c))
 	x := m.start()
+	if d := m.Faults.StartDisplacement; d != 0 {
+		for _, h := range []int{1, 2} { // H atoms; X sits at the origin
+			r := math.Sqrt(x[3*h]*x[3*h] + x[3*h+1]*x[3*h+1] + x[3*h+2]*x[3*h+2])
+			for k := 0; k < 3; k++ {
+				x[3*h+k] *= 1 + d/r
+			}
+		}
+	}
 	for k := range x {
 		x[k] += 0.03 * rng.NormFloat64()
 	}
@@ -168,9 +210,12 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 	}
 	active := 1
 	c := [2]complex128{0, 1}
+	if m.Faults.StartLower {
+		active, c = 0, [2]complex128{1, 0}
+	}
 	s := m.Eval(x)
 	st := &Step{X: x, V: v, HopTo: -1}
-	planted := false
+	planted, unrescaled := false, false
 	record := func(n int64, coupling float64, hop int, frustrated bool) {
 		st.N, st.Time = n, float64(n)*dt
 		st.F = make([]float64, 9)
@@ -187,9 +232,9 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 		if sc := m.Faults.AmplitudeScale; sc != 0 && sc != 1 {
 			st.C = [2]complex128{c[0] * complex(sc, 0), c[1] * complex(sc, 0)}
 		}
-		st.HopTo, st.Frustrated, st.Planted = hop, frustrated, planted
+		st.HopTo, st.Frustrated, st.Planted, st.Unrescaled = hop, frustrated, planted, unrescaled
 		emit(st)
-		planted = false
+		planted, unrescaled = false, false
 	}
 	noise := func() float64 {
 		if m.Faults.ForceNoise == 0 {
@@ -260,7 +305,7 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 			default:
 				accepted++
 				if n := m.Faults.NoRescaleEvery; n > 0 && accepted%n == 0 {
-					planted = true // velocities kept: K + V jumps by dV
+					planted, unrescaled = true, true // velocities kept: K + V jumps by dV
 				} else {
 					m.rescale(v, s.DDiab[:], dV)
 				}

@@ -16,6 +16,9 @@ type Options struct {
 	Temp   float64 // initial temperature, K
 	Author string
 	Tool   string // creator version
+	// Stride > 1 stores every Stride-th step in WriteH5 (the hop log
+	// keeps every hop), as long runs are often kept.
+	Stride int
 }
 
 // DefaultOptions give a 100 fs run at 0.05 fs steps: short enough a step
@@ -82,7 +85,7 @@ func WriteH5(path string, o Options) error {
 			}
 			ferr = w.WriteHop(trajfile.Hop{Step: s.N, Time: fr.Time, From: from, To: s.HopTo, Frustrated: s.Frustrated})
 		}
-		if ferr == nil {
+		if ferr == nil && (o.Stride <= 1 || s.N%int64(o.Stride) == 0) {
 			ferr = w.WriteFrame(&fr)
 		}
 	})
