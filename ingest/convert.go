@@ -326,7 +326,7 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 			continue
 		}
 		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
-		if !fm.Exp && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
+		if fm.Fixed() && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
 			st.Decimals = fm.Decimals
 		}
 		if tol, ok := opt.Tolerance[el]; ok && tol > 0 {
@@ -336,7 +336,7 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 			for 0.5*math.Pow10(-d)*(1+1e-9) > tol {
 				d++
 			}
-			if fm.Exp || d < fm.Decimals {
+			if !fm.Fixed() || d < fm.Decimals {
 				st.Decimals = d
 				st.Tolerance = tol
 				st.Format = textnum.Format{Decimals: d}.String()

@@ -542,7 +542,7 @@ func (t *TrajReport) geometry() *FileReport {
 // checkUniform follows whether the records so far are uniformly sampled
 // in step and time, so that the clock can be stored in H5MD fixed mode.
 func (fr *FileReport) checkUniform(rec *record, key int64, tf textnum.Format) {
-	if !rec.hasTime || tf.Exp {
+	if !rec.hasTime || !tf.Fixed() {
 		fr.uniform = false
 		fr.nUniform = -1
 		return

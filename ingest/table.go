@@ -158,7 +158,8 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 		return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrFieldCount, "expected %d fields (%s), found %d; a short last line usually means the file was cut", len(t.Columns), t.names(), len(t.fields))}
 	}
 	for i, f := range t.fields {
-		v, fm, err := textnum.Parse(f.text)
+		c := t.Columns[i]
+		v, fm, err := textnum.ParseShort(f.text, !c.seen || c.Format.MayBeShortest())
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(f.text) {
@@ -167,7 +168,6 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			return line, &ParseError{File: t.file, Line: line, Column: f.col, Err: detail(cause, "column %s: expected a number, found %q", t.Columns[i].Name, f.text)}
 		}
 		dst[i] = v
-		c := t.Columns[i]
 		if !c.seen {
 			c.Format, c.seen = fm, true
 		} else {
@@ -258,9 +258,14 @@ func (s *tableSource) close()                   { s.f.Close() }
 
 func (s *tableSource) timeFormat() textnum.Format {
 	var f textnum.Format
+	seen := false
 	for i, q := range s.quant {
-		if q == quantity.TimeQ {
-			f = f.Merge(s.t.Columns[i].Format)
+		if q == quantity.TimeQ && s.t.Columns[i].seen {
+			if seen {
+				f = f.Merge(s.t.Columns[i].Format)
+			} else {
+				f, seen = s.t.Columns[i].Format, true
+			}
 		}
 	}
 	return f

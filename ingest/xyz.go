@@ -155,7 +155,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 			ci++
 			for j := 0; j < p.count; j++ {
 				f := x.fields[k]
-				v, fm, err := textnum.Parse(f.text)
+				v, fm, err := textnum.ParseShort(f.text, len(c.Values) == 0 || c.Format.MayBeShortest())
 				if err != nil {
 					cause := ErrNumber
 					if nonFinite(f.text) {
@@ -208,7 +208,7 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	for _, p := range kv {
 		fr.Info[p[0]] = p[1]
 		if v := p[1]; v != "" {
-			if _, fm, err := textnum.Parse(v); err == nil {
+			if _, fm, err := textnum.ParseShort(v, true); err == nil {
 				fr.InfoFormats[p[0]] = fm
 			}
 		}
@@ -380,7 +380,7 @@ func (s *xyzSource) next() (*record, error) {
 		if q == "" {
 			return nil
 		}
-		v, fm, err := textnum.Parse(val)
+		v, fm, err := textnum.ParseShort(val, true)
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(val) {
