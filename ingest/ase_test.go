@@ -95,7 +95,3 @@ func aseCase(t *testing.T, bitExact bool) {
 	}
 }
 
-func formatFactor(x float64) string {
-	b, _ := json.Marshal(x)
-	return string(b)
-}

@@ -2,11 +2,13 @@ package ingest
 
 import (
 	"bytes"
+	"fmt"
 	"io"
 	"os"
 	"regexp"
 	"strings"
 
+	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 )
@@ -214,6 +216,7 @@ type tableSource struct {
 	quant []string
 	state []int
 	unit  map[string]string
+	notes
 }
 
 func openTable(path string, spec *TableSpec) (*tableSource, error) {
@@ -229,13 +232,27 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 	s := &tableSource{path: path, f: f, t: t, row: make([]float64, len(t.Columns)), unit: map[string]string{}}
 	for _, c := range t.Columns {
 		q, k := c.Quantity, c.State
+		mapped := false
 		if spec != nil {
 			if m, ok := spec.Columns[c.Name]; ok {
 				q, k, _ = quantity.Recipe(m)
+				mapped = true
 			}
 		}
-		if q == quantity.Ignore {
+		switch {
+		case q == quantity.Ignore:
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note,
+				msg: fmt.Sprintf("column %s is ignored by the recipe; it is not stored", c.Name), notStored: fmt.Sprintf("column %s: ignored by the recipe", c.Name)})
 			q = ""
+		case q == "":
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note,
+				msg:       fmt.Sprintf("column %s is not a quantity trajvault knows (see README, Inputs); it is not stored (map it in a recipe: tables: - columns: {%s: QUANTITY})", c.Name, c.Name),
+				notStored: fmt.Sprintf("column %s: not a known quantity", c.Name)})
+		case !mapped && quantity.Ambiguous(c.Name) != nil:
+			a := quantity.Ambiguous(c.Name)
+			s.add("ambiguous:"+c.Name, sourceNote{code: PAmbiguous, sev: finding.Note, quantity: q,
+				msg: fmt.Sprintf("column %s read as %s (the convention of energy tables); as an %s it would mean %s. If it is not the %s, say which it is in a recipe: tables: - columns: {%s: %s}",
+					c.Name, q, a[1].Source, a[1].Quantity, q, c.Name, a[1].Quantity)})
 		}
 		c.Quantity, c.State = q, k
 		s.quant = append(s.quant, q)
