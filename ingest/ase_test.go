@@ -105,4 +105,3 @@ func aseCase(t *testing.T, bitExact bool) {
 		}
 	}
 }
-

@@ -7,8 +7,8 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
-	"strings"
 	"strconv"
+	"strings"
 	"testing"
 
 	"trajvault/internal/elements"
