@@ -145,7 +145,9 @@ func (t *TrajReport) sampleKinetic(rec *record, role Role, key int64) {
 	if !rec.hasScalar[0] || len(t.ke) == 0 || (role != RoleGeometry && rec.hasStep != t.geoSteps) {
 		return
 	}
-	if kf := t.keByKey[key]; kf != nil && !kf.hasKE {
+	// A repeated step (restart) overwrites: the later occurrence is the
+	// one kept (P5).
+	if kf := t.keByKey[key]; kf != nil {
 		kf.ke, kf.hasKE, kf.keLine = rec.scalar[0], true, rec.line
 	}
 }
