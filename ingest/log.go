@@ -103,7 +103,7 @@ func (s *logSource) apply(rule Rule, line string, m []int) (*record, error) {
 		if !ok {
 			return 0, textnum.Format{}, false, nil
 		}
-		v, fm, err := textnum.Parse(txt)
+		v, fm, err := textnum.ParseShort(txt, true)
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(txt) {

@@ -33,6 +33,10 @@ const (
 	PNoTime      = "P12" // no times
 	PConflict    = "P13" // two files give the same quantity
 	PStateBase   = "P14" // states numbered from 1 (detected)
+	PAmbiguous   = "P15" // a name read by its source's convention (note)
+	PNotStored   = "P16" // a column or key read but not stored (note)
+	PKinetic     = "P17" // 1/2 m v^2 disagrees with the kinetic-energy column
+	PStateCount  = "P18" // number of states from the active states only (note)
 )
 
 // FileReport describes one source file after the first pass.
@@ -58,6 +62,7 @@ type FileReport struct {
 	states    int // per-state columns: highest index + 1, as written
 	minState  int // lowest per-state index with a value (-1 none)
 	maxActive int
+	minActive int // lowest active state seen (-1 none)
 	active    bool
 	failed    bool // reading stopped at an error (other problems follow from it)
 	// uniform sampling: every record at step s0 + k stride and time
@@ -90,6 +95,10 @@ type TrajReport struct {
 	Precision  map[string]string `json:"precision"`
 	Quantities []string          `json:"quantities"`
 	Problems   []finding.Finding `json:"problems"`
+	// NotStored lists what the files hold that convert does not store,
+	// each with its file and reason (also in convert's output and the
+	// provenance).
+	NotStored []string `json:"not_stored"`
 
 	traj    *Trajectory
 	base    int
@@ -98,6 +107,10 @@ type TrajReport struct {
 	masses  []float64
 	formats map[string]textnum.Format
 	maxAbs  map[string]float64
+	// kinetic-energy cross-check: the first frames' sums, by join key
+	ke       []*keFrame
+	keByKey  map[int64]*keFrame
+	geoSteps bool
 }
 
 // Options control reading; zero values are the defaults.
@@ -111,6 +124,10 @@ type Options struct {
 	// Dt is the time per step, in Units["time"], when the logs give no
 	// times.
 	Dt float64
+	// AcceptMismatch turns a failed physics cross-check (P17) from an
+	// error into a warning, so that convert goes ahead; the accepted
+	// findings are recorded in the provenance.
+	AcceptMismatch bool
 }
 
 func (t *TrajReport) add(code string, sev finding.Severity, file string, line int, format string, args ...any) {
@@ -168,7 +185,8 @@ const checkEvery = 64
 // errors.
 func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) {
 	rep := &TrajReport{Name: t.Name, traj: t, Units: map[string]string{}, Precision: map[string]string{},
-		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []finding.Finding{}}
+		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []finding.Finding{},
+		NotStored: []string{}, keByKey: map[int64]*keFrame{}}
 	for _, m := range t.missing {
 		rep.add(PMissing, finding.Error, t.Dir, 0, "no file matches the recipe pattern %q", m)
 	}
@@ -213,7 +231,7 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 }
 
 func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*FileReport, error) {
-	fr := &FileReport{File: s.file(), Format: r.Kind, src: s, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1}
+	fr := &FileReport{File: s.file(), Format: r.Kind, src: s, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1, minActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
@@ -304,6 +322,9 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		if rec.hasActive {
 			fr.active = true
 			fr.maxActive = max(fr.maxActive, rec.active)
+			if fr.minActive < 0 || rec.active < fr.minActive {
+				fr.minActive = rec.active
+			}
 		}
 		key := int64(idx)
 		if rec.hasStep {
@@ -325,6 +346,7 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		} else if havePrev && rec.hasTime && (!rec.hasStep || rec.step > prevStep) && rec.time < prevTime {
 			rep.add(PTime, finding.Error, s.file(), rec.line, "time %g after %g while the step advances: the clock goes backwards; check the log", rec.time, prevTime)
 		}
+		rep.sampleKinetic(rec, r.Role, key)
 		fr.keys.push(idx, key)
 		fr.checkUniform(rec, key, s.timeFormat())
 		if rec.hasTime {
@@ -349,6 +371,14 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	}
 	fr.Hops = len(s.hops())
 	rep.Hops += fr.Hops
+	if rp, ok := s.(reporter); ok {
+		for _, n := range rp.report() {
+			rep.Problems = append(rep.Problems, finding.Finding{Code: n.code, Severity: n.sev, Location: finding.Location{File: s.file(), Line: n.line, Column: n.col}, Quantity: n.quantity, Message: n.msg})
+			if n.notStored != "" {
+				rep.NotStored = append(rep.NotStored, s.file()+": "+n.notStored)
+			}
+		}
+	}
 	return fr, nil
 }
 
@@ -409,7 +439,10 @@ func (t *TrajReport) combine(opt Options) {
 	sort.Strings(given)
 	for _, q := range given {
 		if g := givers[q]; len(g) > 1 {
-			t.add(PConflict, finding.Warning, g[1], 0, "%s is also given by %s; the first file's values are used (map the column to ignore in a recipe to silence this)", q, g[0])
+			for _, other := range g[1:] {
+				t.add(PConflict, finding.Warning, other, 0, "%s is also given by %s; the first file's values are used and these are not stored (map the column to ignore in a recipe to silence this)", q, g[0])
+				t.NotStored = append(t.NotStored, fmt.Sprintf("%s: %s: %s gives it too; its values are stored", other, q, g[0]))
+			}
 		}
 	}
 	minState := -1
@@ -422,9 +455,25 @@ func (t *TrajReport) combine(opt Options) {
 		t.base = 1
 		t.add(PStateBase, finding.Note, "", 0, "states are numbered from 1 in the logs (no state 0 found); set state_base in a recipe if that is wrong")
 	}
+	// Active states alone (no per-state columns): numbered from 1 when
+	// no state 0 is seen, and the count is the highest state seen.
+	minActive, perState := -1, 0
+	for _, f := range t.Files {
+		if f.minActive >= 0 && (minActive < 0 || f.minActive < minActive) {
+			minActive = f.minActive
+		}
+		perState = max(perState, f.states)
+	}
+	if minState < 0 && minActive >= 1 && (opt.Recipe == nil || opt.Recipe.StateBase == nil) {
+		t.base = 1
+		t.add(PStateBase, finding.Note, "", 0, "active states are numbered from 1 in the logs (no state 0 seen); set state_base in a recipe if that is wrong")
+	}
 	base := t.stateBase(opt)
 	for _, f := range t.Files {
 		t.States = max(t.States, f.states-base, f.maxActive+1-base)
+	}
+	if perState == 0 && minActive >= 0 {
+		t.add(PStateCount, finding.Note, "", 0, "%d electronic states: the highest active state seen, numbered from %d; no populations or state energies give the number of states, so states never active are not counted", t.States, base)
 	}
 	for q, fm := range t.formats {
 		t.Precision[q] = fm.String()
@@ -494,7 +543,7 @@ func (t *TrajReport) combine(opt Options) {
 	// Units for every quantity present.
 	need := map[quantity.Kind]bool{quantity.Position: true}
 	for _, q := range t.Quantities {
-		if k := quantity.StoredUnit(q); k != "" {
+		if k := quantity.StoredUnit(q); k != "" && q != quantity.MomentumQ {
 			need[k] = true
 		}
 	}
@@ -526,6 +575,8 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		t.Units[string(k)] = u
 	}
+	t.momentumUnits(geo, opt)
+	t.checkKinetic(opt)
 }
 
 // geometry is the report of the geometry file (found by its reader's
@@ -542,7 +593,7 @@ func (t *TrajReport) geometry() *FileReport {
 // checkUniform follows whether the records so far are uniformly sampled
 // in step and time, so that the clock can be stored in H5MD fixed mode.
 func (fr *FileReport) checkUniform(rec *record, key int64, tf textnum.Format) {
-	if !rec.hasTime || tf.Exp {
+	if !rec.hasTime || !tf.Fixed() {
 		fr.uniform = false
 		fr.nUniform = -1
 		return

@@ -5,6 +5,7 @@ import (
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -12,7 +13,9 @@ import (
 	"testing"
 
 	"trajvault/internal/demo"
+	"trajvault/internal/finding"
 	"trajvault/internal/h5"
+	"trajvault/internal/trajfile"
 	"trajvault/provenance"
 )
 
@@ -183,5 +186,84 @@ func TestProvenanceRecorded(t *testing.T) {
 		if hex.EncodeToString(sum[:]) != s.SHA256 || int64(len(b)) != s.Bytes {
 			t.Errorf("%s: recorded %s, file %x", s.Path, s.SHA256, sum)
 		}
+	}
+}
+
+// TestActiveStatesOnly (issue 10): a state column numbered from 1 without
+// populations or state energies gives the states seen (two, not three),
+// says how it counted (P14, P18), and records the numbering base.
+// Surface-hopping logs number states from 1 or 0 (common practice).
+func TestActiveStatesOnly(t *testing.T) {
+	cases := []struct {
+		name         string
+		states       []int
+		want, base   int
+		wantP14Notes int
+	}{
+		{"1-based, two states (issue 10 row)", []int{1, 1, 2, 2, 1}, 2, 1, 1},
+		{"0-based, two states", []int{0, 1, 1, 0, 0}, 2, 0, 0},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			dir := filepath.Join(t.TempDir(), "run")
+			os.MkdirAll(dir, 0o755)
+			var geo, tab strings.Builder
+			tab.WriteString("# step time[fs] state\n")
+			for i, s := range c.states {
+				fmt.Fprintf(&geo, "2\nstep=%d time=%d.0\nH 0.0 0.0 %d.0\nH 0.0 0.0 %d.7\n", i, i, i, i)
+				fmt.Fprintf(&tab, "%d %d.0 %d\n", i, i, s)
+			}
+			os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(geo.String()), 0o644)
+			os.WriteFile(filepath.Join(dir, "states.dat"), []byte(tab.String()), 0o644)
+			tr, err := TrajectoryFrom([]string{dir}, nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			rep, err := Scan(context.Background(), tr, Options{Units: map[string]string{"position": "angstrom", "time": "fs"}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if rep.States != c.want || rep.base != c.base {
+				t.Errorf("states %d base %d, want %d base %d: %+v", rep.States, rep.base, c.want, c.base, rep.Problems)
+			}
+			n14, n18 := 0, 0
+			for _, p := range rep.Problems {
+				switch p.Code {
+				case PStateBase:
+					n14++
+				case PStateCount:
+					n18++
+					if p.Severity != finding.Note {
+						t.Errorf("P18 is a %s", p.Severity)
+					}
+				}
+			}
+			if n14 != c.wantP14Notes || n18 != 1 {
+				t.Errorf("P14 %d, P18 %d notes: %+v", n14, n18, rep.Problems)
+			}
+			out := filepath.Join(t.TempDir(), "s.h5")
+			if _, err := Convert(context.Background(), rep, out, ConvertOptions{Options: Options{Units: map[string]string{"position": "angstrom", "time": "fs"}}}); err != nil {
+				t.Fatal(err)
+			}
+			f, err := h5.Open(out)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer f.Close()
+			n, _, err := f.ReadFloat64(trajfile.NStates)
+			if err != nil || len(n) != 1 || int(n[0]) != c.want {
+				t.Errorf("n_states %v %v", n, err)
+			}
+			a, err := f.Attr(trajfile.ParametersGroup, "trajvault_state_base")
+			if err != nil || a.Strings[0] != fmt.Sprint(c.base) {
+				t.Errorf("state base attribute %+v %v", a, err)
+			}
+			act, _, _ := f.ReadFloat64(trajfile.ActiveState + trajfile.Value)
+			for i, s := range c.states {
+				if i < len(act) && int(act[i]) != s-c.base {
+					t.Errorf("frame %d active state %v, want %d", i, act[i], s-c.base)
+				}
+			}
+		})
 	}
 }

@@ -7,6 +7,7 @@ import (
 	"sort"
 	"strings"
 
+	"trajvault/internal/finding"
 	"trajvault/internal/textnum"
 )
 
@@ -196,6 +197,44 @@ type source interface {
 	hops() []hop
 	close()
 }
+
+// reporter is implemented by sources that say, after a pass, what they
+// read but do not store and which names they took by convention. It is
+// optional so that the shared source interface stays as it is.
+type reporter interface {
+	report() []sourceNote
+}
+
+// sourceNote is one such statement; scan turns it into a finding.
+type sourceNote struct {
+	code      string
+	sev       finding.Severity
+	line, col int
+	quantity  string
+	msg       string
+	// notStored, when set, is the entry for the not-stored list of
+	// scan, convert and the provenance.
+	notStored string
+}
+
+// notes collects sourceNotes, each key once.
+type notes struct {
+	list []sourceNote
+	seen map[string]bool
+}
+
+func (n *notes) add(key string, sn sourceNote) {
+	if n.seen == nil {
+		n.seen = map[string]bool{}
+	}
+	if n.seen[key] {
+		return
+	}
+	n.seen[key] = true
+	n.list = append(n.list, sn)
+}
+
+func (n *notes) report() []sourceNote { return n.list }
 
 // formatSet accumulates printed formats per quantity.
 type formatSet map[string]textnum.Format

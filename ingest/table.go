@@ -2,11 +2,13 @@ package ingest
 
 import (
 	"bytes"
+	"fmt"
 	"io"
 	"os"
 	"regexp"
 	"strings"
 
+	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 )
@@ -158,7 +160,8 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 		return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrFieldCount, "expected %d fields (%s), found %d; a short last line usually means the file was cut", len(t.Columns), t.names(), len(t.fields))}
 	}
 	for i, f := range t.fields {
-		v, fm, err := textnum.Parse(f.text)
+		c := t.Columns[i]
+		v, fm, err := textnum.ParseShort(f.text, !c.seen || c.Format.MayBeShortest())
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(f.text) {
@@ -167,7 +170,6 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			return line, &ParseError{File: t.file, Line: line, Column: f.col, Err: detail(cause, "column %s: expected a number, found %q", t.Columns[i].Name, f.text)}
 		}
 		dst[i] = v
-		c := t.Columns[i]
 		if !c.seen {
 			c.Format, c.seen = fm, true
 		} else {
@@ -214,6 +216,7 @@ type tableSource struct {
 	quant []string
 	state []int
 	unit  map[string]string
+	notes
 }
 
 func openTable(path string, spec *TableSpec) (*tableSource, error) {
@@ -229,13 +232,27 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 	s := &tableSource{path: path, f: f, t: t, row: make([]float64, len(t.Columns)), unit: map[string]string{}}
 	for _, c := range t.Columns {
 		q, k := c.Quantity, c.State
+		mapped := false
 		if spec != nil {
 			if m, ok := spec.Columns[c.Name]; ok {
 				q, k, _ = quantity.Recipe(m)
+				mapped = true
 			}
 		}
-		if q == quantity.Ignore {
+		switch {
+		case q == quantity.Ignore:
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note,
+				msg: fmt.Sprintf("column %s is ignored by the recipe; it is not stored", c.Name), notStored: fmt.Sprintf("column %s: ignored by the recipe", c.Name)})
 			q = ""
+		case q == "":
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note,
+				msg:       fmt.Sprintf("column %s is not a quantity trajvault knows (see README, Inputs); it is not stored (map it in a recipe: tables: - columns: {%s: QUANTITY})", c.Name, c.Name),
+				notStored: fmt.Sprintf("column %s: not a known quantity", c.Name)})
+		case !mapped && quantity.Ambiguous(c.Name) != nil:
+			a := quantity.Ambiguous(c.Name)
+			s.add("ambiguous:"+c.Name, sourceNote{code: PAmbiguous, sev: finding.Note, quantity: q,
+				msg: fmt.Sprintf("column %s read as %s (the convention of energy tables); as an %s it would mean %s. If it is not the %s, say which it is in a recipe: tables: - columns: {%s: %s}",
+					c.Name, q, a[1].Source, a[1].Quantity, q, c.Name, a[1].Quantity)})
 		}
 		c.Quantity, c.State = q, k
 		s.quant = append(s.quant, q)
@@ -258,9 +275,14 @@ func (s *tableSource) close()                   { s.f.Close() }
 
 func (s *tableSource) timeFormat() textnum.Format {
 	var f textnum.Format
+	seen := false
 	for i, q := range s.quant {
-		if q == quantity.TimeQ {
-			f = f.Merge(s.t.Columns[i].Format)
+		if q == quantity.TimeQ && s.t.Columns[i].seen {
+			if seen {
+				f = f.Merge(s.t.Columns[i].Format)
+			} else {
+				f, seen = s.t.Columns[i].Format, true
+			}
 		}
 	}
 	return f

@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 
+	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 )
@@ -35,6 +36,9 @@ type Frame struct {
 	// InfoFormats records how numeric Info values were printed.
 	InfoFormats map[string]textnum.Format
 	Extended    bool
+	// Other names the per-atom columns that are not numbers (types S and
+	// L of Properties), apart from the species.
+	Other []string
 }
 
 // Column returns the named column, or nil.
@@ -120,6 +124,11 @@ func (x *XYZReader) Next() (*Frame, error) {
 		}
 	}
 	fr.Columns = cols
+	for _, p := range props {
+		if p.kind != 'R' && p.kind != 'I' && p.name != "species" {
+			fr.Other = append(fr.Other, p.name)
+		}
+	}
 	width := 0
 	for _, p := range props {
 		width += p.count
@@ -155,7 +164,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 			ci++
 			for j := 0; j < p.count; j++ {
 				f := x.fields[k]
-				v, fm, err := textnum.Parse(f.text)
+				v, fm, err := textnum.ParseShort(f.text, len(c.Values) == 0 || c.Format.MayBeShortest())
 				if err != nil {
 					cause := ErrNumber
 					if nonFinite(f.text) {
@@ -208,7 +217,7 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	for _, p := range kv {
 		fr.Info[p[0]] = p[1]
 		if v := p[1]; v != "" {
-			if _, fm, err := textnum.Parse(v); err == nil {
+			if _, fm, err := textnum.ParseShort(v, true); err == nil {
 				fr.InfoFormats[p[0]] = fm
 			}
 		}
@@ -329,6 +338,7 @@ type xyzSource struct {
 	recipe  *Recipe
 	fmts    formatSet
 	columns map[string]string
+	notes
 }
 
 func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
@@ -368,19 +378,60 @@ func (s *xyzSource) next() (*record, error) {
 	}
 	rec := &record{line: fr.Line, symbols: fr.Symbols}
 	for _, c := range fr.Columns {
-		if q := s.columnQuantity(c.Name); q != "" {
-			s.fmts.merge(q, c.Format)
-			rec.atoms = append(rec.atoms, atomColumn{q, c.Values})
+		q := s.columnQuantity(c.Name)
+		if q == "" || q == quantity.Ignore {
+			why := "not a quantity trajvault knows (see README, Inputs); it is not stored"
+			if q == quantity.Ignore {
+				why = "ignored by the recipe"
+			}
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
+				msg:       fmt.Sprintf("per-atom column %s (%d value(s) per atom): %s", c.Name, c.Width, why),
+				notStored: fmt.Sprintf("per-atom column %s: %s", c.Name, why)})
+			continue
+		}
+		s.fmts.merge(q, c.Format)
+		rec.atoms = append(rec.atoms, atomColumn{q, c.Values})
+	}
+	for _, name := range fr.Other {
+		s.add("col:"+name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
+			msg:       fmt.Sprintf("per-atom column %s is not numeric; it is not stored", name),
+			notStored: fmt.Sprintf("per-atom column %s: not numeric", name)})
+	}
+	for _, k := range []string{"Lattice", "pbc"} {
+		if v, ok := fr.Info[k]; ok {
+			s.add("key:"+k, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
+				msg:       fmt.Sprintf("comment key %s=%q (the cell) is not stored: trajvault stores no simulation box from XYZ files", k, v),
+				notStored: fmt.Sprintf("comment key %s: the cell is not stored", k)})
 		}
 	}
 	// Step, time and energies from the comment line: extended XYZ keys,
-	// then the recipe's patterns.
+	// then the recipe's patterns. A recipe's geometry columns map also
+	// names comment keys (e.g. energy: total_energy).
 	set := func(key, val string, col int) error {
 		q := quantity.CommentKey(key)
-		if q == "" {
+		m, mapped := s.columns[key]
+		if mapped {
+			q = m
+		}
+		if q == quantity.Ignore || (q == "" && !mapped) || (mapped && !perFrame(q)) {
+			why := "not a quantity trajvault knows (see README, Inputs)"
+			switch {
+			case q == quantity.Ignore:
+				why = "ignored by the recipe"
+			case mapped:
+				why = fmt.Sprintf("the recipe maps it to %q, which is not a per-frame quantity", m)
+			}
+			s.add("key:"+key, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1, col: col,
+				msg:       fmt.Sprintf("comment key %s: %s; it is not stored", key, why),
+				notStored: fmt.Sprintf("comment key %s: %s", key, why)})
 			return nil
 		}
-		v, fm, err := textnum.Parse(val)
+		if a := quantity.Ambiguous(key); a != nil && !mapped {
+			s.add("ambiguous:"+key, sourceNote{code: PAmbiguous, sev: finding.Note, line: fr.Line + 1, col: col, quantity: q,
+				msg: fmt.Sprintf("%s= read as %s (the extended XYZ convention); as a %s it would mean %s. If it is not the %s, say which it is in a recipe: geometry: columns: {%s: %s}",
+					key, q, a[0].Source, a[0].Quantity, q, key, a[0].Quantity)})
+		}
+		v, fm, err := textnum.ParseShort(val, true)
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(val) {
@@ -427,6 +478,12 @@ func (s *xyzSource) next() (*record, error) {
 		}
 	}
 	return rec, nil
+}
+
+// perFrame reports whether q is a per-frame quantity a comment line can
+// give (step, time, an energy).
+func perFrame(q string) bool {
+	return q == quantity.Step || q == quantity.TimeQ || quantity.ScalarIndex(q) >= 0
 }
 
 func sortedInfoKeys(m map[string]string) []string {

@@ -29,11 +29,17 @@ type Record struct {
 	Finished    string            `json:"finished"` // RFC 3339, UTC
 	Sources     []Source          `json:"sources"`
 	Recipe      string            `json:"recipe,omitempty"` // the recipe text, when one was used
-	Units       map[string]string `json:"units"`            // unit of each kind of quantity, as stored
+	Units       map[string]string `json:"units"`            // unit of each kind of quantity, as stored (momentum: as read, before p/m)
 	Conversions []string          `json:"conversions,omitempty"`
 	ConstantSet string            `json:"constant_set"`
 	Storage     map[string]string `json:"storage"`
 	Dropped     []string          `json:"dropped,omitempty"`
+	// NotStored lists what the sources hold that was read but not
+	// stored, each with its file and reason.
+	NotStored []string `json:"not_stored,omitempty"`
+	// Accepted lists physics cross-check findings the user accepted
+	// (convert --accept-mismatch), as printed.
+	Accepted []string `json:"accepted_mismatches,omitempty"`
 }
 
 // JSON encodes the record (map keys sorted by encoding/json).

@@ -30,6 +30,7 @@ type convertOptions struct {
 	explicit    bool
 	compat      string
 	series      int
+	accept      bool
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -44,6 +45,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
 	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
+	c.Flags().BoolVar(&o.accept, "accept-mismatch", false, "convert although a physics cross-check failed (e.g. P17: kinetic energy vs 1/2 m v^2); recorded in the file")
 	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
@@ -61,7 +63,11 @@ trajectory has problems, nothing is written. Numbers are stored at exactly the p
 in the logs (scale-offset filter) or losslessly; export prints them back
 digit for digit. Restarted runs that repeat steps keep the later
 occurrence; a cut last frame is an error unless --drop-partial. What was
-dropped is recorded in the file (/parameters@trajvault_dropped).
+dropped is recorded in the file (/parameters@trajvault_dropped); what the
+logs hold but the file does not store is listed ("not stored") and
+recorded in the provenance. A physics cross-check that fails (P17: the
+kinetic energy column against 1/2 m v^2 of the stored data, a sign of a
+wrong unit) refuses the conversion unless --accept-mismatch.
 
 Exit status: 0 success, 1 the logs have problems (as scan reports them),
 2 usage or I/O error. No output file appears unless conversion succeeded.`,
@@ -87,6 +93,7 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	if err != nil {
 		return err
 	}
+	opt.AcceptMismatch = o.accept
 	tol, err := parseTolerances(o.tolerance)
 	if err != nil {
 		return err
@@ -125,6 +132,12 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	for _, d := range res.Dropped {
 		fmt.Fprintf(g.stdout, "  dropped: %s\n", d)
 	}
+	for _, d := range res.NotStored {
+		fmt.Fprintf(g.stdout, "  not stored: %s\n", d)
+	}
+	for _, d := range res.Accepted {
+		fmt.Fprintf(g.stdout, "  accepted: %s\n", d)
+	}
 	return nil
 }
 
@@ -138,6 +151,7 @@ func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64)
 		author = os.Getenv("USER")
 	}
 	opt.DropPartial = o.dropPartial
+	opt.AcceptMismatch = o.accept
 	file := ingest.DefaultFile
 	file.Format = compatFormats[o.compat]
 	return ingest.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),

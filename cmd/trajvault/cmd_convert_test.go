@@ -112,3 +112,38 @@ func TestScanExitCodes(t *testing.T) {
 		t.Errorf("problems: exit %d, %d reports", code, len(reps))
 	}
 }
+
+// TestConvertUnitMismatch (issue 10): on an MD run written by Debian's
+// python3-ase (EMT, velocity Verlet; ingest/testdata/ase_md.py), giving
+// the velocity unit angstrom/fs for momentum/mass makes convert exit 1
+// naming ASE's time unit (10.18 fs); --accept-mismatch converts and says
+// so; the right momentum unit converts cleanly, lists what is not
+// stored, and the file validates.
+func TestConvertUnitMismatch(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "ase-md")
+	os.MkdirAll(dir, 0o755)
+	if out, err := exec.Command(testenv.Python(), repo("ingest", "testdata", "ase_md.py"), dir, "6").CombinedOutput(); err != nil {
+		t.Fatalf("ASE script: %v\n%s", err, out)
+	}
+	base := []string{"convert", dir, "--unit", "position=angstrom", "--unit", "force=eV angstrom-1"}
+	out1 := filepath.Join(t.TempDir(), "bad.h5")
+	code, out, errs := runCLI(append(base, "--unit", "velocity=angstrom fs-1", "-o", out1)...)
+	if code != 1 || !strings.Contains(out, "P17") || !strings.Contains(out, "10.18") {
+		t.Fatalf("wrong unit: exit %d\n%s%s", code, out, errs)
+	}
+	if _, err := os.Stat(out1); err == nil {
+		t.Error("refused conversion left a file")
+	}
+	code, out, errs = runCLI(append(base, "--unit", "velocity=angstrom fs-1", "--accept-mismatch", "-o", out1)...)
+	if code != 0 || !strings.Contains(out, "accepted: ") {
+		t.Fatalf("--accept-mismatch: exit %d\n%s%s", code, out, errs)
+	}
+	out2 := filepath.Join(t.TempDir(), "good.h5")
+	code, out, errs = runCLI(append(base, "--unit", "momentum=0.09822694750253276 u angstrom fs-1", "-o", out2)...)
+	if code != 0 || !strings.Contains(out, "not stored: ") || !strings.Contains(out, "tags") {
+		t.Fatalf("momentum unit: exit %d\n%s%s", code, out, errs)
+	}
+	if code, out, _ = runCLI("validate", out2); code != 0 {
+		t.Errorf("validate: exit %d\n%s", code, out)
+	}
+}

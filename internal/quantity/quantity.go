@@ -94,6 +94,10 @@ type Quantity struct {
 	// Properties are the extended-XYZ Properties names for per-atom
 	// quantities, compared case-insensitively.
 	Properties []string
+	// CommentKeys are XYZ comment-line keys that mean this quantity there
+	// although a table column of the same name means another (see
+	// Ambiguous); compared case-insensitively.
+	CommentKeys []string
 }
 
 // Quantity names.
@@ -122,12 +126,13 @@ const (
 // (the conserved quantity energy logs print beside Ekin and Epot), while
 // energy= on an extended-XYZ comment line is the potential energy (the
 // extended XYZ convention of ASE, common practice: the calculator's
-// energy). See CommentKey.
+// energy). Both readings are announced when such a name is read (see
+// Ambiguous); a recipe's column map says otherwise.
 var table = []Quantity{
 	{Name: Step, Scalar: -1, Columns: []string{"step", "nstep", "istep", "steps"}},
 	{Name: TimeQ, Unit: Time, Element: "time", Scalar: -1, Columns: []string{"time", "t", "simtime"}},
 	{Name: KineticEnergy, Unit: Energy, Element: "kinetic_energy", Scalar: 0, Columns: []string{"ekin", "kinetic", "kineticenergy", "ke", "ek"}},
-	{Name: PotentialEnergy, Unit: Energy, Element: "potential_energy", Scalar: 1, Columns: []string{"epot", "potential", "potentialenergy", "pe", "ep"}},
+	{Name: PotentialEnergy, Unit: Energy, Element: "potential_energy", Scalar: 1, Columns: []string{"epot", "potential", "potentialenergy", "pe", "ep"}, CommentKeys: []string{"energy"}},
 	{Name: TotalEnergy, Unit: Energy, Element: "total_energy", Scalar: 2, Columns: []string{"etot", "total", "totalenergy", "energy", "e", "etotal"}},
 	{Name: ActiveState, Scalar: -1, Columns: []string{"state", "activestate", "surface", "istate", "currentstate", "active"}},
 	{Name: StateEnergy, Unit: Energy, Element: "state_energies", PerState: true, Scalar: -1, Columns: []string{"e", "en", "energy", "v", "es", "estate"}},
@@ -135,8 +140,9 @@ var table = []Quantity{
 	{Name: PositionQ, Unit: Position, Element: "position", PerAtom: true, Scalar: -1, Properties: []string{"pos", "positions", "position"}},
 	{Name: VelocityQ, Unit: Velocity, Element: "velocity", PerAtom: true, Scalar: -1, Properties: []string{"velo", "vel", "velocity", "velocities"}},
 	{Name: ForceQ, Unit: Force, Element: "force", PerAtom: true, Scalar: -1, Properties: []string{"force", "forces", "frc"}},
-	// Momenta are stored as velocities (p/m, masses in u): the unit asked
-	// for is that of the result (see StoredUnit).
+	// Momenta are stored as velocities (p/m, masses in u). Their own unit
+	// (--unit momentum=...) gives the unit of p/m; a velocity unit given
+	// instead is taken as the unit of p/m (see StoredUnit).
 	{Name: MomentumQ, Unit: Momentum, StoredAs: VelocityQ, PerAtom: true, Scalar: -1, Properties: []string{"momenta", "momentum"}},
 	{Name: MassQ, Unit: Mass, PerAtom: true, Scalar: -1, Properties: []string{"mass", "masses"}},
 }
@@ -230,14 +236,58 @@ func Column(name string) (string, int) {
 }
 
 // CommentKey maps a key of an XYZ comment line (key=value) to a
-// quantity: the column names, except that "energy" is the potential
-// energy there (the extended XYZ convention; see the table's doc).
+// quantity: the quantities' CommentKeys, then the column names (so
+// "energy" is the potential energy there, the extended XYZ convention;
+// see the table's doc).
 func CommentKey(key string) string {
-	if strings.EqualFold(key, "energy") {
-		return PotentialEnergy
+	for _, q := range table {
+		for _, c := range q.CommentKeys {
+			if strings.EqualFold(key, c) {
+				return q.Name
+			}
+		}
 	}
 	q, _ := Column(key)
 	return q
+}
+
+// Source kinds that name quantities, as Meaning and messages print them.
+const (
+	TableColumn = "table column"
+	CommentLine = "XYZ comment key"
+)
+
+// Meaning is what a name means in one kind of source.
+type Meaning struct {
+	Source   string // TableColumn or CommentLine
+	Quantity string
+}
+
+// Ambiguous returns what name means in each kind of source when that
+// differs between them (e.g. "energy": total energy as a table column,
+// potential energy as an XYZ comment key), else nil. A reader that takes
+// such a name by its source's convention says so (it is never a silent
+// choice).
+func Ambiguous(name string) []Meaning {
+	col, k := Column(name)
+	key := CommentKey(name)
+	if k >= 0 || col == key || col == "" || key == "" {
+		return nil
+	}
+	return []Meaning{{TableColumn, col}, {CommentLine, key}}
+}
+
+// ambiguousNames lists every name Ambiguous reports, in table order.
+func ambiguousNames() []string {
+	var out []string
+	for _, q := range table {
+		for _, c := range q.CommentKeys {
+			if Ambiguous(c) != nil {
+				out = append(out, c)
+			}
+		}
+	}
+	return out
 }
 
 // Property maps an extended-XYZ Properties column name to a per-atom
@@ -309,6 +359,11 @@ func Markdown() string {
 			}
 		}
 		fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", q.Name, strings.Join(cols, ", "), strings.Join(keys, ", "), strings.Join(q.Properties, ", "))
+	}
+	for _, n := range ambiguousNames() {
+		m := Ambiguous(n)
+		fmt.Fprintf(&b, "\n`%s` means %s as a %s and %s as an %s (each the common convention of its kind of file); scan notes which it took, and a recipe's columns map says otherwise (e.g. `%s: %s`).\n",
+			n, m[0].Quantity, m[0].Source, m[1].Quantity, m[1].Source, n, m[1].Quantity)
 	}
 	return b.String()
 }

@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+	"strings"
 	"testing"
 
 	"trajvault/internal/units"
@@ -182,4 +183,36 @@ func ExampleMarkdown() {
 	// | force |  |  | force, forces, frc |
 	// | momentum |  |  | momenta, momentum |
 	// | mass |  |  | mass, masses |
+	//
+	// `energy` means total_energy as a table column and potential_energy as an XYZ comment key (each the common convention of its kind of file); scan notes which it took, and a recipe's columns map says otherwise (e.g. `energy: potential_energy`).
+}
+
+// TestAmbiguous: a name that means different quantities in two kinds of
+// source is reported with both meanings (issue 10: "energy" in a table
+// is the total energy, energy= on an extended-XYZ comment line the
+// calculator's potential energy, common practice); unambiguous names are
+// not.
+func TestAmbiguous(t *testing.T) {
+	m := Ambiguous("Energy")
+	want := []Meaning{{TableColumn, TotalEnergy}, {CommentLine, PotentialEnergy}}
+	if len(m) != 2 || m[0] != want[0] || m[1] != want[1] {
+		t.Errorf("Ambiguous(Energy) = %v, want %v", m, want)
+	}
+	for _, n := range []string{"epot", "e", "time", "E_1", "tags"} {
+		if m := Ambiguous(n); m != nil {
+			t.Errorf("Ambiguous(%q) = %v, want none", n, m)
+		}
+	}
+}
+
+// TestReadmeVocabulary: README.md shows the vocabulary exactly as
+// Markdown prints it (the one table; no hand-kept copy).
+func TestReadmeVocabulary(t *testing.T) {
+	b, err := os.ReadFile(filepath.Join("..", "..", "README.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(b), Markdown()) {
+		t.Errorf("README.md does not contain the vocabulary table; paste quantity.Markdown():\n%s", Markdown())
+	}
 }

@@ -7,8 +7,12 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
+
+	"trajvault/internal/elements"
+	"trajvault/internal/units"
 )
 
 // LegacyLogs writes one trajectory folder whose numbers use the printing
@@ -31,16 +35,27 @@ func LegacyLogs(t testing.TB, frames int) string {
 		step := 5 * f
 		time := 0.25 * float64(step)
 		fmt.Fprintf(gw, "%d\nProperties=species:S:1:pos:R:3:velo:R:3:forces:R:3 time=%.3f step=%d pbc=\"F F F\"\n", len(syms), time, step)
+		// The kinetic energy printed is 1/2 m v^2 of the printed
+		// velocities (standard atomic weights; 1 u angstrom^2 fs^-2 in
+		// eV from CODATA 2018), so that physics cross-checks pass.
+		mv2 := 0.0
 		for _, s := range syms {
 			fmt.Fprintf(gw, "%s %12.6f %12.6f %12.6f", s, 4*rng.NormFloat64(), 4*rng.NormFloat64(), 4*rng.NormFloat64())
-			fmt.Fprintf(gw, " %.10f %.10f %.10f", 0.01*rng.NormFloat64(), 0.01*rng.NormFloat64(), 0.01*rng.NormFloat64())
+			v := [3]float64{0.01 * rng.NormFloat64(), 0.01 * rng.NormFloat64(), 0.01 * rng.NormFloat64()}
+			fmt.Fprintf(gw, " %.10f %.10f %.10f", v[0], v[1], v[2])
+			m, _ := elements.Mass(elements.Number(s))
+			for _, x := range v {
+				x, _ = strconv.ParseFloat(strconv.FormatFloat(x, 'f', 10, 64), 64)
+				mv2 += m * x * x
+			}
 			for k := 0; k < 3; k++ {
 				// Fortran D exponent, 9 significant digits
 				fmt.Fprintf(gw, " %s", strings.Replace(fmt.Sprintf("%.8E", rng.NormFloat64()*math.Pow(10, float64(rng.IntN(6)-3))), "E", "D", 1))
 			}
 			fmt.Fprint(gw, "\n")
 		}
-		ek := 0.5 + rng.Float64()
+		_ = rng.Float64() // keeps the sequence of the other values
+		ek := 0.5 * mv2 * units.DaltonKg * 1e10 / units.Elementary
 		ep := -100 - rng.Float64()
 		fmt.Fprintf(tw, "%6d %8.3f %14.8f %14.8f %14.8f\r\n", step, time, ek, ep, ek+ep)
 		a, b := rng.Float64(), rng.Float64()

@@ -6,6 +6,12 @@
 // digits with an optional decimal point, an optional exponent introduced by
 // E, e, D or d ("1.0D-03"), or by a bare sign after the mantissa when the
 // exponent needs three digits and Fortran drops the letter ("1.0-100").
+//
+// A third class is the shortest round-trip form: the fewest digits that
+// read back to the same float64, as Python's repr (and str) and Go's
+// strconv.FormatFloat(x, 'g', -1, 64) print ("9.82332134688519", "0.0").
+// Its number of decimals varies from value to value, so it is neither
+// fixed nor exponent notation; it is printed again by the same rule.
 package textnum
 
 import (
@@ -26,6 +32,88 @@ type Format struct {
 	// ExpChar is the exponent letter as printed ('E', 'e', 'D', 'd'), or
 	// 0 when the letter was dropped.
 	ExpChar byte
+	// Shortest is the shortest round-trip class (it overrides the fields
+	// above when printing): ShortRepr or ShortG, or 0.
+	Shortest byte
+
+	// cand has bit ShortRepr/ShortG set while every value so far was
+	// printed exactly as that formatter prints it; mixed is set once
+	// values differ in decimals or notation. A column is of the shortest
+	// class only when both hold: values that all share one number of
+	// decimals are fixed notation (the same text, and exact scale-offset
+	// storage).
+	cand  uint8
+	mixed bool
+}
+
+// Styles of the shortest round-trip class.
+const (
+	// ShortRepr is Python's repr of a float (Python 3 float_repr_style
+	// "short"): fixed notation with at least one decimal ("0.0", "12.5")
+	// when the decimal exponent is in [-4, 16), else "1.5e-07", "1e+16".
+	ShortRepr byte = 'r'
+	// ShortG is Go's strconv.FormatFloat(x, 'g', -1, 64): no ".0" on
+	// integers ("0", "12"), exponent notation when the decimal exponent
+	// is below -4 or at least 21.
+	ShortG byte = 'g'
+)
+
+const (
+	candRepr uint8 = 1 << iota
+	candG
+)
+
+// Fixed reports fixed notation at Decimals (the only class with one
+// resolution, Step, for all values).
+func (f Format) Fixed() bool { return !f.Exp && f.Shortest == 0 }
+
+// MayBeShortest reports whether every value merged so far was printed in
+// a shortest round-trip style, so that a reader still needs to test the
+// next value with ParseShort.
+func (f Format) MayBeShortest() bool { return f.cand != 0 }
+
+// ParseShort is Parse that also notes whether s is exactly what a
+// shortest round-trip formatter prints for its value (see Format.Merge).
+// Readers call it while the column's format MayBeShortest, and Parse
+// after that (the test costs a float formatting).
+func ParseShort(s string, check bool) (float64, Format, error) {
+	v, f, err := Parse(s)
+	if err != nil || !check {
+		return v, f, err
+	}
+	if s == repr(v) {
+		f.cand |= candRepr
+	}
+	if s == strconv.FormatFloat(v, 'g', -1, 64) {
+		f.cand |= candG
+	}
+	return v, f, nil
+}
+
+// repr is Python's repr of a float64 (float_repr_style "short", Python
+// 3.1 and later): the shortest digits that round-trip (as Go's 'e', -1),
+// in fixed notation with at least one decimal when -4 <= exponent < 16,
+// else as "d.ddde+XX" with at least two exponent digits.
+func repr(v float64) string {
+	switch {
+	case math.IsNaN(v):
+		return "nan"
+	case math.IsInf(v, 1):
+		return "inf"
+	case math.IsInf(v, -1):
+		return "-inf"
+	}
+	e := strconv.FormatFloat(v, 'e', -1, 64)
+	k := strings.LastIndexByte(e, 'e')
+	exp, _ := strconv.Atoi(e[k+1:])
+	if v == 0 || (exp >= -4 && exp < 16) {
+		s := strconv.FormatFloat(v, 'f', -1, 64)
+		if !strings.ContainsRune(s, '.') {
+			s += ".0"
+		}
+		return s
+	}
+	return e
 }
 
 // ErrSyntax is returned for a field that is not a number.
@@ -126,7 +214,20 @@ func validExp(e string) bool {
 
 // Merge widens f to cover g: a column's format is the widest of its
 // values, so that every value is reproduced.
+//
+// Merging also tracks the shortest round-trip class: it holds while both
+// sides were printed in one shortest style, and is chosen once the
+// values differ in decimals or notation (then no fixed or exponent format
+// reproduces them all).
 func (f Format) Merge(g Format) Format {
+	f.mixed = f.mixed || g.mixed || f.Exp != g.Exp || f.Decimals != g.Decimals || (f.Exp && f.Sig != g.Sig)
+	f.cand &= g.cand
+	f.Shortest = 0
+	if f.mixed && f.cand&candRepr != 0 {
+		f.Shortest = ShortRepr
+	} else if f.mixed && f.cand&candG != 0 {
+		f.Shortest = ShortG
+	}
 	if g.Exp && !f.Exp {
 		f.Exp, f.ExpChar = true, g.ExpChar
 	}
@@ -141,7 +242,13 @@ func (f Format) Merge(g Format) Format {
 // String is the form stored in files: "fixed:6" or "exp:10:E"; "exp:N:F"
 // marks Fortran's dropped exponent letter (E for two-digit exponents,
 // none for three digits).
+//
+// The shortest round-trip class is "short:r" (Python repr) or "short:g"
+// (Go 'g', -1).
 func (f Format) String() string {
+	if f.Shortest != 0 {
+		return "short:" + string(f.Shortest)
+	}
 	if f.Exp {
 		c := "F"
 		if f.ExpChar != 0 {
@@ -156,6 +263,9 @@ func (f Format) String() string {
 func ParseFormat(s string) (Format, error) {
 	parts := strings.Split(s, ":")
 	switch {
+	case len(parts) == 2 && parts[0] == "short" && (parts[1] == "r" || parts[1] == "g"):
+		c := map[string]uint8{"r": candRepr, "g": candG}[parts[1]]
+		return Format{Shortest: parts[1][0], cand: c, mixed: true}, nil
 	case len(parts) == 2 && parts[0] == "fixed":
 		d, err := strconv.Atoi(parts[1])
 		if err != nil || d < 0 || d > 30 {
@@ -177,13 +287,22 @@ func ParseFormat(s string) (Format, error) {
 		}
 		return Format{Exp: true, Sig: n, ExpChar: c}, nil
 	}
-	return Format{}, fmt.Errorf("textnum: bad format %q (want fixed:N or exp:N:E)", s)
+	return Format{}, fmt.Errorf("textnum: bad format %q (want fixed:N, exp:N:E or short:r)", s)
 }
 
 // Append formats v in f: fixed notation with Decimals digits after the
 // point, or exponent notation with Sig significant digits and a two-digit
 // (or longer) exponent, using the recorded exponent letter.
+//
+// The shortest round-trip class prints the shortest digits that read back
+// to v, in its style.
 func (f Format) Append(dst []byte, v float64) []byte {
+	switch f.Shortest {
+	case ShortRepr:
+		return append(dst, repr(v)...)
+	case ShortG:
+		return strconv.AppendFloat(dst, v, 'g', -1, 64)
+	}
 	if !f.Exp {
 		return strconv.AppendFloat(dst, v, 'f', f.Decimals, 64)
 	}
@@ -211,9 +330,10 @@ func (f Format) Append(dst []byte, v float64) []byte {
 }
 
 // Step is the resolution of fixed-format values (10^-Decimals), or 0 for
-// exponent notation, where the resolution varies with the value.
+// exponent notation and the shortest class, where the resolution varies
+// with the value.
 func (f Format) Step() float64 {
-	if f.Exp {
+	if !f.Fixed() {
 		return 0
 	}
 	return math.Pow10(-f.Decimals)

@@ -2,7 +2,14 @@ package textnum
 
 import (
 	"errors"
+	"fmt"
+	"math"
+	"math/rand"
+	"os/exec"
+	"strings"
 	"testing"
+
+	"trajvault/internal/testenv"
 )
 
 // Number forms: C printf %f/%e/%g (ISO C, fprintf) and Fortran F/E/D edit
@@ -84,4 +91,96 @@ func FuzzParse(f *testing.F) {
 			t.Fatalf("%q: %q then %q", s, out, fm.Append(nil, w))
 		}
 	})
+}
+
+// TestShortestClass: numbers printed in shortest round-trip form (Python's
+// repr, as extended-XYZ writers print energy= and time=; Go's
+// strconv.FormatFloat 'g' -1) form their own class and print back
+// exactly as they were written; columns whose values share one number of
+// decimals stay fixed notation. Issue 10 rows: 9.82332134688519 came back
+// as 9.823321346885191, 0.0 as 0.000000000000000.
+func TestShortestClass(t *testing.T) {
+	cases := []struct {
+		name   string
+		column []string
+		want   string
+	}{
+		{"issue 10: repr energies and times", []string{"0.0", "9.82332134688519", "-2079.6127468", "1e-05", "1.5e+16"}, "short:r"},
+		{"Go 'g' -1", []string{"0", "9.82332134688519", "1e-05", "1e+21", "12"}, "short:g"},
+		{"one number of decimals is fixed", []string{"0.5", "1.0", "1.5"}, "fixed:1"},
+		{"printf %.8f with a trailing zero", []string{"0.12345678", "0.12345670", "1.50000000"}, "fixed:8"},
+		{"exponent %.3e", []string{"1.234e-05", "5.000e+00"}, "exp:4:e"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			var f Format
+			vals := make([]float64, len(c.column))
+			for i, s := range c.column {
+				v, fm, err := ParseShort(s, i == 0 || f.MayBeShortest())
+				if err != nil {
+					t.Fatal(err)
+				}
+				vals[i] = v
+				if i == 0 {
+					f = fm
+				} else {
+					f = f.Merge(fm)
+				}
+			}
+			if f.String() != c.want {
+				t.Fatalf("format %s, want %s", f, c.want)
+			}
+			g, err := ParseFormat(f.String())
+			if err != nil {
+				t.Fatal(err)
+			}
+			for i, v := range vals {
+				if got := string(g.Append(nil, v)); got != c.column[i] {
+					t.Errorf("%q printed back as %q", c.column[i], got)
+				}
+			}
+		})
+	}
+}
+
+// TestReprMatchesPython: repr agrees with Debian's python3 on seeded
+// random doubles over the whole exponent range and on the values where
+// the notation switches (1e-4, 1e-5, 1e15, 1e16).
+func TestReprMatchesPython(t *testing.T) {
+	py := testenv.Python()
+	if _, err := exec.LookPath(py); err != nil {
+		t.Skipf("no %s: %v", py, err)
+	}
+	rng := rand.New(rand.NewSource(7))
+	vals := []float64{0, math.Copysign(0, -1), 1, -1, 1e-4, 1e-5, 9.999e-5, 1e15, 1e16, 123456789012345.6, 0.1, 1.0 / 3, 9.82332134688519, 2.5e-308, math.MaxFloat64}
+	for i := 0; i < 300; i++ {
+		vals = append(vals, math.Float64frombits(rng.Uint64()&^(0x7ff<<52)|uint64(1023+rng.Intn(80)-40)<<52))
+	}
+	var in strings.Builder
+	for _, v := range vals {
+		fmt.Fprintf(&in, "%d\n", math.Float64bits(v))
+	}
+	cmd := exec.Command(py, "-c", "import struct,sys\nfor l in sys.stdin: print(repr(struct.unpack('<d', struct.pack('<Q', int(l)))[0]))")
+	cmd.Stdin = strings.NewReader(in.String())
+	out, err := cmd.Output()
+	if err != nil {
+		t.Fatal(err)
+	}
+	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
+	if len(lines) != len(vals) {
+		t.Fatalf("python printed %d lines for %d values", len(lines), len(vals))
+	}
+	for i, v := range vals {
+		if got := repr(v); got != lines[i] {
+			t.Errorf("repr(%b) = %q, Python %q", math.Float64bits(v), got, lines[i])
+		}
+		if v == 0 {
+			continue
+		}
+		// And the value is recognised as repr-printed.
+		_, f, err := ParseShort(lines[i], true)
+		if err != nil || f.cand&candRepr == 0 {
+			t.Errorf("%q not recognised as repr: %v", lines[i], err)
+		}
+	}
 }
