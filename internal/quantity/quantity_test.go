@@ -6,7 +6,6 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
-	"strings"
 	"testing"
 
 	"trajvault/internal/units"
@@ -202,17 +201,5 @@ func TestAmbiguous(t *testing.T) {
 		if m := Ambiguous(n); m != nil {
 			t.Errorf("Ambiguous(%q) = %v, want none", n, m)
 		}
-	}
-}
-
-// TestReadmeVocabulary: README.md shows the vocabulary exactly as
-// Markdown prints it (the one table; no hand-kept copy).
-func TestReadmeVocabulary(t *testing.T) {
-	b, err := os.ReadFile(filepath.Join("..", "..", "README.md"))
-	if err != nil {
-		t.Fatal(err)
-	}
-	if !strings.Contains(string(b), Markdown()) {
-		t.Errorf("README.md does not contain the vocabulary table; paste quantity.Markdown():\n%s", Markdown())
 	}
 }
