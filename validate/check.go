@@ -17,13 +17,16 @@ import (
 type Options struct {
 	// ToolVersion is recorded in the report.
 	ToolVersion string
+	// MaxReadBytes and AllowExternalDir go to h5.OpenOptions (open.go).
+	MaxReadBytes     int64
+	AllowExternalDir string
 }
 
 // File validates the file at path. The error is non-nil only when the file
 // cannot be read at all (missing, empty, not HDF5, damaged); rule
 // violations are findings in the report.
 func File(path string, opt Options) (*Report, error) {
-	f, err := h5.Open(path)
+	f, err := openFile(path, opt)
 	if err != nil {
 		return nil, err
 	}
@@ -69,7 +72,7 @@ func (c *checker) add(code string, sev finding.Severity, path, format string, ar
 }
 
 func (c *checker) errorf(code, path, format string, args ...any) {
-	c.add(code, finding.Error, path, format, args...)
+	c.add(refine(code, args), finding.Error, path, format, args...)
 }
 
 func (c *checker) warnf(code, path, format string, args ...any) {

@@ -1,0 +1,74 @@
+package validate
+
+import (
+	"errors"
+	"fmt"
+
+	"trajvault/internal/finding"
+	"trajvault/internal/h5"
+	"trajvault/internal/isolate"
+	"trajvault/schema"
+)
+
+// OpenCodes are the codes of reading limits (V38, V39) and of the worker
+// process that reads each untrusted file (X1-X3); layout.md documents
+// them (TestOpenCodesDocumented).
+//
+//	V38 a declared size exceeds the read budget; nothing was allocated
+//	V39 data outside the file (external link, storage, virtual source)
+//	    was refused, never opened
+//	X1  the worker reading the file crashed (signal or fatal error)
+//	X2  the worker reached the time limit
+//	X3  the worker reached the memory limit
+var OpenCodes = []string{"V38", "V39", "X1", "X2", "X3"}
+
+// openFile opens path read-only through the checked HDF5 layer with the
+// read budget and external-data policy of opt.
+func openFile(path string, opt Options) (*h5.File, error) {
+	return h5.OpenWith(path, h5.OpenOptions{MaxReadBytes: opt.MaxReadBytes, AllowExternalDir: opt.AllowExternalDir})
+}
+
+// refine gives a read failure its own code: a finding reported under a
+// generic code (V33, "cannot read") whose cause is the read budget or a
+// refused reference outside the file is V38 or V39, so a user can tell
+// "too large for the budget, raise it" and "points outside" from damage.
+func refine(code string, args []any) string {
+	for _, a := range args {
+		err, ok := a.(error)
+		if !ok {
+			continue
+		}
+		switch {
+		case errors.Is(err, h5.ErrTooLarge):
+			return "V38"
+		case errors.Is(err, h5.ErrOutside):
+			return "V39"
+		}
+	}
+	return code
+}
+
+// Isolated turns a worker that did not finish normally into a report for
+// the file (or bundle) it was reading: one error finding, X1 (crash), X2
+// (time limit) or X3 (memory limit), so that the run can go on with the
+// next file. It returns nil for a worker that finished (isolate.Done).
+func Isolated(path, toolVersion string, res *isolate.Result) *Report {
+	var code, what string
+	switch res.Outcome {
+	case isolate.Done:
+		return nil
+	case isolate.TimedOut:
+		code, what = "X2", "reading it took too long; raise --time-limit if the file is large, else treat it as hostile"
+	case isolate.OutOfMemory:
+		code, what = "X3", "reading it needed more memory than allowed; raise --max-memory if the file is large, else treat it as hostile"
+	default:
+		code, what = "X1", "reading it crashed the reader; the file is damaged or hostile (report it if it is not)"
+	}
+	rep := &Report{Tool: Tool{Name: "trajvault", Version: toolVersion}, File: path, LayoutVersion: schema.Current().Version}
+	rep.Findings = []finding.Finding{{
+		Code: code, Severity: finding.Error, Location: finding.Location{File: path},
+		Message: fmt.Sprintf("worker %s; %s", res.Summary(), what),
+	}}
+	rep.finish()
+	return rep
+}

@@ -1,0 +1,92 @@
+package validate
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"trajvault/internal/isolate"
+	"trajvault/schema"
+)
+
+// TestOpenCodesDocumented: the reading-limit and worker codes are in the
+// rules table of layout.md.
+func TestOpenCodesDocumented(t *testing.T) {
+	md := string(schema.LayoutMarkdown())
+	for _, code := range OpenCodes {
+		if !strings.Contains(md, "| "+code+" |") {
+			t.Errorf("rule %s is not in the rules table of schema/layout.md", code)
+		}
+	}
+}
+
+// TestReadLimitsAreFindings (issue 12, items 1-2): a read over the budget
+// is V38 and data kept outside the file is V39, never a generic "damaged
+// file" (V33), and nothing outside is opened. The external-storage file
+// is written by h5py (an independent writer; h5py documentation,
+// "Datasets: external storage").
+func TestReadLimitsAreFindings(t *testing.T) {
+	t.Run("V38 read budget", func(t *testing.T) {
+		rep, err := File(base(t), Options{MaxReadBytes: 1024})
+		mustDo(t, err)
+		if !rep.Has("V38") || rep.OK() {
+			t.Fatalf("no V38 error: %v", rep.Findings)
+		}
+		for _, f := range rep.Findings {
+			if f.Code == "V33" && strings.Contains(f.Message, "budget") {
+				t.Errorf("budget reported as damage: %v", f)
+			}
+		}
+	})
+	t.Run("V39 external storage", func(t *testing.T) {
+		dir := t.TempDir()
+		secret := filepath.Join(dir, "secret.bin")
+		mustDo(t, os.WriteFile(secret, make([]byte, 128), 0o600))
+		path := filepath.Join(dir, "ext.h5")
+		pyRun(t, `
+import sys, h5py
+with h5py.File(sys.argv[1], "w") as f:
+    f.create_group("h5md")
+    f.create_dataset("/observables/x", shape=(16,), dtype="f8", external=[(sys.argv[2], 0, 128)])
+`, path, secret)
+		mustDo(t, os.Chmod(secret, 0)) // opening it would now fail loudly, not quietly
+		rep, err := File(path, Options{})
+		mustDo(t, err)
+		found := false
+		for _, f := range rep.Findings {
+			if f.Code == "V39" {
+				found = true
+				if !strings.Contains(f.Message, secret) {
+					t.Errorf("V39 does not name the target: %v", f)
+				}
+			}
+		}
+		if !found {
+			t.Fatalf("no V39: %v", rep.Findings)
+		}
+	})
+}
+
+// TestIsolated: each abnormal end of a worker is one error finding with
+// its own code; a finished worker gives no report here.
+func TestIsolated(t *testing.T) {
+	for _, c := range []struct {
+		res  isolate.Result
+		code string
+	}{
+		{isolate.Result{Outcome: isolate.Signaled, Signal: 11}, "X1"},
+		{isolate.Result{Outcome: isolate.Exited, ExitCode: 2, Stderr: []byte("fatal error: unexpected signal")}, "X1"},
+		{isolate.Result{Outcome: isolate.OutputTooLarge}, "X1"},
+		{isolate.Result{Outcome: isolate.TimedOut}, "X2"},
+		{isolate.Result{Outcome: isolate.OutOfMemory}, "X3"},
+	} {
+		rep := Isolated("f.h5", "test", &c.res)
+		if rep == nil || rep.Errors != 1 || rep.Findings[0].Code != c.code || rep.Findings[0].File != "f.h5" {
+			t.Errorf("%v: %+v, want one %s error", c.res.Outcome, rep, c.code)
+		}
+	}
+	if Isolated("f.h5", "test", &isolate.Result{Outcome: isolate.Done}) != nil {
+		t.Error("a finished worker gave a report")
+	}
+}
