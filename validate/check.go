@@ -313,7 +313,7 @@ func (c *checker) dataset(path string) {
 			c.errorf("V29", path, "trajvault_tolerance must be one float, the absolute bound of the lossy storage")
 		}
 	}
-	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 {
+	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 || c.unwritten(path, info) {
 		return
 	}
 	bad, first := 0, -1

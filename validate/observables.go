@@ -15,6 +15,7 @@ func (c *checker) observables() {
 	if c.f.Kind(trajfile.ObservablesGroup) != h5.Group {
 		return
 	}
+	seen := map[h5.ObjectID]bool{}
 	var visit func(string)
 	visit = func(p string) {
 		if p == trajfile.ElectronicGroup || strings.HasPrefix(p, trajfile.ElectronicGroup+"/") {
@@ -33,6 +34,12 @@ func (c *checker) observables() {
 		}
 		if c.f.Kind(p) != h5.Group {
 			return
+		}
+		// A group linked from inside itself is a cycle: visit it once.
+		if id, err := c.f.ObjectID(p); err != nil || seen[id] {
+			return
+		} else {
+			seen[id] = true
 		}
 		links, _ := c.f.Links(p)
 		for _, l := range links {

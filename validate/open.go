@@ -10,17 +10,42 @@ import (
 	"trajvault/schema"
 )
 
-// OpenCodes are the codes of reading limits (V38, V39) and of the worker
+// OpenCodes are the codes of reading limits (V38-V40) and of the worker
 // process that reads each untrusted file (X1-X3); layout.md documents
 // them (TestOpenCodesDocumented).
 //
 //	V38 a declared size exceeds the read budget; nothing was allocated
 //	V39 data outside the file (external link, storage, virtual source)
 //	    was refused, never opened
+//	V40 a dataset declares far more data than the file stores (unwritten
+//	    fill values); its values are not scanned
 //	X1  the worker reading the file crashed (signal or fatal error)
 //	X2  the worker reached the time limit
 //	X3  the worker reached the memory limit
-var OpenCodes = []string{"V38", "V39", "X1", "X2", "X3"}
+var OpenCodes = []string{"V38", "V39", "V40", "X1", "X2", "X3"}
+
+// maxStoredRatio is the largest ratio of declared (uncompressed) to
+// stored bytes taken for real data. Deflate cannot exceed about 1032:1
+// (RFC 1951: a 258-byte match costs at least 2 bits); scale-offset on
+// constant values and the per-chunk index still leave every chunk some
+// bytes, so 10^5 is far above what written data reaches (the writer's
+// most compressible dataset, a constant active state, stores at about
+// 120:1). Above it the dataset is mostly unwritten fill values.
+const maxStoredRatio = 100_000
+
+// unwritten reports (V40) a dataset that declares more than maxStoredRatio
+// times the bytes the file stores for it, and tells the caller not to
+// scan it: a flipped bit in a dimension turns 51 frames into 2^40, whose
+// scan through fill values would run for days (issue 12, found by
+// TestValidateMutants).
+func (c *checker) unwritten(path string, info h5.DatasetInfo) bool {
+	logical := info.LogicalBytes()
+	if info.Layout != "chunked" || logical/maxStoredRatio <= max(info.StorageBytes, 1<<20/maxStoredRatio) {
+		return false
+	}
+	c.errorf("V40", path, "declares shape %v (%d bytes) but the file stores %d bytes for it: nearly all of it was never written (fill values); values not checked: trim the dataset to the frames written", info.Shape.Dims, logical, info.StorageBytes)
+	return true
+}
 
 // openFile opens path read-only through the checked HDF5 layer with the
 // read budget and external-data policy of opt.

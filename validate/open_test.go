@@ -5,6 +5,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 
 	"trajvault/internal/isolate"
 	"trajvault/schema"
@@ -88,5 +89,55 @@ func TestIsolated(t *testing.T) {
 	}
 	if Isolated("f.h5", "test", &isolate.Result{Outcome: isolate.Done}) != nil {
 		t.Error("a finished worker gave a report")
+	}
+}
+
+// TestGroupCycles (found by FuzzValidateImage): a group under
+// /observables that links to its ancestor is visited once; the walk used
+// to recurse along ever longer paths until the time limit. The cycle is
+// made with h5py (a hard link to a parent group).
+func TestGroupCycles(t *testing.T) {
+	path := base(t)
+	pyRun(t, `
+import sys, h5py
+with h5py.File(sys.argv[1], "a") as f:
+    f["observables/extra"] = f["observables"]
+    f.create_group("observables/deep/er")
+    f["observables/deep/er/up"] = f["observables/deep"]
+`, path)
+	done := make(chan *Report, 1)
+	go func() {
+		rep, err := File(path, Options{})
+		mustDo(t, err)
+		done <- rep
+	}()
+	select {
+	case <-done:
+	case <-time.After(20 * time.Second):
+		t.Fatal("validation of a file with group cycles did not end in 20 s")
+	}
+}
+
+// TestUnwrittenNotScanned (found by TestValidateMutants: one flipped bit
+// turned a dimension of 2 into 1048578): a chunked dataset that declares
+// vastly more than the file stores is V40 and is not scanned. Written by
+// h5py: a chunked dataset of 2^40 rows, none of them written.
+func TestUnwrittenNotScanned(t *testing.T) {
+	path := base(t)
+	pyRun(t, `
+import sys, h5py
+with h5py.File(sys.argv[1], "a") as f:
+    d = f.create_dataset("observables/sparse/value", shape=(2**40,), dtype="f8", chunks=(1024,))
+    d[:4] = 1.0
+    d.attrs["unit"] = "hartree"
+`, path)
+	start := time.Now()
+	rep, err := File(path, Options{})
+	mustDo(t, err)
+	if !rep.Has("V40") {
+		t.Errorf("no V40: %v", rep.Findings)
+	}
+	if d := time.Since(start); d > 20*time.Second {
+		t.Errorf("took %v", d)
 	}
 }
