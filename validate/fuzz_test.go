@@ -1,9 +1,11 @@
 package validate
 
 import (
+	"fmt"
 	"os"
 	"path/filepath"
 	"reflect"
+	"sync/atomic"
 	"testing"
 
 	"trajvault/internal/demo"
@@ -17,6 +19,10 @@ import (
 // uninitialised memory that change the verdict). Seeds: a small file of the package's writer and a copy
 // with one byte flipped. Crashes inside the HDF5 C library itself stop
 // the fuzzer too: they are what validate's worker processes contain.
+// fuzzCalls names each input's image apart: HDF5 keeps open files by
+// name, and a damaged image left half-open must not meet the next input.
+var fuzzCalls atomic.Int64
+
 func FuzzValidateImage(f *testing.F) {
 	p := filepath.Join(f.TempDir(), "seed.h5")
 	o := demo.DefaultOptions
@@ -35,8 +41,9 @@ func FuzzValidateImage(f *testing.F) {
 	f.Add([]byte("\x89HDF\r\n\x1a\n"))
 	f.Fuzz(func(t *testing.T, img []byte) {
 		var reps [2]*Report
+		name := fmt.Sprintf("fuzz-%d.h5", fuzzCalls.Add(1))
 		for i := range reps {
-			file, err := h5.OpenImageWith("fuzz.h5", img, h5.OpenOptions{MaxReadBytes: 16 << 20})
+			file, err := h5.OpenImageWith(name, img, h5.OpenOptions{MaxReadBytes: 16 << 20})
 			if err != nil {
 				return
 			}
