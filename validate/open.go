@@ -91,7 +91,8 @@ func Isolated(path, toolVersion string, res *isolate.Result) *Report {
 	}
 	rep := &Report{Tool: Tool{Name: "trajvault", Version: toolVersion}, File: path, LayoutVersion: schema.Current().Version}
 	rep.Findings = []finding.Finding{{
-		Code: code, Severity: finding.Error, Location: finding.Location{File: path},
+		// Path "/": the whole file (the HDF5 root), or the whole bundle.
+		Code: code, Severity: finding.Error, Location: finding.Location{File: path, Path: "/"},
 		Message: fmt.Sprintf("worker %s; %s", res.Summary(), what),
 	}}
 	rep.finish()

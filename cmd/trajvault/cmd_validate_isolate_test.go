@@ -10,6 +10,7 @@ import (
 	"testing"
 	"time"
 
+	"trajvault/schema"
 	"trajvault/validate"
 )
 
@@ -24,6 +25,10 @@ func TestValidatePoisonInTheMiddle(t *testing.T) {
 	g1, g2 := filepath.Join(dir, "good1.h5"), filepath.Join(dir, "good2.h5")
 	os.WriteFile(g1, raw, 0o644)
 	os.WriteFile(g2, raw, 0o644)
+	sch, err := schema.FindingsSchema()
+	if err != nil {
+		t.Fatal(err)
+	}
 	cases := []struct{ mode, code, words string }{
 		{"kill", "X1", "killed by signal 9"},
 		{"panic", "X1", "panic: runtime error"},
@@ -64,6 +69,13 @@ func TestValidatePoisonInTheMiddle(t *testing.T) {
 				}
 				if len(rep.Findings) != 1 || rep.Findings[0].Code != c.code || !strings.Contains(rep.Findings[0].Message, c.words) {
 					t.Errorf("poison report %+v, want one %s saying %q", rep.Findings, c.code, c.words)
+				}
+				// The report of a crashed file is a report like any other:
+				// it satisfies schema/findings.schema.json.
+				var doc any
+				json.Unmarshal([]byte(l), &doc)
+				if err := sch.Validate(doc); err != nil {
+					t.Errorf("poison report against the findings schema: %v", err)
 				}
 			}
 		})
