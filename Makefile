@@ -13,7 +13,7 @@ VERSION ?= $(shell git describe --tags --always --dirty 2>/dev/null || echo unkn
 .PHONY: all build install demo test readme deps-build deps-test vet fmt-check fuzz bench clean
 
 # Fuzz targets: package:Target. make test runs each for FUZZTIME_TEST.
-FUZZ_TARGETS := ./ingest:FuzzXYZ ./ingest:FuzzTable ./ingest:FuzzLog ./internal/textnum:FuzzParse
+FUZZ_TARGETS := ./ingest:FuzzXYZ ./ingest:FuzzTable ./ingest:FuzzLog ./internal/textnum:FuzzParse ./validate:FuzzValidateImage ./internal/bagit:FuzzInfo ./internal/bagit:FuzzManifest
 FUZZTIME_TEST ?= 4s
 FUZZTIME ?= 5m
 

@@ -2,10 +2,12 @@ package pack
 
 import (
 	"context"
+	"errors"
 	"fmt"
+	"io/fs"
 	"os"
 	"path/filepath"
-	"strings"
+	"syscall"
 	"time"
 
 	"trajvault/internal/bagit"
@@ -39,8 +41,9 @@ type Bag struct {
 // set and the limits exceeded, the trajectories are shared, in order,
 // among bags out-1 ... out-n (a bag group, RFC 8493 Bag-Count); otherwise
 // one bag is written at out. All or nothing: bags are built under
-// .partial names and renamed into place at the end; the staging folder
-// is consumed.
+// hidden .partial names made by NewStaging (never a name a user may own)
+// and swapped into place at the end (see replace); the staging folder is
+// consumed.
 func Assemble(ctx context.Context, staging, out string, conv []Converted, bo BundleOptions, lim Limits, split, force bool) ([]Bag, error) {
 	groups := [][]Converted{conv}
 	if split {
@@ -71,13 +74,12 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 			cleanup()
 			return nil, fmt.Errorf("%s already exists; use --force to replace it", final)
 		}
-		d := final + ".partial"
-		os.RemoveAll(d)
-		dirs = append(dirs, d)
-		if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {
+		d, err := NewStaging(final)
+		if err != nil {
 			cleanup()
 			return nil, err
 		}
+		dirs = append(dirs, d)
 		for _, c := range grp {
 			if err := os.Rename(filepath.Join(staging, filepath.FromSlash(c.File)), filepath.Join(d, filepath.FromSlash(c.File))); err != nil {
 				cleanup()
@@ -94,7 +96,7 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 	os.RemoveAll(staging)
 	bags := make([]Bag, len(dirs))
 	for i, d := range dirs {
-		final := strings.TrimSuffix(d, ".partial")
+		final := fmt.Sprintf("%s-%d", out, i+1)
 		if err := replace(d, final, force); err != nil {
 			return nil, err
 		}
@@ -103,13 +105,128 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 	return bags, nil
 }
 
-// replace renames dir to final; with force an existing final is removed
-// first.
-func replace(dir, final string, force bool) error {
-	if force {
-		os.RemoveAll(final)
+// NewStaging makes the folder in which the bag for final is built: a new,
+// hidden, uniquely named folder beside final (os.MkdirTemp, so that no
+// folder of the user's, such as final+".partial", is ever reused or
+// deleted), readable like a normal folder, with the trajectories folder
+// inside. The caller owns it and removes it on failure.
+func NewStaging(final string) (string, error) {
+	d, err := os.MkdirTemp(filepath.Dir(final), "."+filepath.Base(final)+".partial-*")
+	if err != nil {
+		return "", err
 	}
-	return os.Rename(dir, final)
+	if err := os.Chmod(d, 0o755); err != nil {
+		os.Remove(d)
+		return "", err
+	}
+	if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {
+		os.RemoveAll(d)
+		return "", err
+	}
+	return d, nil
+}
+
+// replace puts the finished bag dir at final. Every file and folder of
+// dir is synced first, so that after a crash the name final never holds
+// a bag whose content is still in the page cache. Without force final
+// must not exist (RENAME_NOREPLACE where the kernel has it). With force
+// an existing final is exchanged with dir in one atomic step
+// (renameat2(2) RENAME_EXCHANGE): at every moment final holds either the
+// complete old bag or the complete new one; the old one, now at the
+// staging name, is removed last. File systems without the exchange get
+// two renames (old aside into a fresh hidden folder, new into place),
+// where for a moment final is absent but both bags are complete.
+func replace(dir, final string, force bool) error {
+	if err := syncTree(dir); err != nil {
+		return err
+	}
+	parent := filepath.Dir(final)
+	_, statErr := os.Lstat(final)
+	switch {
+	case statErr != nil && !os.IsNotExist(statErr):
+		return statErr
+	case statErr != nil: // final is free
+		if err := renameNoReplace(dir, final); err != nil {
+			return err
+		}
+		return syncDir(parent)
+	case !force:
+		return fmt.Errorf("%s already exists; use --force to replace it", final)
+	}
+	err := renameExchange(dir, final)
+	if err == nil {
+		if err := syncDir(parent); err != nil {
+			return err
+		}
+		return os.RemoveAll(dir) // the old bag, now under our staging name
+	}
+	if !errors.Is(err, errNoExchange) {
+		return err
+	}
+	aside, err := os.MkdirTemp(parent, "."+filepath.Base(final)+".replaced-*")
+	if err != nil {
+		return err
+	}
+	if err := os.Rename(final, filepath.Join(aside, "old")); err != nil {
+		os.Remove(aside)
+		return err
+	}
+	if err := os.Rename(dir, final); err != nil {
+		os.Rename(filepath.Join(aside, "old"), final) // put the old one back
+		os.Remove(aside)
+		return err
+	}
+	if err := syncDir(parent); err != nil {
+		return err
+	}
+	return os.RemoveAll(aside)
+}
+
+// syncTree fsyncs every regular file and folder under dir, folders after
+// their content, and dir itself.
+func syncTree(dir string) error {
+	var dirs []string
+	err := filepath.WalkDir(dir, func(p string, d fs.DirEntry, err error) error {
+		if err != nil {
+			return err
+		}
+		switch {
+		case d.IsDir():
+			dirs = append(dirs, p)
+		case d.Type().IsRegular():
+			return syncPath(p)
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	for i := len(dirs) - 1; i >= 0; i-- {
+		if err := syncDir(dirs[i]); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func syncPath(p string) error {
+	f, err := os.Open(p)
+	if err != nil {
+		return err
+	}
+	err = f.Sync()
+	if cerr := f.Close(); err == nil {
+		err = cerr
+	}
+	return err
+}
+
+func syncDir(p string) error {
+	err := syncPath(p)
+	if errors.Is(err, syscall.EINVAL) { // some file systems cannot sync folders
+		return nil
+	}
+	return err
 }
 
 // metadataFiles counts what a bag holds besides the trajectory files and

@@ -124,7 +124,8 @@ const maxMetadataBytes = 64 << 20
 // manifestSHA256 reads manifest-sha256.txt into path -> digest.
 func manifestSHA256(src bagit.Source) map[string]string {
 	out := map[string]string{}
-	b, err := src.ReadSmall(schema.ManifestSHA256, 1<<30)
+	limit, _ := bagit.ManifestLimits(src.Entries(), false) // bounded by the payload
+	b, err := src.ReadSmall(schema.ManifestSHA256, limit)
 	if err != nil {
 		return out
 	}

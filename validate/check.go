@@ -20,6 +20,9 @@ type Options struct {
 	// Profile chooses the rules: ProfileH5MD, ProfileTrajvault, or ""
 	// (ProfileAuto) to let the file say (see Select).
 	Profile Profile
+	// MaxReadBytes and AllowExternalDir go to h5.OpenOptions (open.go).
+	MaxReadBytes     int64
+	AllowExternalDir string
 }
 
 // Profile is a set of rules a file is checked against.
@@ -68,7 +71,8 @@ var RuleProfiles = map[string]Profile{}
 
 func init() {
 	for _, c := range []string{"V1", "V2", "V3", "V5", "V6", "V7", "V8", "V9", "V10", "V11", "V12", "V13", "V14",
-		"V15", "V17", "V18", "V19", "V22", "V28", "V29", "V30", "V31", "V32", "V33", "V35", "V36", "V37", "V38", "V40"} {
+		"V15", "V17", "V18", "V19", "V22", "V28", "V29", "V30", "V31", "V32", "V33", "V35", "V36", "V37", "V38", "V40",
+		"V42", "V43", "V44", "X1", "X2", "X3"} {
 		RuleProfiles[c] = ProfileH5MD
 	}
 	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39", "V41",
@@ -82,7 +86,7 @@ func init() {
 // cannot be read at all (missing, empty, not HDF5, damaged); rule
 // violations are findings in the report.
 func File(path string, opt Options) (*Report, error) {
-	f, err := h5.Open(path)
+	f, err := openFile(path, opt)
 	if err != nil {
 		return nil, err
 	}
@@ -137,7 +141,7 @@ func (c *checker) add(code string, sev finding.Severity, path, format string, ar
 }
 
 func (c *checker) errorf(code, path, format string, args ...any) {
-	c.add(code, finding.Error, path, format, args...)
+	c.add(refine(code, args), finding.Error, path, format, args...)
 }
 
 func (c *checker) warnf(code, path, format string, args ...any) {
@@ -400,7 +404,7 @@ func (c *checker) dataset(path string) {
 			c.errorf("V29", path, "trajvault_tolerance must be one float, the absolute bound of the lossy storage")
 		}
 	}
-	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 {
+	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 || c.unwritten(path, info) {
 		return
 	}
 	bad, first := 0, -1

@@ -16,6 +16,7 @@ func (c *checker) observables() {
 	if c.f.Kind(trajfile.ObservablesGroup) != h5.Group {
 		return
 	}
+	seen := map[h5.ObjectID]bool{}
 	var visit func(string)
 	visit = func(p string) {
 		if p == trajfile.LegacyElectronicGroup || strings.HasPrefix(p, trajfile.LegacyElectronicGroup+"/") || slices.Contains(trajfile.ElectronicElements, p) {
@@ -34,6 +35,12 @@ func (c *checker) observables() {
 		}
 		if c.f.Kind(p) != h5.Group {
 			return
+		}
+		// A group linked from inside itself is a cycle: visit it once.
+		if id, err := c.f.ObjectID(p); err != nil || seen[id] {
+			return
+		} else {
+			seen[id] = true
 		}
 		links, _ := c.f.Links(p)
 		for _, l := range links {

@@ -113,4 +113,4 @@ var Codes = []string{
 
 // BundleCodes are the codes of bundle checks (internal/bagit and
 // bundle.go); layout.md documents them too.
-var BundleCodes = []string{"B1", "B2", "B3", "B4", "B5", "B6", "B7", "B8", "B9", "B10", "B11", "B12", "B13", "B14", "B15", "B16", "M1", "M2", "M3"}
+var BundleCodes = []string{"B1", "B2", "B3", "B4", "B5", "B6", "B7", "B8", "B9", "B10", "B11", "B12", "B13", "B14", "B15", "B16", "B17", "B18", "B19", "M1", "M2", "M3"}

@@ -67,8 +67,10 @@ trajectory files, ro-crate-metadata.json (RO-Crate 1.1), datacite.json
 (DataCite 4.5), a README.md data description with the physics audit and plots,
 and with --keep-sources the original logs compressed with zstd.
 
-The bundle is written to BUNDLE.partial and renamed at the end: an
-interrupted pack leaves no BUNDLE. Licensing and third-party rights remain
+The bundle is built in a hidden folder beside it (.BUNDLE.partial-*) and
+renamed at the end: an interrupted pack leaves no BUNDLE. With --force an
+existing BUNDLE is swapped for the new one in one step and stays complete
+until then. Licensing and third-party rights remain
 the depositor's responsibility.
 
 Exit status: 0 success, 1 the logs have problems (nothing written),
@@ -117,10 +119,9 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return err
 	}
-	tmp := out + ".partial"
-	os.RemoveAll(tmp) // a previous interrupted run
-	if err := os.MkdirAll(filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {
-		return &exitError{exitUsage, err}
+	tmp, err := pack.NewStaging(out) // a fresh hidden name; nothing of the user's is removed
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
 	fail := func(err error) error {
 		os.RemoveAll(tmp)

@@ -1,27 +1,71 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
+	"os"
+	"strconv"
 	"strings"
+	"time"
 
 	"github.com/spf13/cobra"
 
+	"trajvault/internal/h5"
+	"trajvault/internal/isolate"
 	"trajvault/validate"
 )
 
 type validateOptions struct {
 	json    bool
 	profile string
-	// Set by PreRunE from profile.
+	// Set by parseProfile from profile.
 	rules  validate.Profile
 	funder string
+	// Limits of the worker process that reads each file (internal/isolate).
+	maxMemoryMiB int64
+	timeLimit    time.Duration
+	maxRead      int64 // bytes; set from readMiB
+	readMiB      int64
 }
+
+// Worker defaults: a trajectory file read in memory from an archive may be
+// up to 2 GiB (validate.BundleOptions.MaxImageBytes) and HDF5 copies the
+// image once, so 6 GiB of address space; 10 minutes is far above what a
+// well-formed file of that size takes.
+const (
+	defaultWorkerMemoryMiB = 6 << 10
+	defaultWorkerTime      = 10 * time.Minute
+	// The Go runtime, HDF5 and their threads reserve about 1 GiB of
+	// address space before reading anything (measured here: under 768 MiB
+	// a worker cannot start its threads, under 1024 MiB 8 of 30 runs on a
+	// small good file ran out, under 1536 MiB none of 90).
+	minWorkerMemoryMiB = 1536
+)
 
 func (o *validateOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print the report as JSON (schema/findings.schema.json); one object per line for several files")
 	c.Flags().StringVar(&o.profile, "profile", "", "rules for files: h5md or trajvault (default: as each file claims); for bundles also the funder profile: minimal (default), fair, eu-grant or a JSON Schema file; both: trajvault,fair")
+	c.Flags().Int64Var(&o.maxMemoryMiB, "max-memory", defaultWorkerMemoryMiB, "address space of the process reading each file, in MiB (X3 when reached)")
+	c.Flags().DurationVar(&o.timeLimit, "time-limit", defaultWorkerTime, "time allowed for reading each file or bundle, e.g. 90s or 1h (X2 when reached)")
+	c.Flags().Int64Var(&o.readMiB, "read-budget", h5.DefaultMaxReadBytes>>20, "memory one read of a dataset or attribute may take, in MiB (V42 when a file declares more)")
+}
+
+func (o *validateOptions) check() error {
+	if err := o.parseProfile(); err != nil {
+		return &exitError{exitUsage, fmt.Errorf("validate: %w", err)}
+	}
+	switch {
+	case o.maxMemoryMiB < minWorkerMemoryMiB:
+		return &exitError{exitUsage, fmt.Errorf("--max-memory %d: at least %d (MiB), e.g. --max-memory 8192", o.maxMemoryMiB, minWorkerMemoryMiB)}
+	case o.timeLimit <= 0:
+		return &exitError{exitUsage, fmt.Errorf("--time-limit %v: must be positive, e.g. --time-limit 30m", o.timeLimit)}
+	case o.readMiB < 1 || o.readMiB > 1<<30:
+		return &exitError{exitUsage, fmt.Errorf("--read-budget %d: between 1 and 2^30 (MiB), e.g. --read-budget 2048", o.readMiB)}
+	}
+	o.maxRead = o.readMiB << 20
+	return nil
 }
 
 // parseProfile splits --profile into the rule profile of trajectory files
@@ -64,26 +108,26 @@ finding has a stable code (V1.., E1.., and R1.. for the provenance record
 of files trajvault made), a severity, the HDF5 path and what to do about
 it. Repeats of one rule at one place are folded ("and N more like this").
 
-Profiles (--profile): under h5md a file is held to what the H5MD 1.0/1.1
-specification requires (mass, species, observables and units on every
-dataset are optional); under trajvault also to trajvault's stricter
-layout, its electronic-state module and provenance rules. By default a
-file that claims trajvault's layout (its module or provenance record) is
-checked under trajvault, any other under h5md; the report names the
-profile used. schema/layout.md lists the profile of every rule.
-
 Given a bundle - a BagIt folder, or a .tar.zst or .zip of one, read
 without unpacking - it checks completeness and validity per RFC 8493
 (every checksum), paths that would leave the bag, every trajectory file,
-the RO-Crate and DataCite metadata and a funder profile (--profile
-minimal, fair, eu-grant or a JSON Schema file).
+the RO-Crate and DataCite metadata and a funder profile (--profile).
 Bundle findings have codes B (bag) and M (metadata).
 
 A clean report says the file is well-formed and labelled, not that the
 simulation behind it is sound.
 
-Exit status: 0 no errors (warnings and notes allowed), 1 errors found,
-2 a file could not be read (missing, empty, not HDF5, truncated).`,
+Each file or bundle is read by a separate worker process with a memory
+limit (--max-memory) and a time limit (--time-limit): a file that crashes
+the reader, hangs or needs too much memory gets a finding of its own (X1,
+X2, X3) and the run goes on with the next file. A dataset or attribute
+larger than the read budget (--read-budget) is not read (V42); data that
+a file keeps outside itself (external links, external storage, virtual
+dataset sources) is never opened (V43).
+
+Exit status: 0 no errors (warnings and notes allowed), 1 errors found
+(X1-X3 included), 2 a file could not be read (missing, empty, not HDF5,
+truncated) or a usage error.`,
 		Example: "  trajvault validate run-001.h5\n  trajvault validate --profile h5md other-writer.h5\n  trajvault validate --profile trajvault,fair bundle\n  trajvault validate --json runs/*.h5",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) == 0 {
@@ -91,30 +135,28 @@ Exit status: 0 no errors (warnings and notes allowed), 1 errors found,
 			}
 			return nil
 		},
-		PreRunE: func(c *cobra.Command, args []string) error {
-			if err := o.parseProfile(); err != nil {
-				return &exitError{exitUsage, fmt.Errorf("validate: %w", err)}
-			}
-			return nil
-		},
-		RunE: func(c *cobra.Command, args []string) error { return runValidate(g, o, args) },
+		PreRunE: func(c *cobra.Command, args []string) error { return o.check() },
+		RunE:    func(c *cobra.Command, args []string) error { return runValidate(c.Context(), g, o, args) },
 	}
 	o.AddFlags(c)
 	return c
 }
 
-func runValidate(g *globals, o validateOptions, files []string) error {
+// runValidate checks each file in a worker process of its own (see
+// validateOne), one after the other.
+func runValidate(ctx context.Context, g *globals, o validateOptions, files []string) error {
+	exe, err := os.Executable()
+	if err != nil {
+		return fmt.Errorf("validate: cannot find this program to start workers: %w", err)
+	}
 	failed, unread := false, 0
 	for _, path := range files {
-		var rep *validate.Report
-		var err error
-		if validate.IsBundle(path) {
-			rep, err = validate.Bundle(path, validate.BundleOptions{ToolVersion: toolVersion(), Profile: o.funder, FileProfile: o.rules})
-		} else {
-			rep, err = validate.File(path, validate.Options{ToolVersion: toolVersion(), Profile: o.rules})
-		}
+		rep, msg, err := validateOne(ctx, exe, o, path)
 		if err != nil {
-			fmt.Fprintf(g.stderr, "trajvault: validate: %v\n", err)
+			return err
+		}
+		if rep == nil {
+			fmt.Fprintf(g.stderr, "trajvault: validate: %s\n", msg)
 			unread++
 			continue
 		}
@@ -138,6 +180,39 @@ func runValidate(g *globals, o validateOptions, files []string) error {
 		return errFindings
 	}
 	return nil
+}
+
+// validateOne runs the hidden worker-validate command on path under the
+// worker limits. It returns the report, or the one-line message of a file
+// that cannot be read at all; the error is for the run itself (no worker
+// could start, or ctx was cancelled).
+func validateOne(ctx context.Context, exe string, o validateOptions, path string) (*validate.Report, string, error) {
+	args := []string{"worker-validate", "--profile", o.profile, "--max-read", strconv.FormatInt(o.maxRead, 10)}
+	if validate.IsBundle(path) {
+		args = append(args, "--bundle")
+	}
+	args = append(args, "--", path)
+	res, err := isolate.Run(ctx, exe, args, isolate.Limits{Memory: o.maxMemoryMiB << 20, Time: o.timeLimit})
+	if err != nil {
+		return nil, "", fmt.Errorf("validate %s: %w", path, err)
+	}
+	if res.Outcome == isolate.Exited && res.ExitCode == workerUnreadable {
+		msg := strings.TrimSpace(string(res.Stderr))
+		msg = strings.TrimPrefix(msg, "trajvault: validate: ")
+		return nil, msg, nil
+	}
+	if rep := validate.Isolated(path, toolVersion(), res); rep != nil {
+		return rep, "", nil
+	}
+	var rep validate.Report
+	if err := json.Unmarshal(res.Stdout, &rep); err != nil {
+		// A worker that exits 0 without a report is as broken as one that
+		// crashed: a finding for this file, not the end of the run.
+		res.Outcome, res.ExitCode = isolate.Exited, 0
+		res.Stderr = []byte("no report: " + err.Error())
+		return validate.Isolated(path, toolVersion(), res), "", nil
+	}
+	return &rep, "", nil
 }
 
 func printReport(g *globals, rep *validate.Report) {

@@ -97,6 +97,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newPackCommand(g),
 		newInitCommand(g),
 		newCompareCommand(g),
+		newWorkerCommand(g),
 	)
 	return root
 }

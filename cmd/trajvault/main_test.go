@@ -2,16 +2,58 @@ package main
 
 import (
 	"os"
+	"path/filepath"
+	"strings"
+	"syscall"
 	"testing"
+	"time"
 )
 
 // TestMain lets tests run this test binary as the trajvault command
 // (TRAJVAULT_AS_MAIN=1), to test what only a separate process shows,
-// such as being killed mid-run.
+// such as being killed mid-run. The variable is also set for the tests
+// themselves, so that the workers validate starts (os.Executable, i.e.
+// this binary) run as trajvault too.
 func TestMain(m *testing.M) {
 	if os.Getenv("TRAJVAULT_AS_MAIN") == "1" {
+		workerFault = plantedFault
 		main()
 		return
 	}
+	os.Setenv("TRAJVAULT_AS_MAIN", "1")
 	os.Exit(m.Run())
+}
+
+// plantedFault makes a worker misbehave on files named in
+// TRAJVAULT_TEST_FAULT ("kill:NAME,sleep:NAME,alloc:NAME,panic:NAME"), the
+// ways a hostile file can end a reader: killed by a signal, hung, out of
+// memory, a fatal runtime error.
+func plantedFault(path string) {
+	for _, f := range strings.Split(os.Getenv("TRAJVAULT_TEST_FAULT"), ",") {
+		mode, name, _ := strings.Cut(f, ":")
+		if name == "" || filepath.Base(path) != name {
+			continue
+		}
+		switch mode {
+		case "kill":
+			// Go's handler turns a SIGSEGV sent by kill into a fatal
+			// error (exit 2, the "panic" case); SIGKILL dies by a signal
+			// as a C crash under the default handler does.
+			syscall.Kill(os.Getpid(), syscall.SIGKILL)
+			time.Sleep(time.Minute)
+		case "sleep":
+			time.Sleep(time.Hour)
+		case "alloc":
+			var keep [][]byte
+			for i := 0; i < 1024; i++ {
+				// Address space is what RLIMIT_AS counts: untouched
+				// pages are enough to reach it.
+				keep = append(keep, make([]byte, 64<<20))
+			}
+			_ = keep
+		case "panic":
+			var p *[1]int
+			_ = p[0]
+		}
+	}
 }

@@ -126,27 +126,48 @@ func (i Info) Format() string {
 	return b.String()
 }
 
-// ParseInfo reads bag-info.txt, joining continuation lines.
+// ParseInfo reads bag-info.txt, joining continuation lines. It takes time
+// and memory linear in the text: each value is built in one
+// strings.Builder, never by repeated concatenation (issue 12: 200k
+// continuation lines took 43 s).
 func ParseInfo(text string) (Info, error) {
 	var out Info
-	for n, line := range strings.Split(strings.TrimSuffix(text, "\n"), "\n") {
+	var cur strings.Builder
+	open := false
+	flush := func() {
+		if open {
+			out[len(out)-1][1] = cur.String()
+			cur.Reset()
+		}
+	}
+	n := 0
+	for len(text) > 0 {
+		n++
+		line, rest, _ := strings.Cut(text, "\n")
+		text = rest
 		line = strings.TrimSuffix(line, "\r")
 		if line == "" {
 			continue
 		}
 		if line[0] == ' ' || line[0] == '\t' {
-			if len(out) == 0 {
-				return nil, fmt.Errorf("bag-info.txt line %d: continuation without a label", n+1)
+			if !open {
+				return nil, fmt.Errorf("bag-info.txt line %d: continuation without a label", n)
 			}
-			out[len(out)-1][1] += " " + strings.TrimSpace(line)
+			cur.WriteByte(' ')
+			cur.WriteString(strings.TrimSpace(line))
 			continue
 		}
 		label, value, ok := strings.Cut(line, ":")
 		if !ok {
-			return nil, fmt.Errorf("bag-info.txt line %d: expected \"Label: value\"", n+1)
+			flush()
+			return nil, fmt.Errorf("bag-info.txt line %d: expected \"Label: value\"", n)
 		}
-		out = append(out, [2]string{strings.TrimSpace(label), strings.TrimSpace(value)})
+		flush()
+		out = append(out, [2]string{strings.TrimSpace(label), ""})
+		cur.WriteString(strings.TrimSpace(value))
+		open = true
 	}
+	flush()
 	return out, nil
 }
 

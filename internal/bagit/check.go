@@ -1,6 +1,7 @@
 package bagit
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"regexp"
@@ -60,6 +61,15 @@ func Check(src Source, opt Options) *Result {
 	var payload []string
 	seenFold := map[string]string{}
 	for _, e := range entries {
+		if first, dup := byName[e.Name]; dup && (e.Kind != Dir || first.Kind != Dir) {
+			// An unpacker keeps one copy, a checker may read the other:
+			// both copies are hashed (Each streams them) and the bag is
+			// invalid whatever they hold.
+			add("B18", finding.Error, e.Name, "the archive holds this name twice (entries %d and %d); an unpacker keeps only one copy: remove one", first.Pos, e.Pos)
+			continue
+		} else if dup {
+			continue
+		}
 		byName[e.Name] = e
 		switch e.Kind {
 		case Symlink:
@@ -90,8 +100,10 @@ func Check(src Source, opt Options) *Result {
 	res.Payload = payload
 
 	// bagit.txt
-	decl, err := src.ReadSmall(DeclarationFile, 4096)
+	decl, err := src.ReadSmall(DeclarationFile, declarationLimit)
 	switch {
+	case errors.Is(err, ErrLimit):
+		add("B17", finding.Error, DeclarationFile, "larger than %d bytes; not read: it must read exactly %q", declarationLimit, Declaration)
 	case err != nil:
 		add("B1", finding.Error, DeclarationFile, "missing: every bag starts with bagit.txt declaring BagIt-Version 1.0")
 	default:
@@ -105,12 +117,17 @@ func Check(src Source, opt Options) *Result {
 		}
 	}
 	// bag-info.txt (optional)
-	if b, err := src.ReadSmall("bag-info.txt", smallLimit); err == nil {
+	if b, err := src.ReadSmall(InfoFile, smallLimit); err == nil {
 		info, perr := ParseInfo(string(b))
 		if perr != nil {
-			add("B11", finding.Error, "bag-info.txt", "%v", perr)
+			add("B11", finding.Error, InfoFile, "%v", perr)
 		}
 		res.Info = info
+	} else if errors.Is(err, ErrLimit) {
+		// Never ignored: its labels, Payload-Oxum included, go unchecked.
+		add("B17", finding.Error, InfoFile, "larger than %d bytes; not read, so none of its labels (Payload-Oxum included) is checked: shorten it", smallLimit)
+	} else if _, ok := byName[InfoFile]; ok {
+		add("B13", finding.Error, InfoFile, "cannot read: %v", err)
 	}
 	// manifests
 	var mans []*manifest
@@ -129,15 +146,29 @@ func Check(src Source, opt Options) *Result {
 			add("B16", finding.Warning, n, "algorithm %q is not checked by this tool (sha512, sha256, md5 are)", alg)
 			continue
 		}
-		b, err := src.ReadSmall(n, 1<<30)
+		tag := m[1] == "tag"
+		maxBytes, maxLines := ManifestLimits(entries, tag)
+		b, err := src.ReadSmall(n, maxBytes)
+		if errors.Is(err, ErrLimit) {
+			add("B17", finding.Error, n, "larger than the %d bytes that lines for the bag's %d files can fill; not read: list each file once", maxBytes, maxLines-manifestSlackLines)
+			continue
+		}
 		if err != nil {
 			add("B3", finding.Error, n, "cannot read: %v", err)
 			continue
 		}
-		mf := &manifest{alg: alg, tag: m[1] == "tag", name: n, lines: map[string]string{}}
-		for i, line := range strings.Split(strings.TrimSuffix(strings.ReplaceAll(string(b), "\r\n", "\n"), "\n"), "\n") {
+		mf := &manifest{alg: alg, tag: tag, name: n, lines: map[string]string{}}
+		text := strings.TrimSuffix(string(b), "\n")
+		for i := 0; len(text) > 0; i++ {
+			var line string
+			line, text, _ = strings.Cut(text, "\n")
+			line = strings.TrimSuffix(line, "\r")
 			if line == "" {
 				continue
+			}
+			if i >= maxLines {
+				add("B19", finding.Error, n, "line %d: more lines than the bag has files (%d); the rest is not read: list each file once", i+1, maxLines-manifestSlackLines)
+				break
 			}
 			sum, p, ok := strings.Cut(strings.TrimLeft(line, " "), " ")
 			p = DecodePath(strings.TrimLeft(p, " \t*"))
@@ -266,6 +297,36 @@ func Check(src Source, opt Options) *Result {
 	res.Complete = complete
 	res.Valid = valid && complete && !hasCode(res, "B4") && !hasCode(res, "B10")
 	return res
+}
+
+// InfoFile is the bag's metadata tag file (RFC 8493 sec. 2.2.2).
+const InfoFile = "bag-info.txt"
+
+// declarationLimit bounds bagit.txt, whose exact content is 55 bytes.
+const declarationLimit = 4096
+
+// manifestSlackLines allows a few lines a manifest may hold beyond one per
+// file (blank lines); anything more is B19.
+const manifestSlackLines = 16
+
+// ManifestLimits bounds a manifest by what the bag holds, so that its
+// size never depends on the manifest's own claims (issue 12: 10 million
+// duplicate lines in a 108 KB archive took 217 s and 6.2 GB): one line
+// per file that it may list (payload files, or tag files for a tag
+// manifest), each at most a 128-digit checksum, two spaces, the name
+// with every byte percent-encoded (3 bytes each; RFC 8493 sec. 2.1.3
+// encodes only CR, LF and %, so this is an upper bound) and CR LF, plus
+// 64 KiB of slack.
+func ManifestLimits(entries []Entry, tag bool) (maxBytes int64, maxLines int) {
+	maxBytes = 64 << 10
+	for _, e := range entries {
+		if e.Kind != File || strings.HasPrefix(e.Name, "data/") == tag {
+			continue
+		}
+		maxLines++
+		maxBytes += 128 + 2 + 3*int64(len(e.Name)) + 2
+	}
+	return maxBytes, maxLines + manifestSlackLines
 }
 
 func hasCode(r *Result, code string) bool {

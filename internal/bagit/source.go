@@ -33,6 +33,9 @@ type Entry struct {
 	Size   int64
 	Kind   Kind
 	Target string // symlink target
+	// Pos is the entry's place in an archive, from 1 (0 in a folder): two
+	// entries of one name are told apart by it.
+	Pos int
 }
 
 // Source is where a bag is read from: a folder or an archive.
@@ -41,7 +44,8 @@ type Source interface {
 	Entries() []Entry
 	// ReadSmall reads a whole entry of at most limit bytes.
 	ReadSmall(name string, limit int64) ([]byte, error)
-	// Each streams every regular file once, in the source's own order.
+	// Each streams every regular file once, in the source's own order;
+	// an archive that holds a name twice streams both copies.
 	Each(fn func(name string, r io.Reader) error) error
 }
 
@@ -179,7 +183,8 @@ type zipSource struct {
 	r       *zip.ReadCloser
 	prefix  string
 	entries []Entry
-	files   map[string]*zip.File
+	files   map[string]*zip.File // first copy of each name
+	byPos   map[int]*zip.File
 	lim     Limits
 }
 
@@ -188,7 +193,7 @@ func openZip(p string, lim Limits) (*zipSource, error) {
 	if err != nil {
 		return nil, err
 	}
-	z := &zipSource{path: p, r: r, files: map[string]*zip.File{}, lim: lim}
+	z := &zipSource{path: p, r: r, files: map[string]*zip.File{}, byPos: map[int]*zip.File{}, lim: lim}
 	var names []string
 	for _, f := range r.File {
 		names = append(names, f.Name)
@@ -198,12 +203,12 @@ func openZip(p string, lim Limits) (*zipSource, error) {
 		return nil, fmt.Errorf("%w: %d entries", ErrLimit, len(r.File))
 	}
 	var total uint64
-	for _, f := range r.File {
+	for i, f := range r.File {
 		name := strings.TrimPrefix(f.Name, z.prefix)
 		if name == "" {
 			continue
 		}
-		e := Entry{Name: strings.TrimSuffix(name, "/"), Size: int64(f.UncompressedSize64)}
+		e := Entry{Name: strings.TrimSuffix(name, "/"), Size: int64(f.UncompressedSize64), Pos: i + 1}
 		mode := f.Mode()
 		switch {
 		case mode&fs.ModeSymlink != 0:
@@ -218,12 +223,15 @@ func openZip(p string, lim Limits) (*zipSource, error) {
 			return nil, fmt.Errorf("%w: %s declares %d bytes", ErrLimit, f.Name, f.UncompressedSize64)
 		}
 		z.entries = append(z.entries, e)
-		z.files[e.Name] = f
+		if _, dup := z.files[e.Name]; !dup {
+			z.files[e.Name] = f
+		}
+		z.byPos[e.Pos] = f
 	}
 	if total > uint64(lim.MaxTotalBytes) {
 		return nil, fmt.Errorf("%w: %d bytes in all", ErrLimit, total)
 	}
-	sort.Slice(z.entries, func(i, j int) bool { return z.entries[i].Name < z.entries[j].Name })
+	sort.SliceStable(z.entries, func(i, j int) bool { return z.entries[i].Name < z.entries[j].Name })
 	return z, nil
 }
 
@@ -235,6 +243,10 @@ func (z *zipSource) open(name string) (io.ReadCloser, error) {
 	if !ok {
 		return nil, fs.ErrNotExist
 	}
+	return openZipFile(f)
+}
+
+func openZipFile(f *zip.File) (io.ReadCloser, error) {
 	rc, err := f.Open()
 	if err != nil {
 		return nil, err
@@ -260,7 +272,7 @@ func (z *zipSource) Each(fn func(string, io.Reader) error) error {
 		if e.Kind != File {
 			continue
 		}
-		rc, err := z.open(e.Name)
+		rc, err := openZipFile(z.byPos[e.Pos])
 		if err != nil {
 			return err
 		}
@@ -285,7 +297,13 @@ type tarZstSource struct {
 	lim     Limits
 }
 
-const smallLimit = 16 << 20
+// smallLimit bounds one tag file kept from the listing pass, smallTotal
+// all of them (many small tag files must not fill memory); others are
+// read by a second pass when asked for.
+const (
+	smallLimit = 16 << 20
+	smallTotal = 64 << 20
+)
 
 func (t *tarZstSource) stream(fn func(h *tar.Header, r io.Reader) error) error {
 	f, err := os.Open(t.path)
@@ -324,8 +342,9 @@ func (t *tarZstSource) stream(fn func(h *tar.Header, r io.Reader) error) error {
 func openTarZst(p string, lim Limits) (*tarZstSource, error) {
 	t := &tarZstSource{path: p, small: map[string][]byte{}, lim: lim}
 	var raw []Entry
+	var kept int64
 	err := t.stream(func(h *tar.Header, r io.Reader) error {
-		e := Entry{Name: h.Name, Size: h.Size}
+		e := Entry{Name: h.Name, Size: h.Size, Pos: len(raw) + 1}
 		switch h.Typeflag {
 		case tar.TypeReg:
 		case tar.TypeDir:
@@ -336,12 +355,14 @@ func openTarZst(p string, lim Limits) (*tarZstSource, error) {
 			e.Kind = Other
 		}
 		raw = append(raw, e)
-		if e.Kind == File && !strings.Contains(h.Name, "/data/") && !strings.HasPrefix(h.Name, "data/") && h.Size <= smallLimit {
+		_, seen := t.small[h.Name]
+		if e.Kind == File && !seen && !strings.Contains(h.Name, "/data/") && !strings.HasPrefix(h.Name, "data/") && h.Size <= smallLimit && kept+h.Size <= smallTotal {
 			b, err := readLimited(r, smallLimit)
 			if err != nil {
 				return err
 			}
 			t.small[h.Name] = b
+			kept += int64(len(b))
 		}
 		return nil
 	})
@@ -375,8 +396,8 @@ func (t *tarZstSource) ReadSmall(name string, limit int64) ([]byte, error) {
 	var out []byte
 	found := false
 	err := t.stream(func(h *tar.Header, r io.Reader) error {
-		if h.Name != t.prefix+name || h.Typeflag != tar.TypeReg {
-			return nil
+		if found || h.Name != t.prefix+name || h.Typeflag != tar.TypeReg {
+			return nil // the first copy of a duplicated name, as in the listing
 		}
 		found = true
 		var err error

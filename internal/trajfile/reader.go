@@ -80,9 +80,12 @@ func (r *Reader) init() error {
 	if r.Group, err = findGroup(r.f); err != nil {
 		return err
 	}
-	sp, _, err := r.f.ReadInt64(r.Particle(Species))
+	sp, spShape, err := r.f.ReadInt64(r.Particle(Species))
 	if err != nil {
 		return fmt.Errorf("no species: %v", err)
+	}
+	if spShape.Rank != 1 || len(sp) == 0 {
+		return fmt.Errorf("%s: shape %v, want [N] with N >= 1 atoms", r.Particle(Species), spShape.Dims)
 	}
 	r.N = len(sp)
 	for _, z := range sp {
@@ -100,10 +103,16 @@ func (r *Reader) init() error {
 		r.Masses = append(r.Masses, x*mf)
 	}
 	info, err := r.f.Info(r.Particle(Position) + Value)
-	if err != nil || info.Shape.Rank != 3 {
-		return fmt.Errorf("no positions [T][N][3]")
+	if err != nil {
+		return fmt.Errorf("no positions [T][N][3]: %w", err)
+	}
+	if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] < 1 || d[1] != r.N || d[2] != 3 {
+		return fmt.Errorf("%s%s: shape %v, want [T][%d][3] with T >= 1 frames", r.Particle(Position), Value, info.Shape.Dims, r.N)
 	}
 	r.T = info.Shape.Dims[0]
+	if err := checkFrames(r.T); err != nil {
+		return fmt.Errorf("%s%s: %w", r.Particle(Position), Value, err)
+	}
 	c, err := readClock(r.f, r.Particle(Position))
 	if err != nil {
 		return err
@@ -117,8 +126,8 @@ func (r *Reader) init() error {
 	for i, t := range c.Times {
 		r.Times[i] = t * tf
 	}
-	if v, _, err := r.f.ReadInt64(NStates); err == nil && len(v) == 1 {
-		r.States = int(v[0])
+	if err := r.states(); err != nil {
+		return err
 	}
 	if v, _, err := r.f.ReadFloat64(TimeStep); err == nil && len(v) == 1 {
 		if fct, err := r.unitFactor(TimeStep, "au_time"); err == nil {
@@ -126,6 +135,73 @@ func (r *Reader) init() error {
 		}
 	}
 	return nil
+}
+
+// MaxStates bounds /parameters/n_states: per frame the couplings hold
+// S*S numbers, so S is kept where S*S fits a read of any sensible frame
+// count (common practice: surface hopping uses a handful of states).
+const MaxStates = 4096
+
+// maxClockBytes bounds the per-frame clock (step and time, 16 bytes a
+// frame) that the reader holds: the HDF5 layer's read budget.
+const maxClockBytes = h5.DefaultMaxReadBytes
+
+// checkFrames checks a declared frame count before anything per frame is
+// allocated.
+func checkFrames(T int) error {
+	if T < 0 || uint64(T) > uint64(maxClockBytes)/16 {
+		return fmt.Errorf("%d frames declared: the clock alone would need more than %d bytes", T, maxClockBytes)
+	}
+	return nil
+}
+
+// states reads /parameters/n_states (when present) and checks that every
+// electronic element present has S columns: state_energies and
+// populations [T][S], amplitudes [T][S][2], couplings [T][S][S]. Analysis
+// indexes rows by S, so a mismatch is an error here, never an index out
+// of range later (issue 12).
+func (r *Reader) states() error {
+	if r.f.Kind(NStates) == h5.Missing {
+		return nil
+	}
+	v, shape, err := r.f.ReadInt64(NStates)
+	if err != nil || shape.Rank != 0 || len(v) != 1 {
+		return fmt.Errorf("%s: want an integer scalar (the number of electronic states)", NStates)
+	}
+	if v[0] < 1 || v[0] > MaxStates {
+		return fmt.Errorf("%s = %d: want 1..%d", NStates, v[0], MaxStates)
+	}
+	S := int(v[0])
+	for _, e := range []struct {
+		el   string
+		tail []int
+	}{{StateEnergies, []int{S}}, {Populations, []int{S}}, {Amplitudes, []int{S, 2}}, {Couplings, []int{S, S}}} {
+		if !r.Has(e.el) {
+			continue
+		}
+		info, err := r.f.Info(e.el + Value)
+		if err != nil {
+			return err
+		}
+		want := append([]int{r.T}, e.tail...)
+		if !sameDims(info.Shape.Dims, want) {
+			return fmt.Errorf("%s%s: shape %v, want %v for %s = %d over %d frames", e.el, Value, info.Shape.Dims, want, NStates, S, r.T)
+		}
+	}
+	r.States = S
+	return nil
+}
+
+func sameDims(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
 }
 
 // Clock is an element's steps and times, per frame, as stored.
@@ -169,6 +245,9 @@ func readClock(f *h5.File, el string) (*Clock, error) {
 	T := 0
 	if err == nil && info.Shape.Rank > 0 {
 		T = info.Shape.Dims[0]
+	}
+	if err := checkFrames(T); err != nil {
+		return nil, fmt.Errorf("%s: %w", el, err)
 	}
 	c := &Clock{Steps: make([]int64, T), Times: make([]float64, T), Fixed: shape.Rank == 0}
 	if a, err := f.Attr(el+Time, UnitAttr); err == nil && len(a.Strings) == 1 {
@@ -272,8 +351,19 @@ func (r *Reader) Has(el string) bool { return r.f.Kind(r.at(el)+Value) == h5.Dat
 
 // Values reads a whole time-dependent element converted to unit ("" for
 // dimensionless or integer data), with its shape.
+//
+// The element must have one row per frame of the positions' clock
+// (Dims[0] == T); a shorter or longer one is an error, checked before the
+// read.
 func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 	el = r.at(el)
+	info, err := r.f.Info(el + Value)
+	if err != nil {
+		return nil, h5.Shape{}, err
+	}
+	if info.Shape.Rank == 0 || info.Shape.Dims[0] != r.T {
+		return nil, info.Shape, fmt.Errorf("%s: %s%s: shape %v, want one row per frame (%d)", r.Path, el, Value, info.Shape.Dims, r.T)
+	}
 	v, shape, err := r.f.ReadFloat64(el + Value)
 	if err != nil {
 		return nil, shape, err
@@ -297,6 +387,12 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 	info, err := r.f.Info(el + Value)
 	if err != nil {
 		return nil, err
+	}
+	if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] != r.T || d[1] != r.N || d[2] != 3 {
+		return nil, fmt.Errorf("%s: %s%s: shape %v, want [%d][%d][3]", r.Path, el, Value, info.Shape.Dims, r.T, r.N)
+	}
+	if start < 0 || count < 0 || start > r.T || count > r.T-start {
+		return nil, fmt.Errorf("%s: %s%s: frames [%d, %d+%d) outside 0..%d", r.Path, el, Value, start, start, count, r.T)
 	}
 	v, err := r.f.ReadRows(el+Value, info.Shape, start, count)
 	if err != nil {
