@@ -179,7 +179,7 @@ func (r *Reader) states() error {
 		if !r.Has(e.el) {
 			continue
 		}
-		info, err := r.f.Info(e.el + Value)
+		info, err := r.f.Info(r.at(e.el) + Value)
 		if err != nil {
 			return err
 		}

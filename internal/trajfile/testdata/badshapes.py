@@ -73,7 +73,7 @@ elif case == "frames_2_40":
             d.attrs[k] = a
         d.attrs["offset"] = v * 0
 elif case == "populations_rank3":
-    recreate("/observables/electronic/populations/value", data=np.zeros((T, 2, 2)))
+    recreate("/observables/populations/value", data=np.zeros((T, 2, 2)))
 else:
     sys.exit("unknown case " + case)
 f.close()
