@@ -38,7 +38,7 @@ func OpenReader(path string) (*Reader, error) {
 		return nil, err
 	}
 	r := &Reader{f: f, Path: path}
-	if err := r.init(); err != nil {
+	if err := r.init(true); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
@@ -75,7 +75,10 @@ func findGroup(f *h5.File) (string, error) {
 	return "", fmt.Errorf("no particle group with positions under %s", ParticlesGroup)
 }
 
-func (r *Reader) init() error {
+// init reads what every use needs and checks the shapes; withClock also
+// loads every frame's step and time (OpenWindowReader leaves them out:
+// on long runs with an explicit clock they cost more than a window).
+func (r *Reader) init(withClock bool) error {
 	var err error
 	if r.Group, err = findGroup(r.f); err != nil {
 		return err
@@ -113,18 +116,20 @@ func (r *Reader) init() error {
 	if err := checkFrames(r.T); err != nil {
 		return fmt.Errorf("%s%s: %w", r.Particle(Position), Value, err)
 	}
-	c, err := readClock(r.f, r.Particle(Position))
-	if err != nil {
-		return err
-	}
-	tf, err := r.unitFactor(r.Particle(Position)+Time, "au_time")
-	if err != nil {
-		return err
-	}
-	r.Steps = c.Steps
-	r.Times = make([]float64, len(c.Times))
-	for i, t := range c.Times {
-		r.Times[i] = t * tf
+	if withClock {
+		c, err := readClock(r.f, r.Particle(Position))
+		if err != nil {
+			return err
+		}
+		tf, err := r.unitFactor(r.Particle(Position)+Time, "au_time")
+		if err != nil {
+			return err
+		}
+		r.Steps = c.Steps
+		r.Times = make([]float64, len(c.Times))
+		for i, t := range c.Times {
+			r.Times[i] = t * tf
+		}
 	}
 	if err := r.states(); err != nil {
 		return err

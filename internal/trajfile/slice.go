@@ -134,52 +134,11 @@ func OpenWindowReader(path string) (*Reader, error) {
 		return nil, err
 	}
 	r := &Reader{f: f, Path: path}
-	if err := r.initWindow(); err != nil {
+	if err := r.init(false); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	return r, nil
-}
-
-// initWindow is init without the clock (see OpenWindowReader).
-func (r *Reader) initWindow() error {
-	var err error
-	if r.Group, err = findGroup(r.f); err != nil {
-		return err
-	}
-	sp, _, err := r.f.ReadInt64(r.Particle(Species))
-	if err != nil {
-		return fmt.Errorf("no species: %v", err)
-	}
-	r.N = len(sp)
-	for _, z := range sp {
-		r.Species = append(r.Species, int(z))
-	}
-	m, _, err := r.f.ReadFloat64(r.Particle(Mass))
-	if err != nil || len(m) != r.N {
-		return fmt.Errorf("no masses for %d atoms", r.N)
-	}
-	mf, err := r.unitFactor(r.Particle(Mass), "me")
-	if err != nil {
-		return err
-	}
-	for _, x := range m {
-		r.Masses = append(r.Masses, x*mf)
-	}
-	info, err := r.f.Info(r.Particle(Position) + Value)
-	if err != nil || info.Shape.Rank != 3 {
-		return fmt.Errorf("no positions [T][N][3]")
-	}
-	r.T = info.Shape.Dims[0]
-	if v, _, err := r.f.ReadInt64(NStates); err == nil && len(v) == 1 {
-		r.States = int(v[0])
-	}
-	if v, _, err := r.f.ReadFloat64(TimeStep); err == nil && len(v) == 1 {
-		if fct, err := r.unitFactor(TimeStep, "au_time"); err == nil {
-			r.TimeStep = v[0] * fct
-		}
-	}
-	return nil
 }
 
 // ClockAt reads the steps and times (in the stored time unit) of element
