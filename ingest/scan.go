@@ -573,6 +573,11 @@ func (t *TrajReport) combine(opt Options) {
 			t.addUnit(k, "unit %q given for %s is a %v", u, k, pu.Dim)
 			continue
 		}
+		// Files store the canonical spelling (kcal/mol -> kcal mol-1), so
+		// that what trajvault writes never draws its own alias warning.
+		if c, ok := units.Canonicalize(u); ok {
+			u = c
+		}
 		t.Units[string(k)] = u
 	}
 	t.momentumUnits(geo, opt)
