@@ -107,12 +107,7 @@ func Export(in, dir, format string) ([]string, error) {
 		err = exportXYZ(r, filepath.Join(tmp, name), format == FormatExtXYZ)
 		written = append(written, name)
 	}
-	if err != nil {
-		os.RemoveAll(tmp)
-		return nil, err
-	}
-	if err := os.Rename(tmp, dir); err != nil {
-		os.RemoveAll(tmp)
+	if err := publish(tmp, dir, err); err != nil {
 		return nil, err
 	}
 	return written, nil
@@ -287,4 +282,16 @@ func exportCSV(r *trajfile.Reader, out string) error {
 		}
 	}
 	return closeOut(fh, w)
+}
+
+// publish renames the finished temporary folder tmp (ours) into place at
+// dir, or removes it when writing failed (err) or the rename does.
+func publish(tmp, dir string, err error) error {
+	if err == nil {
+		err = os.Rename(tmp, dir)
+	}
+	if err != nil {
+		os.RemoveAll(tmp)
+	}
+	return err
 }

@@ -136,12 +136,7 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 	case FormatNPY:
 		err = p.writeNPY(tmp, &written)
 	}
-	if err != nil {
-		os.RemoveAll(tmp)
-		return nil, err
-	}
-	if err := os.Rename(tmp, dir); err != nil {
-		os.RemoveAll(tmp)
+	if err := publish(tmp, dir, err); err != nil {
 		return nil, err
 	}
 	return written, nil
