@@ -12,6 +12,7 @@ import (
 	"strconv"
 
 	"trajvault/internal/elements"
+	"trajvault/internal/outdir"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 )
@@ -92,9 +93,8 @@ func Export(in, dir, format string) ([]string, error) {
 		return nil, err
 	}
 	defer r.Close()
-	tmp := dir + ".partial"
-	os.RemoveAll(tmp)
-	if err := os.MkdirAll(tmp, 0o755); err != nil {
+	tmp, err := outdir.Temp(dir)
+	if err != nil {
 		return nil, err
 	}
 	var written []string

@@ -11,6 +11,7 @@ import (
 	"strings"
 
 	"trajvault/internal/elements"
+	"trajvault/internal/outdir"
 	"trajvault/internal/trajfile"
 )
 
@@ -93,9 +94,8 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 	if (o.Format == FormatXYZ || o.Format == FormatExtXYZ) && !p.has("position") {
 		return nil, &SelectionError{"--quantities", strings.Join(o.Sel.Quantities, ","), "XYZ needs position; add it or use --format csv, json or npy"}
 	}
-	tmp := dir + ".partial"
-	os.RemoveAll(tmp)
-	if err := os.MkdirAll(tmp, 0o755); err != nil {
+	tmp, err := outdir.Temp(dir)
+	if err != nil {
 		return nil, err
 	}
 	var written []string

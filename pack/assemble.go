@@ -12,6 +12,7 @@ import (
 
 	"trajvault/internal/bagit"
 	"trajvault/internal/finding"
+	"trajvault/internal/outdir"
 	"trajvault/schema"
 )
 
@@ -111,12 +112,8 @@ func Assemble(ctx context.Context, staging, out string, conv []Converted, bo Bun
 // deleted), readable like a normal folder, with the trajectories folder
 // inside. The caller owns it and removes it on failure.
 func NewStaging(final string) (string, error) {
-	d, err := os.MkdirTemp(filepath.Dir(final), "."+filepath.Base(final)+".partial-*")
+	d, err := outdir.Temp(final)
 	if err != nil {
-		return "", err
-	}
-	if err := os.Chmod(d, 0o755); err != nil {
-		os.Remove(d)
 		return "", err
 	}
 	if err := os.MkdirAll(filepath.Join(d, filepath.FromSlash(schema.TrajectoriesDir)), 0o755); err != nil {

@@ -15,6 +15,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/outdir"
 )
 
 type convertOptions struct {
@@ -168,9 +169,8 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 	if err != nil {
 		return err
 	}
-	tmp := o.out + ".partial"
-	os.RemoveAll(tmp)
-	if err := os.MkdirAll(tmp, 0o755); err != nil {
+	tmp, err := outdir.Temp(o.out)
+	if err != nil {
 		return &exitError{exitUsage, err}
 	}
 	results, err := ingest.ConvertAll(ctx, reps, tmp, o.packOptions(opt, tol), o.jobs)
@@ -181,6 +181,10 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 	if err := os.Rename(tmp, o.out); err != nil {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
+	}
+	// Report the files where they now are, not where they were written.
+	for _, r := range results {
+		r.Output = filepath.Join(o.out, filepath.Base(r.Output))
 	}
 	if o.json {
 		b, _ := json.MarshalIndent(results, "", "  ")

@@ -147,3 +147,46 @@ func TestConvertUnitMismatch(t *testing.T) {
 		t.Errorf("validate: exit %d\n%s", code, out)
 	}
 }
+
+// TestOutputsNeverTouchUserPartial: convert (ensemble), export and demo
+// build their output folder under a name of their own; a user's folder
+// NAME.partial survives, and convert --json reports the files where they
+// are after the rename (issue 12 and 15).
+func TestOutputsNeverTouchUserPartial(t *testing.T) {
+	dir := t.TempDir()
+	logs := filepath.Join(dir, "logs")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "2", "--steps", "60", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	keep := func(name string) string {
+		p := filepath.Join(dir, name+".partial")
+		os.MkdirAll(p, 0o755)
+		os.WriteFile(filepath.Join(p, "mine.txt"), []byte("mine"), 0o644)
+		return p
+	}
+	parts := []string{keep("h5"), keep("text"), keep("more")}
+	code, out, errs := runCLI("convert", "--recipe", repo("testdata", "recipes", "tarnol.yaml"), logs, "-o", filepath.Join(dir, "h5"), "--json")
+	if code != 0 {
+		t.Fatalf("convert: %s", errs)
+	}
+	var results []struct{ Output string }
+	if err := json.Unmarshal([]byte(out), &results); err != nil || len(results) != 2 {
+		t.Fatalf("convert --json: %v\n%s", err, out)
+	}
+	for _, r := range results {
+		if _, err := os.Stat(r.Output); err != nil {
+			t.Errorf("convert --json names %s, which does not exist", r.Output)
+		}
+	}
+	if code, _, errs := runCLI("export", results[0].Output, "-o", filepath.Join(dir, "text")); code != 0 {
+		t.Fatalf("export: %s", errs)
+	}
+	if code, _, errs := runCLI("demo", "--trajectories", "1", "--steps", "20", filepath.Join(dir, "more")); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	for _, p := range parts {
+		if b, err := os.ReadFile(filepath.Join(p, "mine.txt")); err != nil || string(b) != "mine" {
+			t.Errorf("%s was touched", p)
+		}
+	}
+}

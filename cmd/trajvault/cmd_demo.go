@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/internal/demo"
+	"trajvault/internal/outdir"
 )
 
 type demoOptions struct {
@@ -85,9 +86,8 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 	if _, err := os.Stat(dir); err == nil {
 		return &exitError{exitUsage, fmt.Errorf("demo: %s already exists; choose a new directory (trajvault never overwrites outputs)", dir)}
 	}
-	tmp := dir + ".partial"
-	os.RemoveAll(tmp)
-	if err := os.MkdirAll(tmp, 0o755); err != nil {
+	tmp, err := outdir.Temp(dir)
+	if err != nil {
 		return &exitError{exitUsage, err}
 	}
 	for i := 0; i < o.trajectories; i++ {
