@@ -8,6 +8,7 @@ import (
 	"golang.org/x/sync/errgroup"
 
 	"trajvault/internal/finding"
+	"trajvault/internal/progress"
 )
 
 // Report is the audit of an ensemble.
@@ -36,8 +37,11 @@ const Caution = "An audit is evidence about the stored numbers, not a certificat
 // Ensemble audits every file, at most jobs at a time, and then the
 // ensemble. A file that cannot be audited becomes a FileUnreadable
 // finding (and a failed trajectory) and the others go on; the only error
-// returned is ctx's, when it is cancelled before the audit ends.
-func Ensemble(ctx context.Context, paths []string, s Settings, jobs int) (*Report, error) {
+// returned is ctx's, when it is cancelled before the audit ends. done
+// counts the files audited (nil: not counted).
+func Ensemble(ctx context.Context, paths []string, s Settings, jobs int, done progress.Counter) (*Report, error) {
+	done = progress.Or(done)
+	done.SetTotal(int64(len(paths)))
 	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(paths)), settings: s}
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
@@ -54,6 +58,7 @@ func Ensemble(ctx context.Context, paths []string, s Settings, jobs int) (*Repor
 				res = &Result{File: p, Error: err.Error(), Verdict: Fail, Checks: []Check{}}
 			}
 			rep.Trajectories[i] = res
+			done.Add(1)
 			return nil
 		})
 	}

@@ -100,7 +100,7 @@ func TestInternalConsistency(t *testing.T) {
 		for i := 0; i < n; i++ {
 			paths = append(paths, demoRun(t, uint64(100+i), steps, f))
 		}
-		rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2)
+		rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2, nil)
 		if err != nil {
 			t.Fatal(err)
 		}

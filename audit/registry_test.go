@@ -122,7 +122,7 @@ func TestRegistryRules(t *testing.T) {
 // one finding with its code, quantity and an HDF5 path of the layout.
 func TestEveryCheckRunsAndIsSummarised(t *testing.T) {
 	paths := []string{demoRun(t, 61, 400, demo.Faults{}), demoRun(t, 62, 400, demo.Faults{})}
-	rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2)
+	rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -191,7 +191,7 @@ func TestBadFileIsAFinding(t *testing.T) {
 		t.Fatal(err)
 	}
 	missing := filepath.Join(t.TempDir(), "missing.h5")
-	rep, err := Ensemble(context.Background(), []string{junk, good, missing}, DefaultSettings, 3)
+	rep, err := Ensemble(context.Background(), []string{junk, good, missing}, DefaultSettings, 3, nil)
 	if err != nil {
 		t.Fatalf("one bad file stopped the ensemble: %v", err)
 	}
@@ -221,7 +221,7 @@ func TestEnsembleCancelled(t *testing.T) {
 	p := demoRun(t, 64, 300, demo.Faults{})
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	rep, err := Ensemble(ctx, []string{p, p, p}, DefaultSettings, 1)
+	rep, err := Ensemble(ctx, []string{p, p, p}, DefaultSettings, 1, nil)
 	if !errors.Is(err, context.Canceled) || rep != nil {
 		t.Errorf("got %v, %v; want context.Canceled", rep, err)
 	}

@@ -31,7 +31,7 @@ func TestReportRendersInChromium(t *testing.T) {
 	for i := 0; i < 4; i++ {
 		paths = append(paths, demoRun(t, uint64(40+i), 800, demo.Faults{NoRescaleEvery: 2 * (i % 2)}))
 	}
-	rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2)
+	rep, err := Ensemble(context.Background(), paths, DefaultSettings, 2, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -100,7 +100,7 @@ func TestReportRendersInChromium(t *testing.T) {
 func TestNotRunNeverOK(t *testing.T) {
 	o := wells(0, 77)
 	o.steps = 2000
-	rep, err := Ensemble(context.Background(), []string{o.run(t)}, DefaultSettings, 1)
+	rep, err := Ensemble(context.Background(), []string{o.run(t)}, DefaultSettings, 1, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

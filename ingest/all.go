@@ -5,13 +5,18 @@ import (
 	"path/filepath"
 
 	"golang.org/x/sync/errgroup"
+
+	"trajvault/internal/progress"
 )
 
 // ScanAll scans every trajectory, jobs at a time (jobs < 1 means one),
 // and returns the reports in the order of trajs. Problems in the logs
 // are findings in the reports; the only errors are ctx's end and the
-// first error of any scan, which stops the others.
-func ScanAll(ctx context.Context, trajs []*Trajectory, opt Options, jobs int) ([]*TrajReport, error) {
+// first error of any scan, which stops the others. done counts the
+// trajectories scanned (nil: not counted).
+func ScanAll(ctx context.Context, trajs []*Trajectory, opt Options, jobs int, done progress.Counter) ([]*TrajReport, error) {
+	done = progress.Or(done)
+	done.SetTotal(int64(len(trajs)))
 	reps := make([]*TrajReport, len(trajs))
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
@@ -19,6 +24,7 @@ func ScanAll(ctx context.Context, trajs []*Trajectory, opt Options, jobs int) ([
 		g.Go(func() error {
 			r, err := Scan(gctx, t, opt)
 			reps[i] = r
+			done.Add(1)
 			return err
 		})
 	}
@@ -33,8 +39,11 @@ func ScanAll(ctx context.Context, trajs []*Trajectory, opt Options, jobs int) ([
 // layer, parsing runs in parallel). The first error cancels the other
 // conversions, whose partial files are removed; files already finished
 // stay in dir, which the caller owns (convert and pack write into a
-// temporary folder and rename it only on success).
-func ConvertAll(ctx context.Context, reps []*TrajReport, dir string, opt ConvertOptions, jobs int) ([]*Result, error) {
+// temporary folder and rename it only on success). done counts the
+// trajectories converted (nil: not counted).
+func ConvertAll(ctx context.Context, reps []*TrajReport, dir string, opt ConvertOptions, jobs int, done progress.Counter) ([]*Result, error) {
+	done = progress.Or(done)
+	done.SetTotal(int64(len(reps)))
 	results := make([]*Result, len(reps))
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
@@ -45,6 +54,7 @@ func ConvertAll(ctx context.Context, reps []*TrajReport, dir string, opt Convert
 			}
 			res, err := Convert(gctx, r, filepath.Join(dir, r.Name+".h5"), opt)
 			results[i] = res
+			done.Add(1)
 			return err
 		})
 	}

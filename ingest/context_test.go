@@ -110,7 +110,7 @@ func TestConvertAllFirstErrorCancels(t *testing.T) {
 	// An existing file makes the first conversion fail (outputs are never
 	// overwritten).
 	os.WriteFile(filepath.Join(dir, "run-0.h5"), nil, 0o644)
-	res, err := ConvertAll(context.Background(), reps, dir, legacyOpt, 1)
+	res, err := ConvertAll(context.Background(), reps, dir, legacyOpt, 1, nil)
 	if err == nil || errors.Is(err, context.Canceled) || res != nil {
 		t.Fatalf("ConvertAll = %v, %v; want the first conversion's error", res, err)
 	}
@@ -119,11 +119,11 @@ func TestConvertAllFirstErrorCancels(t *testing.T) {
 			t.Errorf("%s was converted after the first error", n)
 		}
 	}
-	res, err = ConvertAll(context.Background(), reps[1:], t.TempDir(), legacyOpt, 2)
+	res, err = ConvertAll(context.Background(), reps[1:], t.TempDir(), legacyOpt, 2, nil)
 	if err != nil || len(res) != 2 || res[0].Frames != 10 || res[1].Frames != 10 {
 		t.Errorf("ConvertAll = %+v, %v", res, err)
 	}
-	scans, err := ScanAll(context.Background(), []*Trajectory{reps[0].traj, reps[1].traj}, legacyOpt.Options, 2)
+	scans, err := ScanAll(context.Background(), []*Trajectory{reps[0].traj, reps[1].traj}, legacyOpt.Options, 2, nil)
 	if err != nil || len(scans) != 2 || scans[0].Frames != 10 {
 		t.Errorf("ScanAll = %v, %v", scans, err)
 	}

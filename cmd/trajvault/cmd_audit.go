@@ -130,7 +130,9 @@ func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) er
 	}
 	s := audit.DefaultSettings
 	s.Temperature, s.EnergyWarnEV, s.EnergyFailEV = o.temperature, o.energyWarn, o.energyFail
-	rep, err := audit.Ensemble(ctx, files, s, o.jobs)
+	auditing := newBar(g, "audit", "files")
+	rep, err := audit.Ensemble(ctx, files, s, o.jobs, auditing)
+	auditing.Finish()
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
 	}

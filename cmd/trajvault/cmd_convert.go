@@ -173,7 +173,9 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 	if err != nil {
 		return &exitError{exitUsage, err}
 	}
-	results, err := ingest.ConvertAll(ctx, reps, tmp, o.packOptions(opt, tol), o.jobs)
+	converting := newBar(g, "convert", "trajectories")
+	results, err := ingest.ConvertAll(ctx, reps, tmp, o.packOptions(opt, tol), o.jobs, converting)
+	converting.Finish()
 	if err != nil {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
@@ -203,7 +205,9 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 // printing the problems, when any has errors (a cut last frame is
 // allowed with dropPartial): convert and pack write all or nothing.
 func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
-	reps, err := ingest.ScanAll(ctx, trajs, opt, jobs)
+	scanning := newBar(g, "scan", "trajectories")
+	reps, err := ingest.ScanAll(ctx, trajs, opt, jobs, scanning)
+	scanning.Finish()
 	if err != nil {
 		return nil, &exitError{exitUsage, fmt.Errorf("%s: %w", verb, err)}
 	}

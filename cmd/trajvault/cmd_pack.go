@@ -129,7 +129,9 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
-	results, err := ingest.ConvertAll(ctx, reps, filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), copt, o.jobs)
+	converting := newBar(g, "convert", "trajectories")
+	results, err := ingest.ConvertAll(ctx, reps, filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), copt, o.jobs, converting)
+	converting.Finish()
 	if err != nil {
 		return fail(err)
 	}
@@ -148,7 +150,9 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		for _, c := range conv {
 			files = append(files, filepath.Join(tmp, filepath.FromSlash(c.File)))
 		}
-		rep, err := audit.Ensemble(ctx, files, audit.DefaultSettings, o.jobs)
+		auditing := newBar(g, "audit", "files")
+		rep, err := audit.Ensemble(ctx, files, audit.DefaultSettings, o.jobs, auditing)
+		auditing.Finish()
 		if err != nil {
 			return fail(err)
 		}

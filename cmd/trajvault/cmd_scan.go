@@ -55,7 +55,9 @@ func runScan(ctx context.Context, g *globals, o scanOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
 	}
-	reps, err := ingest.ScanAll(ctx, trajs, opt, runtime.NumCPU())
+	scanning := newBar(g, "scan", "trajectories")
+	reps, err := ingest.ScanAll(ctx, trajs, opt, runtime.NumCPU(), scanning)
+	scanning.Finish()
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("scan: %w", err)}
 	}
