@@ -82,6 +82,11 @@ type EnsembleResult struct {
 	// energy spreads (eV), when recorded.
 	EnergyA *Spread `json:"energy_a,omitempty"`
 	EnergyB *Spread `json:"energy_b,omitempty"`
+	// FirstHopsA and FirstHopsB are the first accepted hop times (fs) of
+	// each side, as the KS test sees them; kept for the HTML report's
+	// distribution plot, not in the JSON.
+	FirstHopsA []float64 `json:"-"`
+	FirstHopsB []float64 `json:"-"`
 }
 
 // Spread summarises per-trajectory energy spreads.
@@ -200,6 +205,7 @@ func CompareEnsembles(a, b []*Series, states int, s Settings) *EnsembleResult {
 		r.Skipped = append(r.Skipped, fmt.Sprintf("states at %d of %d test times: every trajectory of both sides in one state", oneState, len(picks)))
 	}
 	ta, tb := firstHops(a), firstHops(b)
+	r.FirstHopsA, r.FirstHopsB = ta, tb
 	if d, p := KS(ta, tb); !math.IsNaN(p) {
 		r.Tests = append(r.Tests, Test{Name: "first hop times (KS)", Statistic: d, P: p,
 			Note: fmt.Sprintf("%d and %d trajectories hopped", len(ta), len(tb))})

@@ -4,6 +4,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"os"
 	"path/filepath"
 	"strings"
 
@@ -20,12 +21,14 @@ type compareOptions struct {
 	alpha           float64
 	testTimes       int
 	minTrajectories int
+	report          string
 }
 
 func (o *compareOptions) AddFlags(c *cobra.Command) {
 	d := compare.DefaultSettings
 	o.readFlags.AddFlags(c)
 	c.Flags().BoolVar(&o.json, "json", false, "print the comparison as JSON")
+	c.Flags().StringVar(&o.report, "report", "", "also write a self-contained HTML report with plots to `FILE.html` (never overwritten)")
 	c.Flags().Float64Var(&o.threshold, "threshold", d.Threshold, "RMS position difference (angstrom) whose first crossing is reported; top of the growth-rate fit")
 	c.Flags().Float64Var(&o.roundOff, "round-off", d.RoundOff, "largest RMS position difference (angstrom) at the start that counts as round-off")
 	c.Flags().Float64Var(&o.alpha, "alpha", d.Alpha, "family-wise significance level of the ensemble tests")
@@ -45,6 +48,8 @@ func (o *compareOptions) check() error {
 		return &exitError{exitUsage, errors.New("compare: --test-times must lie in 1..1000, e.g. --test-times 20")}
 	case o.minTrajectories < 2:
 		return &exitError{exitUsage, errors.New("compare: --min-trajectories must be at least 2, e.g. --min-trajectories 10")}
+	case o.report != "" && !strings.HasSuffix(strings.ToLower(o.report), ".html") && !strings.HasSuffix(strings.ToLower(o.report), ".htm"):
+		return &exitError{exitUsage, fmt.Errorf("compare: --report names an HTML file, e.g. --report compare.html (got %q)", o.report)}
 	}
 	return nil
 }
@@ -74,10 +79,16 @@ together with Holm's correction at --alpha; the verdict is statistically
 equivalent, different, or too few trajectories to tell, with the smallest
 difference the test would have detected.
 
+--report FILE.html also writes all this as one self-contained HTML page
+with plots: RMS divergence of each pair on a log scale, active-state
+fractions of both ensembles with their Wilson bands, and the distributions
+of first hop times. An existing file is never overwritten.
+
 Exit status: 0 the runs agree (identical, reproduced up to chaotic
 divergence, or statistically equivalent), 1 they differ or the ensembles
 are too small to tell, 2 usage or I/O error.`,
-		Example: "  trajvault compare archived.h5 rerun.h5\n  trajvault compare --json deposit/ rerun-logs/",
+		Example: "  trajvault compare archived.h5 rerun.h5\n  trajvault compare --json deposit/ rerun-logs/\n" +
+			"  trajvault compare --report compare.html archived/ rerun/",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) != 2 {
 				return &exitError{exitUsage, errors.New("compare: name two runs, e.g. trajvault compare archived/ rerun/")}
@@ -103,6 +114,11 @@ type compareJSON struct {
 }
 
 func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) error {
+	if o.report != "" {
+		if _, err := os.Lstat(o.report); err == nil {
+			return &exitError{exitUsage, fmt.Errorf("compare: %s already exists; trajvault never overwrites outputs", o.report)}
+		}
+	}
 	opt, err := o.options()
 	if err != nil {
 		return err
@@ -115,6 +131,11 @@ func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) err
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("compare: %w", err)}
 	}
+	if o.report != "" {
+		if err := writeAtomically(o.report, func(f *os.File) error { return rep.WriteHTML(f, toolVersion()) }); err != nil {
+			return &exitError{exitUsage, fmt.Errorf("compare: %w", err)}
+		}
+	}
 	if o.json {
 		env := compareJSON{A: a, B: b, Report: rep}
 		env.Tool.Name, env.Tool.Version = "trajvault", toolVersion()
@@ -125,6 +146,9 @@ func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) err
 		fmt.Fprintln(g.stdout, string(out))
 	} else {
 		printCompare(g, rep)
+		if o.report != "" {
+			fmt.Fprintf(g.stdout, "report: %s\n", short(o.report, 72))
+		}
 	}
 	if !rep.OK() {
 		return errFindings

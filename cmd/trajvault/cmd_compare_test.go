@@ -1,6 +1,7 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"os"
@@ -8,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"trajvault/compare"
 	"trajvault/internal/demo"
 	"trajvault/internal/testenv"
 	"trajvault/schema"
@@ -139,6 +141,9 @@ func TestCompareUsage(t *testing.T) {
 		{"threshold", []string{"compare", "--threshold", "-1", f, f}, "--threshold"},
 		{"round-off", []string{"compare", "--round-off", "1", f, f}, "--round-off"},
 		{"not hdf5", []string{"compare", f, writeFile(t, "x.h5", "not hdf5")}, "x.h5"},
+		{"report not html", []string{"compare", "--report", "out.txt", f, f}, "--report"},
+		{"report exists", []string{"compare", "--report", writeFile(t, "old.html", "old"), f, f}, "already exists"},
+		{"report folder missing", []string{"compare", "--report", filepath.Join(t.TempDir(), "no", "r.html"), f, f}, "no such file"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -156,4 +161,41 @@ func writeFile(t *testing.T, name, text string) string {
 		t.Fatal(err)
 	}
 	return p
+}
+
+// TestCompareReport: --report writes a self-contained HTML page with the
+// verdict and the plots whose data exist, and leaves no temporary file;
+// a second run refuses to overwrite it (exit 2) and leaves it unchanged.
+func TestCompareReport(t *testing.T) {
+	a := demoDir(t, 1, 3, 300)
+	rerun := demoDir(t, 1, 3, 300)
+	dir := t.TempDir()
+	report := filepath.Join(dir, "compare.html")
+	code, out, errs := runCLI("compare", "--report", report, a, rerun)
+	if code != 0 || !strings.Contains(out, "report: "+report) {
+		t.Fatalf("exit %d\n%s%s", code, out, errs)
+	}
+	checkWidth(t, out)
+	page, err := os.ReadFile(report)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Identical pairs have no divergence to draw on a log scale; the
+	// populations and hop times of the two ensembles are drawn.
+	for _, want := range []string{"<span class=\"ok\">identical</span>", compare.Caution,
+		"Not drawn: every pair has zero position difference at every common frame."} {
+		if !strings.Contains(string(page), want) {
+			t.Errorf("report lacks %q", want)
+		}
+	}
+	if n := strings.Count(string(page), "<svg"); n != 2 {
+		t.Errorf("%d <svg> plots, want 2", n)
+	}
+	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
+		t.Errorf("folder holds %d entries, want only the report", len(ents))
+	}
+	code, _, errs = runCLI("compare", "--report", report, a, rerun)
+	if again, _ := os.ReadFile(report); code != 2 || !strings.Contains(errs, "already exists") || !bytes.Equal(again, page) {
+		t.Errorf("second run: exit %d, stderr %q, report changed %v", code, errs, !bytes.Equal(again, page))
+	}
 }
