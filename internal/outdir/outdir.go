@@ -9,10 +9,14 @@ import (
 	"path/filepath"
 )
 
-// Temp makes a new, empty, hidden folder beside final, readable like a
-// normal folder (mode 0755). The caller owns it: it renames it to final
-// when done, or removes it.
+// Temp makes a new, empty, hidden folder beside final (creating final's
+// parent folders when missing), readable like a normal folder (mode
+// 0755). The caller owns it: it renames it to final when done, or
+// removes it.
 func Temp(final string) (string, error) {
+	if err := os.MkdirAll(filepath.Dir(final), 0o755); err != nil {
+		return "", err
+	}
 	d, err := os.MkdirTemp(filepath.Dir(final), "."+filepath.Base(final)+".partial-*")
 	if err != nil {
 		return "", err

@@ -32,3 +32,16 @@ func TestTempLeavesUserFoldersAlone(t *testing.T) {
 		t.Error("the user's folder was touched")
 	}
 }
+
+// TestTempMakesParents: an output in a folder that does not exist yet
+// (demo -o demo/logs) gets its parent made.
+func TestTempMakesParents(t *testing.T) {
+	final := filepath.Join(t.TempDir(), "a", "b", "out")
+	d, err := Temp(final)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if filepath.Dir(d) != filepath.Dir(final) {
+		t.Errorf("made %s, want it beside %s", d, final)
+	}
+}
