@@ -3,25 +3,14 @@ package audit
 import (
 	"bytes"
 	"context"
-	"image/png"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	"trajvault/internal/demo"
+	"trajvault/internal/testenv"
 )
-
-func chromium(t *testing.T) string {
-	for _, c := range []string{"chromium", "chromium-browser"} {
-		if p, err := exec.LookPath(c); err == nil {
-			return p
-		}
-	}
-	t.Fatal("chromium not found: install Debian's chromium (make test does)")
-	return ""
-}
 
 // TestReportRendersInChromium: the HTML report is self-contained and
 // renders in headless Chromium (Debian chromium): a non-blank screenshot,
@@ -51,27 +40,7 @@ func TestReportRendersInChromium(t *testing.T) {
 		t.Errorf("report lacks plots or the caution")
 	}
 	os.WriteFile(html, b.Bytes(), 0o644)
-	shot := filepath.Join(dir, "shot.png")
-	args := []string{"--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-		"--disable-background-networking", "--disable-component-update", "--disable-sync",
-		"--user-data-dir=" + filepath.Join(dir, "profile"), "--enable-logging=stderr", "--v=0",
-		"--window-size=1200,2400", "--screenshot=" + shot, "file://" + html}
-	out, err := exec.Command(chromium(t), args...).CombinedOutput()
-	if err != nil {
-		t.Fatalf("chromium: %v\n%s", err, out)
-	}
-	if strings.Contains(string(out), "Uncaught") || strings.Contains(string(out), ":CONSOLE(") {
-		t.Errorf("console messages:\n%s", out)
-	}
-	f, err := os.Open(shot)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	img, err := png.Decode(f)
-	if err != nil {
-		t.Fatal(err)
-	}
+	img := testenv.Screenshot(t, dir, html, "1200,2400")
 	bounds := img.Bounds()
 	dark := 0
 	for y := bounds.Min.Y; y < bounds.Max.Y; y += 2 {
@@ -87,7 +56,7 @@ func TestReportRendersInChromium(t *testing.T) {
 		t.Errorf("screenshot is blank (%.3f %% non-white)", 100*frac)
 	}
 	if dst := os.Getenv("TRAJVAULT_KEEP_SCREENSHOT"); dst != "" {
-		data, _ := os.ReadFile(shot)
+		data, _ := os.ReadFile(filepath.Join(dir, "shot.png"))
 		os.WriteFile(dst, data, 0o644)
 	}
 }

@@ -2,7 +2,6 @@ package compare
 
 import (
 	"bytes"
-	"image/png"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -11,6 +10,7 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/finding"
+	"trajvault/internal/testenv"
 )
 
 // reportFixture is a comparison with something in every plot: a pair
@@ -108,22 +108,6 @@ func TestECDF(t *testing.T) {
 	}
 }
 
-func chromium(t *testing.T) string {
-	for _, c := range []string{"chromium", "chromium-browser"} {
-		if p, err := exec.LookPath(c); err == nil {
-			return p
-		}
-	}
-	t.Fatal("chromium not found: install Debian's chromium (make test does)")
-	return ""
-}
-
-func chromiumArgs(dir string, extra ...string) []string {
-	return append([]string{"--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-		"--disable-background-networking", "--disable-component-update", "--disable-sync",
-		"--user-data-dir=" + filepath.Join(dir, "profile"), "--enable-logging=stderr", "--v=0"}, extra...)
-}
-
 // TestReportRendersInChromium: the HTML report renders in headless
 // Chromium (Debian chromium) as the audit report does: the rendered DOM
 // holds the three SVG plots, no console errors, and the screenshot is
@@ -136,30 +120,14 @@ func TestReportRendersInChromium(t *testing.T) {
 	if err := os.WriteFile(page, []byte(html(t, rep)), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	dom, err := exec.Command(chromium(t), chromiumArgs(dir, "--dump-dom", "file://"+page)...).Output()
+	dom, err := exec.Command(testenv.Chromium(t), testenv.ChromiumArgs(dir, "--dump-dom", "file://"+page)...).Output()
 	if err != nil {
 		t.Fatalf("chromium --dump-dom: %v", err)
 	}
 	if n := strings.Count(string(dom), "<svg"); n != 3 {
 		t.Errorf("rendered DOM holds %d <svg> elements, want 3", n)
 	}
-	shot := filepath.Join(dir, "shot.png")
-	out, err := exec.Command(chromium(t), chromiumArgs(dir, "--window-size=1200,3200", "--screenshot="+shot, "file://"+page)...).CombinedOutput()
-	if err != nil {
-		t.Fatalf("chromium: %v\n%s", err, out)
-	}
-	if strings.Contains(string(out), "Uncaught") || strings.Contains(string(out), ":CONSOLE(") {
-		t.Errorf("console messages:\n%s", out)
-	}
-	f, err := os.Open(shot)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	img, err := png.Decode(f)
-	if err != nil {
-		t.Fatal(err)
-	}
+	img := testenv.Screenshot(t, dir, page, "1200,3200")
 	near := func(r, g, b uint32, c [3]uint32) bool {
 		d := func(x, y uint32) uint32 {
 			if x > y {
@@ -192,7 +160,7 @@ func TestReportRendersInChromium(t *testing.T) {
 		t.Errorf("plot lines missing from the screenshot: %d blue, %d orange pixels (want >= 200 each)", blue, orange)
 	}
 	if dst := os.Getenv("TRAJVAULT_KEEP_SCREENSHOT"); dst != "" {
-		data, _ := os.ReadFile(shot)
+		data, _ := os.ReadFile(filepath.Join(dir, "shot.png"))
 		os.WriteFile(dst, data, 0o644)
 	}
 }
