@@ -31,7 +31,7 @@ const (
 
 	// The electronic-state module, version 1.1. Its time-dependent
 	// elements sit directly under /observables: a common Python H5MD
-	// reader (python3-mdanalysis) reads every member of /observables as
+	// reader (a common analysis library; see readers_test.go) reads every member of /observables as
 	// an element with one value per frame and fails on a nested group.
 	// The hop table (one row per attempt, not per frame) lives in the
 	// module's own root group, ElectronicGroup.

@@ -43,7 +43,8 @@ var DefaultUnits = Units{
 }
 
 // ReaderUnits are the units Spec.ForReaders stores in. Those of the
-// quantities python3-mdanalysis 2.4's H5MD reader reads - time, position,
+// quantities a common Python analysis library's H5MD reader reads (see
+// readers_test.go) - time, position,
 // velocity, force - are in both the H5MD unit grammar (with this
 // project's symbol table) and that reader's fixed unit list: angstrom, fs,
 // nm ps-1 and kJ mol-1 nm-1 (no spelling of angstrom fs-1 or
@@ -105,7 +106,7 @@ type Spec struct {
 	// TimeIncrement. WriteFrame checks every frame against it, and it is
 	// stored in H5MD fixed mode (scalar step and time with an offset
 	// attribute) - unless ForReaders is set: readers that index step[i]
-	// and time[i], python3-mdanalysis 2.4's H5MD reader among them, fail
+	// and time[i], a common Python analysis library's H5MD reader among them, fail
 	// on fixed mode (schema/layout.md, "Written for readers"). Without a
 	// Clock the writer stores explicit mode, one step and time per frame.
 	Clock *FixedClock
