@@ -3,12 +3,14 @@ module trajvault
 go 1.25.0
 
 require (
+	github.com/agnivade/levenshtein v1.2.2
 	github.com/creack/pty v1.1.24
 	github.com/github/go-spdx/v2 v2.8.0
 	github.com/klauspost/compress v1.18.0
 	github.com/santhosh-tekuri/jsonschema/v5 v5.3.1
 	github.com/schollz/progressbar/v3 v3.19.1
 	github.com/spf13/cobra v1.10.2
+	github.com/spf13/pflag v1.0.9
 	golang.org/x/sync v0.19.0
 	golang.org/x/text v0.28.0
 	gonum.org/v1/gonum v0.17.0
@@ -27,7 +29,6 @@ require (
 	github.com/inconshreveable/mousetrap v1.1.0 // indirect
 	github.com/mitchellh/colorstring v0.0.0-20190213212951-d06e56a500db // indirect
 	github.com/rivo/uniseg v0.4.7 // indirect
-	github.com/spf13/pflag v1.0.9 // indirect
 	golang.org/x/image v0.30.0 // indirect
 	golang.org/x/sys v0.46.0 // indirect
 	golang.org/x/term v0.44.0 // indirect

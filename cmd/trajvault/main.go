@@ -6,6 +6,8 @@
 package main
 
 import (
+	"strings"
+
 	"context"
 	"errors"
 	"fmt"
@@ -14,6 +16,9 @@ import (
 	"os/signal"
 	"runtime/debug"
 	"syscall"
+
+	"github.com/agnivade/levenshtein"
+	"github.com/spf13/pflag"
 
 	"github.com/spf13/cobra"
 )
@@ -84,6 +89,9 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 	root.SetOut(g.stdout)
 	root.SetErr(g.stderr)
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
+		if hint := suggestFlag(c, err); hint != "" {
+			return &exitError{exitUsage, fmt.Errorf("%w; did you mean %s? (see %s --help)", err, hint, c.CommandPath())}
+		}
 		return &exitError{exitUsage, fmt.Errorf("%w (see %s --help)", err, c.CommandPath())}
 	})
 	root.AddCommand(
@@ -100,6 +108,36 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newWorkerCommand(g),
 	)
 	return root
+}
+
+// suggestFlag names the flag of c closest to the unknown one in err
+// ("unknown flag: --units" -> "--unit"), or "" when none is close: at
+// most two edits, or one for short names.
+func suggestFlag(c *cobra.Command, err error) string {
+	const prefix = "unknown flag: --"
+	msg := err.Error()
+	if !strings.HasPrefix(msg, prefix) {
+		return ""
+	}
+	given := strings.TrimPrefix(msg, prefix)
+	best, bestD := "", 3
+	if len(given) <= 4 {
+		bestD = 2
+	}
+	visit := func(f *pflag.Flag) {
+		if f.Hidden {
+			return
+		}
+		if d := levenshtein.ComputeDistance(given, f.Name); d < bestD {
+			best, bestD = f.Name, d
+		}
+	}
+	c.Flags().VisitAll(visit)
+	c.InheritedFlags().VisitAll(visit)
+	if best == "" {
+		return ""
+	}
+	return "--" + best
 }
 
 // run executes the command line and returns the exit status. Long work

@@ -57,3 +57,25 @@ func plantedFault(path string) {
 		}
 	}
 }
+
+// TestDidYouMean: an unknown flag close to a real one is answered with
+// the real one (issue 15: --units for --unit); a far one is not.
+func TestDidYouMean(t *testing.T) {
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"scan", "--units", "position=angstrom", "x"}, "did you mean --unit?"},
+		{[]string{"validate", "--profil", "h5md", "x.h5"}, "did you mean --profile?"},
+		{[]string{"pack", "x", "--quite"}, "did you mean --quiet?"},
+		{[]string{"export", "--zzzzzz", "x"}, ""},
+	} {
+		code, _, errs := runCLI(c.args...)
+		if code != exitUsage {
+			t.Errorf("%v: exit %d, want 2", c.args, code)
+		}
+		if c.want == "" && strings.Contains(errs, "did you mean") || c.want != "" && !strings.Contains(errs, c.want) {
+			t.Errorf("%v: %q, want %q", c.args, errs, c.want)
+		}
+	}
+}
