@@ -5,7 +5,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 	"math"
+	"slices"
 	"sort"
 	"strings"
 	"time"
@@ -47,6 +49,12 @@ type ConvertOptions struct {
 	// printed at that precision, but a reader may see the last bit differ
 	// (HDF5 decodes k/10^D + min in floating point).
 	BitExact bool
+	// ForReaders converts time, positions, velocities, forces, energies
+	// and masses into units that common H5MD readers with a fixed unit
+	// list understand (trajfile.ReaderUnits) and stores an explicit
+	// clock. The stored numbers are then float64 conversions, not the
+	// printed digits; the provenance records both units.
+	ForReaders bool
 }
 
 // Result says what convert wrote and dropped.
@@ -183,11 +191,14 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	rec := provenance.Record{
 		Tool: "trajvault", ToolVersion: opt.ToolVersion, CommandLine: opt.CommandLine,
 		Started: started.Format(time.RFC3339), Finished: time.Now().UTC().Format(time.RFC3339),
-		Sources: h.sources, Units: rep.Units, ConstantSet: provenance.ConstantSet,
+		Sources: h.sources, Units: storedUnits(rep.Units, opt), ConstantSet: provenance.ConstantSet,
 		Storage: res.Storage, Dropped: res.Dropped, NotStored: res.NotStored, Accepted: res.Accepted,
 	}
 	if opt.Recipe != nil {
 		rec.Recipe = opt.Recipe.Text
+	}
+	if opt.ForReaders {
+		rec.Conversions = append(rec.Conversions, readerConversion(rep.Units))
 	}
 	if rep.momentaStored() {
 		pu := rep.Units[string(quantity.Momentum)]
@@ -373,6 +384,13 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	}
 	if rep.momentaStored() {
 		momentumStorage(rep, opt, &spec, res)
+	}
+	if opt.ForReaders {
+		spec.ForReaders = true
+		for k := range res.Storage {
+			res.Storage[k] = "float64, converted for common readers (not the printed digits)"
+		}
+		res.Storage["time"] = "explicit clock, one step and time per frame (for common readers)"
 	}
 	if rep.States > 0 {
 		spec.Attrs["trajvault_state_base"] = fmt.Sprint(rep.stateBase(opt.Options))
@@ -694,4 +712,45 @@ func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOp
 	}
 	res, err := Convert(ctx, rep, out, opt)
 	return rep, res, err
+}
+
+// readerKinds pairs unit kinds with the unit trajfile.ReaderUnits stores
+// them in.
+func readerKinds() map[string]string {
+	r := trajfile.ReaderUnits
+	return map[string]string{
+		string(quantity.Position): r.Length, string(quantity.Time): r.Time, string(quantity.Velocity): r.Velocity,
+		string(quantity.Force): r.Force, string(quantity.Energy): r.Energy, string(quantity.Mass): r.Mass,
+	}
+}
+
+// storedUnits are the units of the stored numbers: the logs' units, or
+// with ForReaders the readers' units of the kinds converted.
+func storedUnits(logs map[string]string, opt ConvertOptions) map[string]string {
+	if !opt.ForReaders {
+		return logs
+	}
+	out := make(map[string]string, len(logs))
+	for k, u := range logs {
+		out[k] = u
+		if r, ok := readerKinds()[k]; ok {
+			out[k] = r
+		}
+	}
+	return out
+}
+
+// readerConversion says, for the provenance, what ForReaders converted.
+func readerConversion(logs map[string]string) string {
+	var parts []string
+	kinds := readerKinds()
+	for _, k := range slices.Sorted(maps.Keys(kinds)) {
+		if from, ok := logs[k]; ok && from != kinds[k] {
+			parts = append(parts, fmt.Sprintf("%s %s -> %s", k, from, kinds[k]))
+		}
+	}
+	if len(parts) == 0 {
+		return "converted for common readers: no unit needed converting (CODATA 2018 factors)"
+	}
+	return "converted for common readers (CODATA 2018 factors): " + strings.Join(parts, "; ")
 }

@@ -23,6 +23,7 @@ type convertOptions struct {
 	out         string
 	dropPartial bool
 	bitExact    bool
+	forReaders  bool
 	tolerance   []string
 	author      string
 	email       string
@@ -44,6 +45,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
+	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "convert time, positions, velocities, forces and energies into units common H5MD readers understand, with an explicit clock (the stored numbers are then conversions, not the printed digits)")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
 	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
 	c.Flags().BoolVar(&o.accept, "accept-mismatch", false, "convert although a physics cross-check failed (e.g. P17: kinetic energy vs 1/2 m v^2); recorded in the file")
@@ -156,7 +158,7 @@ func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64)
 	file := ingest.DefaultFile
 	file.Format = compatFormats[o.compat]
 	return ingest.ConvertOptions{Options: opt, Author: author, Email: o.email, ToolVersion: toolVersion(),
-		Tolerance: tol, BitExact: o.bitExact, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series,
+		Tolerance: tol, BitExact: o.bitExact, ForReaders: o.forReaders, ExplicitClock: o.explicit, File: &file, SeriesFrames: o.series,
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
 }
 

@@ -190,3 +190,57 @@ func TestOutputsNeverTouchUserPartial(t *testing.T) {
 		}
 	}
 }
+
+// TestConvertForReaders: convert --for-readers writes a file that Debian's
+// python3-mdanalysis H5MD reader (a common analysis library; script
+// testdata/interop/mda_read.py) opens: every frame, with positions equal
+// to trajvault's own reading at that library's float32 precision; the
+// file validates with no findings (its provenance records the converted
+// units) (issue 11).
+func TestConvertForReaders(t *testing.T) {
+	dir := t.TempDir()
+	logs := filepath.Join(dir, "logs")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "1", "--steps", "120", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	out := filepath.Join(dir, "r.h5")
+	if code, _, errs := runCLI("convert", "--recipe", repo("testdata", "recipes", "tarnol.yaml"), filepath.Join(logs, "traj-001"), "-o", out, "--for-readers"); code != 0 {
+		t.Fatalf("convert: %s", errs)
+	}
+	if code, o, _ := runCLI("validate", out); code != 0 || !strings.Contains(o, "0 errors, 0 warnings") {
+		t.Errorf("validate: exit %d\n%s", code, o)
+	}
+	res, err := exec.Command(testenv.Python(), repo("testdata", "interop", "mda_read.py"), out).Output()
+	if err != nil {
+		t.Fatalf("the analysis library cannot read the file: %v", err)
+	}
+	var got struct {
+		Frames []struct {
+			Positions []float64 `json:"positions"` // flattened [atoms][3]
+		} `json:"frames"`
+	}
+	if err := json.Unmarshal(res, &got); err != nil {
+		t.Fatal(err)
+	}
+	r, err := trajfile.OpenReader(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer r.Close()
+	if len(got.Frames) != r.T || r.T != 121 {
+		t.Fatalf("library reads %d frames, trajvault %d (want 121)", len(got.Frames), r.T)
+	}
+	x, err := r.Frames(r.Particle(trajfile.Position), "angstrom", r.T-1, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := got.Frames[r.T-1].Positions
+	if len(p) != len(x) {
+		t.Fatalf("library gives %d coordinates, trajvault %d", len(p), len(x))
+	}
+	for i := range p {
+		if float32(x[i]) != float32(p[i]) {
+			t.Errorf("last frame, coordinate %d: library %v, trajvault %v", i, p[i], x[i])
+		}
+	}
+}

@@ -33,6 +33,7 @@ type packOptions struct {
 	maxFileGB   float64
 	noAudit     bool
 	require     string
+	forReaders  bool
 	json        bool
 	split       bool
 }
@@ -51,6 +52,7 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
 	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the data description")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as one JSON document (tool, command, findings, result)")
+	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "store in units common H5MD readers understand, with an explicit clock (numbers converted, not the printed digits; recorded in the provenance)")
 	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
@@ -127,7 +129,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(),
+	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(), ForReaders: o.forReaders,
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
 	converting := newBar(g, "convert", "trajectories")
 	results, err := ingest.ConvertAll(ctx, reps, filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), copt, o.jobs, converting)
