@@ -1,17 +1,17 @@
 package audit
 
 import (
-	"bytes"
 	"fmt"
 	"html/template"
 	"image/color"
 	"io"
 	"path/filepath"
-	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
+
+	"trajvault/internal/svgplot"
 )
 
 // palette for states and trajectories (colour-blind safe, common
@@ -19,22 +19,6 @@ import (
 var palette = []color.RGBA{
 	{0, 114, 178, 255}, {213, 94, 0, 255}, {0, 158, 115, 255}, {204, 121, 167, 255},
 	{86, 180, 233, 255}, {230, 159, 0, 255}, {240, 228, 66, 255}, {0, 0, 0, 255},
-}
-
-func svg(p *plot.Plot) (template.HTML, error) {
-	w, err := p.WriterTo(16*vg.Centimeter, 9*vg.Centimeter, "svg")
-	if err != nil {
-		return "", err
-	}
-	var b bytes.Buffer
-	if _, err := w.WriteTo(&b); err != nil {
-		return "", err
-	}
-	s := b.String()
-	if i := strings.Index(s, "<svg"); i > 0 {
-		s = s[i:] // drop the XML prolog to inline the drawing
-	}
-	return template.HTML(s), nil
 }
 
 func line(xs, ys []float64) plotter.XYs {
@@ -187,7 +171,7 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 		if p == nil {
 			continue
 		}
-		s, err := svg(p)
+		s, err := svgplot.Inline(p)
 		if err != nil {
 			return err
 		}
@@ -243,7 +227,7 @@ func (rep *Report) PopulationSVG() ([]byte, error) {
 	if err != nil {
 		return nil, err
 	}
-	s, err := svg(p)
+	s, err := svgplot.Inline(p)
 	return []byte(s), err
 }
 
@@ -253,6 +237,6 @@ func (rep *Report) EnergySVG() ([]byte, error) {
 	if err != nil {
 		return nil, err
 	}
-	s, err := svg(p)
+	s, err := svgplot.Inline(p)
 	return []byte(s), err
 }

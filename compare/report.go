@@ -1,18 +1,18 @@
 package compare
 
 import (
-	"bytes"
 	"fmt"
 	"html/template"
 	"image/color"
 	"io"
 	"math"
 	"sort"
-	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
+
+	"trajvault/internal/svgplot"
 )
 
 // Caution is printed with every HTML report: two runs agreeing says
@@ -36,22 +36,6 @@ type figure struct {
 	Caption string
 	SVG     template.HTML
 	Missing string
-}
-
-func svgOf(p *plot.Plot) (template.HTML, error) {
-	w, err := p.WriterTo(16*vg.Centimeter, 9*vg.Centimeter, "svg")
-	if err != nil {
-		return "", err
-	}
-	var b bytes.Buffer
-	if _, err := w.WriteTo(&b); err != nil {
-		return "", err
-	}
-	s := b.String()
-	if i := strings.Index(s, "<svg"); i > 0 {
-		s = s[i:] // drop the XML prolog to inline the drawing
-	}
-	return template.HTML(s), nil
 }
 
 // divergencePlot draws the RMS position difference of each pair on a log
@@ -234,7 +218,7 @@ func (r *Report) figures() ([]figure, error) {
 		}
 		fig := figure{Caption: f.caption, Missing: why}
 		if p != nil {
-			if fig.SVG, err = svgOf(p); err != nil {
+			if fig.SVG, err = svgplot.Inline(p); err != nil {
 				return nil, err
 			}
 		}
