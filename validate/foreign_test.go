@@ -13,7 +13,7 @@ import (
 // float32, the LZF filter that only h5py ships - is checked under the
 // h5md profile (it does not claim trajvault's layout) and validates with
 // one warning: V28 for the filter. Variable-length strings are what the
-// H5MD reader of python3-mdanalysis needs, so they are not reported.
+// H5MD reader of the common analysis library (.ci/deps.sh) needs, so they are not reported.
 func TestForeignH5MD(t *testing.T) {
 	script := testenv.Repo("testdata", "interop", "h5py_write_h5md.py")
 	path := filepath.Join(t.TempDir(), "foreign.h5")
@@ -45,7 +45,7 @@ func TestForeignH5MD(t *testing.T) {
 // testdata/interop/h5py_corpus.py: fixed- and variable-length strings,
 // explicit and fixed-mode clocks, two particle groups, a periodic box
 // with edges, a time-dependent box, no species, H5MD 1.0 without units)
-// gives no findings at all. The file written by Debian python3-mdanalysis's
+// gives no findings at all. The file written by the analysis library's
 // H5MD writer (testdata/interop/mda_write.py) gives only what it really
 // does differently: units spelled "Angstrom" (V38, with the canonical
 // spelling) and unit attributes without the units module declared (V19).
@@ -57,11 +57,11 @@ func TestForeignCorpus(t *testing.T) {
 		t.Helper()
 		cmd := exec.Command(testenv.Python(), append([]string{testenv.Repo("testdata", "interop", script)}, args...)...)
 		if out, err := cmd.CombinedOutput(); err != nil {
-			t.Fatalf("%s failed (install python3-h5py and python3-mdanalysis; make test does): %v\n%s", script, err, out)
+			t.Fatalf("%s failed (install the packages of .ci/deps.sh; make test does): %v\n%s", script, err, out)
 		}
 	}
 	py("h5py_corpus.py", dir)
-	py("mda_write.py", filepath.Join(dir, "mdanalysis.h5"))
+	py("mda_write.py", filepath.Join(dir, "library.h5"))
 	cases := []struct {
 		file     string
 		warnings map[string]int // code -> count
@@ -69,7 +69,7 @@ func TestForeignCorpus(t *testing.T) {
 		{"fixed_strings.h5", nil},
 		{"vlen_fixed_clock.h5", nil},
 		{"h5md_1_0.h5", nil},
-		{"mdanalysis.h5", map[string]int{"V38": 4, "V19": 1}},
+		{"library.h5", map[string]int{"V38": 4, "V19": 1}},
 	}
 	for _, c := range cases {
 		t.Run(c.file, func(t *testing.T) {

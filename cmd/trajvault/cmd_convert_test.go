@@ -191,9 +191,9 @@ func TestOutputsNeverTouchUserPartial(t *testing.T) {
 	}
 }
 
-// TestConvertForReaders: convert --for-readers writes a file that Debian's
-// python3-mdanalysis H5MD reader (a common analysis library; script
-// testdata/interop/mda_read.py) opens: every frame, with positions equal
+// TestConvertForReaders: convert --for-readers writes a file that a common
+// Python analysis library's H5MD reader (the Debian package in
+// .ci/deps.sh; script testdata/interop/mda_read.py) opens: every frame, with positions equal
 // to trajvault's own reading at that library's float32 precision; the
 // file validates with no findings (its provenance records the converted
 // units) (issue 11).

@@ -1,11 +1,13 @@
 package trajfile_test
 
 // Written for readers (schema/layout.md): a trajvault demo file opens in
-// Debian's python3-mdanalysis (2.4.2 on Debian 12; its H5MDReader with
-// unit conversion on, and MDAnalysis.Universe) and in h5py with str
-// units, and the times it returns equal ours after unit conversion within
-// 1e-12 relative; positions, velocities and forces equal ours converted
-// and rounded to float32, the precision MDAnalysis holds them in.
+// a common Python analysis library's H5MD reader (the Debian package in
+// .ci/deps.sh, 2.4.2 on Debian 12; its reader with unit conversion on, and
+// through the library's universe object; script testdata/interop/mda_read.py)
+// and in h5py with str units, and the times it returns equal ours after
+// unit conversion within 1e-12 relative; positions, velocities and forces
+// equal ours converted and rounded to float32, the precision the library
+// holds them in.
 
 import (
 	"encoding/json"
@@ -36,7 +38,7 @@ type mdaRead struct {
 	UnitTypes      map[string]string `json:"h5py_unit_types"`
 }
 
-func readWithMDAnalysis(t *testing.T, path string) mdaRead {
+func readWithAnalysisLibrary(t *testing.T, path string) mdaRead {
 	t.Helper()
 	script := testenv.Repo("testdata", "interop", "mda_read.py")
 	out, err := exec.Command(testenv.Python(), script, path).Output()
@@ -45,29 +47,29 @@ func readWithMDAnalysis(t *testing.T, path string) mdaRead {
 		if ee, ok := err.(*exec.ExitError); ok {
 			msg = string(ee.Stderr)
 		}
-		t.Fatalf("python3-mdanalysis could not read %s (install python3-mdanalysis; make test does): %v\n%s", path, err, msg)
+		t.Fatalf("the analysis library could not read %s (install the packages of .ci/deps.sh; make test does): %v\n%s", path, err, msg)
 	}
 	var r mdaRead
 	if err := json.Unmarshal(out, &r); err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("reference reader: MDAnalysis %s", r.Version)
+	t.Logf("reference reader: analysis library %s", r.Version)
 	return r
 }
 
-func TestMDAnalysisReadsOurFiles(t *testing.T) {
+func TestAnalysisLibraryReadsOurFiles(t *testing.T) {
 	path := demoFile(t)
-	got := readWithMDAnalysis(t, path)
+	got := readWithAnalysisLibrary(t, path)
 	r, err := trajfile.OpenReader(path)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer r.Close()
 	if len(got.Frames) != r.T || got.UniverseFrames != r.T {
-		t.Fatalf("MDAnalysis reads %d frames (Universe: %d), the file has %d", len(got.Frames), got.UniverseFrames, r.T)
+		t.Fatalf("the library reads %d frames (Universe: %d), the file has %d", len(got.Frames), got.UniverseFrames, r.T)
 	}
-	// MDAnalysis converts into its base units (MDAnalysis.units,
-	// MDANALYSIS_BASE_UNITS; MDAnalysis user guide, "Units"), written in
+	// the library converts into its base units (its units module,
+	// its table of base units; the library's user guide, "Units"), written in
 	// its own notation where "A" is the angstrom; ours are on the right.
 	mdaUnits := map[string][2]string{
 		"length": {"A", "angstrom"}, "time": {"ps", "ps"},
@@ -76,7 +78,7 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 	base := map[string]string{}
 	for k, u := range mdaUnits {
 		if got.BaseUnits[k] != u[0] {
-			t.Fatalf("MDAnalysis base unit of %s is %q, the test expects %q", k, got.BaseUnits[k], u[0])
+			t.Fatalf("the library's base unit of %s is %q, the test expects %q", k, got.BaseUnits[k], u[0])
 		}
 		base[k] = u[1]
 	}
@@ -91,7 +93,7 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 	const rel = 1e-12
 	for i, fr := range got.Frames {
 		if want := clock.Times[i] * tf; math.Abs(fr.Time-want) > rel*math.Abs(want) {
-			t.Fatalf("frame %d: MDAnalysis time %.17g, ours %.17g %s", i, fr.Time, want, base["time"])
+			t.Fatalf("frame %d: the library time %.17g, ours %.17g %s", i, fr.Time, want, base["time"])
 		}
 	}
 	for _, c := range []struct {
@@ -115,7 +117,7 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		// MDAnalysis 2.4 reads into float32 arrays (Timestep.dtype is
+		// the library 2.4 reads into float32 arrays (Timestep.dtype is
 		// hard-wired float32) and converts them in place, so its values
 		// are ours rounded to float32: each must lie within one float32
 		// unit in the last place of float32(float32(ours) x factor).
@@ -124,7 +126,7 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 		for i, fr := range got.Frames {
 			v := c.pick(fr)
 			if len(v) != w {
-				t.Fatalf("%s frame %d: MDAnalysis gives %d values, want %d", el, i, len(v), w)
+				t.Fatalf("%s frame %d: the library gives %d values, want %d", el, i, len(v), w)
 			}
 			for k, x := range v {
 				want := float32(float32(raw[i*w+k]) * float32(f))
@@ -132,17 +134,17 @@ func TestMDAnalysisReadsOurFiles(t *testing.T) {
 				d := math.Abs(x-float64(want)) / ulp
 				worst = math.Max(worst, d)
 				if d > 1 {
-					t.Fatalf("%s frame %d value %d: MDAnalysis %.9g, ours %.17g x %.17g = %.9g in float32", el, i, k, x, raw[i*w+k], f, want)
+					t.Fatalf("%s frame %d value %d: the library %.9g, ours %.17g x %.17g = %.9g in float32", el, i, k, x, raw[i*w+k], f, want)
 				}
 			}
 		}
 		t.Logf("%s: %s -> %s, largest difference %.2g float32 ulp", el, e.Unit, base[c.base], worst)
 	}
-	// Every observable, the module's included, reaches MDAnalysis's
+	// Every observable, the module's included, reaches the library's
 	// per-frame data (it fails on a nested group under /observables).
 	for _, name := range []string{"total_energy", "state_energies", "active_state", "populations", "couplings"} {
 		if !slices.Contains(got.Frames[0].Observables, name) {
-			t.Errorf("MDAnalysis frame data lacks observable %s: %v", name, got.Frames[0].Observables)
+			t.Errorf("the library frame data lacks observable %s: %v", name, got.Frames[0].Observables)
 		}
 	}
 	for p, typ := range got.UnitTypes {

@@ -1,12 +1,13 @@
-"""Read an H5MD file with Debian's python3-mdanalysis (its H5MDReader,
-with unit conversion on, as MDAnalysis.Universe does) and with plain h5py,
-and print what they return as JSON, for trajvault's interop tests.
+"""Read an H5MD file with a common Python analysis library's H5MD reader
+(the Debian package listed in .ci/deps.sh; unit conversion on, as the
+library's universe object does) and with plain h5py, and print what they
+return as JSON, for trajvault's interop tests.
 
 Usage: python3 mda_read.py FILE.h5
-Output: {"mda_version", "base_units": MDAnalysis's own units,
+Output: {"mda_version", "base_units": the library's own units,
          "file_units": the units the reader understood,
          "frames": [{"time", "positions", "velocities", "forces"}],
-         "universe_frames": frames seen through MDAnalysis.Universe,
+         "universe_frames": frames seen through the universe object,
          "h5py_unit_types": {path: Python type name of the unit attribute}}
 """
 import json
