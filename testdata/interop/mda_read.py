@@ -22,7 +22,7 @@ from MDAnalysis.coordinates.H5MD import H5MDReader  # noqa: E402
 from MDAnalysis.units import MDANALYSIS_BASE_UNITS  # noqa: E402
 
 path = sys.argv[1]
-# MDAnalysis 2.4's Timestep holds coordinates as float32 (hard-wired,
+# The library (2.4) holds coordinates as float32 (hard-wired,
 # see its docstring); time is a Python float.
 r = H5MDReader(path, convert_units=True)
 frames = []

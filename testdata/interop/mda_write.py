@@ -1,5 +1,5 @@
-"""Write an H5MD file with Debian's python3-mdanalysis H5MD writer
-(MDAnalysis.coordinates.H5MD.H5MDWriter) from a small universe built
+"""Write an H5MD file with a common Python analysis library's H5MD writer
+(the Debian package listed in .ci/deps.sh) from a small universe built
 here: 5 atoms, 4 frames in memory, a periodic box, positions, velocities
 and forces. For validate's tests of the h5md profile.
 
