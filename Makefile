@@ -29,12 +29,22 @@ deps-build:
 deps-test:
 	@.ci/deps.sh test
 
+# The binary links Debian's static libhdf5.a when it is there (package
+# libhdf5-dev ships it): the shared library pulls in libcurl and about 30
+# other libraries for a network driver trajvault never uses, and loading
+# them was half of every command's start-up. Recursive (=) so pkg-config is
+# asked only after deps-build has installed it.
+HDF5_LIBDIR = $(patsubst -L%,%,$(filter -L%,$(shell pkg-config --libs-only-L hdf5 2>/dev/null)))
+HDF5_STATIC = $(firstword $(wildcard $(addsuffix /libhdf5.a,$(HDF5_LIBDIR))))
+GOLINK = $(if $(HDF5_STATIC),CGO_CFLAGS="-O2 -g $$(pkg-config --cflags hdf5)" CGO_LDFLAGS="$(HDF5_STATIC) -lsz -laec -lz -lm") \
+	$(GO) $(1) $(if $(HDF5_STATIC),-tags hdf5static) -ldflags "-X main.version=$(VERSION)"
+
 build: deps-build
-	$(GO) build -ldflags "-X main.version=$(VERSION)" -o $(BIN) ./cmd/trajvault
+	$(call GOLINK,build) -o $(BIN) ./cmd/trajvault
 
 # install: put trajvault on PATH (GOBIN, or ~/go/bin).
 install: deps-build
-	$(GO) install -ldflags "-X main.version=$(VERSION)" ./cmd/trajvault
+	$(call GOLINK,install) ./cmd/trajvault
 
 # readme: rewrite README.md's example outputs and vocabulary table from
 # real runs (make test fails when they drift).

@@ -1,8 +1,15 @@
-// Package h5 is trajvault's HDF5 layer: a thin, leak-free wrapper over
-// gonum.org/v1/hdf5 plus the small C shim in shim.c for what that binding
-// lacks (link and attribute iteration, string attributes of both kinds,
-// chunked extendible datasets with stock filters, filter inspection and
-// object identity).
+// Package h5 is trajvault's HDF5 layer: a thin, leak-free wrapper over the
+// HDF5 C library (Debian's libhdf5-dev) through the small C shim in shim.c
+// (link and attribute iteration, string attributes of both kinds, chunked
+// extendible datasets with stock filters, filter inspection, object
+// identity, bounded reads). gonum.org/v1/hdf5 stays pinned for the Go
+// reading recipe the data description gives users (tested in trajfile).
+//
+// Linking: by default through pkg-config (the shared library). With the
+// build tag hdf5static the binary links Debian's libhdf5.a instead, given
+// by the Makefile in CGO_LDFLAGS: the shared Debian build pulls in libcurl
+// and about 30 other libraries for its network driver, and loading them
+// doubled the start-up cost of every command.
 //
 // The serial HDF5 library is not thread-safe. Every exported function and
 // method takes the package mutex, so callers may use the package from any
@@ -12,7 +19,7 @@
 // "/particles/all/position/value".
 package h5
 
-// #cgo pkg-config: hdf5
+// #cgo !hdf5static pkg-config: hdf5
 // #include "shim.h"
 import "C"
 
