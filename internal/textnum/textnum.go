@@ -132,6 +132,7 @@ func Parse(s string) (float64, Format, error) {
 	}
 	digits, lead, dot, dec := 0, true, false, 0
 	sig := 0
+	var m uint64 // the digits as an integer while sig <= 19
 	start := i
 	for ; i < len(s); i++ {
 		c := s[i]
@@ -143,6 +144,9 @@ func Parse(s string) (float64, Format, error) {
 			}
 			if !lead {
 				sig++
+				if sig <= 19 {
+					m = m*10 + uint64(c-'0')
+				}
 			}
 			if dot {
 				dec++
@@ -181,6 +185,19 @@ mantissaDone:
 		f.Decimals = dec
 	} else {
 		f.Decimals = dec
+		// Fast path for fixed notation (Clinger's exact case, common
+		// practice in float parsers): with at most 15 significant digits
+		// m < 10^15 < 2^53 and 10^dec (dec <= 22) are both exact float64
+		// values, so the one IEEE division m / 10^dec is correctly
+		// rounded: the same bits strconv.ParseFloat returns, without its
+		// second scan (checked bit for bit in TestFastPathBits).
+		if sig <= 15 && dec <= 22 {
+			v := float64(m) / pow10[dec]
+			if s[0] == '-' {
+				v = -v
+			}
+			return v, f, nil
+		}
 	}
 	norm := mant
 	if f.Exp {
@@ -196,6 +213,11 @@ mantissaDone:
 	}
 	return v, f, nil
 }
+
+// pow10 holds the powers of ten that are exact in float64 (10^22 is the
+// largest: 5^22 < 2^53).
+var pow10 = [23]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9,
+	1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
 
 func validExp(e string) bool {
 	if e != "" && (e[0] == '+' || e[0] == '-') {

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand"
 	"os/exec"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -181,6 +182,69 @@ func TestReprMatchesPython(t *testing.T) {
 		_, f, err := ParseShort(lines[i], true)
 		if err != nil || f.cand&candRepr == 0 {
 			t.Errorf("%q not recognised as repr: %v", lines[i], err)
+		}
+	}
+}
+
+// TestFastPathBits checks the fixed-notation fast path in Parse against
+// strconv.ParseFloat (the standard library's correctly rounded parser) bit
+// for bit, over random digit strings of every length and decimal count the
+// fast path takes, and a little beyond it (where Parse must fall back).
+func TestFastPathBits(t *testing.T) {
+	rng := rand.New(rand.NewSource(1))
+	n := 0
+	for range 400000 {
+		nd := 1 + rng.Intn(20)  // digits in all
+		dec := rng.Intn(nd + 1) // of them after the point
+		var b []byte
+		if rng.Intn(2) == 0 {
+			b = append(b, '-')
+		}
+		lead := rng.Intn(4) // leading zeros do not count as significant
+		for range lead {
+			b = append(b, '0')
+		}
+		for k := range nd {
+			if k == nd-dec {
+				if k == 0 {
+					b = append(b, '0')
+				}
+				b = append(b, '.')
+			}
+			b = append(b, byte('0'+rng.Intn(10)))
+		}
+		s := string(b)
+		got, f, err := Parse(s)
+		want, werr := strconv.ParseFloat(s, 64)
+		if err != nil || werr != nil {
+			t.Fatalf("%q: Parse error %v, ParseFloat error %v", s, err, werr)
+		}
+		if math.Float64bits(got) != math.Float64bits(want) {
+			t.Fatalf("%q: Parse gives %v (%#x), strconv.ParseFloat %v (%#x)", s, got, math.Float64bits(got), want, math.Float64bits(want))
+		}
+		if f.Decimals != dec || f.Exp {
+			t.Fatalf("%q: format %v, want fixed:%d", s, f, dec)
+		}
+		n++
+	}
+	// Signed zeros and the edges of the exact range.
+	for _, s := range []string{"-0.000", "0.0", "999999999999999", "0.999999999999999",
+		"9007199254740993", "-0.0000000000000000000001", "1234567890.12345", "0.0000000000000000000000123"} {
+		got, _, _ := Parse(s)
+		want, _ := strconv.ParseFloat(s, 64)
+		if math.Float64bits(got) != math.Float64bits(want) {
+			t.Errorf("%q: Parse gives %#x, strconv.ParseFloat %#x", s, math.Float64bits(got), math.Float64bits(want))
+		}
+	}
+}
+
+// BenchmarkParseFixed is for profiling only; performance figures come
+// from make bench.
+func BenchmarkParseFixed(b *testing.B) {
+	fields := []string{"-1.234567890", "0.000123", "12.500000", "-0.93512345", "3.14159265"}
+	for i := 0; b.Loop(); i++ {
+		if _, _, err := Parse(fields[i%len(fields)]); err != nil {
+			b.Fatal(err)
 		}
 	}
 }
