@@ -50,7 +50,6 @@ type FileReport struct {
 	Formats   map[string]string `json:"precision"`
 	Hops      int               `json:"hops,omitempty"`
 
-	src       source
 	reader    *Reader
 	keys      keySeq // kept (index, step); steps are indices when the file has none
 	hasSteps  bool
@@ -231,7 +230,10 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 }
 
 func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*FileReport, error) {
-	fr := &FileReport{File: s.file(), Format: r.Kind, src: s, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1, minActive: -1}
+	// The report keeps no reference to s: a closed source still holds its
+	// line buffer (1 MiB), and an ensemble's reports live until the
+	// conversion ends.
+	fr := &FileReport{File: s.file(), Format: r.Kind, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1, minActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
