@@ -111,3 +111,7 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 # 1e6-frame run against reaching them in compressed text; appends its
 # own section to bench/results.md.
 bench/slices.sh
+
+# Fixity (bench/fixity.sh): validate --fixity-only against the coreutils
+# hashers on the same payload; replaces its own section.
+bench/fixity.sh

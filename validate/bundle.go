@@ -29,6 +29,12 @@ type BundleOptions struct {
 	// MaxImageBytes bounds a trajectory file read into memory from an
 	// archive for its layout check (larger ones are reported, not read).
 	MaxImageBytes int64
+	// FixityOnly checks the bag alone (RFC 8493 completeness and
+	// checksums), not the trajectory files nor the metadata: a repository's
+	// periodic sweep at the speed of hashing. Digests limits the
+	// checksums to these algorithms (bagit.Options.Digests).
+	FixityOnly bool
+	Digests    []string
 }
 
 // IsBundle reports whether path looks like a bundle: a folder with
@@ -111,7 +117,15 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 		rep.Findings = append(rep.Findings, check(f, name, opt.FileProfile)...)
 		return f.Close()
 	}
-	res := bagit.Check(src, bagit.Options{OnPayload: onPayload})
+	if opt.FixityOnly {
+		res := bagit.Check(src, bagit.Options{Digests: opt.Digests})
+		rep.Findings = append(rep.Findings, res.Findings...)
+		rep.Findings = append(rep.Findings, finding.Finding{Code: "B20", Severity: finding.Note, Location: finding.Location{Path: "data/"},
+			Message: "fixity only: trajectory files, RO-Crate and DataCite metadata not checked; run validate without --fixity-only for the full check"})
+		rep.finish()
+		return rep, nil
+	}
+	res := bagit.Check(src, bagit.Options{OnPayload: onPayload, Digests: opt.Digests})
 	rep.Findings = append(rep.Findings, res.Findings...)
 	checkMetadata(src, res, meta, opt, rep)
 	rep.finish()

@@ -12,6 +12,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"trajvault/internal/bagit"
 	"trajvault/internal/h5"
 	"trajvault/internal/isolate"
 	"trajvault/validate"
@@ -28,6 +29,8 @@ type validateOptions struct {
 	timeLimit    time.Duration
 	maxRead      int64 // bytes; set from readMiB
 	readMiB      int64
+	fixityOnly   bool
+	digests      []string
 }
 
 // Worker defaults: a trajectory file read in memory from an archive may be
@@ -49,6 +52,8 @@ func (o *validateOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.profile, "profile", "", "rules for files: h5md or trajvault (default: as each file claims); for bundles also the funder profile: minimal (default), fair, eu-grant or a JSON Schema file; both: trajvault,fair")
 	c.Flags().Int64Var(&o.maxMemoryMiB, "max-memory", defaultWorkerMemoryMiB, "address space of the process reading each file, in MiB (X3 when reached)")
 	c.Flags().DurationVar(&o.timeLimit, "time-limit", defaultWorkerTime, "time allowed for reading each file or bundle, e.g. 90s or 1h (X2 when reached)")
+	c.Flags().BoolVar(&o.fixityOnly, "fixity-only", false, "for bundles: check completeness and checksums only, not the files' content nor the metadata")
+	c.Flags().StringSliceVar(&o.digests, "digest", nil, "compute only these checksums, e.g. --digest sha256 (the others are listed as not verified)")
 	c.Flags().Int64Var(&o.readMiB, "read-budget", h5.DefaultMaxReadBytes>>20, "memory one read of a dataset or attribute may take, in MiB (V42 when a file declares more)")
 }
 
@@ -65,6 +70,14 @@ func (o *validateOptions) check() error {
 		return &exitError{exitUsage, fmt.Errorf("--read-budget %d: between 1 and 2^30 (MiB), e.g. --read-budget 2048", o.readMiB)}
 	}
 	o.maxRead = o.readMiB << 20
+	if len(o.digests) > 0 && !o.fixityOnly {
+		return &exitError{exitUsage, errors.New("--digest limits a fixity check: use it with --fixity-only")}
+	}
+	for _, d := range o.digests {
+		if bagit.Algorithms[d] == nil {
+			return &exitError{exitUsage, fmt.Errorf("--digest %s: not an algorithm of BagIt manifests here; use sha512, sha256 or md5", d)}
+		}
+	}
 	return nil
 }
 
@@ -187,6 +200,9 @@ func runValidate(ctx context.Context, g *globals, o validateOptions, files []str
 // that cannot be read at all; the error is for the run itself (no worker
 // could start, or ctx was cancelled).
 func validateOne(ctx context.Context, exe string, o validateOptions, path string) (*validate.Report, string, error) {
+	if o.fixityOnly {
+		return fixityOne(o, path)
+	}
 	args := []string{"worker-validate", "--profile", o.profile, "--max-read", strconv.FormatInt(o.maxRead, 10)}
 	if validate.IsBundle(path) {
 		args = append(args, "--bundle")
@@ -239,4 +255,18 @@ func plural(n int, word string) string {
 		return "1 " + word
 	}
 	return fmt.Sprintf("%d %ss", n, word)
+}
+
+// fixityOne checks a bundle's completeness and checksums in this process:
+// no HDF5 file is opened, so there is nothing to isolate, and reading is
+// bounded by the bag layer's limits.
+func fixityOne(o validateOptions, path string) (*validate.Report, string, error) {
+	if !validate.IsBundle(path) {
+		return nil, fmt.Sprintf("%s: --fixity-only checks bundles (a BagIt folder, .tar.zst or .zip); for a trajectory file run validate without it", path), nil
+	}
+	rep, err := validate.Bundle(path, validate.BundleOptions{ToolVersion: toolVersion(), FixityOnly: true, Digests: o.digests})
+	if err != nil {
+		return nil, fmt.Sprintf("%s: %v", path, err), nil
+	}
+	return rep, "", nil
 }

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"regexp"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -20,6 +21,9 @@ type Result struct {
 	Valid    bool
 	Info     Info
 	Payload  []string // payload files present
+	// Unverified is set when Options.Digests left manifests unchecked:
+	// Valid then speaks only for the algorithms that were computed.
+	Unverified bool
 	// Findings have stable codes (schema/layout.md, bundle rules); their
 	// location's Path is a path inside the bag.
 	Findings []finding.Finding
@@ -32,6 +36,12 @@ type Options struct {
 	// is read from its source once; it may read any part of r. An error
 	// it returns is reported as B14.
 	OnPayload func(name string, size int64, r io.Reader) error
+	// Digests, when set, limits the checksum check to these algorithms
+	// (e.g. sha256 for a fixity sweep at the speed of one hash): the
+	// manifests of the others are parsed and checked for completeness,
+	// but their checksums are not computed, and each is reported (B20)
+	// so that nobody reads the result as full validity.
+	Digests []string
 }
 
 var (
@@ -241,7 +251,13 @@ func Check(src Source, opt Options) *Result {
 	}
 	// Validity: stream every file once, all algorithms at once.
 	want := map[string]map[string]string{} // path -> alg -> digest
+	unverified := false
 	for _, m := range mans {
+		if len(opt.Digests) > 0 && !slices.Contains(opt.Digests, m.alg) {
+			add("B20", finding.Note, m.name, "%s checksums not computed: the check was limited to %s; run a full check to verify them", m.alg, strings.Join(opt.Digests, ", "))
+			unverified = true
+			continue
+		}
 		for p, s := range m.lines {
 			if want[p] == nil {
 				want[p] = map[string]string{}
@@ -261,6 +277,20 @@ func Check(src Source, opt Options) *Result {
 		}
 		sort.Strings(algs)
 		if len(algs) == 0 && opt.OnPayload == nil {
+			return nil
+		}
+		if opt.OnPayload == nil {
+			// Checksums only: hash straight from the source, no pipe.
+			got, _, err := sums(r, algs)
+			if err != nil {
+				return err
+			}
+			for _, a := range algs {
+				if got[a] != want[name][a] {
+					add("B7", finding.Error, name, "%s checksum differs from the manifest: the file changed or is damaged", a)
+					valid = false
+				}
+			}
 			return nil
 		}
 		pr, pw := io.Pipe()
@@ -296,6 +326,7 @@ func Check(src Source, opt Options) *Result {
 	}
 	res.Complete = complete
 	res.Valid = valid && complete && !hasCode(res, "B4") && !hasCode(res, "B10")
+	res.Unverified = unverified
 	return res
 }
 

@@ -22,7 +22,10 @@ type LogOptions struct {
 	TruncateLast bool
 	// Molecules > 1 adds spectator copies of the molecule (own seeds,
 	// 10 angstrom apart) to the geometry, for benchmarks of larger
-	// systems; observables stay those of the first molecule.
+	// systems. The energy table is of the whole system (kinetic and
+	// potential energies summed over the molecules), so that it agrees
+	// with the stored velocities; states, populations and hops stay those
+	// of the first molecule.
 	Molecules int
 }
 
@@ -71,15 +74,24 @@ func WriteLogs(dir string, o LogOptions) error {
 	fmt.Fprintf(ev, "tarnol surface hopping event log (invented demo data)\n")
 	syms := []string{"O", "H", "H"}
 	pd := o.Decimals
-	// Spectators: run first, keep their stored frames (9 floats each).
+	// Spectators: run first, keep their stored frames (9 floats each) and
+	// their energies (kinetic, potential per stored frame, summed).
 	var spect [][]float64
+	var spectKin, spectPot []float64
 	for k := 1; k < o.Molecules; k++ {
 		var xs []float64
+		n := 0
 		m.Run(o.Seed*1000+uint64(k), o.Steps, dtAu, o.Temp, func(s *Step) {
 			if s.N%int64(o.Stride) == 0 {
 				xs = append(xs, s.X...)
 				xs = append(xs, s.V...)
 				xs = append(xs, s.F...)
+				if n == len(spectKin) {
+					spectKin, spectPot = append(spectKin, 0), append(spectPot, 0)
+				}
+				spectKin[n] += s.Kinetic
+				spectPot[n] += s.Energies[s.Active]
+				n++
 			}
 		})
 		spect = append(spect, xs)
@@ -155,9 +167,12 @@ func WriteLogs(dir string, o LogOptions) error {
 					x[9+3*i]*toVel, x[9+3*i+1]*toVel, x[9+3*i+2]*toVel, x[18+3*i], x[18+3*i+1], x[18+3*i+2])
 			}
 		}
+		kin, e := s.Kinetic, s.Energies[s.Active]
+		if frame < len(spectKin) {
+			kin, e = kin+spectKin[frame], e+spectPot[frame]
+		}
 		frame++
-		e := s.Energies[s.Active]
-		fmt.Fprintf(en, "%8d %10.4f %16.10f %16.10f %16.10f %2d\n", s.N, t, s.Kinetic, e, s.Kinetic+e, s.Active+1)
+		fmt.Fprintf(en, "%8d %10.4f %16.10f %16.10f %16.10f %2d\n", s.N, t, kin, e, kin+e, s.Active+1)
 		p0 := real(s.C[0])*real(s.C[0]) + imag(s.C[0])*imag(s.C[0])
 		fmt.Fprintf(st, "%d,%.10f,%.10f,%.8f,%.8f\n", s.N, s.Energies[0], s.Energies[1], p0, 1-p0)
 	})
