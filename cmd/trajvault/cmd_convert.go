@@ -33,6 +33,8 @@ type convertOptions struct {
 	compat      string
 	series      int
 	accept      bool
+	// workerArgs are the flags the user set, for worker processes.
+	workerArgs []string
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -44,7 +46,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
-	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder")
+	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder; above 1, each in a worker process of its own (HDF5 serialises threads)")
 	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "convert time, positions, velocities, forces and energies into units common H5MD readers understand, with an explicit clock (the stored numbers are then conversions, not the printed digits)")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
 	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
@@ -85,7 +87,10 @@ Exit status: 0 success, 1 the logs have problems (as scan reports them),
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runConvert(commandContext(c), g, o, args) },
+		RunE: func(c *cobra.Command, args []string) error {
+			o.workerArgs = workerFlags(c)
+			return runConvert(commandContext(c), g, o, args)
+		},
 	}
 	o.AddFlags(c)
 	return c
@@ -106,6 +111,9 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	}
 	if len(args) == 1 {
 		if trajs, err := ingest.Discover(args[0], opt.Recipe); err == nil && (len(trajs) > 1 || filepath.Clean(trajs[0].Dir) != filepath.Clean(args[0])) {
+			if o.jobs > 1 && len(trajs) > 1 {
+				return convertWithWorkers(ctx, g, o, args[0], trajs)
+			}
 			return convertEnsemble(ctx, g, o, opt, tol, trajs)
 		}
 	}
@@ -186,21 +194,26 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
 	}
-	// Report the files where they now are, not where they were written.
+	printEnsembleResults(g, o, results)
+	return nil
+}
+
+// printEnsembleResults reports converted files where they now are, not
+// where they were written.
+func printEnsembleResults(g *globals, o convertOptions, results []*ingest.Result) {
 	for _, r := range results {
 		r.Output = filepath.Join(o.out, filepath.Base(r.Output))
 	}
 	if o.json {
 		b, _ := json.MarshalIndent(results, "", "  ")
 		fmt.Fprintln(g.stdout, string(b))
-		return nil
+		return
 	}
 	frames := 0
 	for _, r := range results {
 		frames += r.Frames
 	}
 	fmt.Fprintf(g.stdout, "%d trajectories, %d frames -> %s/\n", len(results), frames, filepath.Clean(o.out))
-	return nil
 }
 
 // scanEnsemble scans every trajectory (jobs at a time) and refuses,

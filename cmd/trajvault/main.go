@@ -106,6 +106,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newInitCommand(g),
 		newCompareCommand(g),
 		newWorkerCommand(g),
+		newConvertWorkerCommand(g),
 	)
 	return root
 }

@@ -1,0 +1,69 @@
+package main
+
+import (
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// TestConvertWorkers: --jobs 2 converts an ensemble in worker processes
+// into files with the same data as --jobs 1 (h5diff from Debian's
+// hdf5-tools, ignoring only the provenance record, which names the
+// command line); a worker killed by SIGKILL while holding one trajectory
+// fails that trajectory with a clear message, the run exits 1, and
+// nothing appears under the output name nor beside it.
+func TestConvertWorkers(t *testing.T) {
+	dir := t.TempDir()
+	logs := filepath.Join(dir, "logs")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "3", "--steps", "300", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	recipe := repo("testdata", "recipes", "tarnol.yaml")
+	one, two := filepath.Join(dir, "one"), filepath.Join(dir, "two")
+	if code, out, errs := runCLI("convert", "-j", "1", "--recipe", recipe, logs, "-o", one); code != 0 {
+		t.Fatalf("jobs 1: exit %d %s %s", code, out, errs)
+	}
+	if code, out, errs := runCLI("convert", "-j", "2", "--recipe", recipe, logs, "-o", two); code != 0 || !strings.Contains(out, "3 trajectories, 903 frames") {
+		t.Fatalf("jobs 2: exit %d %s %s", code, out, errs)
+	}
+	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5"} {
+		h5diffSameData(t, filepath.Join(one, n), filepath.Join(two, n))
+	}
+
+	t.Setenv("TRAJVAULT_TEST_FAULT", "kill:traj-002")
+	killed := filepath.Join(dir, "killed")
+	code, out, errs := runCLI("convert", "-j", "2", "--recipe", recipe, logs, "-o", killed)
+	if code != 1 || !strings.Contains(errs, "traj-002: the worker process ended while converting it (signal: killed)") {
+		t.Errorf("killed worker: exit %d\n%s%s", code, out, errs)
+	}
+	if strings.Contains(errs, "traj-001:") || strings.Contains(errs, "traj-003:") {
+		t.Errorf("other trajectories failed too:\n%s", errs)
+	}
+	entries, _ := os.ReadDir(dir)
+	for _, e := range entries {
+		if e.Name() != "logs" && e.Name() != "one" && e.Name() != "two" {
+			t.Errorf("left behind after a failed run: %s", e.Name())
+		}
+	}
+}
+
+// h5diffSameData compares two trajectory files with h5diff (Debian's
+// hdf5-tools, an independent reader): every dataset and attribute must be
+// equal except the provenance record.
+func h5diffSameData(t *testing.T, a, b string) {
+	t.Helper()
+	out, err := exec.Command("h5diff", a, b).CombinedOutput()
+	if err == nil {
+		return
+	}
+	for _, l := range strings.Split(strings.TrimSpace(string(out)), "\n") {
+		switch {
+		case strings.HasPrefix(l, "attribute: <trajvault_provenance of </parameters>>"):
+		case strings.HasSuffix(l, "differences found") || strings.HasSuffix(l, "difference found"):
+		default:
+			t.Errorf("%s vs %s: h5diff: %s", filepath.Base(a), filepath.Base(b), l)
+		}
+	}
+}
