@@ -115,3 +115,7 @@ bench/slices.sh
 # Fixity (bench/fixity.sh): validate --fixity-only against the coreutils
 # hashers on the same payload; replaces its own section.
 bench/fixity.sh
+
+# Jobs (bench/jobs.sh): --jobs 1 against worker processes, and peak RSS
+# on a 400-trajectory ensemble; replaces its own section.
+bench/jobs.sh
