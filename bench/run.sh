@@ -25,25 +25,33 @@ echo "bench: generating $TRAJ trajectories x $STEPS steps x $((3 * MOLECULES)) a
 "$BIN" demo --text --trajectories "$TRAJ" --steps "$STEPS" --molecules "$MOLECULES" --decimals "$DECIMALS" "$work/logs" >/dev/null
 text=$(du -sb "$work/logs" | cut -f1)
 
-# measure NAME OUTFILE CMD...: wall seconds and peak RSS (GNU time), bytes.
+# measure NAME OUTFILE CMD...: wall seconds, CPU seconds (user + sys of
+# the command and its children: compressor threads, worker processes) and
+# peak RSS (GNU time), bytes.
 rows=()
 measure() {
 	local name=$1 out=$2
 	shift 2
 	sync
-	/usr/bin/time -f "%e %M" -o "$work/time" "$@"
-	read -r wall rss <"$work/time"
-	local bytes
+	/usr/bin/time -f "%e %M %U %S" -o "$work/time" "$@"
+	read -r wall rss u s <"$work/time"
+	local bytes cpu
 	bytes=$(du -sb "$out" | cut -f1)
-	rows+=("$name;$wall;$rss;$bytes")
-	echo "bench: $name: ${wall}s, $bytes bytes" >&2
+	cpu=$(awk -v u="$u" -v s="$s" 'BEGIN { printf "%.2f", u + s }')
+	rows+=("$name;$wall;$rss;$bytes;$cpu")
+	echo "bench: $name: ${wall}s wall, ${cpu}s CPU, $bytes bytes" >&2
 }
 
 measure "trajvault convert (--jobs $JOBS)" "$work/h5" \
 	"$BIN" convert --jobs "$JOBS" --recipe testdata/recipes/tarnol.yaml "$work/logs" -o "$work/h5"
 "$BIN" validate "$work"/h5/*.h5 >/dev/null
+# The baselines people use for archives of text: fast (gzip -6, zstd -3),
+# strong and threaded (zstd -19 -T0, xz -6 -T0) and the strongest common
+# setting (xz -9, single-threaded).
 measure "tar | gzip -6" "$work/logs.tar.gz" sh -c "tar -C '$work' -cf - logs | gzip -6 > '$work/logs.tar.gz'"
-measure "tar | zstd -19" "$work/logs.tar.zst" sh -c "tar -C '$work' -cf - logs | zstd -q -19 > '$work/logs.tar.zst'"
+measure "tar | zstd -3" "$work/logs.3.tar.zst" sh -c "tar -C '$work' -cf - logs | zstd -q -3 > '$work/logs.3.tar.zst'"
+measure "tar | zstd -19 -T0" "$work/logs.tar.zst" sh -c "tar -C '$work' -cf - logs | zstd -q -19 -T0 > '$work/logs.tar.zst'"
+measure "tar | xz -6 -T0" "$work/logs.6.tar.xz" sh -c "tar -C '$work' -cf - logs | xz -6 -T0 > '$work/logs.6.tar.xz'"
 measure "tar | xz -9" "$work/logs.tar.xz" sh -c "tar -C '$work' -cf - logs | xz -9 > '$work/logs.tar.xz'"
 
 # Chunk-length sweep on one trajectory: the measurement behind the
@@ -75,15 +83,17 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 	echo "Input: the invented demo ensemble, $TRAJ trajectories x $((STEPS + 1)) frames x $((3 * MOLECULES)) atoms,"
 	echo "positions printed with $DECIMALS decimals, velocities and forces with 10, plus energy, state and event logs: $text bytes of text."
 	echo "trajvault stores every number exactly at its printed precision (export gives the text back digit for digit);"
-	echo "the compressors are lossless on the text. Peak RSS is that of the largest single process."
+	echo "the compressors keep the bytes of the text, trajvault keeps the numbers digit for digit (not the spacing of the columns)."
+	echo "CPU s is user + sys of the command and its threads or worker processes; MB per CPU-second compares speed on equal CPU"
+	echo "work (the fair ratio when one method uses more cores); peak RSS is that of the largest single process."
 	echo
-	echo "| method | wall s | MB/s of text | output bytes | ratio to text | peak RSS MiB |"
-	echo "|---|---:|---:|---:|---:|---:|"
+	echo "| method | wall s | CPU s | MB/s of text (wall) | MB per CPU-s | output bytes | ratio to text | peak RSS MiB |"
+	echo "|---|---:|---:|---:|---:|---:|---:|---:|"
 	for r in "${rows[@]}"; do
-		IFS=';' read -r name wall rss bytes <<<"$r"
+		IFS=';' read -r name wall rss bytes cpu <<<"$r"
 		printf '| %s ' "${name//|/\\|}"
-		awk -v w="$wall" -v r="$rss" -v b="$bytes" -v t="$text" \
-			'BEGIN { printf "| %.2f | %.1f | %d | %.3f | %.1f |\n", w, t/1e6/(w>0?w:0.01), b, b/t, r/1024 }'
+		awk -v w="$wall" -v c="$cpu" -v r="$rss" -v b="$bytes" -v t="$text" \
+			'BEGIN { printf "| %.2f | %.2f | %.1f | %.1f | %d | %.3f | %.1f |\n", w, c, t/1e6/(w>0?w:0.01), t/1e6/(c>0?c:0.01), b, b/t, r/1024 }'
 	done
 	echo
 	echo "## Chunk length of per-atom time series (one trajectory, $one bytes of text; tar | xz -9: $onexz bytes)"
