@@ -36,6 +36,8 @@ type packOptions struct {
 	forReaders  bool
 	json        bool
 	split       bool
+	// workerArgs are the conversion flags the user set, for workers.
+	workerArgs []string
 }
 
 func (o *packOptions) AddFlags(c *cobra.Command) {
@@ -94,7 +96,10 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runPack(c.Context(), g, o, args[0]) },
+		RunE: func(c *cobra.Command, args []string) error {
+			o.workerArgs = workerFlags(c)
+			return runPack(c.Context(), g, o, args[0])
+		},
 	}
 	o.AddFlags(c)
 	return c
@@ -131,9 +136,17 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(), ForReaders: o.forReaders,
 		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
-	converting := newBar(g, "convert", "trajectories")
-	results, err := ingest.ConvertAll(ctx, reps, filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir)), copt, o.jobs, converting)
-	converting.Finish()
+	trajDir := filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir))
+	var results []*ingest.Result
+	if o.jobs > 1 && len(trajs) > 1 {
+		// Worker processes, as convert --jobs: one HDF5 library each.
+		flags := append(o.workerArgs, "--author="+dep.Creators[0].Name)
+		results, err = convertInWorkers(ctx, g, flags, dir, trajDir, trajs, o.jobs)
+	} else {
+		converting := newBar(g, "convert", "trajectories")
+		results, err = ingest.ConvertAll(ctx, reps, trajDir, copt, o.jobs, converting)
+		converting.Finish()
+	}
 	if err != nil {
 		return fail(err)
 	}

@@ -51,13 +51,20 @@ type convertReply struct {
 	Error    string         `json:"error,omitempty"`
 }
 
-// workerFlags are the convert flags the user set, to start workers with
-// the same settings (not the ones that concern the parent alone).
+// workerFlags are the conversion flags the user set on c (convert or
+// pack), to start workers with the same settings: the flags convert
+// knows, except those that concern the parent alone.
 func workerFlags(c *cobra.Command) []string {
+	var known convertOptions
+	kc := &cobra.Command{}
+	known.AddFlags(kc)
 	var args []string
 	c.Flags().Visit(func(f *pflag.Flag) {
 		switch f.Name {
 		case "jobs", "json", "output":
+			return
+		}
+		if kc.Flags().Lookup(f.Name) == nil {
 			return
 		}
 		if sv, ok := f.Value.(pflag.SliceValue); ok {
@@ -367,4 +374,43 @@ func convertOne(ctx context.Context, t *ingest.Trajectory, job convertJob, opt i
 	}
 	r.Result = res
 	return r
+}
+
+// convertInWorkers converts already scanned trajectories (pack) into dir
+// with jobs worker processes; extra are flags beyond the user's (e.g. the
+// author pack takes from the deposit). Results are in the order of
+// trajs; any trajectory that fails or is refused fails the whole.
+func convertInWorkers(ctx context.Context, g *globals, flags []string, root, dir string, trajs []*ingest.Trajectory, jobs int) ([]*ingest.Result, error) {
+	exe, err := os.Executable()
+	if err != nil {
+		return nil, fmt.Errorf("cannot find this program to start workers: %w", err)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, err
+	}
+	parent, _ := json.Marshal(append([]string{"trajvault"}, os.Args[1:]...))
+	args := append([]string{"worker-convert", "--root", root, "--parent-args", string(parent)}, flags...)
+	bar := newBar(g, "convert", "trajectories")
+	replies := runConvertWorkers(ctx, exe, args, dir, trajs, jobs, bar)
+	bar.Finish()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	results := make([]*ingest.Result, len(replies))
+	var bad []string
+	for i, r := range replies {
+		switch {
+		case r.Refused:
+			bad = append(bad, r.Name+": refused by the worker's scan")
+		case r.Error != "":
+			bad = append(bad, r.Name+": "+r.Error)
+		case r.Result == nil:
+			bad = append(bad, r.Name+": no result")
+		}
+		results[i] = r.Result
+	}
+	if len(bad) > 0 {
+		return nil, fmt.Errorf("%d of %d trajectories could not be converted: %s", len(bad), len(trajs), strings.Join(bad, "; "))
+	}
+	return results, nil
 }

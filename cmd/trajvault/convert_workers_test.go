@@ -67,3 +67,19 @@ func h5diffSameData(t *testing.T, a, b string) {
 		}
 	}
 }
+
+// TestPackWorkers: pack with worker processes writes trajectory files
+// with the same data as pack --jobs 1 (h5diff, Debian's hdf5-tools).
+func TestPackWorkers(t *testing.T) {
+	dir, deposit := packFixture(t, "3", "200")
+	recipe := repo("testdata", "recipes", "tarnol.yaml")
+	for _, j := range []string{"1", "2"} {
+		if code, out, errs := runCLI("pack", "-j", j, filepath.Join(dir, "logs"), "-o", filepath.Join(dir, "bag"+j), "--deposit", deposit,
+			"--recipe", recipe, "--no-audit"); code != 0 {
+			t.Fatalf("pack -j %s: exit %d\n%s%s", j, code, out, errs)
+		}
+	}
+	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5"} {
+		h5diffSameData(t, filepath.Join(dir, "bag1", "data", "trajectories", n), filepath.Join(dir, "bag2", "data", "trajectories", n))
+	}
+}
