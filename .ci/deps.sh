@@ -12,6 +12,8 @@ set -euo pipefail
 
 GO_FALLBACK=1.26.8 # used only when no Go is installed; at least the go.mod version
 
+APT_EXTRA=
+
 sudo_() {
 	if [ "$(id -u)" = 0 ]; then "$@"; else sudo "$@"; fi
 }
@@ -24,7 +26,7 @@ apt_install() {
 	[ ${#missing[@]} -eq 0 ] && return 0
 	echo "deps: installing ${missing[*]} with apt-get" >&2
 	sudo_ apt-get update -qq >&2
-	sudo_ env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq "${missing[@]}" >&2
+	sudo_ env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq $APT_EXTRA "${missing[@]}" >&2
 }
 
 find_go() {
@@ -51,7 +53,12 @@ find_go() {
 
 case "${1:-}" in
 build) apt_install libhdf5-dev pkg-config gcc ;;
-test) apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase python3-scipy python3-mdanalysis chromium ;;
+test)
+	apt_install libhdf5-dev pkg-config gcc hdf5-tools python3-h5py python3-ase python3-scipy python3-mdanalysis chromium
+	# A throw-away single-node SLURM for the job-array test (no services
+	# are started by installing; the test runs the daemons itself).
+	APT_EXTRA=--no-install-recommends apt_install slurmctld slurmd slurm-client munge
+	;;
 bench) apt_install libhdf5-dev pkg-config gcc zstd xz-utils gzip time ;;
 go) find_go ;;
 *) echo "usage: $0 build|test|bench|go" >&2; exit 2 ;;

@@ -35,6 +35,8 @@ type convertOptions struct {
 	accept      bool
 	// workerArgs are the flags the user set, for worker processes.
 	workerArgs []string
+	shard      string // I/N: convert one shard of an ensemble
+	gather     bool   // check that every shard is done
 }
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
@@ -51,6 +53,8 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
 	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
 	c.Flags().BoolVar(&o.accept, "accept-mismatch", false, "convert although a physics cross-check failed (e.g. P17: kinetic energy vs 1/2 m v^2); recorded in the file")
+	c.Flags().StringVar(&o.shard, "shard", "", "convert shard I of N of an ensemble (I/N, e.g. 0/8): one job of a cluster job array; -o may exist, done trajectories are skipped by checksum")
+	c.Flags().BoolVar(&o.gather, "gather", false, "check that the shards have converted every trajectory of the ensemble into -o, unchanged since")
 	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
@@ -105,6 +109,19 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	tol, err := parseTolerances(o.tolerance)
 	if err != nil {
 		return err
+	}
+	if o.shard != "" || o.gather {
+		if len(args) != 1 {
+			return &exitError{exitUsage, errors.New("convert: --shard and --gather take one ensemble folder")}
+		}
+		trajs, err := ingest.Discover(args[0], opt.Recipe)
+		if err != nil {
+			return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
+		}
+		if o.gather {
+			return gatherShards(g, o, args[0], trajs)
+		}
+		return convertShard(ctx, g, o, args[0], trajs, opt, tol)
 	}
 	if _, err := os.Stat(o.out); err == nil {
 		return &exitError{exitUsage, fmt.Errorf("convert: %s already exists; trajvault never overwrites outputs", o.out)}

@@ -61,7 +61,7 @@ func workerFlags(c *cobra.Command) []string {
 	var args []string
 	c.Flags().Visit(func(f *pflag.Flag) {
 		switch f.Name {
-		case "jobs", "json", "output":
+		case "jobs", "json", "output", "shard", "gather":
 			return
 		}
 		if kc.Flags().Lookup(f.Name) == nil {

@@ -107,6 +107,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newCompareCommand(g),
 		newWorkerCommand(g),
 		newConvertWorkerCommand(g),
+		newSlurmCommand(g),
 	)
 	return root
 }
