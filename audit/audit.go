@@ -89,8 +89,10 @@ type Settings struct {
 	// rotational kinetic energy.
 	MomentumWarnFraction float64
 	// ZPE: a pair is below its zero-point level when the window-averaged
-	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; warn when that
-	// holds for more than ZPEWarnFraction of the run.
+	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; only pairs that
+	// started at or above that level are judged (leakage is a loss), and
+	// one is warned about when it is below for more than ZPEWarnFraction
+	// of the run.
 	ZPEMargin, ZPEWarnFraction float64
 	// NoiseGapEV: when the shadow energy cannot be formed (not every step
 	// stored), the force-noise estimate leaves out frames where the

@@ -134,9 +134,9 @@ var checks = []Spec{
 	},
 	{
 		Name: "zpe-leakage", Code: "A8", Quantity: "velocity",
-		Doc: "Window-averaged bond kinetic energy K_ij = 1/2 mu ((v_i - v_j) . r_hat)^2 of X-H pairs against half the pair's zero-point energy (J. Chem. Theory Comput. 18, 4109 (2022), doi:10.1021/acs.jctc.2c00208); see zpeTracker.",
+		Doc: "Loss of zero-point energy: window-averaged bond kinetic energy K_ij = 1/2 mu ((v_i - v_j) . r_hat)^2 of X-H pairs against half the pair's zero-point energy and against its own start; only pairs that started at that level are judged, thermal (classical) starts never held it (J. Chem. Theory Comput. 18, 4109 (2022), doi:10.1021/acs.jctc.2c00208); see zpeTracker and auditor.zpeCheck.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("warn when a pair stays below (1 - %g) ZPE/2 more than %g of the time", s.ZPEMargin, s.ZPEWarnFraction)
+			return fmt.Sprintf("warn when a pair that started at or above (1 - %g) ZPE/2 stays below it more than %g of the time; not run (does not apply) when no pair started there", s.ZPEMargin, s.ZPEWarnFraction)
 		},
 		file: (*auditor).zpeCheck,
 	},

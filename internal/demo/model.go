@@ -74,9 +74,12 @@ type Faults struct {
 	// this many bohr before the run (negative: inward), a systematic
 	// change of the initial conditions.
 	StartDisplacement float64
-	// StartLower starts on the lower adiabatic state (thermal dynamics
-	// near the minimum) instead of the upper one (a photoexcited run,
-	// which after its first hop down carries the gap as kinetic energy).
+	// StartLower starts on the lower adiabatic state, from its minimum
+	// (found by steepest descent from the start geometry) with thermal
+	// displacements and velocities: thermal (classical) initial
+	// conditions. Without it the run starts on the upper state at the
+	// minimum of V_a (a photoexcited run, which after its first hop down
+	// carries the gap as kinetic energy).
 	StartLower bool
 }
 
@@ -180,6 +183,9 @@ type Step struct {
 func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step)) {
 	rng := rand.New(rand.NewPCG(seed, 0x7a3c))
 	x := m.start()
+	if m.Faults.StartLower {
+		m.relax(x, 0)
+	}
 	if d := m.Faults.StartDisplacement; d != 0 {
 		for _, h := range []int{1, 2} { // H atoms; X sits at the origin
 			r := math.Sqrt(x[3*h]*x[3*h] + x[3*h+1]*x[3*h+1] + x[3*h+2]*x[3*h+2])
@@ -359,6 +365,24 @@ func (m *Model) rescale(v, u []float64, dV float64) bool {
 		}
 	}
 	return true
+}
+
+// relax moves x to a minimum of adiabatic state k by steepest descent
+// (step 0.5 bohr^2/hartree, below 2/k_max for the springs of Tarnol, so
+// the descent is stable; common practice), to a gradient below 1e-10
+// hartree/bohr or 100000 steps.
+func (m *Model) relax(x []float64, k int) {
+	for it := 0; it < 100000; it++ {
+		g := m.Eval(x).Grad[k]
+		n := 0.0
+		for i := range x {
+			x[i] -= 0.5 * g[i]
+			n += g[i] * g[i]
+		}
+		if math.Sqrt(n) < 1e-10 {
+			return
+		}
+	}
 }
 
 func (m *Model) start() []float64 {
