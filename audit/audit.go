@@ -139,6 +139,8 @@ type Result struct {
 	EnergyDev []float64   `json:"-"` // eV, E(t) - E(0)
 	Active    []int64     `json:"-"`
 	Pops      [][]float64 `json:"-"` // per frame, |c_k|^2
+	// Hop attempts in the hop log, for the ensemble's consistency check.
+	HopsAccepted, HopsFrustrated int `json:"-"`
 }
 
 var (

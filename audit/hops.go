@@ -165,6 +165,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			undecidable++ // beyond the ordinary, below a gap only estimated
 		}
 	}
+	a.res.HopsAccepted, a.res.HopsFrustrated = accepted, frustrated
 	badAcc := len(bad) - badFr
 	sort.Slice(bad, func(i, j int) bool { return bad[i] < bad[j] })
 	frac, badFrac := 0.0, 0.0

@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"trajvault/internal/demo"
@@ -124,6 +125,14 @@ func TestInternalConsistency(t *testing.T) {
 	t.Logf("dropped hops: %s %s", bad.Verdict, bad.Summary)
 	if bad.Verdict != Fail {
 		t.Errorf("dropped hops not flagged: %s", bad.Summary)
+	}
+	// The message names the known causes, which correct codes show too
+	// (J. Chem. Phys. 126, 134114 (2007)): frustrated hops and the
+	// decoherence treatment; it must not call the code wrong.
+	for _, want := range []string{"frustrated hops", "decoherence", "in correct codes as well"} {
+		if !strings.Contains(bad.Summary, want) {
+			t.Errorf("failed consistency does not name %q: %s", want, bad.Summary)
+		}
 	}
 }
 
