@@ -155,6 +155,7 @@ func TestConsistencyByConstruction(t *testing.T) {
 			}
 			r.Active = append(r.Active, s)
 		}
+		rep.add(r)
 		rep.Trajectories = append(rep.Trajectories, r)
 	}
 	c := rep.consistency(DefaultSettings)
