@@ -111,3 +111,4 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 # 1e6-frame run against reaching them in compressed text; appends its
 # own section to bench/results.md.
 bench/slices.sh
+bench/audit_memory.sh
