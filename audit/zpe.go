@@ -107,7 +107,7 @@ func (a *auditor) zpeCheck(*derived) (Check, string) {
 	dt := a.frameInterval()
 	type pairLevel struct {
 		startRel, frac, first, lowRel float64 // start / thr; fraction below; fs; min / start
-		p                                 int
+		p                             int
 	}
 	var applies []pairLevel
 	var startRels []float64
