@@ -42,6 +42,9 @@ type oscillators struct {
 	// masses (u) replace the standard atomic weights of species
 	// (e.g. isotopes), as a file may store them.
 	masses []float64
+	// stored (u), when set, are written to the file instead of the
+	// masses the dynamics used (a file that misstates its masses).
+	stored []float64
 }
 
 // run integrates and writes the system; returns the file path.
@@ -107,6 +110,9 @@ func (o oscillators) run(t *testing.T) string {
 			}
 		}
 		return pot
+	}
+	if o.stored != nil {
+		mu = o.stored
 	}
 	path := filepath.Join(t.TempDir(), "osc.h5")
 	w, err := trajfile.Create(path, trajfile.Spec{
