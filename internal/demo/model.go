@@ -160,17 +160,19 @@ func (m *Model) Eval(x []float64) Surfaces {
 
 // Step is one recorded integration step.
 type Step struct {
-	N          int64
-	Time       float64 // au_time
-	X, V, F    []float64
-	Kinetic    float64
-	Energies   [2]float64
-	Active     int
-	C          [2]complex128
-	Coupling   float64 // T_01, 1/au_time
-	HopTo      int     // -1 none
-	Frustrated bool    // as logged
-	Planted    bool    // a fault injected at this hop
+	N    int64
+	Time float64 // au_time
+	// F is the exact force of the active surface; FUsed the one the
+	// integrator used from this frame on (F plus Faults.ForceNoise).
+	X, V, F, FUsed []float64
+	Kinetic        float64
+	Energies       [2]float64
+	Active         int
+	C              [2]complex128
+	Coupling       float64 // T_01, 1/au_time
+	HopTo          int     // -1 none
+	Frustrated     bool    // as logged
+	Planted        bool    // a fault injected at this hop
 	// Unrescaled marks an accepted hop whose velocities were kept
 	// (Faults.NoRescaleEvery): K + V changes by the gap at this step.
 	Unrescaled bool
@@ -222,11 +224,14 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 	s := m.Eval(x)
 	st := &Step{X: x, V: v, HopTo: -1}
 	planted, unrescaled := false, false
+	grad := make([]float64, 9) // the gradient the next half-kick uses, noise included
 	record := func(n int64, coupling float64, hop int, frustrated bool) {
 		st.N, st.Time = n, float64(n)*dt
 		st.F = make([]float64, 9)
+		st.FUsed = make([]float64, 9)
 		for k := range st.F {
 			st.F[k] = -s.Grad[active][k]
+			st.FUsed[k] = -grad[k]
 		}
 		st.Kinetic = 0
 		for i := 0; i < 3; i++ {
@@ -248,7 +253,6 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 		}
 		return m.Faults.ForceNoise * rng.NormFloat64()
 	}
-	grad := make([]float64, 9)
 	setGrad := func() {
 		for k := range grad {
 			grad[k] = s.Grad[active][k] + noise()
