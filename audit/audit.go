@@ -89,8 +89,10 @@ type Settings struct {
 	// rotational kinetic energy.
 	MomentumWarnFraction float64
 	// ZPE: a pair is below its zero-point level when the window-averaged
-	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; warn when that
-	// holds for more than ZPEWarnFraction of the run.
+	// bond kinetic energy is below (1 - ZPEMargin) ZPE/2; only pairs that
+	// started at or above that level are judged (leakage is a loss), and
+	// one is warned about when it is below for more than ZPEWarnFraction
+	// of the run.
 	ZPEMargin, ZPEWarnFraction float64
 	// NoiseGapEV: when the shadow energy cannot be formed (not every step
 	// stored), the force-noise estimate leaves out frames where the
@@ -137,6 +139,8 @@ type Result struct {
 	EnergyDev []float64   `json:"-"` // eV, E(t) - E(0)
 	Active    []int64     `json:"-"`
 	Pops      [][]float64 `json:"-"` // per frame, |c_k|^2
+	// Hop attempts in the hop log, for the ensemble's consistency check.
+	HopsAccepted, HopsFrustrated int `json:"-"`
 }
 
 var (

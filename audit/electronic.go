@@ -84,11 +84,11 @@ func (a *auditor) populations(*derived) (Check, string) {
 		sum := 0.0
 		for _, x := range row {
 			sum += x
-			if x < -1e-9 || x > 1+1e-9 {
+			if !(x >= -1e-9 && x <= 1+1e-9) { // NaN too
 				outOfRange++
 			}
 		}
-		if d := math.Abs(sum - 1); d > worstNorm {
+		if d := math.Abs(sum - 1); d > worstNorm || math.IsNaN(d) && !math.IsNaN(worstNorm) {
 			worstNorm, worstFrame = d, t
 		}
 	}

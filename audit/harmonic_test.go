@@ -35,6 +35,16 @@ type oscillators struct {
 	stride  int
 	sigmaF  float64 // injected force noise, hartree/bohr per component per step
 	seed    uint64
+	// drain > 0 scales the velocities after every step so that the
+	// kinetic part, and with it the vibrational energy, decays to this
+	// fraction of its start by the end of the run (a leak of known size).
+	drain float64
+	// masses (u) replace the standard atomic weights of species
+	// (e.g. isotopes), as a file may store them.
+	masses []float64
+	// stored (u), when set, are written to the file instead of the
+	// masses the dynamics used (a file that misstates its masses).
+	stored []float64
 }
 
 // run integrates and writes the system; returns the file path.
@@ -45,6 +55,9 @@ func (o oscillators) run(t *testing.T) string {
 	mu := make([]float64, n)
 	for i, z := range o.species {
 		w, _ := elements.Mass(z)
+		if o.masses != nil {
+			w = o.masses[i]
+		}
 		m[i] = w * uMe
 		mu[i] = w
 	}
@@ -98,6 +111,9 @@ func (o oscillators) run(t *testing.T) string {
 		}
 		return pot
 	}
+	if o.stored != nil {
+		mu = o.stored
+	}
 	path := filepath.Join(t.TempDir(), "osc.h5")
 	w, err := trajfile.Create(path, trajfile.Spec{
 		Species: o.species, Masses: mu, Velocity: true, Force: true, Kinetic: true, Potential: true, Total: true,
@@ -141,6 +157,16 @@ func (o oscillators) run(t *testing.T) string {
 		addNoise()
 		for i := range v {
 			v[i] += 0.5 * dt * noisy[i] / m[i/3]
+		}
+		if o.drain > 0 {
+			// E(t) = E0 drain^(t/t_end): per step the energy keeps
+			// drain^(1/steps); scaling v by its square root removes that
+			// share of the kinetic part, which the motion spreads over the
+			// whole energy within a period.
+			f := math.Pow(o.drain, 1/float64(o.steps))
+			for i := range v {
+				v[i] *= f
+			}
 		}
 		if s%stride == 0 {
 			emit(s)

@@ -120,7 +120,7 @@ var checks = []Spec{
 		Name: "hops", Code: "A6", Quantity: "hops",
 		Doc: "Energy bookkeeping per hop: an accepted hop with velocity rescaling keeps K + V, one without changes E_tot by the gap V_to - V_from; each hop's change is judged against the ordinary steps around it (never a level the hops themselves raise) and against its own gap; a frustrated hop must not be downhill (derived; J. Chem. Phys. 93, 1061 (1990), doi:10.1063/1.459170); see auditor.hops.",
 		Rule: func(Settings) string {
-			return fmt.Sprintf("fail when an accepted hop changes the total energy by more than %d times the largest change of the %d ordinary frames on either side and by more than %g of its own gap, or a frustrated hop was downhill; a hop whose gap is below its tolerance cannot be judged", hopTolFactor, hopWindow, hopGapFraction)
+			return fmt.Sprintf("fail when an accepted hop changes the total energy by more than %d times the largest change of the %d ordinary frames on either side and by more than %g of its own gap (a hop between stored frames: in the gap's direction and by more than %g of the smaller gap of those frames), or a frustrated hop was downhill; a hop whose gap is below its tolerance cannot be judged", hopTolFactor, hopWindow, hopGapFraction, hopGapFractionBetween)
 		},
 		file: (*auditor).hops,
 	},
@@ -134,9 +134,9 @@ var checks = []Spec{
 	},
 	{
 		Name: "zpe-leakage", Code: "A8", Quantity: "velocity",
-		Doc: "Window-averaged bond kinetic energy K_ij = 1/2 mu ((v_i - v_j) . r_hat)^2 of X-H pairs against half the pair's zero-point energy (J. Chem. Theory Comput. 18, 4109 (2022), doi:10.1021/acs.jctc.2c00208); see zpeTracker.",
+		Doc: "Loss of zero-point energy: window-averaged bond kinetic energy K_ij = 1/2 mu ((v_i - v_j) . r_hat)^2 of X-H pairs against half the pair's zero-point energy and against its own start; only pairs that started at that level are judged, thermal (classical) starts never held it (J. Chem. Theory Comput. 18, 4109 (2022), doi:10.1021/acs.jctc.2c00208); see zpeTracker and auditor.zpeCheck.",
 		Rule: func(s Settings) string {
-			return fmt.Sprintf("warn when a pair stays below (1 - %g) ZPE/2 more than %g of the time", s.ZPEMargin, s.ZPEWarnFraction)
+			return fmt.Sprintf("warn when a pair that started at or above (1 - %g) ZPE/2 stays below it more than %g of the time; not run (does not apply) when no pair started there", s.ZPEMargin, s.ZPEWarnFraction)
 		},
 		file: (*auditor).zpeCheck,
 	},

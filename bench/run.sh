@@ -122,6 +122,10 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 # own section to bench/results.md.
 bench/slices.sh
 
+# Audit memory (bench/audit_memory.sh): peak RSS of audit against the
+# number of trajectories.
+bench/audit_memory.sh
+
 # Fixity (bench/fixity.sh): validate --fixity-only against the coreutils
 # hashers on the same payload; replaces its own section.
 bench/fixity.sh

@@ -119,12 +119,9 @@ section=$(
 		echo "| ${name//|/\\|} | $med | $lo | $hi | $over |"
 	done
 )
-# Replace an earlier section (from its heading to the end) or append.
-if [ -f bench/results.md ]; then
-	awk '/^## Slices: /{ exit } { print }' bench/results.md >"$work/results.md"
-else
-	: >"$work/results.md"
-fi
+# Replace an earlier section (from its heading to the next one) or append.
+touch bench/results.md
+awk -v h="## Slices: " 'index($0, h) == 1 { skip = 1; next } skip && /^## / { skip = 0 } !skip { print }' bench/results.md >"$work/results.md
 {
 	cat "$work/results.md"
 	[ -n "$(tail -n 1 "$work/results.md")" ] && echo

@@ -33,6 +33,8 @@ type logSource struct {
 	fmts  formatSet
 	hopsL []hop
 	done  bool
+	// matched counts the lines each rule matched (P19, matches.go).
+	matched []int
 }
 
 func openLog(path string, spec *LogSpec) (*logSource, error) {
@@ -72,11 +74,12 @@ func (s *logSource) next() (*record, error) {
 			return nil, err
 		}
 		line := string(b)
-		for _, rule := range s.spec.Rules {
+		for i, rule := range s.spec.Rules {
 			m := rule.re.FindStringSubmatchIndex(line)
 			if m == nil {
 				continue
 			}
+			s.countMatch(i)
 			out, err := s.apply(rule, line, m)
 			if err != nil {
 				return nil, err

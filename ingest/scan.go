@@ -74,6 +74,7 @@ type FileReport struct {
 	// times of the first and last kept records, when the file has times
 	hasTime             bool
 	timeFirst, timeLast float64
+	activity            activeTrack // changes of the active state (P20, matches.go)
 }
 
 // TrajReport is the result of scanning one trajectory.
@@ -226,6 +227,8 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 		rep.Files = append(rep.Files, fr)
 	}
 	rep.combine(opt)
+	rep.checkRecipeRules(srcs)
+	rep.checkHopEvents()
 	return rep, nil
 }
 
@@ -350,6 +353,9 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		}
 		rep.sampleKinetic(rec, r.Role, key)
 		fr.keys.push(idx, key)
+		if rec.hasActive {
+			fr.activity.noteActive(rec.active, key, rec.line)
+		}
 		fr.checkUniform(rec, key, s.timeFormat())
 		if rec.hasTime {
 			prevTime, prevStep, havePrev = rec.time, rec.step, true

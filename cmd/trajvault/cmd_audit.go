@@ -48,9 +48,10 @@ checks the physics in the stored numbers: energy conservation and force
 noise, the time step against the fastest motion, electronic populations
 and fewest-switches hops, total momentum, zero-point-energy leakage of X-H
 bonds, and, across the ensemble, whether active-state fractions agree with
-the mean |c|^2. Each check gives ok, warn, fail, unknown (the data cannot
-tell) or n/a (the file lacks what it needs), the numbers behind it and one
-line of explanation.
+the mean |c|^2. Each check gives ok, warn, fail, cannot tell (JSON
+"unknown": the data cannot tell) or not run (JSON "n/a": the file lacks
+what it needs, or the check does not apply), the numbers behind it and
+one line of explanation; "ok" never stands for a check that did not run.
 
 Each verdict is also a finding: code A1.. per check (see --json and
 DEVELOPERS.md), severity error for fail, warning for warn and note for
@@ -193,10 +194,12 @@ func printAudit(g *globals, rep *audit.Report) {
 		byFile[f.File] = append(byFile[f.File], f)
 	}
 	for _, t := range rep.Trajectories {
-		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict, filepath.Base(t.File), t.Frames)
+		// Verdicts print as a reader should read them: "not run" and
+		// "cannot tell", never a bare "n/a" next to the passes.
+		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict.Label(), filepath.Base(t.File), t.Frames)
 		if n := t.NotRun(); n > 0 {
 			// "ok" covers only the checks that ran (issue 13).
-			line = fmt.Sprintf("%-5s %s (%d frames; %d of %d checks not run)", t.Verdict, filepath.Base(t.File), t.Frames, n, len(t.Checks))
+			line = fmt.Sprintf("%-5s %s (%d frames; %d of %d checks not run)", t.Verdict.Label(), filepath.Base(t.File), t.Frames, n, len(t.Checks))
 		}
 		fmt.Fprintln(g.stdout, line)
 		for _, f := range byFile[t.File] {
@@ -210,9 +213,20 @@ func printAudit(g *globals, rep *audit.Report) {
 	}
 	fmt.Fprintln(g.stdout, "ensemble:")
 	for _, c := range rep.Ensemble {
-		wrap(g, fmt.Sprintf("%-5s %s: %s", c.Verdict, c.Name, c.Summary), "  ")
+		wrap(g, fmt.Sprintf("%-5s %s: %s", c.Verdict.Label(), c.Name, c.Summary), "  ")
 	}
-	fmt.Fprintf(g.stdout, "%d of %d trajectories flagged; verdict %s\n", rep.Flagged, len(rep.Trajectories), rep.Verdict)
+	verdict := rep.Verdict.Label()
+	notRun := 0
+	for _, c := range rep.Ensemble {
+		if c.Verdict == audit.NA {
+			notRun++
+		}
+	}
+	if notRun > 0 && rep.Verdict != audit.NA {
+		// The verdict covers the checks that ran, and says so.
+		verdict += fmt.Sprintf(" for the checks that ran (%d of %d ensemble lines not run)", notRun, len(rep.Ensemble))
+	}
+	wrap(g, fmt.Sprintf("%d of %d trajectories flagged; verdict %s", rep.Flagged, len(rep.Trajectories), verdict), "")
 	wrap(g, audit.Caution, "")
 }
 

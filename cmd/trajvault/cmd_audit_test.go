@@ -61,7 +61,7 @@ func TestAuditCommand(t *testing.T) {
 		t.Fatal(err)
 	}
 	code, out, errs = runCLI("audit", good, junk)
-	if code != 1 || !strings.Contains(out, "  error   A10  junk.h5: cannot audit") || !strings.Contains(out, " good.h5 (601 frames)") {
+	if code != 1 || !strings.Contains(out, "  error   A10  junk.h5: cannot audit") || !strings.Contains(out, " good.h5 (601 frames") {
 		t.Errorf("unreadable file: exit %d\n%s%s", code, out, errs)
 	}
 	code, out, _ = runCLI("audit", "--json", good, junk)
@@ -81,5 +81,75 @@ func TestAuditCommand(t *testing.T) {
 	}
 	if code, _, errs = runCLI("audit", "--report", rep, dir); code != 2 || !strings.Contains(errs, "already exists") {
 		t.Errorf("second report: exit %d %s", code, errs)
+	}
+}
+
+// TestAuditNotRunNeverOK: a file with positions and energies only (no
+// velocities, forces or electronic states) cannot run most checks; the
+// text output never shows "ok" for them (issue 13: "ok flagged:
+// force-noise: 0 of 8 fail" and "ok run001.h5" when nothing ran), and
+// the JSON gives "n/a" for each.
+func TestAuditNotRunNeverOK(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "bare.h5")
+	w, err := trajfile.Create(p, trajfile.Spec{Species: []int{8, 1, 1}, Masses: []float64{15.999, 1.008, 1.008}, Potential: true, Total: true,
+		Units: trajfile.Units{Length: "bohr", Time: "fs", Energy: "hartree", Mass: "u"}, TimeStep: 0.5})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i := 0; i < 50; i++ {
+		x := 0.01 * float64(i%7)
+		fr := trajfile.Frame{Step: int64(i), Time: 0.5 * float64(i), Position: []float64{0, 0, 0, 1.8 + x, 0, 0, -0.5, 1.7, 0}, Potential: -1, Total: -1}
+		if err := w.WriteFrame(&fr); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	_, out, errs := runCLI("audit", p)
+	notRun := []string{"time-step", "force-noise", "populations", "hop-probability", "hops", "momentum", "zpe-leakage", "internal-consistency"}
+	for _, l := range strings.Split(out, "\n") {
+		f := strings.Fields(l)
+		if len(f) < 2 || f[0] != "ok" {
+			continue
+		}
+		for _, name := range notRun {
+			if strings.Contains(l, " "+name+":") {
+				t.Errorf("a check that did not run shows ok: %q", l)
+			}
+		}
+		if strings.Contains(l, "bare.h5") && !strings.Contains(l, "checks not run") {
+			t.Errorf("trajectory line shows ok without saying what did not run: %q", l)
+		}
+	}
+	for _, name := range notRun {
+		label := "flagged: " + name + ":"
+		if name == "internal-consistency" {
+			label = name + ":"
+		}
+		if !strings.Contains(out, "  not run "+label) {
+			t.Errorf("text does not say %s did not run:\n%s%s", name, out, errs)
+		}
+	}
+	if !strings.Contains(out, "for the checks that ran") {
+		t.Errorf("the verdict line does not say it covers only the checks that ran:\n%s", out)
+	}
+	_, out, _ = runCLI("audit", "--json", p)
+	var doc struct {
+		Trajectories []struct {
+			Checks []struct{ Check, Verdict string }
+		}
+		Ensemble []struct{ Check, Verdict string }
+	}
+	if err := json.Unmarshal([]byte(out), &doc); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range append(doc.Trajectories[0].Checks, doc.Ensemble...) {
+		name := strings.TrimPrefix(c.Check, "flagged: ")
+		for _, n := range notRun {
+			if name == n && c.Verdict != "n/a" {
+				t.Errorf("JSON: %s is %q, want n/a", c.Check, c.Verdict)
+			}
+		}
 	}
 }

@@ -59,3 +59,28 @@ func TestLogFaults(t *testing.T) {
 		t.Errorf("energies: step 50 written %d times", n)
 	}
 }
+
+// TestForcesAsUsed: with ForcesAsUsed the stored forces are those the
+// integrator used, which differ from the exact forces of the surface by
+// the injected Gaussian noise: their standard deviation is the injected
+// sigma within 5 % over 9 x 2001 components (sampling error about 0.5 %,
+// common practice for the spread of a sample standard deviation,
+// 1/sqrt(2n)); without noise they are the exact forces.
+func TestForcesAsUsed(t *testing.T) {
+	for _, sigma := range []float64{0, 1e-4} {
+		m := Tarnol()
+		m.Faults.ForceNoise = sigma
+		sum, n := 0.0, 0
+		m.Run(5, 2000, 2, 300, func(s *Step) {
+			for k := range s.F {
+				d := s.FUsed[k] - s.F[k]
+				sum += d * d
+				n++
+			}
+		})
+		got := math.Sqrt(sum / float64(n))
+		if sigma == 0 && got != 0 || sigma > 0 && math.Abs(got/sigma-1) > 0.05 {
+			t.Errorf("injected %g: stored forces differ from the exact ones by %g", sigma, got)
+		}
+	}
+}

@@ -74,9 +74,12 @@ type Faults struct {
 	// this many bohr before the run (negative: inward), a systematic
 	// change of the initial conditions.
 	StartDisplacement float64
-	// StartLower starts on the lower adiabatic state (thermal dynamics
-	// near the minimum) instead of the upper one (a photoexcited run,
-	// which after its first hop down carries the gap as kinetic energy).
+	// StartLower starts on the lower adiabatic state, from its minimum
+	// (found by steepest descent from the start geometry) with thermal
+	// displacements and velocities: thermal (classical) initial
+	// conditions. Without it the run starts on the upper state at the
+	// minimum of V_a (a photoexcited run, which after its first hop down
+	// carries the gap as kinetic energy).
 	StartLower bool
 }
 
@@ -157,17 +160,19 @@ func (m *Model) Eval(x []float64) Surfaces {
 
 // Step is one recorded integration step.
 type Step struct {
-	N          int64
-	Time       float64 // au_time
-	X, V, F    []float64
-	Kinetic    float64
-	Energies   [2]float64
-	Active     int
-	C          [2]complex128
-	Coupling   float64 // T_01, 1/au_time
-	HopTo      int     // -1 none
-	Frustrated bool    // as logged
-	Planted    bool    // a fault injected at this hop
+	N    int64
+	Time float64 // au_time
+	// F is the exact force of the active surface; FUsed the one the
+	// integrator used from this frame on (F plus Faults.ForceNoise).
+	X, V, F, FUsed []float64
+	Kinetic        float64
+	Energies       [2]float64
+	Active         int
+	C              [2]complex128
+	Coupling       float64 // T_01, 1/au_time
+	HopTo          int     // -1 none
+	Frustrated     bool    // as logged
+	Planted        bool    // a fault injected at this hop
 	// Unrescaled marks an accepted hop whose velocities were kept
 	// (Faults.NoRescaleEvery): K + V changes by the gap at this step.
 	Unrescaled bool
@@ -180,6 +185,9 @@ type Step struct {
 func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step)) {
 	rng := rand.New(rand.NewPCG(seed, 0x7a3c))
 	x := m.start()
+	if m.Faults.StartLower {
+		m.relax(x, 0)
+	}
 	if d := m.Faults.StartDisplacement; d != 0 {
 		for _, h := range []int{1, 2} { // H atoms; X sits at the origin
 			r := math.Sqrt(x[3*h]*x[3*h] + x[3*h+1]*x[3*h+1] + x[3*h+2]*x[3*h+2])
@@ -216,11 +224,14 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 	s := m.Eval(x)
 	st := &Step{X: x, V: v, HopTo: -1}
 	planted, unrescaled := false, false
+	grad := make([]float64, 9) // the gradient the next half-kick uses, noise included
 	record := func(n int64, coupling float64, hop int, frustrated bool) {
 		st.N, st.Time = n, float64(n)*dt
 		st.F = make([]float64, 9)
+		st.FUsed = make([]float64, 9)
 		for k := range st.F {
 			st.F[k] = -s.Grad[active][k]
+			st.FUsed[k] = -grad[k]
 		}
 		st.Kinetic = 0
 		for i := 0; i < 3; i++ {
@@ -242,7 +253,6 @@ func (m *Model) Run(seed uint64, nsteps int, dt, temp float64, emit func(*Step))
 		}
 		return m.Faults.ForceNoise * rng.NormFloat64()
 	}
-	grad := make([]float64, 9)
 	setGrad := func() {
 		for k := range grad {
 			grad[k] = s.Grad[active][k] + noise()
@@ -359,6 +369,24 @@ func (m *Model) rescale(v, u []float64, dV float64) bool {
 		}
 	}
 	return true
+}
+
+// relax moves x to a minimum of adiabatic state k by steepest descent
+// (step 0.5 bohr^2/hartree, below 2/k_max for the springs of Tarnol, so
+// the descent is stable; common practice), to a gradient below 1e-10
+// hartree/bohr or 100000 steps.
+func (m *Model) relax(x []float64, k int) {
+	for it := 0; it < 100000; it++ {
+		g := m.Eval(x).Grad[k]
+		n := 0.0
+		for i := range x {
+			x[i] -= 0.5 * g[i]
+			n += g[i] * g[i]
+		}
+		if math.Sqrt(n) < 1e-10 {
+			return
+		}
+	}
 }
 
 func (m *Model) start() []float64 {

@@ -19,6 +19,11 @@ type Options struct {
 	// Stride > 1 stores every Stride-th step in WriteH5 (the hop log
 	// keeps every hop), as long runs are often kept.
 	Stride int
+	// ForcesAsUsed stores the forces the integrator used (with
+	// Faults.ForceNoise) instead of the exact forces of the surface, as
+	// a code that writes its noisy gradients does; velocities are always
+	// those of the run.
+	ForcesAsUsed bool
 }
 
 // DefaultOptions give a 100 fs run at 0.05 fs steps: short enough a step
@@ -69,9 +74,13 @@ func WriteH5(path string, o Options) error {
 		if ferr != nil {
 			return
 		}
+		force := s.F
+		if o.ForcesAsUsed {
+			force = s.FUsed
+		}
 		fr := trajfile.Frame{
 			Step: s.N, Time: float64(s.N) * o.DtFs, // as a log prints it: step times dt
-			Position: scale(s.X, toAng), Velocity: scale(s.V, toVel), Force: append([]float64(nil), s.F...),
+			Position: scale(s.X, toAng), Velocity: scale(s.V, toVel), Force: append([]float64(nil), force...),
 			Kinetic: s.Kinetic, Potential: s.Energies[s.Active], Total: s.Kinetic + s.Energies[s.Active],
 			StateEnergies: s.Energies[:], ActiveState: s.Active,
 			Populations: []float64{real(s.C[0])*real(s.C[0]) + imag(s.C[0])*imag(s.C[0]), real(s.C[1])*real(s.C[1]) + imag(s.C[1])*imag(s.C[1])},
