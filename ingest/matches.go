@@ -127,10 +127,7 @@ func (t *TrajReport) checkHopEvents() {
 	var steps []int64
 	unstepped := 0
 	for _, f := range t.Files {
-		if f.src == nil {
-			continue
-		}
-		for _, h := range f.src.hops() {
+		for _, h := range f.hopEvents {
 			switch {
 			case h.frustrated:
 			case h.hasStep:

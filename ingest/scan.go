@@ -51,6 +51,7 @@ type FileReport struct {
 	Hops      int               `json:"hops,omitempty"`
 
 	reader    *Reader
+	hopEvents []hop  // the hop events the source logged (one per hop)
 	keys      keySeq // kept (index, step); steps are indices when the file has none
 	hasSteps  bool
 	dropped   [][2]int
@@ -377,7 +378,8 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
 	}
-	fr.Hops = len(s.hops())
+	fr.hopEvents = s.hops()
+	fr.Hops = len(fr.hopEvents)
 	rep.Hops += fr.Hops
 	if rp, ok := s.(reporter); ok {
 		for _, n := range rp.report() {
