@@ -398,9 +398,11 @@ func (p *Pair) divergence(ra, rb *trajfile.Reader, ea, eb *trajfile.Element, ia,
 	}
 	t := make([]float64, 0, end-start)
 	y := make([]float64, 0, end-start)
+	env := 0.0
 	for k := start; k < end; k++ {
+		env = math.Max(env, d[k])
 		t = append(t, ta[ia[k]])
-		y = append(y, d[k])
+		y = append(y, env)
 	}
 	rate, icpt, r2 := expFit(t, y)
 	p.Rate, p.R2 = ptr(rate), ptr(r2)
