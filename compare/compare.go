@@ -373,18 +373,8 @@ func loadSeries(name string, r *trajfile.Reader) (*Series, error) {
 			s.Active[i] = int(x)
 		}
 	}
-	if r.Has(trajfile.Populations) {
-		v, shape, err := r.Values(trajfile.Populations, "")
-		if err != nil {
-			return nil, err
-		}
-		if shape.Rank == 2 && shape.Dims[0] == r.T {
-			w := shape.Dims[1]
-			s.Populations = make([][]float64, r.T)
-			for i := range s.Populations {
-				s.Populations[i] = v[i*w : (i+1)*w]
-			}
-		}
+	if err := loadPopulations(s, r); err != nil {
+		return nil, err
 	}
 	hops, err := r.Hops()
 	if err != nil {
@@ -409,6 +399,51 @@ func loadSeries(name string, r *trajfile.Reader) (*Series, error) {
 		}
 	}
 	return s, nil
+}
+
+// loadPopulations reads |c_k|^2 per frame: the stored populations, or,
+// where only the amplitudes are stored, |c_k|^2 = Re^2 + Im^2 of them.
+// Other shapes are left out (validate reports them); a value that is not
+// finite is an error, as it would poison every mean.
+func loadPopulations(s *Series, r *trajfile.Reader) error {
+	var pop []float64
+	w := 0
+	switch {
+	case r.Has(trajfile.Populations):
+		v, shape, err := r.Values(trajfile.Populations, "")
+		if err != nil {
+			return err
+		}
+		if shape.Rank != 2 || shape.Dims[0] != r.T {
+			return nil
+		}
+		pop, w = v, shape.Dims[1]
+	case r.Has(trajfile.Amplitudes):
+		v, shape, err := r.Values(trajfile.Amplitudes, "")
+		if err != nil {
+			return err
+		}
+		if shape.Rank != 3 || shape.Dims[0] != r.T || shape.Dims[2] != 2 {
+			return nil
+		}
+		w = shape.Dims[1]
+		pop = make([]float64, r.T*w)
+		for i := range pop {
+			pop[i] = v[2*i]*v[2*i] + v[2*i+1]*v[2*i+1]
+		}
+	default:
+		return nil
+	}
+	for i, x := range pop {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return fmt.Errorf("populations, frame %d, state %d: %v; run trajvault validate", i/w, i%w+1, x)
+		}
+	}
+	s.Populations = make([][]float64, r.T)
+	for i := range s.Populations {
+		s.Populations[i] = pop[i*w : (i+1)*w]
+	}
+	return nil
 }
 
 // setupDiff lists the differences of the two files' setups.
