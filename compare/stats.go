@@ -199,7 +199,7 @@ func expFit(t, d []float64) (rate, intercept, r2 float64) {
 //	m -+ t_{n-1}(q) sqrt(v/n),  q = Phi(z)
 //
 // at the confidence of the normal quantile z (z = 1.96: 95 %), clipped to
-// [0, 1] (the values are populations). ok is false for n < 2 or a
+// [0, 1] (the values are populations) unless m lies outside. ok is false for n < 2 or a
 // variance that is not finite. Source: NIST/SEMATECH e-Handbook of
 // Statistical Methods, section 7.2.2.1 (confidence limits for the mean);
 // common practice.
@@ -209,7 +209,9 @@ func MeanInterval(m, v float64, n int, z float64) (lo, hi float64, ok bool) {
 	}
 	q := distuv.UnitNormal.CDF(z)
 	h := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 1)}.Quantile(q) * math.Sqrt(v/float64(n))
-	return math.Max(0, m-h), math.Min(1, m+h), true
+	// Clipped to [0, 1], but never so far that the interval loses the
+	// mean itself (amplitudes of a faulty run can give |c|^2 > 1).
+	return math.Max(m-h, math.Min(m, 0)), math.Min(m+h, math.Max(m, 1)), true
 }
 
 // Welch is Welch's two-sample t test of equal means without assuming
