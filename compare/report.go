@@ -96,6 +96,37 @@ func (r *Report) divergencePlot() (*plot.Plot, string, error) {
 // populationPlot draws the active-state fraction of every state for both
 // ensembles, A solid and B dashed, each inside its Wilson score band.
 func (r *Report) populationPlot() (*plot.Plot, string, error) {
+	return r.bandPlot("Active-state fractions with Wilson bands: A solid, B dashed", "fraction of trajectories",
+		func(b Band) (mid, lo, hi float64, ok bool) { return b.Fraction, b.Low, b.High, true })
+}
+
+// meanPopPlot draws the mean |c|^2 of every state for both ensembles
+// inside its Student t band, where populations or amplitudes are stored.
+func (r *Report) meanPopPlot() (*plot.Plot, string, error) {
+	e := r.Ensemble
+	if e != nil && len(e.Curve) > 0 {
+		any := false
+		for _, c := range e.Curve {
+			for _, b := range append(append([]Band{}, c.A...), c.B...) {
+				any = any || b.PopLow != nil
+			}
+		}
+		if !any {
+			return nil, "no populations or amplitudes recorded by both sides", nil
+		}
+	}
+	return r.bandPlot("Mean |c|^2 with Student t bands: A solid, B dashed", "mean population",
+		func(b Band) (mid, lo, hi float64, ok bool) {
+			if b.PopLow == nil {
+				return 0, 0, 0, false
+			}
+			return *b.MeanPop, *b.PopLow, *b.PopHigh, true
+		})
+}
+
+// bandPlot draws one value per state and side over time inside its band
+// (get gives the value and the band's edges).
+func (r *Report) bandPlot(title, ylabel string, get func(Band) (mid, lo, hi float64, ok bool)) (*plot.Plot, string, error) {
 	e := r.Ensemble
 	if e == nil || len(e.Curve) == 0 {
 		if e != nil && e.Verdict == NoStates {
@@ -104,9 +135,9 @@ func (r *Report) populationPlot() (*plot.Plot, string, error) {
 		return nil, "the two ensembles share no frame time", nil
 	}
 	p := plot.New()
-	p.Title.Text = "Active-state fractions with Wilson bands: A solid, B dashed"
+	p.Title.Text = title
 	p.X.Label.Text = "time / fs"
-	p.Y.Label.Text = "fraction of trajectories"
+	p.Y.Label.Text = ylabel
 	p.Y.Min, p.Y.Max = 0, 1
 	for k := 0; k < e.States; k++ {
 		col := palette[k%len(palette)]
@@ -120,10 +151,13 @@ func (r *Report) populationPlot() (*plot.Plot, string, error) {
 				if k >= len(bands) {
 					continue
 				}
-				b := bands[k]
-				mid = append(mid, plotter.XY{X: c.Time, Y: b.Fraction})
-				upper = append(upper, plotter.XY{X: c.Time, Y: b.High})
-				lower = append(lower, plotter.XY{X: c.Time, Y: b.Low})
+				m, lo, hi, ok := get(bands[k])
+				if !ok {
+					continue
+				}
+				mid = append(mid, plotter.XY{X: c.Time, Y: m})
+				upper = append(upper, plotter.XY{X: c.Time, Y: hi})
+				lower = append(lower, plotter.XY{X: c.Time, Y: lo})
 			}
 			if len(mid) == 0 {
 				continue
@@ -200,8 +234,8 @@ func (r *Report) hopPlot() (*plot.Plot, string, error) {
 	return p, "", nil
 }
 
-// Figures lists the report's plots in order: divergence, populations,
-// hop times. A figure whose data are absent carries the reason instead.
+// Figures lists the report's plots in order: divergence, active-state
+// fractions, mean |c|^2, hop times. A figure whose data are absent carries the reason instead.
 func (r *Report) figures() ([]figure, error) {
 	var out []figure
 	for _, f := range []struct {
@@ -210,6 +244,7 @@ func (r *Report) figures() ([]figure, error) {
 	}{
 		{"Divergence of each pair: exponential growth from round-off is a straight line.", r.divergencePlot},
 		{"Populations of both ensembles: where the bands overlap the fractions agree within sampling error.", r.populationPlot},
+		{"Mean |c|^2 of both ensembles: the electronic populations, with 95 % bands of their means.", r.meanPopPlot},
 		{"Hop-time distributions of both ensembles.", r.hopPlot},
 	} {
 		p, why, err := f.make()
