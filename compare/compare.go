@@ -17,6 +17,7 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"slices"
 	"sort"
 
 	"trajvault/ingest"
@@ -83,7 +84,7 @@ var Codes = map[string]string{
 	"C1": "the setups differ (program, version, method, time step, states, units, constants)",
 	"C2": "a pair of trajectories differs from the start (a setup difference)",
 	"C3": "a pair of trajectories agrees, then diverges exponentially from round-off",
-	"C4": "a trajectory has no partner of the same name on the other side",
+	"C4": "a trajectory has no partner on the other side, by name or by initial conditions",
 	"C5": "the ensembles differ statistically",
 	"C6": "too few trajectories to tell whether the ensembles agree",
 }
@@ -121,6 +122,10 @@ type Report struct {
 	Findings   []finding.Finding  `json:"findings"`
 	Verdict    string             `json:"verdict"`
 	Settings   SettingsJSON       `json:"settings"`
+
+	// ambiguous explains unmatched trajectories that start like several
+	// on the other side ("A:name" or "B:name" -> why).
+	ambiguous map[string]string
 }
 
 // SettingsJSON records the thresholds in the report.
@@ -141,8 +146,18 @@ func (r *Report) OK() bool {
 // side is one resolved input: trajectory files by name.
 type side struct {
 	names []string
-	files map[string]string
+	files map[string]string // name -> path on disk, or member of an archive
 	label map[string]string // name -> what to print (the source)
+	// images hold the members of an archive, read into memory once.
+	images map[string][]byte
+}
+
+// open opens trajectory name of the side.
+func (s *side) open(name string) (*trajfile.Reader, error) {
+	if img, ok := s.images[name]; ok {
+		return trajfile.OpenReaderImage(s.label[name], img)
+	}
+	return trajfile.OpenReader(s.files[name])
 }
 
 // Run compares A and B (trajectory files, folders of them, bundle
@@ -174,7 +189,7 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 	list.PerPlace = 5
 
 	// 1. Setup first: the first file of each side.
-	if rep.Setup, err = setupDiff(sa.files[sa.names[0]], sb.files[sb.names[0]]); err != nil {
+	if rep.Setup, err = setupDiff(sa, sa.names[0], sb, sb.names[0]); err != nil {
 		return nil, err
 	}
 	if rep.Setup == nil {
@@ -185,14 +200,16 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 			Quantity: d.Item, Message: fmt.Sprintf("%s differs: A %s, B %s", d.Item, d.A, d.B)})
 	}
 
-	// 2. Pairs by name; a single file on each side pairs whatever its name.
-	pairs := map[string]string{}
+	// 2. Pairs by name; the rest by initial conditions; a single file on
+	// each side pairs whatever its name.
+	pairs, how := map[string]string{}, map[string]string{}
+	var ambiguous map[string]string
 	if len(sa.names) == 1 && len(sb.names) == 1 {
-		pairs[sa.names[0]] = sb.names[0]
+		pairs[sa.names[0]], how[sa.names[0]] = sb.names[0], BySingle
 	} else {
 		for _, n := range sa.names {
 			if _, ok := sb.files[n]; ok {
-				pairs[n] = n
+				pairs[n], how[n] = n, ByName
 			} else {
 				rep.OnlyA = append(rep.OnlyA, n)
 			}
@@ -201,6 +218,20 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 			if _, ok := sa.files[n]; !ok {
 				rep.OnlyB = append(rep.OnlyB, n)
 			}
+		}
+		if len(rep.OnlyA) > 0 && len(rep.OnlyB) > 0 {
+			m, amb, err := matchByStart(sa, rep.OnlyA, sb, rep.OnlyB)
+			if err != nil {
+				return nil, err
+			}
+			ambiguous = amb
+			matchedB := map[string]bool{}
+			for a, b := range m {
+				pairs[a], how[a] = b, ByStart
+				matchedB[b] = true
+			}
+			rep.OnlyA = slices.DeleteFunc(rep.OnlyA, func(n string) bool { _, ok := m[n]; return ok })
+			rep.OnlyB = slices.DeleteFunc(rep.OnlyB, func(n string) bool { return matchedB[n] })
 		}
 	}
 	for _, n := range sa.names {
@@ -211,14 +242,17 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
-		p, err := openPair(n, sa.files[n], sb.files[nb], s)
+		p, err := openPair(n, sa, n, sb, nb, s)
 		if err != nil {
 			return nil, err
 		}
-		p.A, p.B = sa.label[n], sb.label[nb]
+		p.A, p.B, p.MatchedBy = sa.label[n], sb.label[nb], how[n]
+		if nb != n {
+			p.NameB = nb
+		}
 		rep.Pairs = append(rep.Pairs, p)
 	}
-
+	rep.ambiguous = ambiguous
 	rep.Divergence = summarize(rep.Pairs)
 
 	// 3. Ensembles.
@@ -262,13 +296,19 @@ func (rep *Report) findings(list *finding.List) {
 			list.Add(finding.Finding{Code: "C3", Severity: finding.Note, Location: loc, Message: p.Name + ": " + p.Reason})
 		}
 	}
+	why := func(key string) string {
+		if w := rep.ambiguous[key]; w != "" {
+			return " (" + w + ")"
+		}
+		return ""
+	}
 	for _, n := range rep.OnlyA {
 		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.A},
-			Message: "only in A: " + n})
+			Message: "only in A: " + n + why("A:"+n)})
 	}
 	for _, n := range rep.OnlyB {
 		list.Add(finding.Finding{Code: "C4", Severity: finding.Warning, Location: finding.Location{File: rep.B},
-			Message: "only in B: " + n})
+			Message: "only in B: " + n + why("B:"+n)})
 	}
 	e := rep.Ensemble
 	switch e.Verdict {
@@ -309,20 +349,20 @@ func overall(r *Report) string {
 	return Differ
 }
 
-// openBoth opens the two files of a pair; close releases both.
-func openBoth(fa, fb string) (ra, rb *trajfile.Reader, close func(), err error) {
-	if ra, err = trajfile.OpenReader(fa); err != nil {
+// openBoth opens trajectory na of A and nb of B; close releases both.
+func openBoth(a *side, na string, b *side, nb string) (ra, rb *trajfile.Reader, close func(), err error) {
+	if ra, err = a.open(na); err != nil {
 		return nil, nil, nil, err
 	}
-	if rb, err = trajfile.OpenReader(fb); err != nil {
+	if rb, err = b.open(nb); err != nil {
 		ra.Close()
 		return nil, nil, nil, err
 	}
 	return ra, rb, func() { ra.Close(); rb.Close() }, nil
 }
 
-func openPair(name, fa, fb string, s Settings) (*Pair, error) {
-	ra, rb, done, err := openBoth(fa, fb)
+func openPair(name string, a *side, na string, b *side, nb string, s Settings) (*Pair, error) {
+	ra, rb, done, err := openBoth(a, na, b, nb)
 	if err != nil {
 		return nil, err
 	}
@@ -338,7 +378,7 @@ func loadSide(ctx context.Context, s *side) ([]*Series, int, error) {
 		if err := ctx.Err(); err != nil {
 			return nil, 0, err
 		}
-		r, err := trajfile.OpenReader(s.files[n])
+		r, err := s.open(n)
 		if err != nil {
 			return nil, 0, err
 		}
@@ -447,8 +487,8 @@ func loadPopulations(s *Series, r *trajfile.Reader) error {
 }
 
 // setupDiff lists the differences of the two files' setups.
-func setupDiff(fa, fb string) ([]SetupDiff, error) {
-	ra, rb, done, err := openBoth(fa, fb)
+func setupDiff(a *side, na string, b *side, nb string) ([]SetupDiff, error) {
+	ra, rb, done, err := openBoth(a, na, b, nb)
 	if err != nil {
 		return nil, err
 	}

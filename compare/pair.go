@@ -64,14 +64,20 @@ type Point struct {
 	RMS  float64 `json:"rms_angstrom"`
 }
 
-// Pair is the comparison of two trajectories of the same name.
+// Pair is the comparison of two trajectories: of the same name, or, when
+// names differ, of the same initial conditions.
 type Pair struct {
-	Name    string `json:"name"`
-	A       string `json:"a"`
-	B       string `json:"b"`
-	Frames  int    `json:"common_frames"`
-	Verdict string `json:"verdict"`
-	Reason  string `json:"reason"`
+	Name string `json:"name"`
+	// NameB is B's name when it differs from A's (matched by initial
+	// conditions or as the only trajectory of each side).
+	NameB string `json:"name_b,omitempty"`
+	// MatchedBy says how the pair was found: ByName, ByStart, BySingle.
+	MatchedBy string `json:"matched_by"`
+	A         string `json:"a"`
+	B         string `json:"b"`
+	Frames    int    `json:"common_frames"`
+	Verdict   string `json:"verdict"`
+	Reason    string `json:"reason"`
 	// SameUntil is the last common time (fs) at which every position
 	// agrees within printed precision; nil when the first frame differs.
 	SameUntil *float64 `json:"same_until_fs,omitempty"`

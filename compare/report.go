@@ -74,7 +74,7 @@ func (r *Report) divergencePlot() (*plot.Plot, string, error) {
 	}
 	if drawn == 0 {
 		if len(r.Pairs) == 0 {
-			return nil, "no pairs of trajectories of the same name", nil
+			return nil, "no pairs of trajectories (by name or by initial conditions)", nil
 		}
 		return nil, "every pair has zero position difference at every common frame", nil
 	}
@@ -263,7 +263,7 @@ func (r *Report) figures() ([]figure, error) {
 }
 
 type pairRow struct {
-	Name, Verdict, SameUntil, Threshold, Rate, Reason string
+	Name, MatchedBy, Verdict, SameUntil, Threshold, Rate, Reason string
 }
 
 var reportTmpl = template.Must(template.New("r").Parse(`<!DOCTYPE html>
@@ -285,9 +285,9 @@ figure{margin:1.5rem 0}figcaption{font-size:.9rem;color:#555}
 {{range .R.Setup}}<tr><td>{{.Item}}</td><td>{{.A}}</td><td>{{.B}}</td></tr>
 {{end}}</table>{{else}}<p>None found.</p>{{end}}
 <h2>Pairs of trajectories</h2>
-{{if .Pairs}}<table><tr><th>name</th><th>verdict</th><th>same until / fs</th><th>reaches threshold / fs</th><th>growth rate / fs<sup>-1</sup></th><th>reason</th></tr>
-{{range .Pairs}}<tr><td>{{.Name}}</td><td>{{.Verdict}}</td><td>{{.SameUntil}}</td><td>{{.Threshold}}</td><td>{{.Rate}}</td><td>{{.Reason}}</td></tr>
-{{end}}</table>{{else}}<p>No pairs of the same name.</p>{{end}}
+{{if .Pairs}}<table><tr><th>name</th><th>matched by</th><th>verdict</th><th>same until / fs</th><th>reaches threshold / fs</th><th>growth rate / fs<sup>-1</sup></th><th>reason</th></tr>
+{{range .Pairs}}<tr><td>{{.Name}}</td><td>{{.MatchedBy}}</td><td>{{.Verdict}}</td><td>{{.SameUntil}}</td><td>{{.Threshold}}</td><td>{{.Rate}}</td><td>{{.Reason}}</td></tr>
+{{end}}</table>{{else}}<p>No pairs of trajectories (by name or by initial conditions).</p>{{end}}
 {{if .R.OnlyA}}<p>Only in A: {{range .R.OnlyA}}{{.}} {{end}}</p>{{end}}
 {{if .R.OnlyB}}<p>Only in B: {{range .R.OnlyB}}{{.}} {{end}}</p>{{end}}
 <h2>Ensembles</h2>
@@ -323,7 +323,11 @@ func (r *Report) WriteHTML(w io.Writer, version string) error {
 	}
 	var pairs []pairRow
 	for _, p := range r.Pairs {
-		pairs = append(pairs, pairRow{Name: p.Name, Verdict: p.Verdict, SameUntil: opt(p.SameUntil, "%.4g"),
+		name, by := p.Name, p.MatchedBy
+		if p.NameB != "" {
+			name += " = " + p.NameB
+		}
+		pairs = append(pairs, pairRow{Name: name, MatchedBy: by, Verdict: p.Verdict, SameUntil: opt(p.SameUntil, "%.4g"),
 			Threshold: opt(p.ThresholdTime, "%.4g"), Rate: opt(p.Rate, "%.3g"), Reason: p.Reason})
 	}
 	e := r.Ensemble

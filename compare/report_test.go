@@ -79,7 +79,7 @@ func TestReportContent(t *testing.T) {
 	if n := strings.Count(page, "<svg"); n != 2 {
 		t.Errorf("%d <svg> elements without pairs and hops, want 2", n)
 	}
-	for _, want := range []string{"Not drawn: no pairs of trajectories of the same name.", "Not drawn: no accepted hops on either side."} {
+	for _, want := range []string{"Not drawn: no pairs of trajectories (by name or by initial conditions).", "Not drawn: no accepted hops on either side."} {
 		if !strings.Contains(page, want) {
 			t.Errorf("report lacks %q", want)
 		}

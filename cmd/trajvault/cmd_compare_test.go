@@ -181,15 +181,16 @@ func TestCompareReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Identical pairs have no divergence to draw on a log scale; the
-	// populations and hop times of the two ensembles are drawn.
+	// active-state fractions, mean |c|^2 and hop times of the two
+	// ensembles are drawn.
 	for _, want := range []string{"<span class=\"ok\">identical</span>", compare.Caution,
 		"Not drawn: every pair has zero position difference at every common frame."} {
 		if !strings.Contains(string(page), want) {
 			t.Errorf("report lacks %q", want)
 		}
 	}
-	if n := strings.Count(string(page), "<svg"); n != 2 {
-		t.Errorf("%d <svg> plots, want 2", n)
+	if n := strings.Count(string(page), "<svg"); n != 3 {
+		t.Errorf("%d <svg> plots, want 3", n)
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
 		t.Errorf("folder holds %d entries, want only the report", len(ents))
