@@ -161,7 +161,7 @@ func (s *side) open(name string) (*trajfile.Reader, error) {
 }
 
 // Run compares A and B (trajectory files, folders of them, bundle
-// folders, or text logs).
+// folders or archives, or text logs).
 func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 	tmp, err := os.MkdirTemp("", "trajvault-compare-")
 	if err != nil {

@@ -60,8 +60,9 @@ func newCompareCommand(g *globals) *cobra.Command {
 		Use:   "compare A B",
 		Short: "Audit whether a rerun reproduces a run: setup, trajectory pairs, ensembles",
 		Long: `compare checks whether run B reproduces run A. A and B are trajectory
-files, folders of them, bundle folders, or text logs (converted on the fly
-with the options of convert).
+files, folders of them, bundles (folders, or .zip and .tar.zst archives
+read in place), or text logs (converted on the fly with the options of
+convert).
 
 First the setups: program and version, method, time step, states, atoms,
 units, constants and how the logs were printed; differences are listed
