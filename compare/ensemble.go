@@ -175,10 +175,11 @@ func histogram(runs []*Series, states int) map[int64]*counts {
 // Holm's procedure at Settings.Alpha:
 //   - active-state counts at Settings.TestTimes times spread evenly over
 //     the common times (chi-squared homogeneity, 2 x states);
-//   - mean |c_j|^2 of states 1..K-1 at the same times, where both sides
-//     record populations (Welch's two-sample t test: the trajectories
-//     are independent, their |c|^2 bounded, so the means are near normal
-//     at the sizes where a verdict is given);
+//   - mean |c_j|^2 of states j = 0..K-2 (counted from 0, as stored) at
+//     the same times, where both sides record populations (Welch's
+//     two-sample t test: the trajectories are independent and their
+//     |c|^2 bounded, so the means are near normal at the sizes where a
+//     verdict is given);
 //   - first accepted hop time of each trajectory (two-sample KS);
 //   - active state at each trajectory's last frame (chi-squared
 //     homogeneity).
@@ -255,7 +256,7 @@ func CompareEnsembles(a, b []*Series, states int, s Settings) *EnsembleResult {
 				continue
 			}
 			popTests++
-			r.Tests = append(r.Tests, Test{Name: fmt.Sprintf("mean |c%d|^2 at %.4g fs", j+1, float64(grid[i])/1e6), Statistic: tt, P: p,
+			r.Tests = append(r.Tests, Test{Name: fmt.Sprintf("mean |c%d|^2 at %.4g fs", j, float64(grid[i])/1e6), Statistic: tt, P: p,
 				Note: fmt.Sprintf("Welch, df %.1f; A %.3f, B %.3f", df, ma, mb)})
 		}
 	}
