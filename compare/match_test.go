@@ -39,6 +39,7 @@ func TestMatchByStart(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	validJSON(t, rep)
 	got := map[string]string{}
 	for _, p := range rep.Pairs {
 		got[p.Name] = p.MatchedBy + " " + p.NameB

@@ -2,6 +2,7 @@ package compare
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"math"
 	"os"
@@ -12,6 +13,7 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/trajfile"
+	"trajvault/schema"
 )
 
 // demoPerturbed runs the demo model from seed at temp kelvin with each H
@@ -135,6 +137,7 @@ func TestDemoDivergenceKnownTruth(t *testing.T) {
 			t.Errorf("%s: %d of %d pairs not judged same, then diverged", x.name, bad, len(x.rep.Pairs))
 		}
 	}
+	validJSON(t, p10)
 	a, b := p10.Divergence, p8.Divergence
 	if math.Abs(a.MedianRate-b.MedianRate) > 0.2*math.Max(a.MedianRate, b.MedianRate) {
 		t.Errorf("median rates %.4g and %.4g /fs differ by more than 20 %%", a.MedianRate, b.MedianRate)
@@ -154,5 +157,28 @@ func TestDemoDivergenceKnownTruth(t *testing.T) {
 		if p.Verdict != Setup {
 			t.Errorf("coupling x1.01, %s: %s (%s); want different from the start", p.Name, p.Verdict, p.Reason)
 		}
+	}
+}
+
+// validJSON checks the report against compare.schema.json inside the
+// envelope the command prints (tool, a, b).
+func validJSON(t *testing.T, rep *Report) {
+	t.Helper()
+	raw, err := json.Marshal(rep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc map[string]any
+	if err := json.Unmarshal(raw, &doc); err != nil {
+		t.Fatal(err)
+	}
+	doc["tool"] = map[string]any{"name": "trajvault", "version": "test"}
+	doc["a"], doc["b"] = rep.A, rep.B
+	sch, err := schema.CompareSchema()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := sch.Validate(doc); err != nil {
+		t.Errorf("report does not follow compare.schema.json: %v", err)
 	}
 }

@@ -288,6 +288,7 @@ figure{margin:1.5rem 0}figcaption{font-size:.9rem;color:#555}
 {{if .Pairs}}<table><tr><th>name</th><th>matched by</th><th>verdict</th><th>same until / fs</th><th>reaches threshold / fs</th><th>growth rate / fs<sup>-1</sup></th><th>reason</th></tr>
 {{range .Pairs}}<tr><td>{{.Name}}</td><td>{{.MatchedBy}}</td><td>{{.Verdict}}</td><td>{{.SameUntil}}</td><td>{{.Threshold}}</td><td>{{.Rate}}</td><td>{{.Reason}}</td></tr>
 {{end}}</table>{{else}}<p>No pairs of trajectories (by name or by initial conditions).</p>{{end}}
+{{with .R.Divergence}}<p>Pairs that diverged from round-off: {{.Pairs}}; median growth rate {{printf "%.3g" .MedianRate}} fs<sup>-1</sup> (doubling in {{printf "%.3g" .DoublingTime}} fs){{if .MedianSameUntil}}, median last agreeing time {{printf "%.4g" .MedianSameUntil}} fs{{end}}{{if .MedianThresholdTime}}, median time to the threshold {{printf "%.4g" .MedianThresholdTime}} fs{{end}}.</p>{{end}}
 {{if .R.OnlyA}}<p>Only in A: {{range .R.OnlyA}}{{.}} {{end}}</p>{{end}}
 {{if .R.OnlyB}}<p>Only in B: {{range .R.OnlyB}}{{.}} {{end}}</p>{{end}}
 <h2>Ensembles</h2>

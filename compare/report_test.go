@@ -27,6 +27,7 @@ func reportFixture(t *testing.T) *Report {
 	rep := &Report{A: "archived/", B: "rerun/", FilesA: []string{ref}, FilesB: []string{re},
 		Setup: []SetupDiff{{"program", "demo 1.0", "demo 1.1"}}, Pairs: []*Pair{p},
 		Ensemble: CompareEnsembles(a, b, 2, DefaultSettings), Settings: SettingsJSON{Threshold: DefaultSettings.Threshold}}
+	rep.Divergence = summarize(rep.Pairs)
 	rep.Verdict = overall(rep)
 	var list finding.List
 	list.PerPlace = 5
@@ -59,7 +60,7 @@ func TestReportContent(t *testing.T) {
 	}
 	for _, want := range []string{
 		"Verdict: <span", rep.Verdict, Caution, "<td>demo 1.0</td><td>demo 1.1</td>",
-		"<td>" + Diverged + "</td>", "RMS position difference per pair (log scale)",
+		"<td>" + Diverged + "</td>", "RMS position difference per pair (log scale)", "Pairs that diverged from round-off: 1; median growth rate",
 		"Active-state fractions with Wilson bands", "Mean |c|^2 with Student t bands", "First hop times: empirical distribution functions",
 	} {
 		if !strings.Contains(page, escaped(want)) {
