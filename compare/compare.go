@@ -206,6 +206,9 @@ func Run(ctx context.Context, a, b string, o Options) (*Report, error) {
 	var ambiguous map[string]string
 	if len(sa.names) == 1 && len(sb.names) == 1 {
 		pairs[sa.names[0]], how[sa.names[0]] = sb.names[0], BySingle
+		if sa.names[0] == sb.names[0] {
+			how[sa.names[0]] = ByName
+		}
 	} else {
 		for _, n := range sa.names {
 			if _, ok := sb.files[n]; ok {

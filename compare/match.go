@@ -94,7 +94,9 @@ func sameStart(a, b *start) bool {
 }
 
 // matchByStart pairs trajectories left unmatched by name whose initial
-// conditions agree within printed precision (sameStart). Only one-to-one
+// conditions agree within printed precision (sameStart), comparing every
+// unmatched start of A with every one of B (the first frame only, read
+// once per file; quadratic in the unmatched counts). Only one-to-one
 // matches are paired; a trajectory that starts like several on the other
 // side is left unmatched, and ambiguous says why (by name, A and B).
 func matchByStart(sa *side, onlyA []string, sb *side, onlyB []string) (pairs map[string]string, ambiguous map[string]string, err error) {
