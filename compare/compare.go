@@ -1,10 +1,11 @@
 // Package compare audits whether a rerun reproduces an archived run: the
 // setup of both first (program, version, method, time step, states,
-// units, constants), then each pair of trajectories of the same name
-// (first difference beyond printed precision, divergence curve with an
-// exponential growth rate, first differing hop), then the two ensembles
-// as samples (active-state fractions over time, first hop times, final
-// states) with a multiple-testing-aware verdict.
+// units, constants), then each pair of trajectories, matched by name or,
+// where names differ, by initial conditions (first difference beyond
+// printed precision, divergence curve with an exponential growth rate,
+// first differing hop), then the two ensembles as samples (active-state
+// fractions and mean |c|^2 over time, first hop times, final states)
+// with a multiple-testing-aware verdict.
 //
 // Chaotic dynamics make two correct runs with different round-off
 // diverge exponentially, and stochastic hopping makes single trajectories

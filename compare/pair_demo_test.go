@@ -13,6 +13,7 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/trajfile"
+	"trajvault/internal/units"
 	"trajvault/schema"
 )
 
@@ -25,8 +26,23 @@ import (
 // conditions come from the seed, so a rerun differs only by delta.
 func demoPerturbed(t *testing.T, path string, seed uint64, delta, couplingScale, temp float64, steps, stride, decimals int) {
 	t.Helper()
+	if err := writePerturbed(path, seed, delta, couplingScale, temp, steps, stride, decimals); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// writePerturbed is demoPerturbed returning its error (for goroutines,
+// which must not call t.Fatal).
+func writePerturbed(path string, seed uint64, delta, couplingScale, temp float64, steps, stride, decimals int) error {
 	const dtFs = 0.05
-	toBohr := mustFactor(t, "angstrom", "bohr")
+	toBohr, err := units.Factor("angstrom", "bohr")
+	if err != nil {
+		return err
+	}
+	toAu, err := units.Factor("fs", "au_time")
+	if err != nil {
+		return err
+	}
 	m := demo.Tarnol()
 	m.Faults.StartDisplacement = delta * toBohr
 	m.Faults.CouplingScale = couplingScale
@@ -37,11 +53,11 @@ func demoPerturbed(t *testing.T, path string, seed uint64, delta, couplingScale,
 		Storage: map[string]trajfile.Storage{"position": {Format: fmt.Sprintf("fixed:%d", decimals), Decimals: decimals}},
 	})
 	if err != nil {
-		t.Fatal(err)
+		return err
 	}
 	scale := math.Pow10(decimals)
 	var werr error
-	m.Run(seed, steps, dtFs*mustFactor(t, "fs", "au_time"), temp, func(s *demo.Step) {
+	m.Run(seed, steps, dtFs*toAu, temp, func(s *demo.Step) {
 		if werr != nil || s.N%int64(stride) != 0 {
 			return
 		}
@@ -52,11 +68,10 @@ func demoPerturbed(t *testing.T, path string, seed uint64, delta, couplingScale,
 		werr = w.WriteFrame(&trajfile.Frame{Step: s.N, Time: float64(s.N) * dtFs, Position: pos, ActiveState: s.Active})
 	})
 	if werr != nil {
-		t.Fatal(werr)
+		w.Abort()
+		return werr
 	}
-	if err := w.Close(); err != nil {
-		t.Fatal(err)
-	}
+	return w.Close()
 }
 
 // TestDemoDivergenceKnownTruth plants the cause of divergence in reruns
@@ -103,11 +118,16 @@ func TestDemoDivergenceKnownTruth(t *testing.T) {
 				defer wg.Done()
 				sem <- struct{}{}
 				defer func() { <-sem }()
-				demoPerturbed(t, filepath.Join(root, r.name, fmt.Sprintf("traj-%02d.h5", s)), s, r.delta, r.cs, temp, r.steps, stride, dec)
+				if err := writePerturbed(filepath.Join(root, r.name, fmt.Sprintf("traj-%02d.h5", s)), s, r.delta, r.cs, temp, r.steps, stride, dec); err != nil {
+					t.Error(err)
+				}
 			}()
 		}
 	}
 	wg.Wait()
+	if t.Failed() {
+		t.FailNow()
+	}
 	run := func(b string) *Report {
 		rep, err := Run(context.Background(), filepath.Join(root, "ref"), filepath.Join(root, b), Options{Settings: DefaultSettings})
 		if err != nil {
