@@ -25,13 +25,18 @@ type Series struct {
 }
 
 // Band is one side's active-state fraction of one state at one time with
-// its Wilson score interval, and the mean |c|^2 when recorded.
+// its Wilson score interval, and the mean |c|^2 over the trajectories
+// when recorded, with its Student t interval (MeanInterval) over the NPop
+// trajectories that record it.
 type Band struct {
 	Fraction float64  `json:"fraction"`
 	Low      float64  `json:"low"`
 	High     float64  `json:"high"`
 	MeanPop  *float64 `json:"mean_population,omitempty"`
+	PopLow   *float64 `json:"mean_population_low,omitempty"`
+	PopHigh  *float64 `json:"mean_population_high,omitempty"`
 	N        int      `json:"n"`
+	NPop     int      `json:"n_population,omitempty"`
 }
 
 // CurvePoint is both sides' bands at one time, one entry per state.
@@ -66,6 +71,8 @@ type EnsembleResult struct {
 	NB     int    `json:"n_b"`
 	States int    `json:"states"`
 	Tests  []Test `json:"tests"`
+	// PopulationTests counts the tests of mean |c|^2 in Tests.
+	PopulationTests int `json:"population_tests"`
 	// Skipped lists tests that could not be made, and why.
 	Skipped []string `json:"skipped,omitempty"`
 	// MinP is the smallest Holm-adjusted p-value, from test MinTest.
@@ -103,12 +110,33 @@ const MaxCurve = 200
 // far below any time step and far above decoding noise.
 func timeKey(t float64) int64 { return int64(math.Round(t * 1e6)) }
 
-// counts is the active-state histogram of one side at one time.
+// counts is the active-state histogram of one side at one time, with
+// the sums of |c|^2 and of its square per state for the mean and its
+// spread.
 type counts struct {
-	n   int
-	k   []int
-	pop []float64 // sum of |c|^2 per state
-	np  int
+	n    int
+	k    []int
+	pop  []float64 // sum of |c|^2 per state
+	pop2 []float64 // sum of |c|^4 per state
+	np   int
+}
+
+// popStats are the mean, variance (n - 1 in the denominator) and count
+// of |c_j|^2 over the trajectories at this time.
+func (c *counts) popStats(j int) (mean, variance float64, n int) {
+	if c.np == 0 {
+		return math.NaN(), math.NaN(), 0
+	}
+	nf := float64(c.np)
+	mean = c.pop[j] / nf
+	if c.np > 1 {
+		// Sums of values in [0, 1] (a few hundred at most per time): the
+		// one-pass formula loses nothing that matters here.
+		variance = math.Max(0, (c.pop2[j]-nf*mean*mean)/(nf-1))
+	} else {
+		variance = math.NaN()
+	}
+	return mean, variance, c.np
 }
 
 func histogram(runs []*Series, states int) map[int64]*counts {
@@ -121,7 +149,7 @@ func histogram(runs []*Series, states int) map[int64]*counts {
 			key := timeKey(t)
 			c := h[key]
 			if c == nil {
-				c = &counts{k: make([]int, states), pop: make([]float64, states)}
+				c = &counts{k: make([]int, states), pop: make([]float64, states), pop2: make([]float64, states)}
 				h[key] = c
 			}
 			st := s.Active[i]
@@ -133,6 +161,7 @@ func histogram(runs []*Series, states int) map[int64]*counts {
 			if s.Populations != nil && i < len(s.Populations) && len(s.Populations[i]) == states {
 				for j, p := range s.Populations[i] {
 					c.pop[j] += p
+					c.pop2[j] += p * p
 				}
 				c.np++
 			}
@@ -146,6 +175,11 @@ func histogram(runs []*Series, states int) map[int64]*counts {
 // Holm's procedure at Settings.Alpha:
 //   - active-state counts at Settings.TestTimes times spread evenly over
 //     the common times (chi-squared homogeneity, 2 x states);
+//   - mean |c_j|^2 of states j = 0..K-2 (counted from 0, as stored) at
+//     the same times, where both sides record populations (Welch's
+//     two-sample t test: the trajectories are independent and their
+//     |c|^2 bounded, so the means are near normal at the sizes where a
+//     verdict is given);
 //   - first accepted hop time of each trajectory (two-sample KS);
 //   - active state at each trajectory's last frame (chi-squared
 //     homogeneity).
@@ -204,6 +238,38 @@ func CompareEnsembles(a, b []*Series, states int, s Settings) *EnsembleResult {
 	if oneState > 0 {
 		r.Skipped = append(r.Skipped, fmt.Sprintf("states at %d of %d test times: every trajectory of both sides in one state", oneState, len(picks)))
 	}
+	// Mean |c_j|^2 at the same times, states 0..K-2: the populations of
+	// a trajectory sum to 1, so the last state adds no information.
+	popTests, popFlat, popMissing := 0, 0, 0
+	for _, i := range picks {
+		ca, cb := ha[grid[i]], hb[grid[i]]
+		if ca.np < 2 || cb.np < 2 {
+			popMissing++
+			continue
+		}
+		for j := 0; j < states-1; j++ {
+			ma, va, na := ca.popStats(j)
+			mb, vb, nb := cb.popStats(j)
+			tt, df, p := Welch(ma, va, na, mb, vb, nb)
+			if math.IsNaN(p) {
+				popFlat++
+				continue
+			}
+			popTests++
+			r.Tests = append(r.Tests, Test{Name: fmt.Sprintf("mean |c%d|^2 at %.4g fs", j, float64(grid[i])/1e6), Statistic: tt, P: p,
+				Note: fmt.Sprintf("Welch, df %.1f; A %.3f, B %.3f", df, ma, mb)})
+		}
+	}
+	switch {
+	case popMissing == len(picks) && len(picks) > 0:
+		r.Skipped = append(r.Skipped, "mean |c|^2: populations not recorded on both sides")
+	case popMissing > 0:
+		r.Skipped = append(r.Skipped, fmt.Sprintf("mean |c|^2 at %d of %d test times: populations recorded by fewer than 2 trajectories of a side", popMissing, len(picks)))
+	}
+	if popFlat > 0 {
+		r.Skipped = append(r.Skipped, fmt.Sprintf("mean |c|^2: %d tests where both sides have no spread (every trajectory the same)", popFlat))
+	}
+	r.PopulationTests = popTests
 	ta, tb := firstHops(a), firstHops(b)
 	r.FirstHopsA, r.FirstHopsB = ta, tb
 	if d, p := KS(ta, tb); !math.IsNaN(p) {
@@ -262,9 +328,11 @@ func curvePoint(key int64, ca, cb *counts, states int, z float64) CurvePoint {
 		for j := range bands {
 			lo, hi := Wilson(c.k[j], c.n, z)
 			bands[j] = Band{Fraction: float64(c.k[j]) / float64(c.n), Low: lo, High: hi, N: c.n}
-			if c.np > 0 {
-				m := c.pop[j] / float64(c.np)
-				bands[j].MeanPop = &m
+			if m, v, n := c.popStats(j); n > 0 {
+				bands[j].MeanPop, bands[j].NPop = ptr(m), n
+				if lo, hi, ok := MeanInterval(m, v, n, z); ok {
+					bands[j].PopLow, bands[j].PopHigh = ptr(lo), ptr(hi)
+				}
 			}
 		}
 		if c == ca {

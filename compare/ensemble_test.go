@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"runtime"
+	"strings"
 	"sync"
 	"testing"
 	"time"
@@ -39,8 +40,11 @@ func demoEnsembleSteps(m demo.Model, first uint64, n, steps int) []*Series {
 			}
 			s.Times = append(s.Times, float64(st.N)*o.DtFs)
 			s.Active = append(s.Active, st.Active)
-			p0 := real(st.C[0])*real(st.C[0]) + imag(st.C[0])*imag(st.C[0])
-			s.Populations = append(s.Populations, []float64{p0, 1 - p0})
+			pop := make([]float64, 2)
+			for k, c := range st.C {
+				pop[k] = real(c)*real(c) + imag(c)*imag(c)
+			}
+			s.Populations = append(s.Populations, pop)
 		})
 		out[i] = s
 	}
@@ -79,15 +83,45 @@ func TestEnsemblePlantedTruth(t *testing.T) {
 			t.Errorf("%s: %s, min p %.3g (%s); want different with p < 0.01", x.name, r.Verdict, r.MinP, r.MinTest)
 		}
 	}
-	// Bands hold the observed fraction and stay inside [0, 1].
+	// Bands hold the observed fraction and mean |c|^2 and stay inside
+	// [0, 1].
 	for _, cp := range r.Curve {
 		for _, bd := range append(cp.A, cp.B...) {
 			if bd.Low > bd.Fraction || bd.High < bd.Fraction || bd.Low < 0 || bd.High > 1 {
 				t.Fatalf("band %+v at %g fs", bd, cp.Time)
 			}
+			if cp.Time > 0 && (bd.PopLow == nil || *bd.PopLow > *bd.MeanPop || *bd.PopHigh < *bd.MeanPop || *bd.PopLow < 0 || *bd.PopHigh > 1) {
+				t.Fatalf("population band %+v at %g fs", bd, cp.Time)
+			}
 		}
 	}
+	if r.PopulationTests != s.TestTimes {
+		t.Errorf("%d tests of mean |c|^2, want one per test time (%d)", r.PopulationTests, s.TestTimes)
+	}
 	t.Logf("%.1f s", time.Since(start).Seconds())
+}
+
+// TestEnsemblePopulationsPlanted: the same seeds with the stored
+// amplitudes scaled by 1.1 (demo.Faults.AmplitudeScale: the dynamics,
+// hops and active states are unchanged, every |c|^2 is 1.21 times as
+// large) leave the active-state tests silent (p = 1) and are found only
+// by the tests of mean |c|^2, with p < 0.01 after Holm's correction.
+func TestEnsemblePopulationsPlanted(t *testing.T) {
+	base := demo.Tarnol()
+	scaled := base
+	scaled.Faults = demo.Faults{AmplitudeScale: 1.1}
+	a := demoEnsembleSteps(base, 1, 64, 1000)
+	b := demoEnsembleSteps(scaled, 1, 64, 1000)
+	r := CompareEnsembles(a, b, 2, DefaultSettings)
+	t.Logf("amplitudes x1.1: %s, min p(Holm) %.3g (%s), %d population tests", r.Verdict, r.MinP, r.MinTest, r.PopulationTests)
+	if r.Verdict != Different || !(r.MinP < 0.01) || !strings.HasPrefix(r.MinTest, "mean |c") {
+		t.Errorf("amplitudes x1.1: %s, min p %.3g from %s; want different with p < 0.01 from a test of mean |c|^2", r.Verdict, r.MinP, r.MinTest)
+	}
+	for _, x := range r.Tests {
+		if strings.HasPrefix(x.Name, "states at") && x.P != 1 {
+			t.Errorf("%s: p %.3g; the active states are the same run for run", x.Name, x.P)
+		}
+	}
 }
 
 // TestEnsembleTooFew: eight trajectories a side cannot tell, whatever

@@ -64,14 +64,20 @@ type Point struct {
 	RMS  float64 `json:"rms_angstrom"`
 }
 
-// Pair is the comparison of two trajectories of the same name.
+// Pair is the comparison of two trajectories: of the same name, or, when
+// names differ, of the same initial conditions.
 type Pair struct {
-	Name    string `json:"name"`
-	A       string `json:"a"`
-	B       string `json:"b"`
-	Frames  int    `json:"common_frames"`
-	Verdict string `json:"verdict"`
-	Reason  string `json:"reason"`
+	Name string `json:"name"`
+	// NameB is B's name when it differs from A's (matched by initial
+	// conditions or as the only trajectory of each side).
+	NameB string `json:"name_b,omitempty"`
+	// MatchedBy says how the pair was found: ByName, ByStart, BySingle.
+	MatchedBy string `json:"matched_by"`
+	A         string `json:"a"`
+	B         string `json:"b"`
+	Frames    int    `json:"common_frames"`
+	Verdict   string `json:"verdict"`
+	Reason    string `json:"reason"`
 	// SameUntil is the last common time (fs) at which every position
 	// agrees within printed precision; nil when the first frame differs.
 	SameUntil *float64 `json:"same_until_fs,omitempty"`
@@ -336,7 +342,11 @@ func compareElement(name string, ra, rb *trajfile.Reader, ea, eb *trajfile.Eleme
 // 10 times the first frame's d) up to the first frame where it reaches
 // the threshold. For chaotic dynamics d(t) ~ d0 exp(lambda t) there, with
 // lambda the largest Lyapunov exponent of the motion (G. Benettin et al.,
-// Meccanica 15, 9 (1980); common practice).
+// Meccanica 15, 9 (1980); common practice). The fit takes the running
+// maximum of d over the window: d of a molecule swings with its
+// vibrations by factors of a few within a period, and the envelope keeps
+// those swings out of the rate and out of R^2 (our choice, measured on
+// the demo model; see DefaultSettings).
 func (p *Pair) divergence(ra, rb *trajfile.Reader, ea, eb *trajfile.Element, ia, ib []int, ta []float64, s Settings) error {
 	fa, err := units.Factor(ea.Unit, "angstrom")
 	if err != nil {
@@ -398,9 +408,11 @@ func (p *Pair) divergence(ra, rb *trajfile.Reader, ea, eb *trajfile.Element, ia,
 	}
 	t := make([]float64, 0, end-start)
 	y := make([]float64, 0, end-start)
+	env := 0.0
 	for k := start; k < end; k++ {
+		env = math.Max(env, d[k])
 		t = append(t, ta[ia[k]])
-		y = append(y, d[k])
+		y = append(y, env)
 	}
 	rate, icpt, r2 := expFit(t, y)
 	p.Rate, p.R2 = ptr(rate), ptr(r2)

@@ -208,7 +208,9 @@ func perturbed(t *testing.T, dir, name string, delta, dtFs float64, steps, strid
 
 func pairOf(t *testing.T, a, b string) *Pair {
 	t.Helper()
-	p, err := openPair("x", a, b, DefaultSettings)
+	sa := &side{files: map[string]string{"x": a}, label: map[string]string{"x": a}}
+	sb := &side{files: map[string]string{"x": b}, label: map[string]string{"x": b}}
+	p, err := openPair("x", sa, "x", sb, "x", DefaultSettings)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -74,7 +74,7 @@ func (r *Report) divergencePlot() (*plot.Plot, string, error) {
 	}
 	if drawn == 0 {
 		if len(r.Pairs) == 0 {
-			return nil, "no pairs of trajectories of the same name", nil
+			return nil, "no pairs of trajectories (by name or by initial conditions)", nil
 		}
 		return nil, "every pair has zero position difference at every common frame", nil
 	}
@@ -96,6 +96,37 @@ func (r *Report) divergencePlot() (*plot.Plot, string, error) {
 // populationPlot draws the active-state fraction of every state for both
 // ensembles, A solid and B dashed, each inside its Wilson score band.
 func (r *Report) populationPlot() (*plot.Plot, string, error) {
+	return r.bandPlot("Active-state fractions with Wilson bands: A solid, B dashed", "fraction of trajectories",
+		func(b Band) (mid, lo, hi float64, ok bool) { return b.Fraction, b.Low, b.High, true })
+}
+
+// meanPopPlot draws the mean |c|^2 of every state for both ensembles
+// inside its Student t band, where populations or amplitudes are stored.
+func (r *Report) meanPopPlot() (*plot.Plot, string, error) {
+	e := r.Ensemble
+	if e != nil && len(e.Curve) > 0 {
+		any := false
+		for _, c := range e.Curve {
+			for _, b := range append(append([]Band{}, c.A...), c.B...) {
+				any = any || b.PopLow != nil
+			}
+		}
+		if !any {
+			return nil, "no populations or amplitudes recorded by both sides", nil
+		}
+	}
+	return r.bandPlot("Mean |c|^2 with Student t bands: A solid, B dashed", "mean population",
+		func(b Band) (mid, lo, hi float64, ok bool) {
+			if b.PopLow == nil {
+				return 0, 0, 0, false
+			}
+			return *b.MeanPop, *b.PopLow, *b.PopHigh, true
+		})
+}
+
+// bandPlot draws one value per state and side over time inside its band
+// (get gives the value and the band's edges).
+func (r *Report) bandPlot(title, ylabel string, get func(Band) (mid, lo, hi float64, ok bool)) (*plot.Plot, string, error) {
 	e := r.Ensemble
 	if e == nil || len(e.Curve) == 0 {
 		if e != nil && e.Verdict == NoStates {
@@ -104,9 +135,9 @@ func (r *Report) populationPlot() (*plot.Plot, string, error) {
 		return nil, "the two ensembles share no frame time", nil
 	}
 	p := plot.New()
-	p.Title.Text = "Active-state fractions with Wilson bands: A solid, B dashed"
+	p.Title.Text = title
 	p.X.Label.Text = "time / fs"
-	p.Y.Label.Text = "fraction of trajectories"
+	p.Y.Label.Text = ylabel
 	p.Y.Min, p.Y.Max = 0, 1
 	for k := 0; k < e.States; k++ {
 		col := palette[k%len(palette)]
@@ -120,10 +151,13 @@ func (r *Report) populationPlot() (*plot.Plot, string, error) {
 				if k >= len(bands) {
 					continue
 				}
-				b := bands[k]
-				mid = append(mid, plotter.XY{X: c.Time, Y: b.Fraction})
-				upper = append(upper, plotter.XY{X: c.Time, Y: b.High})
-				lower = append(lower, plotter.XY{X: c.Time, Y: b.Low})
+				m, lo, hi, ok := get(bands[k])
+				if !ok {
+					continue
+				}
+				mid = append(mid, plotter.XY{X: c.Time, Y: m})
+				upper = append(upper, plotter.XY{X: c.Time, Y: hi})
+				lower = append(lower, plotter.XY{X: c.Time, Y: lo})
 			}
 			if len(mid) == 0 {
 				continue
@@ -200,8 +234,8 @@ func (r *Report) hopPlot() (*plot.Plot, string, error) {
 	return p, "", nil
 }
 
-// Figures lists the report's plots in order: divergence, populations,
-// hop times. A figure whose data are absent carries the reason instead.
+// Figures lists the report's plots in order: divergence, active-state
+// fractions, mean |c|^2, hop times. A figure whose data are absent carries the reason instead.
 func (r *Report) figures() ([]figure, error) {
 	var out []figure
 	for _, f := range []struct {
@@ -210,6 +244,7 @@ func (r *Report) figures() ([]figure, error) {
 	}{
 		{"Divergence of each pair: exponential growth from round-off is a straight line.", r.divergencePlot},
 		{"Populations of both ensembles: where the bands overlap the fractions agree within sampling error.", r.populationPlot},
+		{"Mean |c|^2 of both ensembles: the electronic populations, with 95 % bands of their means.", r.meanPopPlot},
 		{"Hop-time distributions of both ensembles.", r.hopPlot},
 	} {
 		p, why, err := f.make()
@@ -228,7 +263,7 @@ func (r *Report) figures() ([]figure, error) {
 }
 
 type pairRow struct {
-	Name, Verdict, SameUntil, Threshold, Rate, Reason string
+	Name, MatchedBy, Verdict, SameUntil, Threshold, Rate, Reason string
 }
 
 var reportTmpl = template.Must(template.New("r").Parse(`<!DOCTYPE html>
@@ -250,9 +285,10 @@ figure{margin:1.5rem 0}figcaption{font-size:.9rem;color:#555}
 {{range .R.Setup}}<tr><td>{{.Item}}</td><td>{{.A}}</td><td>{{.B}}</td></tr>
 {{end}}</table>{{else}}<p>None found.</p>{{end}}
 <h2>Pairs of trajectories</h2>
-{{if .Pairs}}<table><tr><th>name</th><th>verdict</th><th>same until / fs</th><th>reaches threshold / fs</th><th>growth rate / fs<sup>-1</sup></th><th>reason</th></tr>
-{{range .Pairs}}<tr><td>{{.Name}}</td><td>{{.Verdict}}</td><td>{{.SameUntil}}</td><td>{{.Threshold}}</td><td>{{.Rate}}</td><td>{{.Reason}}</td></tr>
-{{end}}</table>{{else}}<p>No pairs of the same name.</p>{{end}}
+{{if .Pairs}}<table><tr><th>name</th><th>matched by</th><th>verdict</th><th>same until / fs</th><th>reaches threshold / fs</th><th>growth rate / fs<sup>-1</sup></th><th>reason</th></tr>
+{{range .Pairs}}<tr><td>{{.Name}}</td><td>{{.MatchedBy}}</td><td>{{.Verdict}}</td><td>{{.SameUntil}}</td><td>{{.Threshold}}</td><td>{{.Rate}}</td><td>{{.Reason}}</td></tr>
+{{end}}</table>{{else}}<p>No pairs of trajectories (by name or by initial conditions).</p>{{end}}
+{{with .R.Divergence}}<p>Pairs that diverged from round-off: {{.Pairs}}; median growth rate {{printf "%.3g" .MedianRate}} fs<sup>-1</sup> (doubling in {{printf "%.3g" .DoublingTime}} fs){{if .MedianSameUntil}}, median last agreeing time {{printf "%.4g" .MedianSameUntil}} fs{{end}}{{if .MedianThresholdTime}}, median time to the threshold {{printf "%.4g" .MedianThresholdTime}} fs{{end}}.</p>{{end}}
 {{if .R.OnlyA}}<p>Only in A: {{range .R.OnlyA}}{{.}} {{end}}</p>{{end}}
 {{if .R.OnlyB}}<p>Only in B: {{range .R.OnlyB}}{{.}} {{end}}</p>{{end}}
 <h2>Ensembles</h2>
@@ -288,7 +324,11 @@ func (r *Report) WriteHTML(w io.Writer, version string) error {
 	}
 	var pairs []pairRow
 	for _, p := range r.Pairs {
-		pairs = append(pairs, pairRow{Name: p.Name, Verdict: p.Verdict, SameUntil: opt(p.SameUntil, "%.4g"),
+		name, by := p.Name, p.MatchedBy
+		if p.NameB != "" {
+			name += " = " + p.NameB
+		}
+		pairs = append(pairs, pairRow{Name: name, MatchedBy: by, Verdict: p.Verdict, SameUntil: opt(p.SameUntil, "%.4g"),
 			Threshold: opt(p.ThresholdTime, "%.4g"), Rate: opt(p.Rate, "%.3g"), Reason: p.Reason})
 	}
 	e := r.Ensemble

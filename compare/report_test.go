@@ -27,6 +27,7 @@ func reportFixture(t *testing.T) *Report {
 	rep := &Report{A: "archived/", B: "rerun/", FilesA: []string{ref}, FilesB: []string{re},
 		Setup: []SetupDiff{{"program", "demo 1.0", "demo 1.1"}}, Pairs: []*Pair{p},
 		Ensemble: CompareEnsembles(a, b, 2, DefaultSettings), Settings: SettingsJSON{Threshold: DefaultSettings.Threshold}}
+	rep.Divergence = summarize(rep.Pairs)
 	rep.Verdict = overall(rep)
 	var list finding.List
 	list.PerPlace = 5
@@ -54,13 +55,13 @@ func TestReportContent(t *testing.T) {
 			len(rep.Ensemble.FirstHopsA), len(rep.Ensemble.FirstHopsB), rep.Pairs[0].Verdict)
 	}
 	page := html(t, rep)
-	if n := strings.Count(page, "<svg"); n != 3 {
-		t.Errorf("%d <svg> elements, want 3 (divergence, populations, hop times)", n)
+	if n := strings.Count(page, "<svg"); n != 4 {
+		t.Errorf("%d <svg> elements, want 4 (divergence, populations, mean |c|^2, hop times)", n)
 	}
 	for _, want := range []string{
 		"Verdict: <span", rep.Verdict, Caution, "<td>demo 1.0</td><td>demo 1.1</td>",
-		"<td>" + Diverged + "</td>", "RMS position difference per pair (log scale)",
-		"Active-state fractions with Wilson bands", "First hop times: empirical distribution functions",
+		"<td>" + Diverged + "</td>", "RMS position difference per pair (log scale)", "Pairs that diverged from round-off: 1; median growth rate",
+		"Active-state fractions with Wilson bands", "Mean |c|^2 with Student t bands", "First hop times: empirical distribution functions",
 	} {
 		if !strings.Contains(page, escaped(want)) {
 			t.Errorf("report lacks %q", want)
@@ -72,14 +73,14 @@ func TestReportContent(t *testing.T) {
 		}
 	}
 
-	// Without pairs and without hops: one plot, two reasons.
+	// Without pairs and without hops: two plots, two reasons.
 	rep.Pairs = nil
 	rep.Ensemble.FirstHopsA, rep.Ensemble.FirstHopsB = nil, nil
 	page = html(t, rep)
-	if n := strings.Count(page, "<svg"); n != 1 {
-		t.Errorf("%d <svg> elements without pairs and hops, want 1", n)
+	if n := strings.Count(page, "<svg"); n != 2 {
+		t.Errorf("%d <svg> elements without pairs and hops, want 2", n)
 	}
-	for _, want := range []string{"Not drawn: no pairs of trajectories of the same name.", "Not drawn: no accepted hops on either side."} {
+	for _, want := range []string{"Not drawn: no pairs of trajectories (by name or by initial conditions).", "Not drawn: no accepted hops on either side."} {
 		if !strings.Contains(page, want) {
 			t.Errorf("report lacks %q", want)
 		}
@@ -110,7 +111,7 @@ func TestECDF(t *testing.T) {
 
 // TestReportRendersInChromium: the HTML report renders in headless
 // Chromium (Debian chromium) as the audit report does: the rendered DOM
-// holds the three SVG plots, no console errors, and the screenshot is
+// holds the four SVG plots, no console errors, and the screenshot is
 // not blank and shows the plot colours of both runs (blue and orange
 // lines, palette[0] and palette[1]).
 func TestReportRendersInChromium(t *testing.T) {
@@ -124,10 +125,10 @@ func TestReportRendersInChromium(t *testing.T) {
 	if err != nil {
 		t.Fatalf("chromium --dump-dom: %v", err)
 	}
-	if n := strings.Count(string(dom), "<svg"); n != 3 {
-		t.Errorf("rendered DOM holds %d <svg> elements, want 3", n)
+	if n := strings.Count(string(dom), "<svg"); n != 4 {
+		t.Errorf("rendered DOM holds %d <svg> elements, want 4", n)
 	}
-	img := testenv.Screenshot(t, dir, page, "1200,3200")
+	img := testenv.Screenshot(t, dir, page, "1200,5200")
 	near := func(r, g, b uint32, c [3]uint32) bool {
 		d := func(x, y uint32) uint32 {
 			if x > y {

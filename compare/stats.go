@@ -191,3 +191,51 @@ func expFit(t, d []float64) (rate, intercept, r2 float64) {
 	r2 = stat.RSquared(t, y, nil, intercept, rate)
 	return rate, intercept, r2
 }
+
+// MeanInterval is the Student t confidence interval of a mean from n
+// independent values with sample mean m and variance v (n - 1 in the
+// denominator):
+//
+//	m -+ t_{n-1}(q) sqrt(v/n),  q = Phi(z)
+//
+// at the confidence of the normal quantile z (z = 1.96: 95 %), clipped to
+// [0, 1] (the values are populations) unless m lies outside. ok is false for n < 2 or a
+// variance that is not finite. Source: NIST/SEMATECH e-Handbook of
+// Statistical Methods, section 7.2.2.1 (confidence limits for the mean);
+// common practice.
+func MeanInterval(m, v float64, n int, z float64) (lo, hi float64, ok bool) {
+	if n < 2 || math.IsNaN(v) || math.IsInf(v, 0) || v < 0 {
+		return 0, 0, false
+	}
+	q := distuv.UnitNormal.CDF(z)
+	h := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(n - 1)}.Quantile(q) * math.Sqrt(v/float64(n))
+	// Clipped to [0, 1], but never so far that the interval loses the
+	// mean itself (amplitudes of a faulty run can give |c|^2 > 1).
+	return math.Max(m-h, math.Min(m, 0)), math.Min(m+h, math.Max(m, 1)), true
+}
+
+// Welch is Welch's two-sample t test of equal means without assuming
+// equal variances: with sample means ma, mb, variances va, vb (n - 1 in
+// the denominator) and sizes na, nb,
+//
+//	t  = (ma - mb) / sqrt(va/na + vb/nb)
+//	df = (va/na + vb/nb)^2 / ((va/na)^2/(na-1) + (vb/nb)^2/(nb-1))
+//	p  = 2 P(T_df > |t|)
+//
+// (two-sided). p is NaN when the test cannot be made: a side with fewer
+// than 2 values, or no spread on either side. Sources: B. L. Welch,
+// Biometrika 34, 28 (1947); NIST/SEMATECH e-Handbook of Statistical
+// Methods, section 1.3.5.3 (two-sample t-test, unequal variances).
+func Welch(ma, va float64, na int, mb, vb float64, nb int) (t, df, p float64) {
+	if na < 2 || nb < 2 || math.IsNaN(va+vb) {
+		return math.NaN(), math.NaN(), math.NaN()
+	}
+	sa, sb := va/float64(na), vb/float64(nb)
+	if sa+sb == 0 {
+		return math.NaN(), math.NaN(), math.NaN()
+	}
+	t = (ma - mb) / math.Sqrt(sa+sb)
+	df = (sa + sb) * (sa + sb) / (sa*sa/float64(na-1) + sb*sb/float64(nb-1))
+	p = 2 * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: df}.Survival(math.Abs(t))
+	return t, df, math.Min(1, p)
+}

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/gonum/stat"
 	"gonum.org/v1/gonum/stat/distuv"
 
 	"trajvault/internal/testenv"
@@ -87,10 +88,12 @@ func TestHolmWorked(t *testing.T) {
 	}
 }
 
-// TestAgainstSciPy compares the Wilson interval, the KS test and the
-// chi-squared test of homogeneity with SciPy (Debian python3-scipy):
+// TestAgainstSciPy compares the Wilson interval, the KS test, the
+// chi-squared test of homogeneity, Welch's t test and the Student t
+// interval of a mean with SciPy (Debian python3-scipy):
 // binomtest(...).proportion_ci(method="wilson"), kstwobign.sf (the
-// Kolmogorov survival function) and chi2_contingency(correction=False).
+// Kolmogorov survival function), chi2_contingency(correction=False),
+// ttest_ind(equal_var=False) and t.interval.
 func TestAgainstSciPy(t *testing.T) {
 	py := testenv.Python()
 	if err := exec.Command(py, "-c", "import scipy.stats").Run(); err != nil {
@@ -116,20 +119,32 @@ n, m = len(d["x"]), len(d["y"])
 en = n * m / (n + m)
 lam = (math.sqrt(en) + 0.12 + 0.11 / math.sqrt(en)) * ks.statistic
 chi = stats.chi2_contingency([[12, 30, 7], [20, 22, 3]], correction=False)
+w = stats.ttest_ind(d["x"], d["y"], equal_var=False)
+mx = sum(d["x"]) / n
+se = stats.sem(d["x"])
+lo, hi = stats.t.interval(0.95, n - 1, loc=mx, scale=se)
 print(json.dumps({"lo": ci.low, "hi": ci.high, "d": ks.statistic, "q": stats.kstwobign.sf(lam),
-                  "x2": chi[0], "p": chi[1], "df": int(chi[2])}))
+                  "x2": chi[0], "p": chi[1], "df": int(chi[2]),
+                  "wt": w.statistic, "wp": w.pvalue, "mlo": lo, "mhi": hi}))
 `
 	out, err := exec.Command(py, "-c", script, string(in)).Output()
 	if err != nil {
 		t.Fatalf("scipy: %v", err)
 	}
-	var want struct{ Lo, Hi, D, Q, X2, P float64 }
+	var want struct{ Lo, Hi, D, Q, X2, P, WT, WP, MLo, MHi float64 }
 	if err := json.Unmarshal([]byte(strings.TrimSpace(string(out))), &want); err != nil {
 		t.Fatal(err)
 	}
 	lo, hi := Wilson(17, 50, 1.959963984540054)
 	d, q := KS(x, y)
 	x2, df, p := Homogeneity([]int{12, 30, 7}, []int{20, 22, 3})
+	mx, vx := stat.MeanVariance(x, nil)
+	my, vy := stat.MeanVariance(y, nil)
+	wt, _, wp := Welch(mx, vx, len(x), my, vy, len(y))
+	// The x values are not populations; scaled into [0, 1] the interval
+	// is not clipped, and scaled back it must be SciPy's.
+	const sc = 20
+	mlo, mhi, _ := MeanInterval(mx/sc, vx/(sc*sc), len(x), 1.959963984540054)
 	checks := []struct {
 		name      string
 		got, want float64
@@ -138,6 +153,9 @@ print(json.dumps({"lo": ci.low, "hi": ci.high, "d": ks.statistic, "q": stats.kst
 		{"wilson low", lo, want.Lo, 1e-9}, {"wilson high", hi, want.Hi, 1e-9},
 		{"KS D", d, want.D, 1e-12}, {"KS p", q, want.Q, 1e-6},
 		{"chi2", x2, want.X2, 1e-9}, {"chi2 p", p, want.P, 1e-9},
+		{"Welch t", wt, want.WT, 1e-9}, {"Welch p", wp, want.WP, 1e-7},
+		// z goes through Phi(z) to the t quantile: 1e-8, not 1e-9.
+		{"t interval low", mlo * sc, want.MLo, 1e-8}, {"t interval high", mhi * sc, want.MHi, 1e-8},
 	}
 	for _, c := range checks {
 		if math.Abs(c.got-c.want) > c.tol*math.Max(1, math.Abs(c.want)) {

@@ -60,12 +60,15 @@ func newCompareCommand(g *globals) *cobra.Command {
 		Use:   "compare A B",
 		Short: "Audit whether a rerun reproduces a run: setup, trajectory pairs, ensembles",
 		Long: `compare checks whether run B reproduces run A. A and B are trajectory
-files, folders of them, bundle folders, or text logs (converted on the fly
-with the options of convert).
+files, folders of them, bundles (folders, or .zip and .tar.zst archives
+read in place), or text logs (converted on the fly with the options of
+convert).
 
 First the setups: program and version, method, time step, states, atoms,
 units, constants and how the logs were printed; differences are listed
-before any number. Then each pair of trajectories of the same name: the
+before any number. Then each pair of trajectories, matched by name, or,
+where names differ, by initial conditions (the first frame's positions and
+velocities equal within printed precision, one to one): the
 first frame where each quantity differs by more than the printed precision
 of either side, the RMS position difference over time with its fitted
 exponential growth rate and the time it reaches --threshold, and the first
@@ -73,7 +76,8 @@ differing hop and active state. A pair is identical within printed
 precision, the same until some time and then diverging exponentially from
 round-off (as chaotic dynamics do), or different from the start (a setup
 difference). Then the two ensembles as samples: active-state fractions
-with Wilson score bands, tested at --test-times times, first hop times
+with Wilson score bands and mean |c|^2 with Student t bands, tested at
+--test-times times (chi-squared and Welch's t test), first hop times
 (two-sample Kolmogorov-Smirnov) and final states (chi-squared), judged
 together with Holm's correction at --alpha; the verdict is statistically
 equivalent, different, or too few trajectories to tell, with the smallest
@@ -207,6 +211,19 @@ func printCompare(g *globals, r *compare.Report) {
 			wrap(g, p.Reason, "    ")
 		}
 	}
+	var byStart []string
+	for _, p := range r.Pairs {
+		if p.MatchedBy == compare.ByStart {
+			byStart = append(byStart, p.Name+" = "+p.NameB)
+		}
+	}
+	if len(byStart) > 0 {
+		wrap(g, fmt.Sprintf("matched by initial conditions (names differ): %s", strings.Join(byStart, ", ")), "  ")
+	}
+	if d := r.Divergence; d != nil {
+		wrap(g, fmt.Sprintf("diverged pairs: %d; median growth rate %.3g/fs (doubling in %.3g fs), median same until %s fs, median threshold time %s fs",
+			d.Pairs, d.MedianRate, d.DoublingTime, fmtOpt(d.MedianSameUntil, "%.4g"), fmtOpt(d.MedianThresholdTime, "%.4g")), "  ")
+	}
 	if len(r.OnlyA)+len(r.OnlyB) > 0 {
 		wrap(g, fmt.Sprintf("unmatched: %d only in A, %d only in B", len(r.OnlyA), len(r.OnlyB)), "  ")
 	}
@@ -221,8 +238,8 @@ func printCompare(g *globals, r *compare.Report) {
 			}
 			fmt.Fprintf(w, "  %-34s %10.4g %4s %10.3g %10.3g\n", short(t.Name, 34), t.Statistic, df, t.P, t.Adjusted)
 		}
-		wrap(g, fmt.Sprintf("smallest detectable difference of active-state fractions at these sizes: %.2f (power %g, alpha %g over %d tests)",
-			e.Detectable, compare.DefaultSettings.Power, r.Settings.Alpha, len(e.Tests)), "  ")
+		wrap(g, fmt.Sprintf("smallest detectable difference of active-state fractions at these sizes: %.2f (power %g, alpha %g over %d tests, %d of them of mean |c|^2)",
+			e.Detectable, compare.DefaultSettings.Power, r.Settings.Alpha, len(e.Tests), e.PopulationTests), "  ")
 	}
 	for _, s := range e.Skipped {
 		wrap(g, "not tested: "+s, "  ")

@@ -181,15 +181,16 @@ func TestCompareReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	// Identical pairs have no divergence to draw on a log scale; the
-	// populations and hop times of the two ensembles are drawn.
+	// active-state fractions, mean |c|^2 and hop times of the two
+	// ensembles are drawn.
 	for _, want := range []string{"<span class=\"ok\">identical</span>", compare.Caution,
 		"Not drawn: every pair has zero position difference at every common frame."} {
 		if !strings.Contains(string(page), want) {
 			t.Errorf("report lacks %q", want)
 		}
 	}
-	if n := strings.Count(string(page), "<svg"); n != 2 {
-		t.Errorf("%d <svg> plots, want 2", n)
+	if n := strings.Count(string(page), "<svg"); n != 3 {
+		t.Errorf("%d <svg> plots, want 3", n)
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 1 {
 		t.Errorf("folder holds %d entries, want only the report", len(ents))
@@ -197,5 +198,46 @@ func TestCompareReport(t *testing.T) {
 	code, _, errs = runCLI("compare", "--report", report, a, rerun)
 	if again, _ := os.ReadFile(report); code != 2 || !strings.Contains(errs, "already exists") || !bytes.Equal(again, page) {
 		t.Errorf("second run: exit %d, stderr %q, report changed %v", code, errs, !bytes.Equal(again, page))
+	}
+}
+
+// TestCompareRenamedRerun: a rerun whose files carry other names pairs
+// by initial conditions, says so in text and JSON, and the JSON follows
+// compare.schema.json.
+func TestCompareRenamedRerun(t *testing.T) {
+	a := demoDir(t, 1, 3, 200)
+	rerun := demoDir(t, 1, 3, 200)
+	for i := 1; i <= 3; i++ {
+		old := filepath.Join(rerun, fmt.Sprintf("traj-%03d.h5", i))
+		if err := os.Rename(old, filepath.Join(rerun, fmt.Sprintf("run%c.h5", 'a'+i-1))); err != nil {
+			t.Fatal(err)
+		}
+	}
+	code, out, errs := runCLI("compare", a, rerun)
+	if code != 0 || !strings.Contains(out, "3 identical") || !strings.Contains(out, "matched by initial conditions (names differ): traj-001 = runa") {
+		t.Errorf("renamed rerun: exit %d\n%s%s", code, out, errs)
+	}
+	checkWidth(t, out)
+	_, out, _ = runCLI("compare", "--json", a, rerun)
+	var v any
+	if err := json.Unmarshal([]byte(out), &v); err != nil {
+		t.Fatalf("not JSON: %v\n%s", err, out)
+	}
+	sch, err := schema.CompareSchema()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := sch.Validate(v); err != nil {
+		t.Errorf("compare --json: %v", err)
+	}
+	var doc struct {
+		Pairs []struct {
+			MatchedBy string `json:"matched_by"`
+			NameB     string `json:"name_b"`
+		}
+	}
+	json.Unmarshal([]byte(out), &doc)
+	if len(doc.Pairs) != 3 || doc.Pairs[2].MatchedBy != compare.ByStart || doc.Pairs[2].NameB != "runc" {
+		t.Errorf("pairs %+v", doc.Pairs)
 	}
 }

@@ -45,6 +45,21 @@ func OpenReader(path string) (*Reader, error) {
 	return r, nil
 }
 
+// OpenReaderImage opens a trajectory file held in memory (a member of an
+// archive read without unpacking it); name is used in messages.
+func OpenReaderImage(name string, img []byte) (*Reader, error) {
+	f, err := h5.OpenImage(name, img)
+	if err != nil {
+		return nil, err
+	}
+	r := &Reader{f: f, Path: name}
+	if err := r.init(true); err != nil {
+		f.Close()
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	return r, nil
+}
+
 // Close releases the file.
 func (r *Reader) Close() error { return r.f.Close() }
 
