@@ -36,6 +36,9 @@ type Options struct {
 	// quantity stored for it: positions, velocities, forces, energies,
 	// active state, populations, amplitudes and couplings.
 	Restart bool
+	// Convention is ConventionStored (also "") or ConventionASE (extended
+	// XYZ only).
+	Convention string
 }
 
 // defaults are the quantities a format writes when the selection names
@@ -75,6 +78,13 @@ func checkFormat(format string) error {
 func ExportSelection(in, dir string, o Options) ([]string, error) {
 	if err := checkFormat(o.Format); err != nil {
 		return nil, err
+	}
+	ase := o.Convention == ConventionASE
+	switch {
+	case o.Convention != "" && o.Convention != ConventionStored && !ase:
+		return nil, &SelectionError{"--convention", o.Convention, "unknown convention; want " + strings.Join(Conventions, " or ")}
+	case ase && o.Format != FormatExtXYZ:
+		return nil, &SelectionError{"--convention", o.Convention, "the ase convention is a way of writing extended XYZ; add --format extxyz"}
 	}
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
@@ -117,13 +127,23 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 		err = closeOut(fh, w)
 	}
 	create("selection.json", func(w *bufio.Writer) error {
-		b, e := json.MarshalIndent(p.header(), "", "  ")
+		h := p.header()
+		if ase {
+			h.Convention = ConventionASE
+			h.Description += "; " + aseNote
+		}
+		b, e := json.MarshalIndent(h, "", "  ")
 		w.Write(append(b, '\n'))
 		return e
 	})
 	switch o.Format {
 	case FormatXYZ, FormatExtXYZ:
-		create("traj."+o.Format, func(w *bufio.Writer) error { return p.writeXYZ(w, o.Format == FormatExtXYZ) })
+		create("traj."+o.Format, func(w *bufio.Writer) error {
+			if ase {
+				return p.writeASE(w)
+			}
+			return p.writeXYZ(w, o.Format == FormatExtXYZ)
+		})
 	case FormatCSV:
 		if len(p.qs) > 0 {
 			create("values.csv", func(w *bufio.Writer) error { return p.writeCSV(w, true) })
@@ -284,6 +304,9 @@ type Header struct {
 	StatesInFile int              `json:"states_in_file"`
 	Quantities   []QuantityHeader `json:"quantities"`
 	Hops         *int             `json:"hops,omitempty"`
+	// Convention is "ase" when the numbers were converted to the ASE
+	// convention (ConventionASE); Quantities then give the stored units.
+	Convention string `json:"convention,omitempty"`
 }
 
 // QuantityHeader describes one selected quantity.

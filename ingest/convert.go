@@ -393,7 +393,7 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		res.Storage["time"] = "explicit clock, one step and time per frame (for common readers)"
 	}
 	if rep.States > 0 {
-		spec.Attrs["trajvault_state_base"] = fmt.Sprint(rep.stateBase(opt.Options))
+		spec.Attrs[trajfile.StateBaseAttr] = fmt.Sprint(rep.stateBase(opt.Options))
 	}
 	if !has(quantity.TimeQ) && opt.Dt > 0 {
 		spec.Storage["time"] = trajfile.Storage{Decimals: -1}
@@ -616,9 +616,9 @@ func (t *TrajReport) momentaStored() bool {
 // reader can print the momenta again digit for digit.
 func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, res *Result) {
 	fm := rep.formats[quantity.MomentumQ]
-	spec.Attrs["trajvault_momentum_format"] = fm.String()
+	spec.Attrs[trajfile.MomentumFormatAttr] = fm.String()
 	if pu := rep.Units[string(quantity.Momentum)]; pu != "" {
-		spec.Attrs["trajvault_momentum_unit"] = pu
+		spec.Attrs[trajfile.MomentumUnitAttr] = pu
 	}
 	mMax, mMin := 0.0, math.Inf(1)
 	for i := range rep.symbols {
