@@ -46,3 +46,43 @@ func TestASEFactor(t *testing.T) {
 		t.Errorf("temperature: %v, want an error", err)
 	}
 }
+
+// TestComputedTimeFormat: times computed as step x dt (no printed format
+// recorded) print with the decimals of dt, not with float noise (issue
+// 10: no 400.00000000000006 fs). The wanted texts are the decimal
+// products i x dt done by hand.
+func TestComputedTimeFormat(t *testing.T) {
+	for _, c := range []struct {
+		name  string
+		dt    float64
+		steps []int
+		want  []string
+	}{
+		{"0.1 fs", 0.1, []int{0, 3, 7, 4000, 4999}, []string{"0.0", "0.3", "0.7", "400.0", "499.9"}},
+		{"0.25 fs, dt unknown", 0, []int{1, 2, 3}, []string{"0.25", "0.50", "0.75"}},
+		{"whole steps", 2, []int{0, 1, 200}, []string{"0.0", "2.0", "400.0"}},
+	} {
+		dt := c.dt
+		if dt == 0 {
+			dt = 0.25
+		}
+		var times []float64
+		for _, i := range c.steps {
+			times = append(times, float64(i)*dt)
+		}
+		fm, ok := computedTimeFormat(times, c.dt)
+		if !ok {
+			t.Errorf("%s: no format", c.name)
+			continue
+		}
+		for i, x := range times {
+			if got := string(fm.Append(nil, x)); got != c.want[i] {
+				t.Errorf("%s: %v prints %s, want %s", c.name, x, got, c.want[i])
+			}
+		}
+	}
+	// Times with no short decimal form keep the shortest round trip.
+	if fm, ok := computedTimeFormat([]float64{0, 1.0 / 3}, 0); ok {
+		t.Errorf("1/3 given format %v, want none", fm)
+	}
+}

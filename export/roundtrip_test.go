@@ -121,3 +121,37 @@ func readCSV(t *testing.T, path string) []map[string]string {
 	}
 	return rows
 }
+
+// TestComputedTimesExport (issue 10): times computed from --dt 0.1 (no
+// printed times in the logs) export as 0.3 and 400.0, the decimal
+// products step x dt, not 0.30000000000000004.
+func TestComputedTimesExport(t *testing.T) {
+	dir := t.TempDir()
+	var b strings.Builder
+	for i := 0; i <= 4001; i++ {
+		fmt.Fprintf(&b, "1\nstep=%d\nH 0.0 0.0 %.3f\n", i, float64(i)*0.001)
+	}
+	os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(b.String()), 0o644)
+	h5 := filepath.Join(t.TempDir(), "dt.h5")
+	opt := ingest.ConvertOptions{Options: ingest.Options{Units: map[string]string{"position": "angstrom", "time": "fs"}, Dt: 0.1}}
+	if _, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, h5, opt); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(t.TempDir(), "x")
+	if _, err := export.Export(h5, out, export.FormatExtXYZ); err != nil {
+		t.Fatal(err)
+	}
+	text, _ := os.ReadFile(filepath.Join(out, "traj.extxyz"))
+	var times []string
+	for _, w := range strings.Fields(string(text)) {
+		if v, ok := strings.CutPrefix(w, "time="); ok {
+			times = append(times, v)
+		}
+	}
+	for _, i := range []int{0, 3, 7, 4000, 4001} {
+		want := fmt.Sprintf("%d.%d", i/10, i%10) // i x 0.1 by hand
+		if times[i] != want {
+			t.Errorf("frame %d: time=%s, want %s", i, times[i], want)
+		}
+	}
+}
