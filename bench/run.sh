@@ -111,3 +111,7 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 # 1e6-frame run against reaching them in compressed text; appends its
 # own section to bench/results.md.
 bench/slices.sh
+
+# ASE-style run (bench/ase.sh): momenta printed with 8 decimals, against
+# tar | xz -9 of the text; appends its own section.
+bench/ase.sh
