@@ -126,16 +126,6 @@ func (mo *momenta) append(b []byte, atom int, v float64) []byte {
 	return strconv.AppendFloat(b, p, 'g', -1, 64)
 }
 
-// aseKey is the comment-line key of a per-frame quantity in the ASE
-// convention: the potential energy is energy= (what the toolkits read as
-// the calculator's energy); the rest keep their names.
-func aseKey(name string) string {
-	if name == "potential_energy" {
-		return "energy"
-	}
-	return name
-}
-
 // writeASE writes the selected frames and atoms as extended XYZ in the
 // ASE convention (ConventionASE): per-atom columns species, pos, masses
 // and momenta (when velocities are selected) and forces; per-frame
@@ -204,7 +194,7 @@ func (p *plan) writeASE(w *bufio.Writer) error {
 			for i, q := range frameQ {
 				wd := q.width()
 				b = append(b, ' ')
-				b = append(b, aseKey(q.def.name)...)
+				b = append(b, xyzKey(q.def.name)...)
 				b = append(b, '=')
 				if wd > 1 {
 					b = append(b, '"')

@@ -428,6 +428,16 @@ func hopKind(h trajfile.Hop) string {
 // quantities (common practice in extended XYZ files).
 var xyzNames = map[string]string{"position": "pos", "velocity": "velo", "force": "forces"}
 
+// xyzKey is the comment-line key of a per-frame quantity: the potential
+// energy is energy=, the key extended XYZ readers take as the energy
+// (common practice); the rest keep their names.
+func xyzKey(name string) string {
+	if name == "potential_energy" {
+		return "energy"
+	}
+	return name
+}
+
 // writeXYZ writes the selected frames and atoms as (extended) XYZ. The
 // comment line carries step, time and the frame index; extended XYZ adds
 // the selected per-frame quantities as key=value pairs (arrays quoted).
@@ -447,9 +457,15 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 		}
 	}
 	props := "species:S:1"
+	var unitKeys []byte
 	for _, q := range perAtomQ {
 		props += ":" + xyzNames[q.def.name] + ":R:3"
+		unitKeys = appendUnitKey(unitKeys, xyzNames[q.def.name], q.el.Unit)
 	}
+	for _, q := range frameQ {
+		unitKeys = appendUnitKey(unitKeys, xyzKey(q.def.name), q.el.Unit)
+	}
+	unitKeys = appendUnitKey(unitKeys, "time", p.clock.c.TimeUnit)
 	all := append(append([]*quantity{}, perAtomQ...), frameQ...)
 	var b []byte
 	return p.each(all, func(off int, frames []int, vals [][]float64) error {
@@ -461,12 +477,8 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 				b = append(b, props...)
 				for i, q := range frameQ {
 					wd := q.width()
-					key := q.def.name
-					if key == "potential_energy" {
-						key = "energy" // the key extended XYZ readers take as the energy
-					}
 					b = append(b, ' ')
-					b = append(b, key...)
+					b = append(b, xyzKey(q.def.name)...)
 					b = append(b, '=')
 					if wd > 1 {
 						b = append(b, '"')
@@ -481,7 +493,9 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 						b = append(b, '"')
 					}
 				}
-				b = append(b, ` pbc="F F F" `...)
+				b = append(b, ` pbc="F F F"`...)
+				b = append(b, unitKeys...)
+				b = append(b, ' ')
 			}
 			b = append(b, "step="...)
 			b = strconv.AppendInt(b, p.clock.c.Steps[off+t], 10)
