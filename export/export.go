@@ -7,7 +7,6 @@ package export
 import (
 	"bufio"
 	"fmt"
-	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -16,7 +15,6 @@ import (
 	"trajvault/internal/outdir"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
-	"trajvault/internal/units"
 )
 
 // Export formats.
@@ -69,61 +67,7 @@ func readClock(r *trajfile.Reader) (*clockColumns, error) {
 	}
 	cc := &clockColumns{c: c}
 	cc.time, cc.ok = r.TimeFormat(r.Particle(trajfile.Position))
-	if !cc.ok {
-		cc.time, cc.ok = computedTimeFormat(c.Times, timeStep(r, c.TimeUnit))
-	}
 	return cc, nil
-}
-
-// maxTimeDecimals bounds the decimals computedTimeFormat tries.
-const maxTimeDecimals = 12
-
-// computedTimeFormat is the format of times for which no printed format
-// was recorded, because they were computed as step x dt (convert --dt
-// 0.1): the fewest decimals D <= maxTimeDecimals, and at least those of
-// dt (0 when unknown), at which every time is within 1e-6 x 10^-D of a
-// whole number of 10^-D. The float noise of i x dt (a few ulp) is far
-// below that, so 3 x 0.1 prints 0.3, not 0.30000000000000004, and
-// 4000 x 0.1 prints 400.0. Times that need more decimals keep the
-// shortest round-trip form (ok false).
-func computedTimeFormat(times []float64, dt float64) (textnum.Format, bool) {
-	whole := func(x float64, d int) bool {
-		s := x * math.Pow10(d)
-		return math.Abs(s-math.Round(s)) <= 1e-6 && math.Abs(s) < 1<<53
-	}
-	d0 := 0
-	if dt > 0 {
-		for d0 <= maxTimeDecimals && !whole(dt, d0) {
-			d0++
-		}
-	}
-	for d := d0; d <= maxTimeDecimals; d++ {
-		ok := true
-		for _, t := range times {
-			if !whole(t, d) {
-				ok = false
-				break
-			}
-		}
-		if ok {
-			return textnum.Format{Decimals: max(d, 1)}, true
-		}
-	}
-	return textnum.Format{}, false
-}
-
-// timeStep is /parameters/time_step in unit, or 0 when absent or not
-// convertible.
-func timeStep(r *trajfile.Reader, unit string) float64 {
-	s := r.Setup()
-	if s.TimeStep <= 0 {
-		return 0
-	}
-	f, err := units.Factor(s.TimeStepUnit, unit)
-	if err != nil {
-		return 0
-	}
-	return s.TimeStep * f
 }
 
 func (cc *clockColumns) appendTime(b []byte, i int) []byte {

@@ -360,9 +360,6 @@ func clockAt(r *trajfile.Reader, frames []int) (*clockColumns, error) {
 	}
 	cc := &clockColumns{c: c}
 	cc.time, cc.ok = r.TimeFormat(pos)
-	if !cc.ok {
-		cc.time, cc.ok = computedTimeFormat(c.Times, timeStep(r, c.TimeUnit))
-	}
 	return cc, nil
 }
 
