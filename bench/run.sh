@@ -133,3 +133,7 @@ bench/fixity.sh
 # Jobs (bench/jobs.sh): --jobs 1 against worker processes, and peak RSS
 # on a 400-trajectory ensemble; replaces its own section.
 bench/jobs.sh
+
+# ASE-style run (bench/ase.sh): momenta printed with 8 decimals, against
+# tar | xz -9 of the text; appends its own section.
+bench/ase.sh

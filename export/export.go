@@ -154,9 +154,15 @@ func exportXYZ(r *trajfile.Reader, out string, extended bool) error {
 	w := bufio.NewWriterSize(fh, 1<<20)
 	n, T := r.N, r.T
 	props := "species:S:1:pos:R:3"
+	unitKeys := appendUnitKey(nil, "pos", pos.el.Unit)
 	for _, q := range extra {
 		props += ":" + q.name + ":R:3"
+		unitKeys = appendUnitKey(unitKeys, q.name, q.el.Unit)
 	}
+	if epot != nil {
+		unitKeys = appendUnitKey(unitKeys, "energy", epot.el.Unit)
+	}
+	unitKeys = appendUnitKey(unitKeys, "time", clock.c.TimeUnit)
 	var b []byte
 	for start := 0; start < T; start += exportBlock {
 		cnt := min(exportBlock, T-start)
@@ -176,7 +182,9 @@ func exportXYZ(r *trajfile.Reader, out string, extended bool) error {
 					b = append(b, " energy="...)
 					b = epot.append(b, epot.buf[t])
 				}
-				b = append(b, ` pbc="F F F" `...)
+				b = append(b, ` pbc="F F F"`...)
+				b = append(b, unitKeys...)
+				b = append(b, ' ')
 			}
 			b = append(b, "step="...)
 			b = strconv.AppendInt(b, clock.c.Steps[start+t], 10)
@@ -197,6 +205,19 @@ func exportXYZ(r *trajfile.Reader, out string, extended bool) error {
 		}
 	}
 	return closeOut(fh, w)
+}
+
+// appendUnitKey writes " KEY_unit=UNIT" (quoted when the unit has a
+// space), the unit of the extended-XYZ property or key KEY as stored;
+// nothing for a dimensionless quantity.
+func appendUnitKey(b []byte, key, unit string) []byte {
+	if unit == "" {
+		return b
+	}
+	b = append(b, ' ')
+	b = append(b, key...)
+	b = append(b, "_unit="...)
+	return appendKeyValue(b, unit)
 }
 
 // closeOut flushes and closes an output file, keeping the first error.

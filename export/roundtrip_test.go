@@ -2,8 +2,10 @@ package export_test
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -120,4 +122,88 @@ func readCSV(t *testing.T, path string) []map[string]string {
 		rows = append(rows, m)
 	}
 	return rows
+}
+
+// TestComputedTimesExport (issue 10): times computed from --dt 0.1 (no
+// printed times in the logs) export as 0.3 and 400.0, the decimal
+// products step x dt, not 0.30000000000000004.
+func TestComputedTimesExport(t *testing.T) {
+	dir := t.TempDir()
+	var b strings.Builder
+	for i := 0; i <= 4001; i++ {
+		fmt.Fprintf(&b, "1\nstep=%d\nH 0.0 0.0 %.3f\n", i, float64(i)*0.001)
+	}
+	os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(b.String()), 0o644)
+	h5 := filepath.Join(t.TempDir(), "dt.h5")
+	opt := ingest.ConvertOptions{Options: ingest.Options{Units: map[string]string{"position": "angstrom", "time": "fs"}, Dt: 0.1}}
+	if _, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, h5, opt); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(t.TempDir(), "x")
+	if _, err := export.Export(h5, out, export.FormatExtXYZ); err != nil {
+		t.Fatal(err)
+	}
+	text, _ := os.ReadFile(filepath.Join(out, "traj.extxyz"))
+	var times []string
+	for _, w := range strings.Fields(string(text)) {
+		if v, ok := strings.CutPrefix(w, "time="); ok {
+			times = append(times, v)
+		}
+	}
+	for _, i := range []int{0, 3, 7, 4000, 4001} {
+		want := fmt.Sprintf("%d.%d", i/10, i%10) // i x 0.1 by hand
+		if times[i] != want {
+			t.Errorf("frame %d: time=%s, want %s", i, times[i], want)
+		}
+	}
+}
+
+// TestExportUnitsReadBack (issue 10): the extended-XYZ export names the
+// unit of every column and key on the comment line (pos_unit=,
+// forces_unit=, energy_unit=, time_unit=, ...); converted again with no
+// unit given, it exports to the same text byte for byte, and ase.io.read
+// (Debian python3-ase) sees the units as plain info keys.
+func TestExportUnitsReadBack(t *testing.T) {
+	h5 := convertDir(t, testenv.LegacyLogs(t, 20))
+	first := filepath.Join(t.TempDir(), "a")
+	if _, err := export.Export(h5, first, export.FormatExtXYZ); err != nil {
+		t.Fatal(err)
+	}
+	text, err := os.ReadFile(filepath.Join(first, "traj.extxyz"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	line := strings.SplitN(string(text), "\n", 3)[1]
+	for _, want := range []string{` pos_unit=angstrom `, ` velo_unit="angstrom fs-1" `, ` forces_unit="eV angstrom-1" `, ` energy_unit=eV `, ` time_unit=fs `} {
+		if !strings.Contains(line+" ", want) {
+			t.Errorf("comment line %q lacks %q", line, want)
+		}
+	}
+	again := filepath.Join(t.TempDir(), "again.h5")
+	if _, _, err := ingest.ConvertFiles(context.Background(), []string{first}, again, ingest.ConvertOptions{}); err != nil {
+		t.Fatalf("the export does not convert without units: %v", err)
+	}
+	second := filepath.Join(t.TempDir(), "b")
+	if _, err := export.Export(again, second, export.FormatExtXYZ); err != nil {
+		t.Fatal(err)
+	}
+	if text2, _ := os.ReadFile(filepath.Join(second, "traj.extxyz")); string(text2) != string(text) {
+		t.Errorf("export of the converted export differs from the first export")
+	}
+	// ASE reads no Fortran D exponents (the forces here): a selection of
+	// positions and energies shows what it makes of the unit keys.
+	sel := filepath.Join(t.TempDir(), "s")
+	if _, err := export.ExportSelection(h5, sel, export.Options{Format: export.FormatExtXYZ, Sel: export.Selection{Quantities: []string{"position", "potential_energy"}}}); err != nil {
+		t.Fatal(err)
+	}
+	var info []map[string]any
+	out, err := exec.Command(testenv.Python(), "-c", `import json, sys
+from ase.io import read
+json.dump([a.info for a in read(sys.argv[1], index=":2")], sys.stdout, default=str)`, filepath.Join(sel, "traj.extxyz")).Output()
+	if err != nil {
+		t.Fatalf("ase.io.read: %v", err)
+	}
+	if err := json.Unmarshal(out, &info); err != nil || len(info) != 2 || info[0]["energy_unit"] != "eV" || info[0]["pos_unit"] != "angstrom" || info[0]["time_unit"] != "fs" {
+		t.Errorf("ASE reads the units as %v (%v)", info, err)
+	}
 }

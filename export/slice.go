@@ -36,6 +36,9 @@ type Options struct {
 	// quantity stored for it: positions, velocities, forces, energies,
 	// active state, populations, amplitudes and couplings.
 	Restart bool
+	// Convention is ConventionStored (also "") or ConventionASE (extended
+	// XYZ only).
+	Convention string
 }
 
 // defaults are the quantities a format writes when the selection names
@@ -75,6 +78,13 @@ func checkFormat(format string) error {
 func ExportSelection(in, dir string, o Options) ([]string, error) {
 	if err := checkFormat(o.Format); err != nil {
 		return nil, err
+	}
+	ase := o.Convention == ConventionASE
+	switch {
+	case o.Convention != "" && o.Convention != ConventionStored && !ase:
+		return nil, &SelectionError{"--convention", o.Convention, "unknown convention; want " + strings.Join(Conventions, " or ")}
+	case ase && o.Format != FormatExtXYZ:
+		return nil, &SelectionError{"--convention", o.Convention, "the ase convention is a way of writing extended XYZ; add --format extxyz"}
 	}
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
@@ -117,13 +127,23 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 		err = closeOut(fh, w)
 	}
 	create("selection.json", func(w *bufio.Writer) error {
-		b, e := json.MarshalIndent(p.header(), "", "  ")
+		h := p.header()
+		if ase {
+			h.Convention = ConventionASE
+			h.Description += "; " + aseNote
+		}
+		b, e := json.MarshalIndent(h, "", "  ")
 		w.Write(append(b, '\n'))
 		return e
 	})
 	switch o.Format {
 	case FormatXYZ, FormatExtXYZ:
-		create("traj."+o.Format, func(w *bufio.Writer) error { return p.writeXYZ(w, o.Format == FormatExtXYZ) })
+		create("traj."+o.Format, func(w *bufio.Writer) error {
+			if ase {
+				return p.writeASE(w)
+			}
+			return p.writeXYZ(w, o.Format == FormatExtXYZ)
+		})
 	case FormatCSV:
 		if len(p.qs) > 0 {
 			create("values.csv", func(w *bufio.Writer) error { return p.writeCSV(w, true) })
@@ -284,6 +304,9 @@ type Header struct {
 	StatesInFile int              `json:"states_in_file"`
 	Quantities   []QuantityHeader `json:"quantities"`
 	Hops         *int             `json:"hops,omitempty"`
+	// Convention is "ase" when the numbers were converted to the ASE
+	// convention (ConventionASE); Quantities then give the stored units.
+	Convention string `json:"convention,omitempty"`
 }
 
 // QuantityHeader describes one selected quantity.
@@ -405,6 +428,16 @@ func hopKind(h trajfile.Hop) string {
 // quantities (common practice in extended XYZ files).
 var xyzNames = map[string]string{"position": "pos", "velocity": "velo", "force": "forces"}
 
+// xyzKey is the comment-line key of a per-frame quantity: the potential
+// energy is energy=, the key extended XYZ readers take as the energy
+// (common practice); the rest keep their names.
+func xyzKey(name string) string {
+	if name == "potential_energy" {
+		return "energy"
+	}
+	return name
+}
+
 // writeXYZ writes the selected frames and atoms as (extended) XYZ. The
 // comment line carries step, time and the frame index; extended XYZ adds
 // the selected per-frame quantities as key=value pairs (arrays quoted).
@@ -424,9 +457,15 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 		}
 	}
 	props := "species:S:1"
+	var unitKeys []byte
 	for _, q := range perAtomQ {
 		props += ":" + xyzNames[q.def.name] + ":R:3"
+		unitKeys = appendUnitKey(unitKeys, xyzNames[q.def.name], q.el.Unit)
 	}
+	for _, q := range frameQ {
+		unitKeys = appendUnitKey(unitKeys, xyzKey(q.def.name), q.el.Unit)
+	}
+	unitKeys = appendUnitKey(unitKeys, "time", p.clock.c.TimeUnit)
 	all := append(append([]*quantity{}, perAtomQ...), frameQ...)
 	var b []byte
 	return p.each(all, func(off int, frames []int, vals [][]float64) error {
@@ -438,12 +477,8 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 				b = append(b, props...)
 				for i, q := range frameQ {
 					wd := q.width()
-					key := q.def.name
-					if key == "potential_energy" {
-						key = "energy" // the key extended XYZ readers take as the energy
-					}
 					b = append(b, ' ')
-					b = append(b, key...)
+					b = append(b, xyzKey(q.def.name)...)
 					b = append(b, '=')
 					if wd > 1 {
 						b = append(b, '"')
@@ -458,7 +493,9 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 						b = append(b, '"')
 					}
 				}
-				b = append(b, ` pbc="F F F" `...)
+				b = append(b, ` pbc="F F F"`...)
+				b = append(b, unitKeys...)
+				b = append(b, ' ')
 			}
 			b = append(b, "step="...)
 			b = strconv.AppendInt(b, p.clock.c.Steps[off+t], 10)

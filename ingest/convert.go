@@ -9,6 +9,7 @@ import (
 	"math"
 	"slices"
 	"sort"
+	"strconv"
 	"strings"
 	"time"
 
@@ -393,10 +394,10 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		res.Storage["time"] = "explicit clock, one step and time per frame (for common readers)"
 	}
 	if rep.States > 0 {
-		spec.Attrs["trajvault_state_base"] = fmt.Sprint(rep.stateBase(opt.Options))
+		spec.Attrs[trajfile.StateBaseAttr] = fmt.Sprint(rep.stateBase(opt.Options))
 	}
 	if !has(quantity.TimeQ) && opt.Dt > 0 {
-		spec.Storage["time"] = trajfile.Storage{Decimals: -1}
+		spec.Storage["time"] = dtStorage(opt.Dt, max(abs64(rep.FirstStep), abs64(rep.LastStep)))
 	}
 	var files []string
 	for _, f := range rep.Files {
@@ -616,9 +617,9 @@ func (t *TrajReport) momentaStored() bool {
 // reader can print the momenta again digit for digit.
 func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, res *Result) {
 	fm := rep.formats[quantity.MomentumQ]
-	spec.Attrs["trajvault_momentum_format"] = fm.String()
+	spec.Attrs[trajfile.MomentumFormatAttr] = fm.String()
 	if pu := rep.Units[string(quantity.Momentum)]; pu != "" {
-		spec.Attrs["trajvault_momentum_unit"] = pu
+		spec.Attrs[trajfile.MomentumUnitAttr] = pu
 	}
 	mMax, mMin := 0.0, math.Inf(1)
 	for i := range rep.symbols {
@@ -635,6 +636,31 @@ func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, r
 	tol := 0.5 * math.Pow10(-d)
 	spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: d, Tolerance: tol}
 	res.Storage["velocity"] = fmt.Sprintf("scale-offset, %d decimals (momenta / masses, within %g; mass x velocity gives the momenta as printed, %d decimals)", d, tol, fm.Decimals)
+}
+
+// dtStorage is how times computed as step x dt are stored (issue 10): a
+// whole step times dt printed with D decimals has at most D decimals, so
+// scale-offset at D stores it exactly and the recorded format fixed:D
+// prints it as 0.3, not 0.30000000000000004. D is the decimals of dt's
+// shortest decimal form; float64 when the scaled times would not be
+// exact.
+func dtStorage(dt float64, maxStep int64) trajfile.Storage {
+	s := strconv.FormatFloat(dt, 'f', -1, 64)
+	d := 0
+	if i := strings.IndexByte(s, '.'); i >= 0 {
+		d = len(s) - i - 1
+	}
+	if float64(maxStep)*dt*math.Pow10(d) >= maxExactScaled {
+		return trajfile.Storage{Decimals: -1}
+	}
+	return trajfile.Storage{Decimals: d, Format: textnum.Format{Decimals: d}.String()}
+}
+
+func abs64(x int64) int64 {
+	if x < 0 {
+		return -x
+	}
+	return x
 }
 
 // massU is atom i's mass in u, for turning momenta into velocities.

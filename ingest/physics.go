@@ -14,10 +14,8 @@ import (
 )
 
 // aseTimeFs is the time unit of extended-XYZ momenta written by ASE-style
-// tools (common practice: units where length is the angstrom, energy the
-// eV and mass the u), in fs: angstrom sqrt(u/eV) = 1e-10 m sqrt(m_u / e)
-// with m_u from CODATA 2018 and e exact (SI 2019); about 10.1805 fs.
-var aseTimeFs = 1e-10 * math.Sqrt(units.DaltonKg/units.Elementary) / 1e-15
+// tools (units.ASETimeSecond: angstrom sqrt(u/eV)), in fs; about 10.1805.
+var aseTimeFs = units.ASETimeSecond / 1e-15
 
 // aseMomentumUnit is that momentum unit, u angstrom per aseTimeFs, in the
 // unit grammar: a numeric factor times u angstrom fs-1.

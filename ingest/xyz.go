@@ -338,7 +338,37 @@ type xyzSource struct {
 	recipe  *Recipe
 	fmts    formatSet
 	columns map[string]string
+	// unit holds the units named by KEY_unit= comment keys, by unit kind.
+	unit map[string]string
 	notes
+}
+
+// unitKey reads KEY_unit=UNIT, the unit of the per-atom property or
+// comment key KEY (as trajvault's extended-XYZ export writes it, e.g.
+// pos_unit=angstrom forces_unit="hartree bohr-1"), and reports whether
+// key was one. A kind given two different units is an error: numbers are
+// stored as printed, one unit per kind.
+func (s *xyzSource) unitKey(fr *Frame, key, val string, col int) (bool, error) {
+	base, ok := strings.CutSuffix(key, "_unit")
+	if !ok {
+		return false, nil
+	}
+	q := s.columnQuantity(base)
+	if q == "" {
+		q = quantity.CommentKey(base)
+	}
+	kind := string(quantity.UnitKind(q))
+	if kind == "" {
+		return false, nil
+	}
+	if old, ok := s.unit[kind]; ok && old != val {
+		return true, &ParseError{File: s.path, Line: fr.Line + 1, Column: col, Err: detail(ErrHeader, "%s: %s is in %q here and %q before; trajvault stores numbers as printed, so one unit per kind of quantity", key, kind, val, old)}
+	}
+	if s.unit == nil {
+		s.unit = map[string]string{}
+	}
+	s.unit[kind] = val
+	return true, nil
 }
 
 func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
@@ -358,7 +388,7 @@ func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
 func (s *xyzSource) file() string                        { return s.path }
 func (s *xyzSource) provides() map[string]textnum.Format { return s.fmts }
 func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts[quantity.TimeQ] }
-func (s *xyzSource) units() map[string]string            { return nil }
+func (s *xyzSource) units() map[string]string            { return s.unit }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
 
@@ -408,6 +438,9 @@ func (s *xyzSource) next() (*record, error) {
 	// then the recipe's patterns. A recipe's geometry columns map also
 	// names comment keys (e.g. energy: total_energy).
 	set := func(key, val string, col int) error {
+		if done, err := s.unitKey(fr, key, val, col); done || err != nil {
+			return err
+		}
 		q := quantity.CommentKey(key)
 		m, mapped := s.columns[key]
 		if mapped {

@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
 )
 
@@ -132,5 +133,16 @@ func TestProfilesCompile(t *testing.T) {
 	}
 	if _, err := Profile("no-such-profile"); err == nil {
 		t.Error("an unknown profile name was accepted")
+	}
+}
+
+// TestParameterAttrsDocumented: every /parameters attribute convert
+// writes, named by its constant in internal/trajfile, is an element of
+// the documented layout (layout.json, hence layout.md).
+func TestParameterAttrsDocumented(t *testing.T) {
+	for _, name := range []string{trajfile.StateBaseAttr, trajfile.MomentumUnitAttr, trajfile.MomentumFormatAttr} {
+		if _, ok := Current().Find(trajfile.ParametersGroup + "@" + name); !ok {
+			t.Errorf("%s@%s is not in layout.json/layout.md", trajfile.ParametersGroup, name)
+		}
 	}
 }

@@ -42,6 +42,8 @@ type exportOptions struct {
 	format string
 	frame  int
 	json   bool
+	// convention is export.ConventionStored or export.ConventionASE.
+	convention string
 	// formatSet says --format was given (not its default).
 	formatSet bool
 	selectFlags
@@ -51,6 +53,7 @@ func (o *exportOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVarP(&o.out, "output", "o", "", "folder to write, or one file NAME.xyz|.extxyz|.csv|.json (must not exist)")
 	c.Flags().StringVar(&o.format, "format", "xyz", "xyz, extxyz (with velocities, forces, energy), csv (observables per frame), json or npy (NumPy arrays, one file per quantity)")
 	c.Flags().IntVar(&o.frame, "frame", -1, "write one whole frame (all stored quantities) for a restart, e.g. --frame 5000 --format extxyz")
+	c.Flags().StringVar(&o.convention, "convention", export.ConventionStored, "units of the numbers: stored (as converted, digit for digit) or ase (extended XYZ in angstrom, eV, eV/angstrom, u and ASE momenta; implies --format extxyz)")
 	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
 	o.selectFlags.AddFlags(c)
 }
@@ -72,15 +75,36 @@ one NumPy .npy file per quantity (numpy.load reads it without h5py).
 --frame N writes frame N whole (positions, velocities, forces, energies,
 active state, populations, amplitudes where stored) to restart from.
 
+--convention ase writes extended XYZ in the units Python MD toolkits
+read: positions in angstrom, energies in eV (potential energy as
+energy=), forces in eV/angstrom, masses in u and momenta (mass x
+velocity) in u angstrom per angstrom*sqrt(u/eV), a time unit of
+10.1805 fs. Numbers already in those units keep their printed digits
+(momenta too, when the file's velocities came from momenta printed in
+that unit); converted numbers are printed in the shortest form that
+reads back to the same float64.
+
 Exit status: 0 success, 2 usage or I/O error (including a selection
 outside the data; the message says what the file holds).`,
 		Example: `  trajvault export traj-001.h5 -o traj-001-text --format extxyz
   trajvault export run.h5 -o window --frames 500000:501000 --atoms 0-2 --quantities position,total_energy --format npy
-  trajvault export run.h5 -o restart --frame 5000 --format extxyz`,
+  trajvault export run.h5 -o restart --frame 5000 --format extxyz
+  trajvault export md.h5 -o md.extxyz --convention ase`,
 		Args: cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("export: name the output folder with -o, e.g. -o traj-001-text")}
+			}
+			switch o.convention {
+			case export.ConventionStored:
+			case export.ConventionASE:
+				if !c.Flags().Changed("format") {
+					o.format = export.FormatExtXYZ
+				} else if o.format != export.FormatExtXYZ {
+					return &exitError{exitUsage, fmt.Errorf("export: --convention ase writes extended XYZ; use --format extxyz (not %s)", o.format)}
+				}
+			default:
+				return &exitError{exitUsage, fmt.Errorf("export: --convention %q: want stored or ase, e.g. --convention ase", o.convention)}
 			}
 			if c.Flags().Changed("frame") {
 				if o.sel.Frames != "" || o.sel.Time != "" {
@@ -112,19 +136,19 @@ func runExport(g *globals, restart bool, o exportOptions, in string) error {
 	sel := o.selection()
 	var files []string
 	var err error
-	if sel.Empty() && !restart && (o.format == export.FormatXYZ || o.format == export.FormatExtXYZ || o.format == export.FormatCSV) {
+	if sel.Empty() && !restart && o.convention != export.ConventionASE && (o.format == export.FormatXYZ || o.format == export.FormatExtXYZ || o.format == export.FormatCSV) {
 		files, err = export.Export(in, o.out, o.format) // the whole file, as converted
 	} else {
 		if restart {
 			sel.Frames = strconv.Itoa(o.frame)
 		}
-		files, err = export.ExportSelection(in, o.out, export.Options{Format: o.format, Sel: sel, Restart: restart})
+		files, err = export.ExportSelection(in, o.out, export.Options{Format: o.format, Sel: sel, Restart: restart, Convention: o.convention})
 	}
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
 	}
 	if o.json {
-		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": o.format, "files": files})
+		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": o.format, "convention": o.convention, "files": files})
 	}
 	for _, f := range files {
 		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
@@ -170,7 +194,7 @@ func exportFile(g *globals, restart bool, o exportOptions, in, format string) er
 		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
 	}
 	if o.json {
-		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": format, "files": []string{filepath.Base(o.out)}})
+		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": format, "convention": o.convention, "files": []string{filepath.Base(o.out)}})
 	}
 	fmt.Fprintf(g.stdout, "wrote %s\n", o.out)
 	return nil

@@ -30,6 +30,9 @@ func TestExportSelectionExitCodes(t *testing.T) {
 		{"unknown format", []string{"export", f, "-o", out(), "--format", "pdb", "--frames", "1"}, 2, "unknown format; want csv, xyz, extxyz, json, npy"},
 		{"hops in xyz", []string{"export", f, "-o", out(), "--quantities", "position,hops"}, 2, "hops are an event table"},
 		{"frame and frames", []string{"export", f, "-o", out(), "--frame", "1", "--frames", "1:2"}, 2, "drop --frames/--time"},
+		{"ase convention implies extxyz", []string{"export", f, "-o", out(), "--convention", "ase"}, 0, ""},
+		{"ase convention is extxyz only", []string{"export", f, "-o", out(), "--convention", "ase", "--format", "csv"}, 2, "--convention ase writes extended XYZ; use --format extxyz (not csv)"},
+		{"unknown convention", []string{"export", f, "-o", out(), "--convention", "si"}, 2, `--convention "si": want stored or ase`},
 		{"values without --values", []string{"inspect", f, "--frames", "1"}, 2, "add --values"},
 		{"values beyond the end", []string{"inspect", "--values", f, "--frames", "-52"}, 2, "counts back past frame 0"},
 	}

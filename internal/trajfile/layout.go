@@ -80,6 +80,15 @@ const (
 	ToleranceAttr = "trajvault_tolerance"
 	// ProvenanceAttr (on /parameters) holds the provenance record.
 	ProvenanceAttr = "trajvault_provenance"
+	// String attributes of /parameters written by convert
+	// (schema/layout.md, "Precision attributes"): how the logs numbered
+	// electronic states (0 or 1; stored indices are always from 0), and
+	// for velocities derived from momenta (v = p/m, masses in u) the
+	// momenta's unit and printed format, so that m v prints the momenta
+	// again.
+	StateBaseAttr      = "trajvault_state_base"
+	MomentumUnitAttr   = "trajvault_momentum_unit"
+	MomentumFormatAttr = "trajvault_momentum_format"
 
 	// Attributes of H5MD 1.1 groups and datasets.
 	VersionAttr        = "version"         // /h5md and every module

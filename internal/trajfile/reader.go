@@ -157,6 +157,25 @@ func (r *Reader) init(withClock bool) error {
 	return nil
 }
 
+// MassesIn returns the stored masses in unit (e.g. "u"): the stored
+// numbers themselves when the file stores them in unit (factor exactly 1).
+func (r *Reader) MassesIn(unit string) ([]float64, error) {
+	m, _, err := r.f.ReadFloat64(r.Particle(Mass))
+	if err != nil || len(m) != r.N {
+		return nil, fmt.Errorf("no masses for %d atoms", r.N)
+	}
+	f, err := r.unitFactor(r.Particle(Mass), unit)
+	if err != nil {
+		return nil, err
+	}
+	if f != 1 {
+		for i := range m {
+			m[i] *= f
+		}
+	}
+	return m, nil
+}
+
 // MaxStates bounds /parameters/n_states: per frame the couplings hold
 // S*S numbers, so S is kept where S*S fits a read of any sensible frame
 // count (common practice: surface hopping uses a handful of states).

@@ -51,6 +51,17 @@ const (
 	AngstromMetre = 1e-10                    // m (exact)
 )
 
+// ASETimeSecond is the time unit of the units where length is the
+// angstrom, energy the eV and mass the u (common practice in Python MD
+// toolkits, whose extended-XYZ momenta are in u angstrom per this unit):
+//
+//	t = 1 angstrom * sqrt(1 u / 1 eV) = 1e-10 m * sqrt(m_u / e)
+//
+// so that u angstrom^2 t^-2 = eV exactly; m_u is the CODATA 2018 dalton
+// (DaltonKg) and e the exact elementary charge (SI 2019). About
+// 1.01805e-14 s (10.1805 fs).
+var ASETimeSecond = AngstromMetre * math.Sqrt(DaltonKg/Elementary)
+
 // Dim is a physical dimension: exponents of length, mass, time, electric
 // current and temperature. Amount of substance is folded into counts: mol
 // is treated as the number N_A, so "kJ mol-1" is an energy per particle.

@@ -246,3 +246,17 @@ func checkFactors(t *testing.T, cases []factorCase) {
 		}
 	}
 }
+
+// TestASETime: the time unit angstrom sqrt(u/eV) against the CODATA 2018
+// electron volt-atomic mass unit relationship, 1 eV = 1.07354410233e-9 u
+// c^2 (physics.nist.gov/cuu), so t = 1e-10 m / (c sqrt(1.07354410233e-9));
+// 10.1805 fs (common practice, the Python MD toolkits' time unit).
+func TestASETime(t *testing.T) {
+	want := 1e-10 / (SpeedOfLight * math.Sqrt(1.07354410233e-9))
+	if d := ASETimeSecond/want - 1; math.Abs(d) > 1e-10 {
+		t.Errorf("ASETimeSecond = %.12g s, want %.12g s (diff %g)", ASETimeSecond, want, d)
+	}
+	if got := fmt.Sprintf("%.4f", ASETimeSecond/1e-15); got != "10.1805" {
+		t.Errorf("ASETimeSecond = %s fs, want 10.1805", got)
+	}
+}
