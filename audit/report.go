@@ -5,6 +5,7 @@ import (
 	"html/template"
 	"image/color"
 	"io"
+	"math"
 	"path/filepath"
 
 	"gonum.org/v1/plot"
@@ -14,12 +15,8 @@ import (
 	"trajvault/internal/svgplot"
 )
 
-// palette for states and trajectories (colour-blind safe, common
-// practice).
-var palette = []color.RGBA{
-	{0, 114, 178, 255}, {213, 94, 0, 255}, {0, 158, 115, 255}, {204, 121, 167, 255},
-	{86, 180, 233, 255}, {230, 159, 0, 255}, {240, 228, 66, 255}, {0, 0, 0, 255},
-}
+// palette for states (colour-blind safe, common practice).
+var palette = svgplot.Palette
 
 func line(xs, ys []float64) plotter.XYs {
 	pts := make(plotter.XYs, 0, len(xs))
@@ -30,9 +27,10 @@ func line(xs, ys []float64) plotter.XYs {
 	return pts
 }
 
-func (rep *Report) populationPlot() (*plot.Plot, error) {
+func (rep *Report) populationPlot(version string) (*plot.Plot, error) {
 	p := plot.New()
 	p.Title.Text = "Ensemble populations: active-state fraction (solid) and mean |c|^2 (dashed)"
+	svgplot.Caption(p, fmt.Sprintf("%d trajectories", len(rep.Trajectories)), svgplot.Stamp(version))
 	p.X.Label.Text = "time / fs"
 	p.Y.Label.Text = "population"
 	for k := range rep.ByActive {
@@ -51,59 +49,107 @@ func (rep *Report) populationPlot() (*plot.Plot, error) {
 		p.Add(a, c)
 		p.Legend.Add(fmt.Sprintf("state %d", k), a)
 	}
+	p.Y.Min, p.Y.Max = 0, 1
 	return p, nil
 }
 
-func (rep *Report) energyPlot() (*plot.Plot, error) {
+// flaggedBy reports whether the trajectory warns or fails on the check
+// named name.
+func flaggedBy(t *Result, name string) bool {
+	for _, c := range t.Checks {
+		if c.Name == name && (c.Verdict == Warn || c.Verdict == Fail) {
+			return true
+		}
+	}
+	return false
+}
+
+// energyPlot draws every trajectory's deviation: the runs the energy
+// check flags in colour with their names, the others grey under the
+// envelope of all, and the warn and fail thresholds.
+func (rep *Report) energyPlot(version string) (*plot.Plot, error) {
 	p := plot.New()
 	p.Title.Text = "Total-energy deviation E(t) - E(0) per trajectory"
 	p.X.Label.Text = "time / fs"
 	p.Y.Label.Text = "deviation / eV"
-	for i, t := range rep.Trajectories {
-		if t.EnergyDev == nil {
+	var series []svgplot.Series
+	x0, x1, flagged := math.Inf(1), math.Inf(-1), 0
+	for _, t := range rep.Trajectories {
+		if t.EnergyDev == nil || len(t.Times) == 0 {
 			continue
 		}
-		l, err := plotter.NewLine(line(t.Times, t.EnergyDev))
+		s := svgplot.Series{Name: filepath.Base(t.File), X: t.Times, Y: t.EnergyDev, Flagged: flaggedBy(t, "energy")}
+		if s.Flagged {
+			flagged++
+		}
+		series = append(series, s)
+		x0, x1 = math.Min(x0, t.Times[0]), math.Max(x1, t.Times[len(t.Times)-1])
+	}
+	svgplot.Caption(p, fmt.Sprintf("%d trajectories, %d flagged; warn above %g eV, fail above %g eV", len(series), flagged, rep.settings.EnergyWarnEV, rep.settings.EnergyFailEV), svgplot.Stamp(version))
+	if err := svgplot.Ensemble(p, series); err != nil {
+		return nil, err
+	}
+	if len(series) > 0 {
+		w, f := rep.settings.EnergyWarnEV, rep.settings.EnergyFailEV
+		err := svgplot.Thresholds(p, x0, x1, []svgplot.Threshold{
+			{Y: w, Label: fmt.Sprintf("warn +-%g eV", w), Color: palette[4]}, {Y: -w, Label: fmt.Sprintf("warn +-%g eV", w), Color: palette[4]},
+			{Y: f, Label: fmt.Sprintf("fail +-%g eV", f), Color: palette[0]}, {Y: -f, Label: fmt.Sprintf("fail +-%g eV", f), Color: palette[0]},
+		})
 		if err != nil {
 			return nil, err
 		}
-		l.Color = palette[i%len(palette)]
-		p.Add(l)
 	}
 	return p, nil
 }
 
-func (rep *Report) stepPlot() (*plot.Plot, error) {
+// stepPlot draws dt/T per trajectory (numbered from 1, whole-number
+// ticks), the flagged ones in colour, with the T/20 and T/10 lines.
+func (rep *Report) stepPlot(version string) (*plot.Plot, error) {
 	p := plot.New()
-	p.Title.Text = "Time step / shortest period per trajectory (T/20 safe, T/10 limit)"
-	p.X.Label.Text = "trajectory"
+	p.Title.Text = "Time step / shortest period per trajectory"
+	svgplot.Caption(p, "T/20 safe, T/10 limit", svgplot.Stamp(version))
+	p.X.Label.Text = "trajectory (number in the table below)"
 	p.Y.Label.Text = "dt / T"
-	var pts plotter.XYs
+	p.X.Tick.Marker = svgplot.IntegerTicks{}
+	var ok, bad plotter.XYs
 	for i, t := range rep.Trajectories {
 		for _, c := range t.Checks {
 			if c.Name == timeStepName && c.Values["step_over_period"] > 0 {
-				pts = append(pts, plotter.XY{X: float64(i + 1), Y: c.Values["step_over_period"]})
+				pt := plotter.XY{X: float64(i + 1), Y: c.Values["step_over_period"]}
+				if c.Verdict == Warn || c.Verdict == Fail {
+					bad = append(bad, pt)
+				} else {
+					ok = append(ok, pt)
+				}
 			}
 		}
 	}
-	if len(pts) == 0 {
+	if len(ok)+len(bad) == 0 {
 		return nil, nil
 	}
-	s, err := plotter.NewScatter(pts)
-	if err != nil {
-		return nil, err
-	}
-	s.Color = palette[0]
-	p.Add(s)
-	for _, lim := range []float64{0.05, 0.1} {
-		l, err := plotter.NewLine(plotter.XYs{{X: 0.5, Y: lim}, {X: float64(len(rep.Trajectories)) + 0.5, Y: lim}})
+	for _, set := range []struct {
+		pts   plotter.XYs
+		col   color.Color
+		label string
+	}{{ok, svgplot.Median, "not flagged"}, {bad, palette[0], "flagged"}} {
+		if len(set.pts) == 0 {
+			continue
+		}
+		s, err := plotter.NewScatter(set.pts)
 		if err != nil {
 			return nil, err
 		}
-		l.Color = palette[1]
-		l.Dashes = []vg.Length{vg.Points(2), vg.Points(2)}
-		p.Add(l)
+		s.Color = set.col
+		p.Add(s)
+		p.Legend.Add(set.label, s)
 	}
+	n := float64(len(rep.Trajectories))
+	if err := svgplot.Thresholds(p, 0.5, n+0.5, []svgplot.Threshold{
+		{Y: 0.05, Label: "T/20", Color: palette[2]}, {Y: 0.1, Label: "T/10", Color: palette[0]},
+	}); err != nil {
+		return nil, err
+	}
+	p.X.Min, p.X.Max = 0.5, n+0.5
 	p.Y.Min = 0
 	return p, nil
 }
@@ -160,11 +206,8 @@ type flaggedRow struct {
 // plots, no external assets.
 func (rep *Report) WriteHTML(w io.Writer, version string) error {
 	var figs []template.HTML
-	for _, mk := range []func() (*plot.Plot, error){rep.populationPlot, rep.energyPlot, rep.stepPlot} {
-		if mk == nil {
-			continue
-		}
-		p, err := mk()
+	for _, mk := range []func(string) (*plot.Plot, error){rep.populationPlot, rep.energyPlot, rep.stepPlot} {
+		p, err := mk(version)
 		if err != nil {
 			return err
 		}
@@ -217,13 +260,13 @@ func (rep *Report) WriteHTML(w io.Writer, version string) error {
 		"Columns": cols, "Matrix": matrix, "Rules": rules})
 }
 
-// PopulationSVG is the ensemble population plot alone (for dataset
-// cards); nil when the ensemble has no electronic data.
-func (rep *Report) PopulationSVG() ([]byte, error) {
+// PopulationSVG is the ensemble population plot alone (for the data
+// description); nil when the ensemble has no electronic data.
+func (rep *Report) PopulationSVG(version string) ([]byte, error) {
 	if rep.Times == nil {
 		return nil, nil
 	}
-	p, err := rep.populationPlot()
+	p, err := rep.populationPlot(version)
 	if err != nil {
 		return nil, err
 	}
@@ -232,8 +275,8 @@ func (rep *Report) PopulationSVG() ([]byte, error) {
 }
 
 // EnergySVG is the total-energy deviation plot alone.
-func (rep *Report) EnergySVG() ([]byte, error) {
-	p, err := rep.energyPlot()
+func (rep *Report) EnergySVG(version string) ([]byte, error) {
+	p, err := rep.energyPlot(version)
 	if err != nil {
 		return nil, err
 	}

@@ -27,10 +27,6 @@ var palette = []color.RGBA{
 
 var dashed = []vg.Length{vg.Points(4), vg.Points(3)}
 
-// maxPairLines bounds the pairs drawn in the divergence plot; the table
-// lists them all.
-const maxPairLines = 24
-
 // figure is one plot of the report, or the reason it is not drawn.
 type figure struct {
 	Caption string
@@ -47,30 +43,26 @@ func (r *Report) divergencePlot() (*plot.Plot, string, error) {
 	p.X.Label.Text = "time / fs"
 	p.Y.Label.Text = "RMS difference / angstrom"
 	p.Y.Scale, p.Y.Tick.Marker = plot.LogScale{}, plot.LogTicks{}
+	// Every pair: those different from the start in colour and named,
+	// the others grey under the envelope of all (readable at hundreds).
 	drawn, lo, hi := 0, math.Inf(1), math.Inf(-1)
-	for i, pr := range r.Pairs {
-		if drawn == maxPairLines {
-			break
-		}
-		var pts plotter.XYs
-		stride := max(1, len(pr.Curve)/2000)
-		for j := 0; j < len(pr.Curve); j += stride {
-			c := pr.Curve[j]
+	var series []svgplot.Series
+	for _, pr := range r.Pairs {
+		var xs, ys []float64
+		for _, c := range pr.Curve {
 			if c.RMS > 0 && !math.IsInf(c.RMS, 0) && !math.IsNaN(c.RMS) {
-				pts = append(pts, plotter.XY{X: c.Time, Y: c.RMS})
+				xs, ys = append(xs, c.Time), append(ys, c.RMS)
 				lo, hi = math.Min(lo, c.Time), math.Max(hi, c.Time)
 			}
 		}
-		if len(pts) == 0 {
+		if len(xs) == 0 {
 			continue
 		}
-		l, err := plotter.NewLine(pts)
-		if err != nil {
-			return nil, "", err
-		}
-		l.Color = palette[i%len(palette)]
-		p.Add(l)
+		series = append(series, svgplot.Series{Name: pr.Name, X: xs, Y: ys, Flagged: pr.Verdict == Setup})
 		drawn++
+	}
+	if err := svgplot.Ensemble(p, series); err != nil {
+		return nil, "", err
 	}
 	if drawn == 0 {
 		if len(r.Pairs) == 0 {
@@ -235,8 +227,9 @@ func (r *Report) hopPlot() (*plot.Plot, string, error) {
 }
 
 // Figures lists the report's plots in order: divergence, active-state
-// fractions, mean |c|^2, hop times. A figure whose data are absent carries the reason instead.
-func (r *Report) figures() ([]figure, error) {
+// fractions, mean |c|^2, hop times. A figure whose data are absent
+// carries the reason instead.
+func (r *Report) figures(version string) ([]figure, error) {
 	var out []figure
 	for _, f := range []struct {
 		caption string
@@ -250,6 +243,9 @@ func (r *Report) figures() ([]figure, error) {
 		p, why, err := f.make()
 		if err != nil {
 			return nil, err
+		}
+		if p != nil {
+			svgplot.Caption(p, svgplot.Stamp(version))
 		}
 		fig := figure{Caption: f.caption, Missing: why}
 		if p != nil {
@@ -318,7 +314,7 @@ func opt(x *float64, f string) string {
 // WriteHTML writes the comparison as one self-contained HTML file:
 // inline SVG plots, no scripts, no external assets.
 func (r *Report) WriteHTML(w io.Writer, version string) error {
-	figs, err := r.figures()
+	figs, err := r.figures(version)
 	if err != nil {
 		return err
 	}

@@ -7,6 +7,7 @@ import (
 	"io"
 	"math"
 	"sort"
+	"strings"
 
 	"trajvault/internal/elements"
 	"trajvault/internal/finding"
@@ -571,7 +572,12 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		u := t.unitFor(k, opt)
 		if u == "" {
-			t.addUnit(k, "no unit for %s: write it in the table header (e.g. %s[%s]), in the recipe (units: %s: ...), or give --unit %s=%s", k, k, ki.Example, k, k, ki.Example)
+			// Quoted when it holds a space, so the hint works when pasted.
+			flag := string(k) + "=" + ki.Example
+			if strings.Contains(flag, " ") {
+				flag = "'" + flag + "'"
+			}
+			t.addUnit(k, "no unit for %s: write it in the table header (e.g. %s[%s]), in the recipe (units: %s: ...), or give --unit %s", k, k, ki.Example, k, flag)
 			continue
 		}
 		pu, err := units.Parse(u)

@@ -219,3 +219,27 @@ var compareSchemaJSON []byte
 func CompareSchema() (*jsonschema.Schema, error) {
 	return compile("compare.schema.json", compareSchemaJSON)
 }
+
+//go:embed envelope.schema.json
+var envelopeSchemaJSON []byte
+
+// EnvelopeSchema compiles the JSON Schema of every command's --json
+// output: one envelope whose result follows the command's own schema
+// (audit.schema.json, compare.schema.json, or the envelope's $defs).
+func EnvelopeSchema() (*jsonschema.Schema, error) {
+	c := jsonschema.NewCompiler()
+	c.Draft = jsonschema.Draft2020
+	for _, r := range []struct {
+		name string
+		src  []byte
+	}{
+		{"audit.schema.json", auditSchemaJSON},
+		{"compare.schema.json", compareSchemaJSON},
+		{"envelope.schema.json", envelopeSchemaJSON},
+	} {
+		if err := c.AddResource("https://trajvault.invalid/schema/"+r.name, bytes.NewReader(r.src)); err != nil {
+			return nil, err
+		}
+	}
+	return c.Compile("https://trajvault.invalid/schema/envelope.schema.json")
+}

@@ -146,3 +146,44 @@ func TestParameterAttrsDocumented(t *testing.T) {
 		}
 	}
 }
+
+// TestEnvelopeSchema: the envelope schema compiles with the result
+// schemas it refers to, and it can fail: a document of another shape, an
+// audit finding with a compare code, a validate result without files
+// (JSON Schema draft 2020-12, if/then and $ref across resources).
+func TestEnvelopeSchema(t *testing.T) {
+	sch, err := EnvelopeSchema()
+	if err != nil {
+		t.Fatal(err)
+	}
+	doc := func(s string) any {
+		var v any
+		if err := json.Unmarshal([]byte(s), &v); err != nil {
+			t.Fatal(err)
+		}
+		return v
+	}
+	tool := `"tool":{"name":"trajvault","version":"v1"}`
+	cases := []struct {
+		name, doc string
+		ok        bool
+	}{
+		{"validate", `{` + tool + `,"command":"validate","ok":true,"findings":[],"result":{"files":[{"file":"a.h5","layout_version":"1.1","errors":0,"warnings":0}]}}`, true},
+		{"validate without files", `{` + tool + `,"command":"validate","ok":true,"findings":[],"result":{}}`, false},
+		{"no tool", `{"command":"validate","ok":true,"findings":[]}`, false},
+		{"unknown command", `{` + tool + `,"command":"frobnicate","ok":true,"findings":[]}`, false},
+		{"finding without message", `{` + tool + `,"command":"scan","ok":false,"findings":[{"code":"P1","severity":"error"}],"result":{"trajectories":[]}}`, false},
+		{"audit finding with a compare code", `{` + tool + `,"command":"audit","ok":false,"findings":[{"code":"C2","severity":"error","message":"x"}],` +
+			`"result":{"caution":"c","trajectories":[],"ensemble":[],"flagged":0,"verdict":"ok"}}`, false},
+		{"audit", `{` + tool + `,"command":"audit","ok":true,"findings":[{"code":"A1","severity":"note","message":"x"}],` +
+			`"result":{"caution":"c","trajectories":[],"ensemble":[],"flagged":0,"verdict":"ok"}}`, true},
+		{"audit result with findings", `{` + tool + `,"command":"audit","ok":true,"findings":[],` +
+			`"result":{"caution":"c","trajectories":[],"ensemble":[],"flagged":0,"verdict":"ok","findings":[]}}`, false},
+	}
+	for _, c := range cases {
+		err := sch.Validate(doc(c.doc))
+		if (err == nil) != c.ok {
+			t.Errorf("%s: valid=%v, want %v (%v)", c.name, err == nil, c.ok, err)
+		}
+	}
+}

@@ -347,7 +347,7 @@ func (c *checker) unitAttr(path string) {
 	case errors.Is(perr, units.ErrUnknown):
 		c.warnf("V18", at, "%v", perr)
 	case perr == nil && u.Alias:
-		c.warnf("V38", at, "unit %q is read as %q, but it is not the canonical spelling (H5MD unit grammar and the symbol table of schema/layout.md); write %q", u.Text, u.Canonical, u.Canonical)
+		c.warnf("V38", at, "unit %q is read as %q, but it is not the canonical spelling; write %q", u.Text, u.Canonical, u.Canonical)
 	}
 }
 

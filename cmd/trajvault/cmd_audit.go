@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"os"
@@ -29,7 +28,7 @@ type auditOptions struct {
 
 func (o *auditOptions) AddFlags(c *cobra.Command) {
 	d := audit.DefaultSettings
-	c.Flags().BoolVar(&o.json, "json", false, "print the audit as JSON (schema/audit.schema.json)")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result)")
 	c.Flags().StringVar(&o.report, "report", "", "write a self-contained HTML report with plots to this file (must not exist)")
 	c.Flags().BoolVar(&o.noFail, "no-fail", false, "exit 0 even when checks fail")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories audited at once")
@@ -53,8 +52,8 @@ the mean |c|^2. Each check gives ok, warn, fail, cannot tell (JSON
 what it needs, or the check does not apply), the numbers behind it and
 one line of explanation; "ok" never stands for a check that did not run.
 
-Each verdict is also a finding: code A1.. per check (see --json and
-DEVELOPERS.md), severity error for fail, warning for warn and note for
+Each verdict is also a finding: code A1.. per check (listed below; see also
+--json), severity error for fail, warning for warn and note for
 ok, unknown and n/a; A10 is a file that could not be audited (the other
 files are audited regardless). The text output lists the findings that
 need attention; --json lists them all.
@@ -142,19 +141,24 @@ func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) er
 			return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
 		}
 	}
+	failed := finding.Count(rep.Findings, finding.Error) > 0 && !o.noFail
 	if o.json {
-		b, err := json.MarshalIndent(rep, "", "  ")
-		if err != nil {
+		// The report is the result; its findings are the envelope's (the
+		// nil field hides the report's own).
+		result := struct {
+			*audit.Report
+			Findings []finding.Finding `json:"findings,omitempty"`
+		}{Report: rep}
+		if err := printEnvelopeOK(g, "audit", !failed, rep.Findings, result); err != nil {
 			return err
 		}
-		fmt.Fprintln(g.stdout, string(b))
 	} else {
 		printAudit(g, rep)
 		if o.report != "" {
 			fmt.Fprintf(g.stdout, "report: %s\n", o.report)
 		}
 	}
-	if finding.Count(rep.Findings, finding.Error) > 0 && !o.noFail {
+	if failed {
 		return errFindings
 	}
 	return nil
@@ -194,12 +198,10 @@ func printAudit(g *globals, rep *audit.Report) {
 		byFile[f.File] = append(byFile[f.File], f)
 	}
 	for _, t := range rep.Trajectories {
-		// Verdicts print as a reader should read them: "not run" and
-		// "cannot tell", never a bare "n/a" next to the passes.
-		line := fmt.Sprintf("%-5s %s (%d frames)", t.Verdict.Label(), filepath.Base(t.File), t.Frames)
+		line := fmt.Sprintf("%-5s %s (%s)", t.Verdict.Label(), filepath.Base(t.File), plural(t.Frames, "frame"))
 		if n := t.NotRun(); n > 0 {
 			// "ok" covers only the checks that ran (issue 13).
-			line = fmt.Sprintf("%-5s %s (%d frames; %d of %d checks not run)", t.Verdict.Label(), filepath.Base(t.File), t.Frames, n, len(t.Checks))
+			line = fmt.Sprintf("%-5s %s (%s; %d of %d checks not run)", t.Verdict.Label(), filepath.Base(t.File), plural(t.Frames, "frame"), n, len(t.Checks))
 		}
 		fmt.Fprintln(g.stdout, line)
 		for _, f := range byFile[t.File] {

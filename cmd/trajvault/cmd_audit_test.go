@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"os"
 	"path/filepath"
 	"strings"
@@ -9,7 +8,6 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/trajfile"
-	"trajvault/schema"
 )
 
 func TestAuditCommand(t *testing.T) {
@@ -41,18 +39,10 @@ func TestAuditCommand(t *testing.T) {
 	if code, _, _ = runCLI("audit", "--no-fail", bad); code != 0 {
 		t.Errorf("--no-fail: exit %d", code)
 	}
-	// JSON follows schema/audit.schema.json.
+	// JSON is the envelope, its result follows schema/audit.schema.json.
 	code, out, _ = runCLI("audit", "--json", good, bad)
-	sch, err := schema.AuditSchema()
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc any
-	if err := json.Unmarshal([]byte(out), &doc); err != nil {
-		t.Fatalf("exit %d, not JSON: %v", code, err)
-	}
-	if err := sch.Validate(doc); err != nil {
-		t.Error(err)
+	if env := readEnvelope(t, out, nil); code != 1 || env.OK || len(env.Findings) == 0 {
+		t.Errorf("audit --json: exit %d, ok %v, %d findings", code, env.OK, len(env.Findings))
 	}
 	// A file that cannot be audited is an error finding (exit 1); the
 	// other files are audited and the JSON still follows the schema.
@@ -65,11 +55,8 @@ func TestAuditCommand(t *testing.T) {
 		t.Errorf("unreadable file: exit %d\n%s%s", code, out, errs)
 	}
 	code, out, _ = runCLI("audit", "--json", good, junk)
-	if err := json.Unmarshal([]byte(out), &doc); err != nil {
-		t.Fatalf("exit %d, not JSON: %v", code, err)
-	}
-	if err := sch.Validate(doc); err != nil {
-		t.Error(err)
+	if env := readEnvelope(t, out, nil); code != 1 || env.OK {
+		t.Errorf("audit --json with an unreadable file: exit %d, ok %v", code, env.OK)
 	}
 	// The report appears whole, and is never overwritten.
 	rep := filepath.Join(dir, "audit.html")
@@ -78,6 +65,14 @@ func TestAuditCommand(t *testing.T) {
 	}
 	if st, err := os.Stat(rep); err != nil || st.Size() < 10000 {
 		t.Errorf("report missing or small: %v", err)
+	}
+	// The energy plot names the flagged run and shows the thresholds,
+	// the version and the date (issue 15).
+	html, _ := os.ReadFile(rep)
+	for _, want := range []string{">bad.h5</text>", ">1 not flagged</text>", ">warn +-0.1 eV</text>", "2 trajectories, 1 flagged; warn above 0.1 eV, fail above 0.5 eV; trajvault "} {
+		if !strings.Contains(string(html), want) {
+			t.Errorf("report lacks %q", want)
+		}
 	}
 	if code, _, errs = runCLI("audit", "--report", rep, dir); code != 2 || !strings.Contains(errs, "already exists") {
 		t.Errorf("second report: exit %d %s", code, errs)
@@ -141,9 +136,7 @@ func TestAuditNotRunNeverOK(t *testing.T) {
 		}
 		Ensemble []struct{ Check, Verdict string }
 	}
-	if err := json.Unmarshal([]byte(out), &doc); err != nil {
-		t.Fatal(err)
-	}
+	readEnvelope(t, out, &doc)
 	for _, c := range append(doc.Trajectories[0].Checks, doc.Ensemble...) {
 		name := strings.TrimPrefix(c.Check, "flagged: ")
 		for _, n := range notRun {

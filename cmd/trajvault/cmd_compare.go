@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"os"
@@ -11,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/compare"
+	"trajvault/internal/finding"
 )
 
 type compareOptions struct {
@@ -27,7 +27,7 @@ type compareOptions struct {
 func (o *compareOptions) AddFlags(c *cobra.Command) {
 	d := compare.DefaultSettings
 	o.readFlags.AddFlags(c)
-	c.Flags().BoolVar(&o.json, "json", false, "print the comparison as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result)")
 	c.Flags().StringVar(&o.report, "report", "", "also write a self-contained HTML report with plots to `FILE.html` (never overwritten)")
 	c.Flags().Float64Var(&o.threshold, "threshold", d.Threshold, "RMS position difference (angstrom) whose first crossing is reported; top of the growth-rate fit")
 	c.Flags().Float64Var(&o.roundOff, "round-off", d.RoundOff, "largest RMS position difference (angstrom) at the start that counts as round-off")
@@ -106,15 +106,14 @@ are too small to tell, 2 usage or I/O error.`,
 	return c
 }
 
-// compareJSON is the --json envelope: the tool, the inputs, the report.
-type compareJSON struct {
-	Tool struct {
-		Name    string `json:"name"`
-		Version string `json:"version"`
-	} `json:"tool"`
+// compareResult is the result of compare --json: the inputs and the
+// report; the report's findings are the envelope's (the nil field hides
+// them here).
+type compareResult struct {
 	A string `json:"a"`
 	B string `json:"b"`
 	*compare.Report
+	Findings []finding.Finding `json:"findings,omitempty"`
 }
 
 func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) error {
@@ -141,13 +140,9 @@ func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) err
 		}
 	}
 	if o.json {
-		env := compareJSON{A: a, B: b, Report: rep}
-		env.Tool.Name, env.Tool.Version = "trajvault", toolVersion()
-		out, err := json.MarshalIndent(env, "", "  ")
-		if err != nil {
+		if err := printEnvelopeOK(g, "compare", rep.OK(), rep.Findings, compareResult{A: a, B: b, Report: rep}); err != nil {
 			return err
 		}
-		fmt.Fprintln(g.stdout, string(out))
 	} else {
 		printCompare(g, rep)
 		if o.report != "" {

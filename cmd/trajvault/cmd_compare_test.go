@@ -2,7 +2,6 @@ package main
 
 import (
 	"bytes"
-	"encoding/json"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -12,7 +11,6 @@ import (
 	"trajvault/compare"
 	"trajvault/internal/demo"
 	"trajvault/internal/testenv"
-	"trajvault/schema"
 )
 
 // demoDir writes n demo trajectories from seeds first.. into a new folder.
@@ -58,21 +56,11 @@ func TestCompareCommand(t *testing.T) {
 	}
 	checkWidth(t, out)
 
-	// JSON follows compare.schema.json, and the envelope names the tool
-	// and carries the verdict and pairs.
-	sch, err := schema.CompareSchema()
-	if err != nil {
-		t.Fatal(err)
-	}
+	// JSON is the envelope; its result follows compare.schema.json and
+	// carries the verdict and pairs.
 	for _, b := range []string{rerun, other} {
 		_, out, _ := runCLI("compare", "--json", a, b)
-		var v any
-		if err := json.Unmarshal([]byte(out), &v); err != nil {
-			t.Fatalf("not JSON: %v\n%s", err, out)
-		}
-		if err := sch.Validate(v); err != nil {
-			t.Errorf("compare --json %s: %v", filepath.Base(b), err)
-		}
+		readEnvelope(t, out, nil)
 	}
 	// A bundle folder (trajectories under data/trajectories) holding
 	// two of the three: pairs by name, the third listed as unmatched.
@@ -89,16 +77,14 @@ func TestCompareCommand(t *testing.T) {
 	}
 	code, out, _ = runCLI("compare", "--json", a, other)
 	var doc struct {
-		Tool    struct{ Name string }
+		A, B    string
 		Verdict string
 		Pairs   []struct{ Verdict string }
 		Setup   []any `json:"setup_differences"`
 	}
-	if err := json.Unmarshal([]byte(out), &doc); err != nil {
-		t.Fatalf("exit %d, not JSON: %v\n%s", code, err, out)
-	}
-	if doc.Tool.Name != "trajvault" || doc.Verdict == "" || len(doc.Pairs) != 3 || doc.Setup == nil {
-		t.Errorf("JSON: %+v", doc)
+	env := readEnvelope(t, out, &doc)
+	if env.Tool.Name != "trajvault" || env.OK || code != 1 || doc.A != a || doc.B != other || doc.Verdict == "" || len(doc.Pairs) != 3 || doc.Setup == nil {
+		t.Errorf("JSON: exit %d, %+v", code, doc)
 	}
 }
 
@@ -219,24 +205,13 @@ func TestCompareRenamedRerun(t *testing.T) {
 	}
 	checkWidth(t, out)
 	_, out, _ = runCLI("compare", "--json", a, rerun)
-	var v any
-	if err := json.Unmarshal([]byte(out), &v); err != nil {
-		t.Fatalf("not JSON: %v\n%s", err, out)
-	}
-	sch, err := schema.CompareSchema()
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := sch.Validate(v); err != nil {
-		t.Errorf("compare --json: %v", err)
-	}
 	var doc struct {
 		Pairs []struct {
 			MatchedBy string `json:"matched_by"`
 			NameB     string `json:"name_b"`
 		}
 	}
-	json.Unmarshal([]byte(out), &doc)
+	readEnvelope(t, out, &doc) // checked against the envelope and compare schemas
 	if len(doc.Pairs) != 3 || doc.Pairs[2].MatchedBy != compare.ByStart || doc.Pairs[2].NameB != "runc" {
 		t.Errorf("pairs %+v", doc.Pairs)
 	}

@@ -1,8 +1,8 @@
 package main
 
 import (
+	"bytes"
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"os"
@@ -47,7 +47,7 @@ func (o *convertOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringArrayVar(&o.tolerance, "tolerance", nil, "allow lossy storage of a quantity within an absolute bound, e.g. --tolerance velocity=5e-7 (recorded in the file)")
 	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
 	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
-	c.Flags().BoolVar(&o.json, "json", false, "print the result as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result)")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder; above 1, each in a worker process of its own (HDF5 serialises threads)")
 	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "convert time, positions, velocities, forces and energies into units common H5MD readers understand, with an explicit clock (the stored numbers are then conversions, not the printed digits)")
 	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
@@ -63,20 +63,21 @@ func newConvertCommand(g *globals) *cobra.Command {
 	c := &cobra.Command{
 		Use:   "convert SRC... -o OUT.h5",
 		Short: "Convert the text logs of a trajectory (or of an ensemble) into trajectory files",
-		Long: `convert reads one trajectory - a folder, or its files (an XYZ or extended
-XYZ geometry file and column tables) - and writes it as one HDF5 file in
-the trajvault layout. Given an ensemble folder (one subfolder per
-trajectory, or as the recipe says), it writes one file per trajectory into
-the folder named by -o, --jobs at a time; all or nothing: if any
-trajectory has problems, nothing is written. Numbers are stored at exactly the precision printed
-in the logs (scale-offset filter) or losslessly; export prints them back
-digit for digit. Restarted runs that repeat steps keep the later
-occurrence; a cut last frame is an error unless --drop-partial. What was
-dropped is recorded in the file (/parameters@trajvault_dropped); what the
-logs hold but the file does not store is listed ("not stored") and
-recorded in the provenance. A physics cross-check that fails (P17: the
-kinetic energy column against 1/2 m v^2 of the stored data, a sign of a
-wrong unit) refuses the conversion unless --accept-mismatch.
+		Long: `convert reads one trajectory - a folder, or its files (an XYZ or
+extended XYZ geometry file and column tables) - and writes it as one
+HDF5 file in the trajvault layout. Given an ensemble folder (one
+subfolder per trajectory, or as the recipe says), it writes one file per
+trajectory into the folder named by -o, --jobs at a time; all or
+nothing: if any trajectory has problems, nothing is written. Numbers are
+stored at exactly the precision printed in the logs (scale-offset
+filter) or losslessly; export prints them back digit for digit.
+Restarted runs that repeat steps keep the later occurrence; a cut last
+frame is an error unless --drop-partial. What was dropped is recorded in
+the file (/parameters@trajvault_dropped); what the logs hold but the
+file does not store is listed ("not stored") and recorded in the
+provenance. A physics cross-check that fails (P17: the kinetic energy
+column against 1/2 m v^2 of the stored data, a sign of a wrong unit)
+refuses the conversion unless --accept-mismatch.
 
 Exit status: 0 success, 1 the logs have problems (as scan reports them),
 2 usage or I/O error. No output file appears unless conversion succeeded.`,
@@ -104,6 +105,11 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	opt, err := o.options()
 	if err != nil {
 		return err
+	}
+	for _, a := range args {
+		if isHDF5(a) {
+			return &exitError{exitUsage, fmt.Errorf("convert: %s is an HDF5 file, not a text log; convert reads text logs (to check or read a trajectory file: trajvault validate %s, trajvault inspect %s)", a, a, a)}
+		}
 	}
 	opt.AcceptMismatch = o.accept
 	tol, err := parseTolerances(o.tolerance)
@@ -136,7 +142,11 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	}
 	rep, res, err := ingest.ConvertFiles(ctx, args, o.out, o.packOptions(opt, tol))
 	if errors.Is(err, ingest.ErrRefused) {
-		printScan(g, rep)
+		if o.json {
+			printEnvelopeOK(g, "convert", false, rep.Problems, nil) // nothing was made
+		} else {
+			printScan(g, rep)
+		}
 		fmt.Fprintf(g.stderr, "trajvault: convert: %v\n", err)
 		return errFindings
 	}
@@ -144,11 +154,9 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
 	if o.json {
-		b, _ := json.MarshalIndent(res, "", "  ")
-		fmt.Fprintln(g.stdout, string(b))
-		return nil
+		return printEnvelope(g, "convert", nil, convertResult{Output: o.out, Trajectories: []*ingest.Result{res}})
 	}
-	fmt.Fprintf(g.stdout, "%s: %d frames, %d hop attempts -> %s\n", rep.Name, res.Frames, res.Hops, filepath.Clean(res.Output))
+	fmt.Fprintf(g.stdout, "%s: %s, %s -> %s\n", rep.Name, plural(res.Frames, "frame"), plural(res.Hops, "hop attempt"), filepath.Clean(res.Output))
 	var keys []string
 	for k := range res.Storage {
 		keys = append(keys, k)
@@ -192,7 +200,7 @@ func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64)
 // written into a hidden folder renamed into place only when every
 // conversion succeeded.
 func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt ingest.Options, tol map[string]float64, trajs []*ingest.Trajectory) error {
-	reps, err := scanEnsemble(ctx, g, "convert", trajs, opt, o.jobs, o.dropPartial)
+	reps, err := scanEnsemble(ctx, g, "convert", trajs, opt, o.jobs, o.dropPartial, o.json)
 	if err != nil {
 		return err
 	}
@@ -211,47 +219,88 @@ func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt inge
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
 	}
-	printEnsembleResults(g, o, results)
-	return nil
+	return printEnsembleResults(g, o, results)
 }
 
 // printEnsembleResults reports converted files where they now are, not
 // where they were written.
-func printEnsembleResults(g *globals, o convertOptions, results []*ingest.Result) {
+func printEnsembleResults(g *globals, o convertOptions, results []*ingest.Result) error {
 	for _, r := range results {
 		r.Output = filepath.Join(o.out, filepath.Base(r.Output))
 	}
 	if o.json {
-		b, _ := json.MarshalIndent(results, "", "  ")
-		fmt.Fprintln(g.stdout, string(b))
-		return
+		return printEnvelope(g, "convert", nil, convertResult{Output: o.out, Trajectories: results})
 	}
 	frames := 0
 	for _, r := range results {
 		frames += r.Frames
 	}
-	fmt.Fprintf(g.stdout, "%d trajectories, %d frames -> %s/\n", len(results), frames, filepath.Clean(o.out))
+	fmt.Fprintf(g.stdout, "%s, %s -> %s/\n", plural(len(results), "trajectory"), plural(frames, "frame"), filepath.Clean(o.out))
+	return nil
+}
+
+// hdf5Signature opens every HDF5 file's superblock, at byte 0 or at 512,
+// 1024, 2048, ... after a user block (HDF5 File Format Specification,
+// section II.A "Format Signature").
+var hdf5Signature = []byte("\x89HDF\r\n\x1a\n")
+
+// isHDF5 reports whether path is a regular file with the HDF5 signature
+// at one of the places the format allows.
+func isHDF5(path string) bool {
+	f, err := os.Open(path)
+	if err != nil {
+		return false
+	}
+	defer f.Close()
+	if st, err := f.Stat(); err != nil || !st.Mode().IsRegular() {
+		return false
+	}
+	buf := make([]byte, len(hdf5Signature))
+	for off := int64(0); off < 1<<20; off = max(512, off*2) {
+		if _, err := f.ReadAt(buf, off); err != nil {
+			return false
+		}
+		if bytes.Equal(buf, hdf5Signature) {
+			return true
+		}
+	}
+	return false
+}
+
+// convertResult is the result of convert --json: where the files went
+// and, per trajectory, what was stored.
+type convertResult struct {
+	Output       string           `json:"output"`
+	Trajectories []*ingest.Result `json:"trajectories"`
 }
 
 // scanEnsemble scans every trajectory (jobs at a time) and refuses,
 // printing the problems, when any has errors (a cut last frame is
 // allowed with dropPartial): convert and pack write all or nothing.
-func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial bool) ([]*ingest.TrajReport, error) {
+//
+// With jsonOut the problems are printed as the command's envelope.
+func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial, jsonOut bool) ([]*ingest.TrajReport, error) {
 	scanning := newBar(g, "scan", "trajectories")
 	reps, err := ingest.ScanAll(ctx, trajs, opt, jobs, scanning)
 	scanning.Finish()
 	if err != nil {
 		return nil, &exitError{exitUsage, fmt.Errorf("%s: %w", verb, err)}
 	}
-	bad := 0
+	var bad []*ingest.TrajReport
 	for _, r := range reps {
 		if r.Refusal(dropPartial) != nil {
-			printScan(g, r)
-			bad++
+			bad = append(bad, r)
 		}
 	}
-	if bad > 0 {
-		fmt.Fprintf(g.stderr, "trajvault: %s: %d of %d trajectories have problems; nothing written\n", verb, bad, len(trajs))
+	if len(bad) > 0 {
+		if jsonOut {
+			printEnvelopeOK(g, verb, false, scanFindings(bad), nil) // nothing was made
+		} else {
+			for _, r := range bad {
+				printScan(g, r)
+			}
+		}
+		fmt.Fprintf(g.stderr, "trajvault: %s: %d of %s have problems; nothing written\n", verb, len(bad), plural(len(trajs), "trajectory"))
 		return nil, errFindings
 	}
 	return reps, nil

@@ -107,9 +107,9 @@ func TestScanExitCodes(t *testing.T) {
 		t.Errorf("clean: exit %d\n%s", code, out)
 	}
 	code, out, _ := runCLI("scan", "--json", "--unit", "position=angstrom", repo("testdata", "ensembles", "problems"))
-	var reps []map[string]any
-	if code != 1 || json.Unmarshal([]byte(out), &reps) != nil || len(reps) < 12 {
-		t.Errorf("problems: exit %d, %d reports", code, len(reps))
+	var res struct{ Trajectories []map[string]any }
+	if env := readEnvelope(t, out, &res); code != 1 || len(res.Trajectories) < 12 || len(env.Findings) == 0 {
+		t.Errorf("problems: exit %d, %d reports", code, len(res.Trajectories))
 	}
 }
 
@@ -169,9 +169,11 @@ func TestOutputsNeverTouchUserPartial(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("convert: %s", errs)
 	}
-	var results []struct{ Output string }
-	if err := json.Unmarshal([]byte(out), &results); err != nil || len(results) != 2 {
-		t.Fatalf("convert --json: %v\n%s", err, out)
+	var res struct{ Trajectories []struct{ Output string } }
+	readEnvelope(t, out, &res)
+	results := res.Trajectories
+	if len(results) != 2 {
+		t.Fatalf("convert --json: %s", out)
 	}
 	for _, r := range results {
 		if _, err := os.Stat(r.Output); err != nil {
@@ -243,4 +245,69 @@ func TestConvertForReaders(t *testing.T) {
 			t.Errorf("last frame, coordinate %d: library %v, trajvault %v", i, p[i], x[i])
 		}
 	}
+}
+
+// TestHintsWorkWhenPasted (issue 15): the unit hints of scan are flags
+// that work when pasted into a shell (a unit with a space was unquoted:
+// "accepts 1 arg(s), received 3"); an HDF5 file given to convert is named
+// as such instead of "bad header: column ...".
+func TestHintsWorkWhenPasted(t *testing.T) {
+	logs := filepath.Join(t.TempDir(), "logs")
+	if code, _, errs := runCLI("demo", "--text", "--trajectories", "1", "--steps", "30", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	traj := filepath.Join(logs, "traj-001")
+	code, out, _ := runCLI("scan", "--json", traj)
+	env := readEnvelope(t, out, nil)
+	args := []string{"scan", traj}
+	for _, f := range env.Findings {
+		if f.Code != "P8" {
+			continue
+		}
+		_, pasted, ok := strings.Cut(f.Message, "give ")
+		if !ok {
+			t.Fatalf("P8 without a hint: %s", f.Message)
+		}
+		args = append(args, shellWords(pasted)...)
+	}
+	if code != 1 || len(args) < 6 {
+		t.Fatalf("expected P8 for position, velocity and force: exit %d, args %v", code, args)
+	}
+	code, out, errs := runCLI(args...)
+	if strings.Contains(out, "P8") || strings.Contains(errs, "accepts") {
+		t.Errorf("hints pasted %v: exit %d\n%s%s", args, code, out, errs)
+	}
+	h5 := demoFile(t)
+	code, _, errs = runCLI("convert", h5, "-o", filepath.Join(t.TempDir(), "x.h5"))
+	if code != 2 || !strings.Contains(errs, "is an HDF5 file, not a text log") || strings.Contains(errs, "bad header") {
+		t.Errorf("convert of an HDF5 file: exit %d, %q", code, errs)
+	}
+}
+
+// shellWords splits s as a POSIX shell splits an unquoted command line
+// with single quotes (IEEE Std 1003.1, Shell Command Language, 2.2.2
+// Single-Quotes, 2.6.5 Field Splitting).
+func shellWords(s string) []string {
+	var words []string
+	var cur strings.Builder
+	in, quoted := false, false
+	for _, r := range s {
+		switch {
+		case r == '\'':
+			quoted, in = !quoted, true
+		case r == ' ' && !quoted:
+			if in {
+				words = append(words, cur.String())
+				cur.Reset()
+				in = false
+			}
+		default:
+			cur.WriteRune(r)
+			in = true
+		}
+	}
+	if in {
+		words = append(words, cur.String())
+	}
+	return words
 }

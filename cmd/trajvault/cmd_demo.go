@@ -1,6 +1,7 @@
 package main
 
 import (
+	_ "embed"
 	"errors"
 	"fmt"
 	"os"
@@ -38,7 +39,7 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
 	c.Flags().IntVar(&o.steps, "steps", demo.DefaultOptions.Steps, "integration steps per trajectory")
 	c.Flags().Uint64Var(&o.seed, "seed", 1, "seed of the first trajectory (the others follow)")
-	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, read with testdata/recipes/tarnol.yaml) instead of HDF5 files")
+	c.Flags().BoolVar(&o.text, "text", false, "write the legacy text logs (one folder per trajectory, and the recipe that reads them, DIR/recipe.yaml) instead of HDF5 files")
 	c.Flags().IntVar(&o.stride, "stride", 1, "with --text: write every n-th step")
 	c.Flags().IntVar(&o.decimals, "decimals", 8, "with --text: decimals of the positions")
 	c.Flags().Float64Var(&o.dt, "dt", demo.DefaultOptions.DtFs, "integration step in fs (a step too large for the model is a fault the audit sees)")
@@ -53,6 +54,15 @@ func (o *demoOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.startLower, "start-lower", false, "scenario: start on the lower state (thermal dynamics) instead of the upper one")
 	c.Flags().IntVar(&o.molecules, "molecules", 1, "with --text: copies of the molecule in the geometry (for benchmarks of larger systems)")
 }
+
+// demoRecipe is the recipe of the demo's text logs, written beside them
+// (a copy of testdata/recipes/tarnol.yaml; TestDemoRecipe keeps the two
+// equal).
+//
+//go:embed demo_recipe.yaml
+var demoRecipe []byte
+
+const demoRecipeName = "recipe.yaml"
 
 func newDemoCommand(g *globals) *cobra.Command {
 	var o demoOptions
@@ -107,6 +117,14 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 			return &exitError{exitUsage, fmt.Errorf("demo: %w", err)}
 		}
 	}
+	if o.text {
+		// The logs come with their recipe, so that the hint below works
+		// for a user who has the program and nothing else.
+		if err := os.WriteFile(filepath.Join(tmp, demoRecipeName), demoRecipe, 0o644); err != nil {
+			os.RemoveAll(tmp)
+			return &exitError{exitUsage, fmt.Errorf("demo: %w", err)}
+		}
+	}
 	if err := os.Rename(tmp, dir); err != nil {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
@@ -116,12 +134,15 @@ func runDemo(g *globals, o demoOptions, dir string) error {
 		kind = "text-log folders"
 	}
 	if o.json {
-		return printEnvelope(g, "demo", nil, map[string]any{"output": dir, "trajectories": o.trajectories, "kind": kind})
+		result := map[string]any{"output": dir, "trajectories": o.trajectories, "kind": kind}
+		if o.text {
+			result["recipe"] = filepath.Join(dir, demoRecipeName)
+		}
+		return printEnvelope(g, "demo", nil, result)
 	}
-	noun := "trajectory"
-	if o.trajectories != 1 {
-		noun = "trajectories"
+	fmt.Fprintf(g.stdout, "wrote %s (%s) to %s\n", plural(o.trajectories, "invented demo trajectory"), kind, dir)
+	if o.text {
+		fmt.Fprintf(g.stdout, "read them with: trajvault scan --recipe %s %s\n", filepath.Join(dir, demoRecipeName), dir)
 	}
-	fmt.Fprintf(g.stdout, "wrote %d invented demo %s (%s) to %s\n", o.trajectories, noun, kind, dir)
 	return nil
 }

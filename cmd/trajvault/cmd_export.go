@@ -87,7 +87,8 @@ reads back to the same float64.
 Exit status: 0 success, 2 usage or I/O error (including a selection
 outside the data; the message says what the file holds).`,
 		Example: `  trajvault export traj-001.h5 -o traj-001-text --format extxyz
-  trajvault export run.h5 -o window --frames 500000:501000 --atoms 0-2 --quantities position,total_energy --format npy
+  trajvault export run.h5 -o window --frames 500000:501000 --atoms 0-2 \
+    --quantities position,total_energy --format npy
   trajvault export run.h5 -o restart --frame 5000 --format extxyz
   trajvault export md.h5 -o md.extxyz --convention ase`,
 		Args: cobra.ExactArgs(1),

@@ -57,7 +57,7 @@ names every field that is wrong and what is expected.
 
 Exit status: 0 success (or a valid file), 1 the file has problems,
 2 usage or I/O error.`,
-		Example: "  trajvault init --title \"Photodissociation of tarnol\" --creator \"Doe, Jane|0000-0002-1825-0097|Tarn Valley University\"\n  trajvault init --check deposit.yaml",
+		Example: "  trajvault init --title \"Photodissociation of tarnol\" \\\n    --creator \"Doe, Jane|0000-0002-1825-0097|Tarn Valley University\"\n  trajvault init --check deposit.yaml",
 		Args:    cobra.MaximumNArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if len(args) == 1 {

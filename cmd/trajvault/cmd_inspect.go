@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"errors"
 	"fmt"
 	"path"
@@ -22,7 +21,7 @@ type inspectOptions struct {
 }
 
 func (o *inspectOptions) AddFlags(c *cobra.Command) {
-	c.Flags().BoolVar(&o.json, "json", false, "print the summary (or, with --values, the values) as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result); with --values, the values as JSON")
 	c.Flags().BoolVar(&o.values, "values", false, "print the values of a selection (CSV, or JSON with --json) instead of the summary")
 	o.selectFlags.AddFlags(c)
 }
@@ -46,7 +45,8 @@ Exit status: 0 success, 2 the file could not be read or the selection
 is outside the data (the message says what the file holds).`,
 		Example: `  trajvault inspect run-001.h5
   trajvault inspect --json run-001.h5
-  trajvault inspect --values --frames 100:110 --atoms O --quantities position,total_energy run-001.h5`,
+  trajvault inspect --values --frames 100:110 --atoms O \
+    --quantities position,total_energy run-001.h5`,
 		Args: cobra.MinimumNArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			for _, f := range []string{"frames", "time", "atoms", "quantities", "states"} {
@@ -63,7 +63,7 @@ is outside the data (the message says what the file holds).`,
 				}
 				return runValues(g, o, args[0])
 			}
-			if o.json && len(args) > 1 {
+			if o.json {
 				return inspectJSON(g, args)
 			}
 			for i, a := range args {
@@ -81,7 +81,8 @@ is outside the data (the message says what the file holds).`,
 	return c
 }
 
-// inspectJSON prints the summaries of several files as one JSON array.
+// inspectJSON prints the summaries of the files, in the order given, as
+// the result of one envelope.
 func inspectJSON(g *globals, paths []string) error {
 	var all []*trajfile.Summary
 	for _, p := range paths {
@@ -91,26 +92,13 @@ func inspectJSON(g *globals, paths []string) error {
 		}
 		all = append(all, s)
 	}
-	b, err := json.MarshalIndent(all, "", "  ")
-	if err != nil {
-		return err
-	}
-	_, err = fmt.Fprintln(g.stdout, string(b))
-	return err
+	return printEnvelope(g, "inspect", nil, map[string]any{"files": all})
 }
 
 func runInspect(g *globals, o inspectOptions, path string) error {
 	s, err := trajfile.Summarize(path)
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
-	}
-	if o.json {
-		b, err := json.MarshalIndent(s, "", "  ")
-		if err != nil {
-			return err
-		}
-		fmt.Fprintln(g.stdout, string(b))
-		return nil
 	}
 	w := tabwriter.NewWriter(g.stdout, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(w, "file\t%s\n", s.File)

@@ -46,7 +46,7 @@ func TestInspectValues(t *testing.T) {
 }
 
 // TestInspectSeveralFiles: inspect takes several files (issue 15), one
-// summary each, or one JSON array with --json.
+// summary each, or one envelope with both summaries with --json.
 func TestInspectSeveralFiles(t *testing.T) {
 	a, b := demoFile(t), demoFile(t)
 	code, out, errs := runCLI("inspect", a, b)
@@ -54,8 +54,8 @@ func TestInspectSeveralFiles(t *testing.T) {
 		t.Fatalf("exit %d\n%s%s", code, out, errs)
 	}
 	code, out, _ = runCLI("inspect", "--json", a, b)
-	var all []map[string]any
-	if code != 0 || json.Unmarshal([]byte(out), &all) != nil || len(all) != 2 {
+	var all struct{ Files []struct{ File string } }
+	if readEnvelope(t, out, &all); code != 0 || len(all.Files) != 2 || all.Files[0].File != a || all.Files[1].File != b {
 		t.Errorf("inspect --json of two files: exit %d, %q", code, out)
 	}
 }

@@ -122,7 +122,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, false)
+	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, false, o.json)
 	if err != nil {
 		return err
 	}
@@ -188,10 +188,10 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		for _, c := range rep.Ensemble {
 			bo.AuditLines = append(bo.AuditLines, fmt.Sprintf("%s: %s - %s", c.Name, c.Verdict, c.Summary))
 		}
-		if svg, err := rep.PopulationSVG(); err == nil && svg != nil {
+		if svg, err := rep.PopulationSVG(toolVersion()); err == nil && svg != nil {
 			bo.Plots["populations.svg"] = svg
 		}
-		if svg, err := rep.EnergySVG(); err == nil {
+		if svg, err := rep.EnergySVG(toolVersion()); err == nil {
 			bo.Plots["energy-deviation.svg"] = svg
 		}
 	}
@@ -230,10 +230,10 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	for i, r := range made {
 		if len(made) > 1 {
-			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%d trajectories)\n", i+1, len(made), r.Dir, r.Trajectories)
+			fmt.Fprintf(g.stdout, "bundle %d of %d: %s (%s)\n", i+1, len(made), r.Dir, plural(r.Trajectories, "trajectory"))
 			continue
 		}
-		fmt.Fprintf(g.stdout, "bundle: %s (%d trajectories; BagIt 1.0, %s)\nabout:  %s (data description)\n", r.Dir, r.Trajectories, strings.Join(bo.Algorithms, ", "), r.Description)
+		fmt.Fprintf(g.stdout, "bundle: %s (%s; BagIt 1.0, %s)\nabout:  %s (data description)\n", r.Dir, plural(r.Trajectories, "trajectory"), strings.Join(bo.Algorithms, ", "), r.Description)
 		if r.Archive != "" {
 			fmt.Fprintf(g.stdout, "upload: %s\n", r.Archive)
 		}

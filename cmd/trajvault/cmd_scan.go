@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
 	"runtime"
 	"sort"
@@ -11,6 +10,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/ingest"
+	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 )
 
@@ -21,7 +21,7 @@ type scanOptions struct {
 
 func (o *scanOptions) AddFlags(c *cobra.Command) {
 	o.readFlags.AddFlags(c)
-	c.Flags().BoolVar(&o.json, "json", false, "print the reports as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result)")
 }
 
 func newScanCommand(g *globals) *cobra.Command {
@@ -66,16 +66,14 @@ func runScan(ctx context.Context, g *globals, o scanOptions, dir string) error {
 		problems += r.Findings()
 	}
 	if o.json {
-		b, err := json.MarshalIndent(reps, "", "  ")
-		if err != nil {
+		if err := printEnvelopeOK(g, "scan", problems == 0, scanFindings(reps), scanResult(reps)); err != nil {
 			return err
 		}
-		fmt.Fprintln(g.stdout, string(b))
 	} else {
 		for _, r := range reps {
 			printScan(g, r)
 		}
-		fmt.Fprintf(g.stdout, "%d trajectories, %s\n", len(reps), plural(problems, "problem"))
+		fmt.Fprintf(g.stdout, "%s, %s\n", plural(len(reps), "trajectory"), plural(problems, "problem"))
 	}
 	if problems > 0 {
 		return errFindings
@@ -83,20 +81,46 @@ func runScan(ctx context.Context, g *globals, o scanOptions, dir string) error {
 	return nil
 }
 
-func printScan(g *globals, r *ingest.TrajReport) {
-	fmt.Fprintf(g.stdout, "%s: %d atoms (%s), %d frames, steps %d..%d, time %g..%g %s", r.Name, r.Atoms, r.Formula, r.Frames, r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
-	if r.States > 0 {
-		fmt.Fprintf(g.stdout, ", %d states, %d hop attempts", r.States, r.Hops)
+// scanTraj is one trajectory in the result of scan --json; its problems
+// are the envelope's findings (the nil field hides the report's own).
+type scanTraj struct {
+	*ingest.TrajReport
+	Problems []finding.Finding `json:"problems,omitempty"`
+}
+
+func scanResult(reps []*ingest.TrajReport) map[string]any {
+	out := make([]scanTraj, len(reps))
+	for i, r := range reps {
+		out[i] = scanTraj{TrajReport: r}
 	}
-	fmt.Fprintln(g.stdout)
+	return map[string]any{"trajectories": out}
+}
+
+// scanFindings are the problems of every trajectory, in trajectory order.
+func scanFindings(reps []*ingest.TrajReport) []finding.Finding {
+	var all []finding.Finding
+	for _, r := range reps {
+		all = append(all, r.Problems...)
+	}
+	return all
+}
+
+// printScan prints one trajectory's report in lines of at most 80
+// columns.
+func printScan(g *globals, r *ingest.TrajReport) {
+	head := fmt.Sprintf("%s: %s (%s), %s, steps %d..%d, time %g..%g %s", r.Name, plural(r.Atoms, "atom"), r.Formula, plural(r.Frames, "frame"), r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
+	if r.States > 0 {
+		head += fmt.Sprintf(", %s, %s", plural(r.States, "state"), plural(r.Hops, "hop attempt"))
+	}
+	wrap(g, head, "")
 	for _, f := range r.Files {
 		switch {
 		case f.Records == 0 && f.Hops > 0:
-			fmt.Fprintf(g.stdout, "  %-6s %s: %d hop events\n", f.Format, f.File, f.Hops)
+			wrap(g, fmt.Sprintf("%-6s %s: %s", f.Format, f.File, plural(f.Hops, "hop event")), "  ")
 		case f.Records != f.Kept:
-			fmt.Fprintf(g.stdout, "  %-6s %s: %d records, %d kept\n", f.Format, f.File, f.Records, f.Kept)
+			wrap(g, fmt.Sprintf("%-6s %s: %s, %d kept", f.Format, f.File, plural(f.Records, "record"), f.Kept), "  ")
 		default:
-			fmt.Fprintf(g.stdout, "  %-6s %s: %d records\n", f.Format, f.File, f.Records)
+			wrap(g, fmt.Sprintf("%-6s %s: %s", f.Format, f.File, plural(f.Records, "record")), "  ")
 		}
 	}
 	var qs []string
@@ -109,11 +133,30 @@ func printScan(g *globals, r *ingest.TrajReport) {
 	}
 	sort.Strings(qs)
 	if len(qs) > 0 {
-		fmt.Fprintf(g.stdout, "  precision: %s\n", strings.Join(qs, "; "))
+		wrapItems(g, "precision: ", qs, "  ")
 	}
 	for _, p := range r.Problems {
-		fmt.Fprintf(g.stdout, "  %s\n", p)
+		wrap(g, p.String(), "  ")
 	}
+}
+
+// wrapItems prints label and items joined by "; " in lines of at most 80
+// columns, breaking only between items, continuation lines indented two
+// columns further.
+func wrapItems(g *globals, label string, items []string, indent string) {
+	line := indent + label
+	for i, it := range items {
+		sep := "; "
+		if i == len(items)-1 {
+			sep = ""
+		}
+		if i > 0 && len(line)+len(it)+len(sep) > 80 {
+			fmt.Fprintln(g.stdout, strings.TrimRight(line, " "))
+			line = indent + "  "
+		}
+		line += it + sep
+	}
+	fmt.Fprintln(g.stdout, line)
 }
 
 // commandContext is the command's context (cancelled on Ctrl-C once main

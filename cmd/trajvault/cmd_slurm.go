@@ -104,7 +104,7 @@ func runSlurmConvert(g *globals, o slurmOptions, root string) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return &exitError{exitUsage, err}
 	}
-	flags := shellWords(o.workerArgs)
+	flags := quoteWords(o.workerArgs)
 	var extra strings.Builder
 	if wd != "" {
 		// Relative paths among the flags (a recipe) mean what they mean here.
@@ -177,7 +177,7 @@ func shellQuote(s string) string {
 	return "'" + strings.ReplaceAll(s, "'", `'\''`) + "'"
 }
 
-func shellWords(ws []string) string {
+func quoteWords(ws []string) string {
 	q := make([]string, len(ws))
 	for i, w := range ws {
 		q[i] = shellQuote(w)

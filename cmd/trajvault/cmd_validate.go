@@ -6,6 +6,8 @@ import (
 	"errors"
 	"fmt"
 	"os"
+	"path/filepath"
+	"sort"
 	"strconv"
 	"strings"
 	"time"
@@ -13,6 +15,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/internal/bagit"
+	"trajvault/internal/finding"
 	"trajvault/internal/h5"
 	"trajvault/internal/isolate"
 	"trajvault/validate"
@@ -48,7 +51,7 @@ const (
 )
 
 func (o *validateOptions) AddFlags(c *cobra.Command) {
-	c.Flags().BoolVar(&o.json, "json", false, "print the report as JSON (schema/findings.schema.json); one object per line for several files")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document for the whole run (tool, command, ok, findings, result)")
 	c.Flags().StringVar(&o.profile, "profile", "", "rules for files: h5md or trajvault (default: as each file claims); for bundles also the funder profile: minimal (default), fair, eu-grant or a JSON Schema file; both: trajvault,fair")
 	c.Flags().Int64Var(&o.maxMemoryMiB, "max-memory", defaultWorkerMemoryMiB, "address space of the process reading each file, in MiB (X3 when reached)")
 	c.Flags().DurationVar(&o.timeLimit, "time-limit", defaultWorkerTime, "time allowed for reading each file or bundle, e.g. 90s or 1h (X2 when reached)")
@@ -112,20 +115,25 @@ func (o *validateOptions) parseProfile() error {
 func newValidateCommand(g *globals) *cobra.Command {
 	var o validateOptions
 	c := &cobra.Command{
-		Use:   "validate FILE.h5|BUNDLE [...]",
+		Use:   "validate FILE.h5|DIR|BUNDLE...",
 		Short: "Check trajectory files, or whole deposit bundles",
 		Long: `validate checks each file against the H5MD 1.1 rules and the trajvault
-layout (schema/layout.md): structure, types and shapes, units, monotone
-steps and times, finite values, and the electronic-state module. Every
-finding has a stable code (V1.., E1.., and R1.. for the provenance record
-of files trajvault made), a severity, the HDF5 path and what to do about
-it. Repeats of one rule at one place are folded ("and N more like this").
+layout: structure, types and shapes, units, monotone steps and times,
+finite values, and the electronic-state module. Every finding has a
+stable code (V1.., E1.., and R1.. for the provenance record of files
+trajvault made), a severity, the HDF5 path and what to do about it.
+Repeats of one rule at one place are folded ("and N more like this").
 
 Given a bundle - a BagIt folder, or a .tar.zst or .zip of one, read
 without unpacking - it checks completeness and validity per RFC 8493
 (every checksum), paths that would leave the bag, every trajectory file,
 the RO-Crate and DataCite metadata and a funder profile (--profile).
 Bundle findings have codes B (bag) and M (metadata).
+
+A folder that is not a bag stands for its .h5 files. Several files,
+folders and bundles can be named at once; each gets its report. With
+--json the whole run is one JSON document; on a terminal a progress bar
+counts the files (never with --quiet or when stderr is piped).
 
 A clean report says the file is well-formed and labelled, not that the
 simulation behind it is sound.
@@ -141,10 +149,10 @@ dataset sources) is never opened (V43).
 Exit status: 0 no errors (warnings and notes allowed), 1 errors found
 (X1-X3 included), 2 a file could not be read (missing, empty, not HDF5,
 truncated) or a usage error.`,
-		Example: "  trajvault validate run-001.h5\n  trajvault validate --profile h5md other-writer.h5\n  trajvault validate --profile trajvault,fair bundle\n  trajvault validate --json runs/*.h5",
+		Example: "  trajvault validate run-001.h5\n  trajvault validate --profile h5md other-writer.h5\n  trajvault validate --profile trajvault,fair bundle\n  trajvault validate --json runs/",
 		Args: func(c *cobra.Command, args []string) error {
 			if len(args) == 0 {
-				return &exitError{exitUsage, errors.New("validate: name at least one file, e.g. trajvault validate run-001.h5")}
+				return &exitError{exitUsage, errors.New("validate: name at least one file, folder or bundle, e.g. trajvault validate run-001.h5")}
 			}
 			return nil
 		},
@@ -155,38 +163,112 @@ truncated) or a usage error.`,
 	return c
 }
 
+// validateInputs expands the arguments: a bundle (a BagIt folder or an
+// archive of one) and a file stay as given; any other folder stands for
+// its .h5 files, sorted, as audit reads it.
+func validateInputs(args []string) ([]string, error) {
+	var out []string
+	for _, a := range args {
+		st, err := os.Stat(a)
+		if err != nil || !st.IsDir() || validate.IsBundle(a) {
+			out = append(out, a) // a missing file is reported by its worker
+			continue
+		}
+		m, _ := filepath.Glob(filepath.Join(a, "*.h5"))
+		if len(m) == 0 {
+			return nil, fmt.Errorf("%s: a folder with no .h5 files and not a BagIt bag (no %s); name trajectory files, a folder of them or a bundle", a, bagit.DeclarationFile)
+		}
+		sort.Strings(m)
+		out = append(out, m...)
+	}
+	return out, nil
+}
+
+// validateResult is the result of validate --json: each report without
+// its findings, which are the envelope's.
+type validateResult struct {
+	Files      []validateFile   `json:"files"`
+	Unreadable []validateUnread `json:"unreadable,omitempty"`
+}
+
+type validateFile struct {
+	File          string `json:"file"`
+	LayoutVersion string `json:"layout_version"`
+	Profile       string `json:"profile,omitempty"`
+	Errors        int    `json:"errors"`
+	Warnings      int    `json:"warnings"`
+	Notes         int    `json:"notes,omitempty"`
+}
+
+type validateUnread struct {
+	File    string `json:"file"`
+	Message string `json:"message"`
+}
+
 // runValidate checks each file in a worker process of its own (see
-// validateOne), one after the other.
-func runValidate(ctx context.Context, g *globals, o validateOptions, files []string) error {
+// validateOne), one after the other, with a progress bar on a terminal.
+// Text reports are printed as they come; --json prints one envelope at
+// the end.
+func runValidate(ctx context.Context, g *globals, o validateOptions, args []string) error {
 	exe, err := os.Executable()
 	if err != nil {
 		return fmt.Errorf("validate: cannot find this program to start workers: %w", err)
 	}
-	failed, unread := false, 0
+	files, err := validateInputs(args)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("validate: %w", err)}
+	}
+	checking := newBar(g, "validate", "files")
+	checking.SetTotal(int64(len(files)))
+	defer checking.Finish()
+	failed := false
+	res := validateResult{Files: []validateFile{}}
+	var all []finding.Finding
 	for _, path := range files {
 		rep, msg, err := validateOne(ctx, exe, o, path)
 		if err != nil {
 			return err
 		}
+		checking.Clear() // the bar is drawn again by the next Add
 		if rep == nil {
-			fmt.Fprintf(g.stderr, "trajvault: validate: %s\n", msg)
-			unread++
+			res.Unreadable = append(res.Unreadable, validateUnread{path, msg})
+			if !o.json {
+				fmt.Fprintf(g.stderr, "trajvault: validate: %s\n", msg)
+			}
+			checking.Add(1)
 			continue
 		}
 		if !rep.OK() {
 			failed = true
 		}
-		if o.json {
-			b, err := json.Marshal(rep)
-			if err != nil {
-				return err
+		res.Files = append(res.Files, validateFile{rep.File, rep.LayoutVersion, rep.Profile, rep.Errors, rep.Warnings, rep.Notes})
+		for _, f := range rep.Findings {
+			// Inside a bundle a finding names the file in the bag; the
+			// envelope names it from where the user stands.
+			switch {
+			case f.File == "":
+				f.File = rep.File
+			case f.File != rep.File && validate.IsBundle(rep.File):
+				f.File = rep.File + "/" + f.File
 			}
-			fmt.Fprintln(g.stdout, string(b))
-			continue
+			all = append(all, f)
 		}
-		printReport(g, rep)
+		if !o.json {
+			printReport(g, rep)
+		}
+		checking.Add(1)
 	}
-	if unread > 0 {
+	checking.Finish()
+	if o.json {
+		if err := printEnvelopeOK(g, "validate", !failed && len(res.Unreadable) == 0, all, res); err != nil {
+			return err
+		}
+	}
+	if len(res.Unreadable) > 0 {
+		if o.json {
+			// The message is in the envelope; exit status 2 says the rest.
+			return &exitError{exitUsage, fmt.Errorf("validate: %s", plural(len(res.Unreadable), "file")+" could not be read")}
+		}
 		return errReported
 	}
 	if failed {
@@ -244,17 +326,29 @@ func printReport(g *globals, rep *validate.Report) {
 	if rep.Profile != "" {
 		rules = ", " + rep.Profile + " profile"
 	}
+	// The header line stays whole (a long path is what it is); findings
+	// wrap at 80 columns.
 	fmt.Fprintf(g.stdout, "%s: %s, %s (layout %s%s)\n", rep.File, verdict, counts, rep.LayoutVersion, rules)
 	for _, f := range rep.Findings {
-		fmt.Fprintf(g.stdout, "  %s\n", f)
+		wrap(g, f.String(), "  ")
 	}
 }
 
+// plural counts word: "1 file", "2 files", "0 trajectories" (English:
+// a consonant and y take -ies, s/x/ch/sh take -es; common practice).
 func plural(n int, word string) string {
 	if n == 1 {
 		return "1 " + word
 	}
-	return fmt.Sprintf("%d %ss", n, word)
+	switch {
+	case strings.HasSuffix(word, "y") && len(word) > 1 && !strings.ContainsAny(word[len(word)-2:len(word)-1], "aeiou"):
+		word = word[:len(word)-1] + "ies"
+	case strings.HasSuffix(word, "s") || strings.HasSuffix(word, "x") || strings.HasSuffix(word, "ch") || strings.HasSuffix(word, "sh"):
+		word += "es"
+	default:
+		word += "s"
+	}
+	return fmt.Sprintf("%d %s", n, word)
 }
 
 // fixityOne checks a bundle's completeness and checksums in this process:

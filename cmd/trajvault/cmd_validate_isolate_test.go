@@ -1,7 +1,6 @@
 package main
 
 import (
-	"encoding/json"
 	"fmt"
 	"math/rand"
 	"os"
@@ -10,8 +9,7 @@ import (
 	"testing"
 	"time"
 
-	"trajvault/schema"
-	"trajvault/validate"
+	"trajvault/internal/finding"
 )
 
 // TestValidatePoisonInTheMiddle (issue 12, item 3: "validate good1 POISON
@@ -25,10 +23,6 @@ func TestValidatePoisonInTheMiddle(t *testing.T) {
 	g1, g2 := filepath.Join(dir, "good1.h5"), filepath.Join(dir, "good2.h5")
 	os.WriteFile(g1, raw, 0o644)
 	os.WriteFile(g2, raw, 0o644)
-	sch, err := schema.FindingsSchema()
-	if err != nil {
-		t.Fatal(err)
-	}
 	cases := []struct{ mode, code, words string }{
 		{"kill", "X1", "killed by signal 9"},
 		{"panic", "X1", "panic: runtime error"},
@@ -48,35 +42,31 @@ func TestValidatePoisonInTheMiddle(t *testing.T) {
 			if d := time.Since(start); d > 20*time.Second {
 				t.Errorf("took %v", d)
 			}
-			lines := strings.Split(strings.TrimSpace(out), "\n")
-			if len(lines) != 3 {
-				t.Fatalf("%d reports, want 3:\n%s", len(lines), out)
+			var res validateResult
+			env := readEnvelope(t, out, &res)
+			if len(res.Files) != 3 || env.OK {
+				t.Fatalf("%d reports (ok %v), want 3:\n%s", len(res.Files), env.OK, out)
 			}
-			for i, l := range lines {
-				var rep validate.Report
-				if err := json.Unmarshal([]byte(l), &rep); err != nil {
-					t.Fatal(err)
-				}
+			for i, rep := range res.Files {
 				want := []string{g1, poison, g2}[i]
 				if rep.File != want {
 					t.Errorf("report %d is for %s, want %s", i, rep.File, want)
 				}
-				if i != 1 {
-					if !rep.OK() {
-						t.Errorf("%s: %+v", rep.File, rep.Findings)
-					}
-					continue
+				if i != 1 && rep.Errors != 0 {
+					t.Errorf("%s: %+v", rep.File, rep)
 				}
-				if len(rep.Findings) != 1 || rep.Findings[0].Code != c.code || !strings.Contains(rep.Findings[0].Message, c.words) {
-					t.Errorf("poison report %+v, want one %s saying %q", rep.Findings, c.code, c.words)
+			}
+			// The crashed file is a report like any other, with one finding.
+			var mine []finding.Finding
+			for _, f := range env.Findings {
+				if f.File == poison {
+					mine = append(mine, f)
+				} else if f.Severity == finding.Error {
+					t.Errorf("good file with an error: %v", f)
 				}
-				// The report of a crashed file is a report like any other:
-				// it satisfies schema/findings.schema.json.
-				var doc any
-				json.Unmarshal([]byte(l), &doc)
-				if err := sch.Validate(doc); err != nil {
-					t.Errorf("poison report against the findings schema: %v", err)
-				}
+			}
+			if len(mine) != 1 || mine[0].Code != c.code || !strings.Contains(mine[0].Message, c.words) {
+				t.Errorf("poison findings %+v, want one %s saying %q", mine, c.code, c.words)
 			}
 		})
 	}
@@ -111,29 +101,26 @@ func TestValidateMutants(t *testing.T) {
 	}
 	reported := map[string]bool{}
 	codes := map[string]int{}
-	for _, l := range strings.Split(strings.TrimSpace(out), "\n") {
-		var rep validate.Report
-		if err := json.Unmarshal([]byte(l), &rep); err != nil {
-			t.Fatalf("%v: %q", err, l)
-		}
-		reported[rep.File] = true
-		for _, f := range rep.Findings {
-			if f.Code[0] == 'X' {
-				codes[f.Code]++
-				t.Logf("%s: %s", f.Code, f.Message)
-				if keep := os.Getenv("TRAJVAULT_KEEP_MUTANTS"); keep != "" {
-					b, _ := os.ReadFile(rep.File)
-					os.WriteFile(filepath.Join(keep, filepath.Base(rep.File)), b, 0o644)
-				}
+	var res validateResult
+	env := readEnvelope(t, out, &res)
+	for _, r := range res.Files {
+		reported[r.File] = true
+	}
+	for _, r := range res.Unreadable {
+		reported[r.File] = true
+	}
+	for _, f := range env.Findings {
+		if f.Code[0] == 'X' {
+			codes[f.Code]++
+			t.Logf("%s: %s", f.Code, f.Message)
+			if keep := os.Getenv("TRAJVAULT_KEEP_MUTANTS"); keep != "" {
+				b, _ := os.ReadFile(f.File)
+				os.WriteFile(filepath.Join(keep, filepath.Base(f.File)), b, 0o644)
 			}
 		}
 	}
-	for _, l := range strings.Split(strings.TrimSpace(errs), "\n") {
-		for _, f := range files {
-			if strings.HasPrefix(l, "trajvault: validate: "+f+":") {
-				reported[f] = true
-			}
-		}
+	if (code == 2) != (len(res.Unreadable) > 0) {
+		t.Errorf("exit %d with %d unreadable files\n%s", code, len(res.Unreadable), errs)
 	}
 	for _, f := range files {
 		if !reported[f] {

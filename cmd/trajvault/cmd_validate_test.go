@@ -3,7 +3,6 @@ package main
 import (
 	"bytes"
 	"context"
-	"encoding/json"
 	"os"
 	"path/filepath"
 	"strings"
@@ -11,7 +10,6 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/h5"
-	"trajvault/schema"
 )
 
 func runCLI(args ...string) (int, string, string) {
@@ -95,16 +93,9 @@ func TestValidateJSONMatchesSchema(t *testing.T) {
 	if code != 0 {
 		t.Fatalf("exit %d", code)
 	}
-	sch, err := schema.FindingsSchema()
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc any
-	if err := json.Unmarshal([]byte(out), &doc); err != nil {
-		t.Fatal(err)
-	}
-	if err := sch.Validate(doc); err != nil {
-		t.Error(err)
+	var res validateResult
+	if env := readEnvelope(t, out, &res); env.Command != "validate" || !env.OK || len(res.Files) != 1 || res.Files[0].File != good {
+		t.Errorf("envelope %+v, result %+v", env, res)
 	}
 }
 
@@ -124,8 +115,8 @@ func TestInspect(t *testing.T) {
 		}
 	}
 	code, out, _ = runCLI("inspect", "--json", demoFile(t))
-	var s map[string]any
-	if code != 0 || json.Unmarshal([]byte(out), &s) != nil {
+	var s struct{ Files []map[string]any }
+	if readEnvelope(t, out, &s); code != 0 || len(s.Files) != 1 {
 		t.Errorf("inspect --json: exit %d, %q", code, out)
 	}
 }
@@ -136,4 +127,64 @@ func TestDemoRefusesExistingDir(t *testing.T) {
 	if code != 2 || !strings.Contains(errs, "already exists") {
 		t.Errorf("exit %d, %q", code, errs)
 	}
+}
+
+// TestValidateArguments: validate takes a folder of trajectory files as
+// audit does (issue 15: "validate DIR refuses a folder that audit DIR
+// accepts"), several arguments at once, and refuses a folder holding no
+// .h5 files with what to do.
+func TestValidateArguments(t *testing.T) {
+	h5 := demoDir(t, 1, 2, 60)
+	one := demoFile(t)
+	code, out, errs := runCLI("validate", h5, one)
+	want := []string{filepath.Join(h5, "traj-001.h5") + ": ok", filepath.Join(h5, "traj-002.h5") + ": ok", one + ": ok"}
+	if code != 0 {
+		t.Fatalf("exit %d\n%s%s", code, out, errs)
+	}
+	last := -1
+	for _, w := range want {
+		i := strings.Index(out, w)
+		if i <= last {
+			t.Errorf("report %q missing or out of order:\n%s", w, out)
+		}
+		last = i
+	}
+	empty := t.TempDir()
+	os.WriteFile(filepath.Join(empty, "notes.txt"), []byte("x"), 0o644)
+	code, _, errs = runCLI("validate", empty)
+	if code != 2 || !strings.Contains(errs, "no .h5 files and not a BagIt bag") {
+		t.Errorf("folder without .h5 files: exit %d, %q", code, errs)
+	}
+}
+
+// TestTextFits80Columns (issue 15: scan lines of up to 321 columns,
+// validate 177): scan and validate reports wrap at 80 columns, counts
+// are in the right number ("1 trajectory", "1 problem").
+func TestTextFits80Columns(t *testing.T) {
+	problems := filepath.Join("..", "..", "testdata", "ensembles", "problems")
+	code, out, _ := runCLI("scan", "--unit", "position=angstrom", problems)
+	if code != 1 || !strings.Contains(out, "precision: ") {
+		t.Fatalf("scan: exit %d\n%s", code, out)
+	}
+	checkWidth(t, out)
+	for _, bad := range []string{"1 trajectories", "1 problems", "1 hop attempts", "1 records", "1 frames"} {
+		if strings.Contains(out, bad) {
+			t.Errorf("scan says %q", bad)
+		}
+	}
+	code, out, _ = runCLI("scan", "--unit", "position=angstrom", filepath.Join(problems, "p1-truncated-frame"))
+	if !strings.Contains(out, "1 trajectory, ") {
+		t.Errorf("scan of one trajectory: exit %d\n%s", code, out)
+	}
+	// A finding of a bare file: the R1 note of a file not made by convert.
+	dir := t.TempDir()
+	os.Link(demoFile(t), filepath.Join(dir, "a.h5"))
+	wd, _ := os.Getwd()
+	os.Chdir(dir)
+	defer os.Chdir(wd)
+	code, out, _ = runCLI("validate", "a.h5")
+	if code != 0 || !strings.Contains(out, "R1") {
+		t.Fatalf("validate: exit %d\n%s", code, out)
+	}
+	checkWidth(t, out)
 }

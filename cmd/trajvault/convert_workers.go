@@ -130,8 +130,7 @@ func convertWithWorkers(ctx context.Context, g *globals, o convertOptions, root 
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, err}
 	}
-	printEnsembleResults(g, o, results)
-	return nil
+	return printEnsembleResults(g, o, results)
 }
 
 // runConvertWorkers hands every trajectory to one of jobs workers and

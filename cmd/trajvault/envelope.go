@@ -7,10 +7,10 @@ import (
 	"trajvault/internal/finding"
 )
 
-// envelope is the one JSON document a command prints with --json: who
-// made it, which command, what it found and what it did. Commands whose
-// JSON predates it (validate, inspect, audit, compare) carry the same
-// tool header in their own documents.
+// envelope is the one JSON document a command prints with --json, one per
+// run (schema/envelope.schema.json): who made it, which command, whether
+// it went well, what it found and what it did. The command's own document
+// is result; its findings are never repeated inside result.
 type envelope struct {
 	Tool     toolInfo          `json:"tool"`
 	Command  string            `json:"command"`
@@ -27,11 +27,18 @@ type toolInfo struct {
 // printEnvelope writes the envelope of command on stdout. ok is false when
 // any finding is an error.
 func printEnvelope(g *globals, command string, findings []finding.Finding, result any) error {
+	return printEnvelopeOK(g, command, finding.Count(findings, finding.Error) == 0, findings, result)
+}
+
+// printEnvelopeOK is printEnvelope for commands whose exit status is not
+// decided by errors alone (scan fails on warnings; validate exits 2 on an
+// unreadable file): ok is what the exit status says.
+func printEnvelopeOK(g *globals, command string, ok bool, findings []finding.Finding, result any) error {
 	if findings == nil {
 		findings = []finding.Finding{}
 	}
 	e := envelope{Tool: toolInfo{"trajvault", toolVersion()}, Command: command,
-		OK: finding.Count(findings, finding.Error) == 0, Findings: findings, Result: result}
+		OK: ok, Findings: findings, Result: result}
 	b, err := json.MarshalIndent(e, "", "  ")
 	if err != nil {
 		return err

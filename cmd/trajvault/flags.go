@@ -19,7 +19,7 @@ type readFlags struct {
 }
 
 func (o *readFlags) AddFlags(c *cobra.Command) {
-	c.Flags().StringVar(&o.recipe, "recipe", "", "recipe file (YAML) describing the logs; see README, section Recipes")
+	c.Flags().StringVar(&o.recipe, "recipe", "", "recipe file (YAML) saying which files, columns and units the logs have (trajvault demo --text writes one to copy)")
 	c.Flags().StringArrayVar(&o.units, "unit", nil, "unit of a kind of quantity the logs do not state, e.g. --unit position=angstrom (kinds: "+quantity.KindNames()+")")
 	c.Flags().Float64Var(&o.dt, "dt", 0, "time per step, in the time unit, when the logs give no times (with --unit time=fs)")
 }

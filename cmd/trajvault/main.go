@@ -6,8 +6,6 @@
 package main
 
 import (
-	"strings"
-
 	"context"
 	"errors"
 	"fmt"
@@ -15,6 +13,8 @@ import (
 	"os"
 	"os/signal"
 	"runtime/debug"
+	"strings"
+	"sync"
 	"syscall"
 
 	"github.com/agnivade/levenshtein"
@@ -73,6 +73,7 @@ var errFindings = errors.New("findings")
 var errReported = errors.New("reported")
 
 func newRootCommand(g *globals) *cobra.Command {
+	addTemplateFuncs()
 	root := &cobra.Command{
 		Use:   "trajvault",
 		Short: "Package and check molecular-dynamics trajectories as open data",
@@ -86,6 +87,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		Version:       toolVersion(),
 	}
 	root.PersistentFlags().BoolVarP(&g.quiet, "quiet", "q", false, "no progress bars (they are shown only when stderr is a terminal)")
+	root.SetUsageTemplate(usageTemplate)
 	root.SetOut(g.stdout)
 	root.SetErr(g.stderr)
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
@@ -110,6 +112,61 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newSlurmCommand(g),
 	)
 	return root
+}
+
+// helpWidth is the width of help text: 80 columns, as every text output.
+const helpWidth = 80
+
+// usageTemplate is cobra's usage template with the flag descriptions and
+// the command summaries wrapped at helpWidth (issue 15: help lines of up
+// to 176 columns).
+const usageTemplate = `Usage:{{if .Runnable}}
+  {{.UseLine}}{{end}}{{if .HasAvailableSubCommands}}
+  {{.CommandPath}} [command]{{end}}{{if gt (len .Aliases) 0}}
+
+Aliases:
+  {{.NameAndAliases}}{{end}}{{if .HasExample}}
+
+Examples:
+{{.Example}}{{end}}{{if .HasAvailableSubCommands}}
+
+Available Commands:{{range .Commands}}{{if (or .IsAvailableCommand (eq .Name "help"))}}
+  {{rpad .Name .NamePadding }} {{hang .Short (add .NamePadding 3)}}{{end}}{{end}}{{end}}{{if .HasAvailableLocalFlags}}
+
+Flags:
+{{flags80 .LocalFlags}}{{end}}{{if .HasAvailableInheritedFlags}}
+
+Global Flags:
+{{flags80 .InheritedFlags}}{{end}}{{if .HasAvailableSubCommands}}
+
+Use "{{.CommandPath}} [command] --help" for more information about a command.{{end}}
+`
+
+var addTemplateFuncs = sync.OnceFunc(func() {
+	cobra.AddTemplateFunc("flags80", func(fs *pflag.FlagSet) string {
+		return strings.TrimRight(fs.FlagUsagesWrapped(helpWidth), " \n")
+	})
+	cobra.AddTemplateFunc("add", func(a, b int) int { return a + b })
+	cobra.AddTemplateFunc("hang", hang)
+})
+
+// hang wraps s at helpWidth for text that starts at column indent, the
+// continuation lines indented as far.
+func hang(s string, indent int) string {
+	var b strings.Builder
+	col := indent
+	for i, w := range strings.Fields(s) {
+		if i > 0 && col+1+len(w) > helpWidth {
+			b.WriteString("\n" + strings.Repeat(" ", indent))
+			col = indent
+		} else if i > 0 {
+			b.WriteByte(' ')
+			col++
+		}
+		b.WriteString(w)
+		col += len(w)
+	}
+	return b.String()
 }
 
 // suggestFlag names the flag of c closest to the unknown one in err

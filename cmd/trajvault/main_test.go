@@ -1,8 +1,10 @@
 package main
 
 import (
+	"io"
 	"os"
 	"path/filepath"
+	"regexp"
 	"strings"
 	"syscall"
 	"testing"
@@ -76,6 +78,36 @@ func TestDidYouMean(t *testing.T) {
 		}
 		if c.want == "" && strings.Contains(errs, "did you mean") || c.want != "" && !strings.Contains(errs, c.want) {
 			t.Errorf("%v: %q, want %q", c.args, errs, c.want)
+		}
+	}
+}
+
+// TestHelpFitsAndStandsAlone: every command's help fits in 80 columns
+// (issue 15: flag lines of up to 176) and points at nothing a user of
+// the binary does not have: no file of the source tree (issue 15:
+// schema/layout.md, testdata/recipes/tarnol.yaml, a README section
+// "Recipes" that did not exist).
+func TestHelpFitsAndStandsAlone(t *testing.T) {
+	root := newRootCommand(&globals{stdout: io.Discard, stderr: io.Discard})
+	cmds := [][]string{{"--help"}}
+	for _, c := range root.Commands() {
+		if !c.Hidden {
+			cmds = append(cmds, []string{c.Name(), "--help"})
+		}
+	}
+	repoFile := regexp.MustCompile(`\b(schema|testdata|internal|cmd)/[\w./-]+|section Recipes|DEVELOPERS\.md`)
+	for _, args := range cmds {
+		code, out, _ := runCLI(args...)
+		if code != 0 {
+			t.Errorf("%v: exit %d", args, code)
+		}
+		for _, l := range strings.Split(out, "\n") {
+			if len(l) > 80 {
+				t.Errorf("%v: %d columns: %q", args, len(l), l)
+			}
+			if m := repoFile.FindString(l); m != "" {
+				t.Errorf("%v: points at %q, a file of the source tree: %q", args, m, l)
+			}
 		}
 	}
 }

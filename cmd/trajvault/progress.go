@@ -30,6 +30,14 @@ func (b *bar) Add(n int64) {
 	b.pb.Add64(n)
 }
 
+// Clear takes the bar off the terminal so that a line can be printed; the
+// next Add draws it again.
+func (b *bar) Clear() {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	b.pb.Clear()
+}
+
 func (b *bar) Finish() {
 	b.mu.Lock()
 	defer b.mu.Unlock()
@@ -39,12 +47,14 @@ func (b *bar) Finish() {
 // finisher is a counter that can clear its display.
 type finisher interface {
 	progress.Counter
+	Clear()
 	Finish()
 }
 
 type nopFinisher struct{ progress.Nop }
 
 func (nopFinisher) Finish() {}
+func (nopFinisher) Clear()  {}
 
 // newBar makes the progress display for one long step, e.g. "scan" over
 // trajectories: done/total, rate and time left.

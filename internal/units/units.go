@@ -335,7 +335,8 @@ func hint(s string) string {
 			return "; for " + strconv.Quote(k) + " write " + strconv.Quote(h)
 		}
 	}
-	return "; see the symbol table in schema/layout.md"
+	// No file of the source tree: a user of the binary has none.
+	return "; write symbols and powers as in \"angstrom fs-1\" or \"kJ mol-1\""
 }
 
 // MustParse is Parse for constant unit strings; it panics on error.
