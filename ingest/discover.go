@@ -66,7 +66,10 @@ func Discover(dir string, rc *Recipe) ([]*Trajectory, error) {
 		if st, err := os.Stat(d); err != nil || !st.IsDir() {
 			continue
 		}
-		t, err := trajectoryIn(d, rc)
+		if err := confined(dir, d, true); err != nil {
+			return nil, err
+		}
+		t, err := trajectoryIn(dir, d, rc)
 		if err != nil {
 			return nil, err
 		}
@@ -81,9 +84,12 @@ func Discover(dir string, rc *Recipe) ([]*Trajectory, error) {
 	return out, nil
 }
 
-func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
+// trajectoryIn reads the trajectory folder d inside the input folder
+// root; every file it takes must stay inside root (confined).
+func trajectoryIn(root, d string, rc *Recipe) (*Trajectory, error) {
 	t := &Trajectory{Name: filepath.Base(d), Dir: d}
 	if rc != nil && (rc.Geometry != nil || len(rc.Tables) > 0 || len(rc.Logs) > 0) {
+		var refused error
 		one := func(pattern string) string {
 			m, _ := filepath.Glob(filepath.Join(d, pattern))
 			sort.Strings(m)
@@ -91,7 +97,11 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 				t.missing = append(t.missing, pattern)
 				return ""
 			}
-			return m[len(m)-1]
+			p := m[len(m)-1]
+			if err := confined(root, p, false); err != nil && refused == nil {
+				refused = fmt.Errorf("recipe file %q: %w", pattern, err)
+			}
+			return p
 		}
 		// A recipe's sections name the built-in formats.
 		if rc.Geometry != nil {
@@ -109,6 +119,9 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 				t.Inputs = append(t.Inputs, newInput(p, &logFormat, &rc.Logs[i]))
 			}
 		}
+		if refused != nil {
+			return nil, refused
+		}
 		return t, nil
 	}
 	entries, err := os.ReadDir(d)
@@ -121,6 +134,11 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 		}
 		p := filepath.Join(d, e.Name())
 		r := readerFor(extOf(p))
+		if r != nil {
+			if err := confined(root, p, false); err != nil {
+				return nil, err
+			}
+		}
 		switch {
 		case r == nil:
 			t.unknown = append(t.unknown, p)
@@ -140,7 +158,7 @@ func trajectoryIn(d string, rc *Recipe) (*Trajectory, error) {
 func TrajectoryFrom(args []string, rc *Recipe) (*Trajectory, error) {
 	if len(args) == 1 {
 		if st, err := os.Stat(args[0]); err == nil && st.IsDir() {
-			return trajectoryIn(args[0], rc)
+			return trajectoryIn(args[0], args[0], rc)
 		}
 	}
 	t := &Trajectory{Name: strings.TrimSuffix(filepath.Base(args[0]), filepath.Ext(args[0])), Dir: filepath.Dir(args[0])}

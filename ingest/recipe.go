@@ -95,7 +95,7 @@ func LoadRecipe(path string) (*Recipe, error) {
 		return nil, fmt.Errorf("%s: %v", path, err)
 	}
 	if err := r.compile(); err != nil {
-		return nil, fmt.Errorf("%s: %v", path, err)
+		return nil, fmt.Errorf("%s: %w", path, err)
 	}
 	r.Path, r.Text = path, string(raw)
 	return &r, nil
@@ -124,6 +124,9 @@ func knownGroups() string {
 }
 
 func (r *Recipe) compile() error {
+	if err := r.checkPatterns(); err != nil {
+		return err
+	}
 	for k := range r.Units {
 		if _, ok := quantity.LookupKind(k); !ok {
 			return fmt.Errorf("units: unknown kind %q (kinds: %s)", k, quantity.KindNames())

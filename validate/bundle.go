@@ -35,6 +35,31 @@ type BundleOptions struct {
 	// checksums to these algorithms (bagit.Options.Digests).
 	FixityOnly bool
 	Digests    []string
+	// Member, when set, checks one trajectory file of the bundle in
+	// place of Member below: the command runs it in a worker process
+	// of its own, so that a file that crashes the HDF5 library is a
+	// finding of that file and the other files are still checked (issue
+	// 12). Either img holds the file's bytes or, for a file too large to
+	// hold in a folder bag, path names it on disk.
+	Member func(name string, img []byte, path string) []finding.Finding
+}
+
+// Member checks one trajectory file of a bundle, name being its path
+// inside the bag: from img (its bytes, opened in memory) or, when img is
+// nil, from the file at path. A file HDF5 cannot open is B14.
+func Member(name string, img []byte, path string, p Profile) []finding.Finding {
+	var f *h5.File
+	var err error
+	if img != nil {
+		f, err = h5.OpenImage(name, img)
+	} else {
+		f, err = h5.Open(path)
+	}
+	if err != nil {
+		return []finding.Finding{{Code: "B14", Severity: finding.Error, Location: finding.Location{Path: name}, Message: err.Error()}}
+	}
+	defer f.Close()
+	return check(f, name, p)
 }
 
 // IsBundle reports whether path looks like a bundle: a folder with
@@ -74,6 +99,12 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 	if st, err := os.Stat(path); err == nil && st.IsDir() {
 		dirBag = true
 	}
+	member := opt.Member
+	if member == nil {
+		member = func(name string, img []byte, path string) []finding.Finding {
+			return Member(name, img, path, opt.FileProfile)
+		}
+	}
 	// The metadata files are kept as they stream past, so that an archive
 	// is not read again to find them.
 	meta := map[string][]byte{schema.CratePath: nil, schema.DataCitePath: nil}
@@ -93,13 +124,8 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 				return nil
 			}
 			// Too large to hold: validate the file in place, read again.
-			f, err := h5.Open(filepath.Join(path, filepath.FromSlash(name)))
-			if err != nil {
-				rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
-				return nil
-			}
-			rep.Findings = append(rep.Findings, check(f, name, opt.FileProfile)...)
-			return f.Close()
+			rep.Findings = append(rep.Findings, member(name, nil, filepath.Join(path, filepath.FromSlash(name)))...)
+			return nil
 		}
 		// The declared size is checked against the limit above and the
 		// read is capped by it, so the buffer is allocated once.
@@ -108,14 +134,8 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 		if _, err := buf.ReadFrom(io.LimitReader(r, opt.MaxImageBytes)); err != nil {
 			return err
 		}
-		img := buf.Bytes()
-		f, err := h5.OpenImage(name, img)
-		if err != nil {
-			rep.Findings = append(rep.Findings, finding.Finding{Code: "B14", Severity: finding.Error, Location: loc, Message: err.Error()})
-			return nil
-		}
-		rep.Findings = append(rep.Findings, check(f, name, opt.FileProfile)...)
-		return f.Close()
+		rep.Findings = append(rep.Findings, member(name, buf.Bytes(), "")...)
+		return nil
 	}
 	if opt.FixityOnly {
 		res := bagit.Check(src, bagit.Options{Digests: opt.Digests})

@@ -14,6 +14,7 @@ import (
 
 	"trajvault/audit"
 	"trajvault/internal/finding"
+	"trajvault/internal/isolate"
 )
 
 type auditOptions struct {
@@ -24,6 +25,11 @@ type auditOptions struct {
 	temperature float64
 	energyWarn  float64
 	energyFail  float64
+	iso         isolateOptions
+	// screen, when set, reads each file first in a worker of its own and
+	// returns those that crashed, hung or ran out of memory there
+	// (screenFiles); they are reported (X1-X3), not audited here.
+	screen func([]string) (map[string]finding.Finding, error)
 }
 
 func (o *auditOptions) AddFlags(c *cobra.Command) {
@@ -35,6 +41,7 @@ func (o *auditOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.temperature, "temperature", d.Temperature, "temperature (K) setting the momentum-drift scale k_B T")
 	c.Flags().Float64Var(&o.energyWarn, "energy-warn", d.EnergyWarnEV, "warn when the total energy moves more than this from its start (eV)")
 	c.Flags().Float64Var(&o.energyFail, "energy-fail", d.EnergyFailEV, "fail when the total energy moves more than this from its start (eV)")
+	o.iso.AddFlags(c)
 }
 
 func newAuditCommand(g *globals) *cobra.Command {
@@ -61,6 +68,11 @@ need attention; --json lists them all.
 An audit is evidence about the stored numbers, not a certificate that the
 simulation behind them is sound.
 
+Each file is first read by a worker process with a memory limit
+(--max-memory) and a time limit (--time-limit): a file that crashes the
+reader, hangs or needs too much memory there is reported (X1, X2, X3),
+left out of the ensemble, and the other files are audited.
+
 Exit status: 0 no failed check (or --no-fail), 1 a check failed or a
 file could not be audited, 2 usage or I/O error.
 
@@ -73,7 +85,16 @@ Checks (code, name, quantity):
 			}
 			return nil
 		},
-		RunE: func(c *cobra.Command, args []string) error { return runAudit(c.Context(), g, o, args) },
+		PreRunE: func(c *cobra.Command, args []string) error { return o.iso.check("audit") },
+		RunE: func(c *cobra.Command, args []string) error {
+			if isolate.IsWorker() {
+				return inWorker(args[0], func() error { return runAudit(c.Context(), g, o, args) })
+			}
+			o.screen = func(files []string) (map[string]finding.Finding, error) {
+				return screenFiles(c, o.iso, files, o.jobs, []string{"report", "jobs", "json", "no-fail"}, []string{"--jobs=1", "--json"})
+			}
+			return runAudit(c.Context(), g, o, args)
+		},
 	}
 	o.AddFlags(c)
 	return c
@@ -130,12 +151,19 @@ func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) er
 	}
 	s := audit.DefaultSettings
 	s.Temperature, s.EnergyWarnEV, s.EnergyFailEV = o.temperature, o.energyWarn, o.energyFail
+	var crashed map[string]finding.Finding
+	if o.screen != nil {
+		if crashed, err = o.screen(files); err != nil {
+			return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
+		}
+	}
 	auditing := newBar(g, "audit", "files")
-	rep, err := audit.Ensemble(ctx, files, s, o.jobs, auditing)
+	rep, err := audit.Ensemble(ctx, withoutFiles(files, crashed), s, o.jobs, auditing)
 	auditing.Finish()
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
 	}
+	addCrashed(rep, files, crashed)
 	if o.report != "" {
 		if err := writeAtomically(o.report, func(f *os.File) error { return rep.WriteHTML(f, toolVersion()) }); err != nil {
 			return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
@@ -162,6 +190,45 @@ func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) er
 		return errFindings
 	}
 	return nil
+}
+
+// withoutFiles is files less those in drop, in order.
+func withoutFiles(files []string, drop map[string]finding.Finding) []string {
+	var keep []string
+	for _, f := range files {
+		if _, ok := drop[f]; !ok {
+			keep = append(keep, f)
+		}
+	}
+	return keep
+}
+
+// addCrashed puts the files whose worker failed back into the report, in
+// their place among files: a failed trajectory that says why, and its
+// finding (X1-X3).
+func addCrashed(rep *audit.Report, files []string, crashed map[string]finding.Finding) {
+	if len(crashed) == 0 {
+		return
+	}
+	done := map[string][]*audit.Result{}
+	for _, t := range rep.Trajectories {
+		done[t.File] = append(done[t.File], t)
+	}
+	var all []*audit.Result
+	for _, f := range files {
+		if fd, ok := crashed[f]; ok {
+			all = append(all, &audit.Result{File: f, Error: fd.Message, Verdict: audit.Fail, Checks: []audit.Check{}})
+			rep.Findings = append(rep.Findings, fd)
+			rep.Flagged++
+			continue
+		}
+		if len(done[f]) > 0 {
+			all = append(all, done[f][0])
+			done[f] = done[f][1:]
+		}
+	}
+	rep.Trajectories = all
+	rep.Verdict = audit.Fail
 }
 
 // writeAtomically writes path through a temporary file in the same folder.

@@ -47,6 +47,7 @@ type exportOptions struct {
 	// formatSet says --format was given (not its default).
 	formatSet bool
 	selectFlags
+	iso isolateOptions
 }
 
 func (o *exportOptions) AddFlags(c *cobra.Command) {
@@ -56,6 +57,7 @@ func (o *exportOptions) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.convention, "convention", export.ConventionStored, "units of the numbers: stored (as converted, digit for digit) or ase (extended XYZ in angstrom, eV, eV/angstrom, u and ASE momenta; implies --format extxyz)")
 	c.Flags().BoolVar(&o.json, "json", false, "print what was written as one JSON document (tool, command, findings, result)")
 	o.selectFlags.AddFlags(c)
+	o.iso.AddFlags(c)
 }
 
 func newExportCommand(g *globals) *cobra.Command {
@@ -84,8 +86,13 @@ velocity) in u angstrom per angstrom*sqrt(u/eV), a time unit of
 that unit); converted numbers are printed in the shortest form that
 reads back to the same float64.
 
-Exit status: 0 success, 2 usage or I/O error (including a selection
-outside the data; the message says what the file holds).`,
+The file is read by a worker process with a memory limit (--max-memory)
+and a time limit (--time-limit): a file that crashes the reader, hangs or
+needs too much memory is reported (X1, X2, X3; exit 1).
+
+Exit status: 0 success, 1 the reader crashed, hung or ran out of memory
+(X1-X3), 2 usage or I/O error (including a selection outside the data;
+the message says what the file holds).`,
 		Example: `  trajvault export traj-001.h5 -o traj-001-text --format extxyz
   trajvault export run.h5 -o window --frames 500000:501000 --atoms 0-2 \
     --quantities position,total_energy --format npy
@@ -93,6 +100,9 @@ outside the data; the message says what the file holds).`,
   trajvault export md.h5 -o md.extxyz --convention ase`,
 		Args: cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
+			if err := o.iso.check("export"); err != nil {
+				return err
+			}
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("export: name the output folder with -o, e.g. -o traj-001-text")}
 			}
@@ -119,7 +129,9 @@ outside the data; the message says what the file holds).`,
 		},
 		RunE: func(c *cobra.Command, args []string) error {
 			o.formatSet = c.Flags().Changed("format")
-			return runExport(g, c.Flags().Changed("frame"), o, args[0])
+			return runIsolated(c, g, o.iso, args[0], args, o.json, func() error {
+				return runExport(g, c.Flags().Changed("frame"), o, args[0])
+			})
 		},
 	}
 	o.AddFlags(c)

@@ -11,6 +11,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/export"
+	"trajvault/internal/isolate"
 	"trajvault/internal/trajfile"
 )
 
@@ -18,12 +19,14 @@ type inspectOptions struct {
 	json   bool
 	values bool
 	selectFlags
+	iso isolateOptions
 }
 
 func (o *inspectOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result); with --values, the values as JSON")
 	c.Flags().BoolVar(&o.values, "values", false, "print the values of a selection (CSV, or JSON with --json) instead of the summary")
 	o.selectFlags.AddFlags(c)
+	o.iso.AddFlags(c)
 }
 
 func newInspectCommand(g *globals) *cobra.Command {
@@ -41,14 +44,22 @@ compression ratio (logical size / stored size).
 line saying what was selected, or as JSON with --json; only the chunks
 that hold the selection are read, and numbers keep their recorded digits.
 
-Exit status: 0 success, 2 the file could not be read or the selection
-is outside the data (the message says what the file holds).`,
+Each file is read by a worker process with a memory limit (--max-memory)
+and a time limit (--time-limit): a file that crashes the reader, hangs or
+needs too much memory is reported (X1, X2, X3) and the next file is read.
+
+Exit status: 0 success, 1 the reader crashed, hung or ran out of memory
+on a file (X1-X3), 2 a file could not be read or the selection is
+outside the data (the message says what the file holds).`,
 		Example: `  trajvault inspect run-001.h5
   trajvault inspect --json run-001.h5
   trajvault inspect --values --frames 100:110 --atoms O \
     --quantities position,total_energy run-001.h5`,
 		Args: cobra.MinimumNArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
+			if err := o.iso.check("inspect"); err != nil {
+				return err
+			}
 			for _, f := range []string{"frames", "time", "atoms", "quantities", "states"} {
 				if c.Flags().Changed(f) && !o.values {
 					return &exitError{exitUsage, fmt.Errorf("inspect: --%s selects values to print; add --values, e.g. inspect --values --%s ...", f, f)}
@@ -57,20 +68,27 @@ is outside the data (the message says what the file holds).`,
 			return nil
 		},
 		RunE: func(c *cobra.Command, args []string) error {
-			if o.values {
-				if len(args) > 1 {
-					return &exitError{exitUsage, errors.New("inspect: --values reads one file; run it once per file")}
+			if o.values && len(args) > 1 {
+				return &exitError{exitUsage, errors.New("inspect: --values reads one file; run it once per file")}
+			}
+			if !isolate.IsWorker() {
+				// Each file in a worker of its own (cmd_worker.go).
+				if o.values {
+					return runIsolated(c, g, o.iso, args[0], args, o.json, nil)
 				}
-				return runValues(g, o, args[0])
+				return runIsolatedEach(c, g, o.iso, args, o.json)
+			}
+			if o.values {
+				return inWorker(args[0], func() error { return runValues(g, o, args[0]) })
 			}
 			if o.json {
-				return inspectJSON(g, args)
+				return inWorker(args[0], func() error { return inspectJSON(g, args) })
 			}
 			for i, a := range args {
 				if i > 0 {
 					fmt.Fprintln(g.stdout)
 				}
-				if err := runInspect(g, o, a); err != nil {
+				if err := inWorker(a, func() error { return runInspect(g, o, a) }); err != nil {
 					return err
 				}
 			}

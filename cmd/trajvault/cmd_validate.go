@@ -141,7 +141,9 @@ simulation behind it is sound.
 Each file or bundle is read by a separate worker process with a memory
 limit (--max-memory) and a time limit (--time-limit): a file that crashes
 the reader, hangs or needs too much memory gets a finding of its own (X1,
-X2, X3) and the run goes on with the next file. A dataset or attribute
+X2, X3) and the run goes on with the next file. Inside a bundle each
+trajectory file has a worker of its own too, with the same memory limit
+and half the time limit. A dataset or attribute
 larger than the read budget (--read-budget) is not read (V42); data that
 a file keeps outside itself (external links, external storage, virtual
 dataset sources) is never opened (V43).
@@ -285,7 +287,8 @@ func validateOne(ctx context.Context, exe string, o validateOptions, path string
 	if o.fixityOnly {
 		return fixityOne(o, path)
 	}
-	args := []string{"worker-validate", "--profile", o.profile, "--max-read", strconv.FormatInt(o.maxRead, 10)}
+	args := []string{"worker-validate", "--profile", o.profile, "--max-read", strconv.FormatInt(o.maxRead, 10),
+		"--max-memory", strconv.FormatInt(o.maxMemoryMiB, 10), "--time-limit", o.timeLimit.String()}
 	if validate.IsBundle(path) {
 		args = append(args, "--bundle")
 	}

@@ -21,6 +21,8 @@ import (
 	"github.com/spf13/pflag"
 
 	"github.com/spf13/cobra"
+
+	"trajvault/internal/outdir"
 )
 
 // Exit codes: the contract with scripts.
@@ -110,6 +112,7 @@ Exit status: 0 success, 1 findings (a check failed), 2 usage or I/O error.`,
 		newWorkerCommand(g),
 		newConvertWorkerCommand(g),
 		newSlurmCommand(g),
+		newMemberCommand(g),
 	)
 	return root
 }
@@ -206,6 +209,7 @@ func run(ctx context.Context, args []string, g *globals) int {
 	root := newRootCommand(g)
 	root.SetArgs(args)
 	err := root.ExecuteContext(ctx)
+	outdir.Tidy() // markers of temporary outputs that are in place now
 	switch {
 	case err == nil:
 		return exitOK

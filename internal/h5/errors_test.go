@@ -1,6 +1,7 @@
 package h5
 
 import (
+	"bytes"
 	"errors"
 	"os"
 	"os/exec"
@@ -60,17 +61,72 @@ func TestErrorStack(t *testing.T) {
 }
 
 // TestFullDisk fills a 5 MiB tmpfs: the write error must say "no space
-// left on device" (ENOSPC) and name the output file. Mounting needs root
-// and is done only when TRAJVAULT_ALLOW_MOUNT=1 permits it.
+// left on device" (ENOSPC) and name the output file. The small file
+// system comes from, in this order: TRAJVAULT_SMALL_FS (a folder on a
+// small file system someone mounted; no privileges needed), a mount as
+// root when TRAJVAULT_ALLOW_MOUNT=1 permits it, or a private mount in a
+// user namespace of its own (unshare(2); no root needed where the
+// kernel allows unprivileged user namespaces, and nothing outside the
+// test sees the mount). With none of these it is skipped, saying why.
 func TestFullDisk(t *testing.T) {
-	if os.Getenv("TRAJVAULT_ALLOW_MOUNT") != "1" || os.Geteuid() != 0 {
-		t.Skip("full-disk test skipped: needs root and TRAJVAULT_ALLOW_MOUNT=1 to mount a 5 MiB tmpfs")
+	if mnt := os.Getenv("TRAJVAULT_FULLDISK_NS"); mnt != "" {
+		// In the user and mount namespace made below: make every mount
+		// private first, so that nothing propagates out.
+		if err := syscall.Mount("", "/", "", syscall.MS_REC|syscall.MS_PRIVATE, ""); err != nil {
+			t.Skipf("full-disk test skipped: cannot make mounts private in the namespace: %v", err)
+		}
+		if err := syscall.Mount("tmpfs", mnt, "tmpfs", 0, "size=5m"); err != nil {
+			t.Skipf("full-disk test skipped: cannot mount a tmpfs in the namespace: %v", err)
+		}
+		fillDisk(t, mnt)
+		return
+	}
+	if dir := os.Getenv("TRAJVAULT_SMALL_FS"); dir != "" {
+		var fs syscall.Statfs_t
+		if err := syscall.Statfs(dir, &fs); err != nil || uint64(fs.Bavail)*uint64(fs.Bsize) > 12<<20 {
+			t.Fatalf("TRAJVAULT_SMALL_FS=%s: %v, %d bytes free; give a folder on a file system with under 12 MiB free", dir, err, uint64(fs.Bavail)*uint64(fs.Bsize))
+		}
+		sub, err := os.MkdirTemp(dir, "trajvault-fulldisk-")
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer os.RemoveAll(sub)
+		fillDisk(t, sub)
+		return
+	}
+	if os.Getenv("TRAJVAULT_ALLOW_MOUNT") == "1" && os.Geteuid() == 0 {
+		mnt := t.TempDir()
+		if out, err := exec.Command("mount", "-t", "tmpfs", "-o", "size=5m", "tmpfs", mnt).CombinedOutput(); err != nil {
+			t.Skipf("full-disk test skipped: mount failed: %v %s", err, out)
+		}
+		defer exec.Command("umount", mnt).Run()
+		fillDisk(t, mnt)
+		return
 	}
 	mnt := t.TempDir()
-	if out, err := exec.Command("mount", "-t", "tmpfs", "-o", "size=5m", "tmpfs", mnt).CombinedOutput(); err != nil {
-		t.Skipf("full-disk test skipped: mount failed: %v %s", err, out)
+	cmd := exec.Command(os.Args[0], "-test.run=^TestFullDisk$", "-test.v")
+	cmd.Env = append(os.Environ(), "TRAJVAULT_FULLDISK_NS="+mnt)
+	cmd.SysProcAttr = &syscall.SysProcAttr{
+		Cloneflags:  syscall.CLONE_NEWUSER | syscall.CLONE_NEWNS,
+		UidMappings: []syscall.SysProcIDMap{{ContainerID: 0, HostID: os.Getuid(), Size: 1}},
+		GidMappings: []syscall.SysProcIDMap{{ContainerID: 0, HostID: os.Getgid(), Size: 1}},
 	}
-	defer exec.Command("umount", mnt).Run()
+	out, err := cmd.CombinedOutput()
+	switch {
+	case err != nil && cmd.ProcessState == nil:
+		t.Skipf("full-disk test skipped: no small file system: not root with TRAJVAULT_ALLOW_MOUNT=1, no TRAJVAULT_SMALL_FS=DIR, and no user namespace (%v)", err)
+	case err != nil:
+		t.Fatalf("in a user namespace: %v\n%s", err, out)
+	case bytes.Contains(out, []byte("--- SKIP")):
+		t.Skipf("full-disk test skipped: in a user namespace:\n%s", out)
+	case !bytes.Contains(out, []byte("--- PASS: TestFullDisk")):
+		t.Fatalf("in a user namespace, no result:\n%s", out)
+	}
+	t.Logf("in a user namespace:\n%s", out)
+}
+
+// fillDisk writes 15 MiB into a file in mnt, a 5 MiB file system.
+func fillDisk(t *testing.T, mnt string) {
 	out := filepath.Join(mnt, "out.h5")
 	f, err := Create(out)
 	if err != nil {

@@ -16,6 +16,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"os/exec"
 	"strconv"
@@ -159,6 +160,23 @@ const (
 // every way the worker itself can end is a Result. Cancelling ctx kills
 // the worker and returns ctx's error.
 func Run(ctx context.Context, exe string, args []string, lim Limits) (*Result, error) {
+	return RunIO(ctx, exe, args, lim, IO{})
+}
+
+// IO connects a worker's standard streams other than by Run's defaults.
+type IO struct {
+	// Stdin, when not nil, is copied to the worker's standard input (an
+	// in-memory file image, say); nil gives it none.
+	Stdin io.Reader
+	// Stdout, when not nil, receives the worker's standard output as it
+	// is written (a command's long text output), instead of
+	// Result.Stdout; a worker that crashes may have written part of it.
+	Stdout io.Writer
+}
+
+// RunIO is Run with the worker's standard input and output connected as
+// io says.
+func RunIO(ctx context.Context, exe string, args []string, lim Limits, io IO) (*Result, error) {
 	max := lim.MaxOutput
 	if max <= 0 {
 		max = DefaultMaxOutput
@@ -178,6 +196,10 @@ func Run(ctx context.Context, exe string, args []string, lim Limits) (*Result, e
 	stdout := &capped{max: max}
 	stderr := &tail{max: 64 << 10}
 	cmd.Stdout, cmd.Stderr = stdout, stderr
+	if io.Stdout != nil {
+		cmd.Stdout = io.Stdout
+	}
+	cmd.Stdin = io.Stdin
 	start := time.Now()
 	if err := cmd.Start(); err != nil {
 		return nil, fmt.Errorf("start worker: %w", err)

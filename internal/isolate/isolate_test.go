@@ -3,6 +3,7 @@ package isolate
 import (
 	"context"
 	"fmt"
+	"io"
 	"os"
 	"strings"
 	"syscall"
@@ -48,6 +49,8 @@ func TestMain(m *testing.M) {
 			keep = append(keep, b)
 		}
 		fmt.Print(len(keep))
+	case "echo":
+		io.Copy(os.Stdout, os.Stdin)
 	case "flood":
 		for i := 0; i < 1<<12; i++ {
 			os.Stdout.Write(make([]byte, 1<<10))
@@ -135,5 +138,22 @@ func TestEnterOutsideWorker(t *testing.T) {
 	syscall.Getrlimit(syscall.RLIMIT_AS, &after)
 	if before != after {
 		t.Errorf("Enter changed the limit of a non-worker: %v -> %v", before, after)
+	}
+}
+
+// TestRunIO: the input given is what the worker reads, and its output
+// streams to the writer given, past MaxOutput (which bounds only what
+// Run keeps in memory).
+func TestRunIO(t *testing.T) {
+	t.Setenv("ISOLATE_TEST_MODE", "echo")
+	in := strings.Repeat("0123456789abcdef", 1<<16) // 1 MiB
+	var out strings.Builder
+	r, err := RunIO(context.Background(), os.Args[0], []string{"-test.run=^$"}, Limits{Time: 10 * time.Second, MaxOutput: 1024},
+		IO{Stdin: strings.NewReader(in), Stdout: &out})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Outcome != Done || out.String() != in || len(r.Stdout) != 0 {
+		t.Fatalf("outcome %v, %d bytes out (want %d), %d kept", r.Outcome, out.Len(), len(in), len(r.Stdout))
 	}
 }

@@ -45,3 +45,32 @@ func TestTempMakesParents(t *testing.T) {
 		t.Errorf("made %s, want it beside %s", d, final)
 	}
 }
+
+// TestCleanKeeps: Clean removes nothing of a live run (this process's
+// own marked folder), nothing whose marker is not one (wrong first
+// line), and Tidy drops the marker of an output renamed into place.
+func TestCleanKeeps(t *testing.T) {
+	dir := t.TempDir()
+	live, err := Temp(filepath.Join(dir, "out"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	fake := filepath.Join(dir, ".fake.partial-1")
+	os.MkdirAll(fake, 0o755)
+	os.WriteFile(fake+MarkerSuffix, []byte("pid 1\nstart 1\nboot x\nobject 1:2:0\n"), 0o644)
+	if got := Clean(dir); len(got) != 0 {
+		t.Errorf("Clean removed %v", got)
+	}
+	for _, p := range []string{live, live + MarkerSuffix, fake, fake + MarkerSuffix} {
+		if _, err := os.Lstat(p); err != nil {
+			t.Errorf("%s: %v", p, err)
+		}
+	}
+	if err := os.Rename(live, filepath.Join(dir, "out")); err != nil {
+		t.Fatal(err)
+	}
+	Tidy()
+	if _, err := os.Lstat(live + MarkerSuffix); !os.IsNotExist(err) {
+		t.Errorf("marker of a finished output kept: %v", err)
+	}
+}

@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"trajvault/internal/h5"
+	"trajvault/internal/outdir"
 	"trajvault/internal/units"
 )
 
@@ -272,9 +273,14 @@ func Create(path string, spec Spec) (*Writer, error) {
 		chunk = max(1, min(4096, 256*1024/(8*3*n)))
 	}
 	tmp := filepath.Join(filepath.Dir(path), fmt.Sprintf(".%s.partial-%d", filepath.Base(path), os.Getpid()))
-	os.Remove(tmp)
+	outdir.Clean(filepath.Dir(path)) // leftovers of killed runs, by their markers
 	f, err := h5.CreateWith(tmp, spec.File)
 	if err != nil {
+		return nil, err
+	}
+	if err := outdir.Mark(tmp); err != nil {
+		f.Close()
+		os.Remove(tmp)
 		return nil, err
 	}
 	w := &Writer{spec: spec, final: path, tmp: tmp, f: f, n: n, chunk: chunk, src: spec.Units, tf: 1}
@@ -689,6 +695,7 @@ func (w *Writer) Close() error {
 		}
 	}
 	os.Remove(w.tmp)
+	outdir.Unmark(w.tmp)
 	return w.err
 }
 
@@ -705,4 +712,5 @@ func (w *Writer) Abort() {
 	}
 	w.f.Close()
 	os.Remove(w.tmp)
+	outdir.Unmark(w.tmp)
 }
