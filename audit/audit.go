@@ -12,6 +12,7 @@ import (
 	"context"
 	"fmt"
 	"math"
+	h5path "path"
 	"sort"
 
 	"trajvault/internal/trajfile"
@@ -105,6 +106,9 @@ type Settings struct {
 	// ZPEPairs lists atom pairs (0-based) to watch; empty = every X-H pair
 	// closer than 1.3 angstrom in the first frame.
 	ZPEPairs [][2]int
+	// Group is the particle group to audit (a name under /particles);
+	// "" audits every group of each file, one result per group.
+	Group string
 	// ConsistencyFailFraction: fraction of times at which the two ensemble
 	// population estimators differ by more than 3 binomial standard
 	// deviations before the ensemble fails the check.
@@ -126,6 +130,8 @@ var DefaultSettings = Settings{
 // Result is the audit of one trajectory.
 type Result struct {
 	File string `json:"file"`
+	// Group is the particle group audited (its name under /particles).
+	Group string `json:"group,omitempty"`
 	// Error says why the file could not be audited; Checks is then empty
 	// and Verdict is fail.
 	Error   string  `json:"error,omitempty"`
@@ -160,12 +166,12 @@ func mustFactor(a, b string) float64 {
 // File audits one trajectory file, running every per-file check of the
 // registry in order. It stops early when ctx is cancelled.
 func File(ctx context.Context, path string, s Settings) (*Result, error) {
-	r, err := trajfile.OpenReader(path)
+	r, err := trajfile.OpenReaderWith(path, trajfile.ReadOptions{Group: s.Group})
 	if err != nil {
 		return nil, err
 	}
 	defer r.Close()
-	a := &auditor{ctx: ctx, r: r, s: s, res: &Result{File: path, Frames: r.T, Atoms: r.N}}
+	a := &auditor{ctx: ctx, r: r, s: s, res: &Result{File: path, Group: h5path.Base(r.Group), Frames: r.T, Atoms: r.N}}
 	if err := a.safeRun(); err != nil {
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
@@ -250,7 +256,7 @@ func (a *auditor) run() error {
 		if err := a.ctx.Err(); err != nil {
 			return err
 		}
-		c, path := spec.file(a, &d)
+		c, path := a.runCheck(spec, &d)
 		c.Name, c.Code, c.path = spec.Name, spec.Code, path
 		a.res.Checks = append(a.res.Checks, c)
 	}
@@ -293,7 +299,14 @@ const frameBlock = 2048
 // <sum v^2>, the time-step estimator, momentum and ZPE leakage.
 func (a *auditor) scanFrames() error {
 	r := a.r
-	needKin := a.kin == nil && a.hasVel
+	// Without masses (optional in H5MD) nothing weighted by mass is
+	// formed; the checks that need it say so (runCheck).
+	massOK, speciesOK := r.Masses != nil, r.Species != nil
+	needKin := a.kin == nil && a.hasVel && massOK
+	if a.kineticFromAtoms() && (!massOK || len(r.Groups()) > 1) {
+		// V alone, or V plus one group's K, is not a total energy.
+		a.etot, needKin = nil, false
+	}
 	if needKin {
 		a.kin = make([]float64, r.T)
 	}
@@ -305,7 +318,7 @@ func (a *auditor) scanFrames() error {
 		a.v2 = make([]float64, r.T)
 	}
 	var shadow *shadowTracker
-	if h := a.frameInterval(); a.hasVel && a.hasForce && h > 0 && math.Abs(h-a.integrationStep()) <= 0.01*h {
+	if h := a.frameInterval(); massOK && a.hasVel && a.hasForce && h > 0 && math.Abs(h-a.integrationStep()) <= 0.01*h {
 		shadow = newShadowTracker(h, r.T, r.Masses)
 	}
 	for start := 0; start < r.T; start += frameBlock {
@@ -331,14 +344,18 @@ func (a *auditor) scanFrames() error {
 		for t := 0; t < n; t++ {
 			xs := x[t*3*r.N : (t+1)*3*r.N]
 			if start == 0 && t == 0 {
-				pairs, cuts := bondedPairs(xs, r.Species, r.N)
-				tau = newTauCollector(pairs, cuts)
-				if a.hasVel {
+				if massOK && speciesOK {
+					pairs, cuts := bondedPairs(xs, r.Species, r.N)
+					tau = newTauCollector(pairs, cuts)
+				}
+				if a.hasVel && massOK {
 					mom = newMomentumTracker(r.Masses)
-					zpe = newZPETracker(a.s, r, xs)
+					if speciesOK {
+						zpe = newZPETracker(a.s, r, xs)
+					}
 				}
 			}
-			if a.hasForce {
+			if a.hasForce && tau != nil {
 				fs := f[t*3*r.N : (t+1)*3*r.N]
 				acc := make([]float64, len(fs))
 				for i := range fs {
@@ -352,7 +369,9 @@ func (a *auditor) scanFrames() error {
 				vs := v[t*3*r.N : (t+1)*3*r.N]
 				k, s2 := 0.0, 0.0
 				for i, vi := range vs {
-					k += 0.5 * r.Masses[i/3] * vi * vi
+					if massOK {
+						k += 0.5 * r.Masses[i/3] * vi * vi
+					}
 					s2 += vi * vi
 				}
 				sumV2 += s2
@@ -360,8 +379,12 @@ func (a *auditor) scanFrames() error {
 				if needKin {
 					a.kin[start+t] = k
 				}
-				mom.add(xs, vs)
-				zpe.add(xs, vs)
+				if mom != nil {
+					mom.add(xs, vs)
+				}
+				if zpe != nil {
+					zpe.add(xs, vs)
+				}
 				if shadow != nil {
 					shadow.add(vs, f[t*3*r.N:(t+1)*3*r.N])
 				}

@@ -51,11 +51,13 @@ const Caution = "An audit is evidence about the stored numbers, not a certificat
 // counts the files audited (nil: not counted).
 func Ensemble(ctx context.Context, paths []string, s Settings, jobs int, done progress.Counter) (*Report, error) {
 	done = progress.Or(done)
-	done.SetTotal(int64(len(paths)))
-	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(paths)), settings: s, pop: &popSums{shortT: -1}}
+	ts := targets(paths, s)
+	done.SetTotal(int64(len(ts)))
+	rep := &Report{Caution: Caution, Trajectories: make([]*Result, len(ts)), settings: s, pop: &popSums{shortT: -1}}
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
-	for i, p := range paths {
+	for i, tg := range ts {
+		p, s := tg.path, tg.s
 		g.Go(func() error {
 			if err := gctx.Err(); err != nil {
 				return err
@@ -65,7 +67,7 @@ func Ensemble(ctx context.Context, paths []string, s Settings, jobs int, done pr
 				if cerr := gctx.Err(); cerr != nil {
 					return cerr
 				}
-				res = &Result{File: p, Error: err.Error(), Verdict: Fail, Checks: []Check{}}
+				res = &Result{File: p, Group: s.Group, Error: err.Error(), Verdict: Fail, Checks: []Check{}}
 			}
 			// Only running sums and the per-check results stay: memory
 			// is flat in the number of trajectories (issue 13).
@@ -81,6 +83,7 @@ func Ensemble(ctx context.Context, paths []string, s Settings, jobs int, done pr
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
+	onePerFile(rep.Trajectories)
 	for _, spec := range checks {
 		if spec.Scope == PerEnsemble {
 			c := spec.ensemble(rep, s)

@@ -11,7 +11,6 @@ import (
 	"path/filepath"
 	"strconv"
 
-	"trajvault/internal/elements"
 	"trajvault/internal/outdir"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
@@ -81,14 +80,18 @@ func (cc *clockColumns) appendTime(b []byte, i int) []byte {
 // exist): traj.xyz or traj.extxyz for geometries, observables.csv for the
 // per-frame observables. Numbers are printed in the precision recorded at
 // conversion, digit for digit.
-func Export(in, dir, format string) ([]string, error) {
+func Export(in, dir, format string) ([]string, error) { return ExportGroup(in, dir, format, "") }
+
+// ExportGroup is Export of the particle group named group ("" the
+// file's default group).
+func ExportGroup(in, dir, format, group string) ([]string, error) {
 	if format != FormatXYZ && format != FormatExtXYZ && format != FormatCSV {
 		return nil, fmt.Errorf("export: unknown format %q (want xyz, extxyz or csv)", format)
 	}
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
 	}
-	r, err := trajfile.OpenReader(in)
+	r, err := trajfile.OpenReaderWith(in, trajfile.ReadOptions{Group: group})
 	if err != nil {
 		return nil, err
 	}
@@ -192,7 +195,7 @@ func exportXYZ(r *trajfile.Reader, out string, extended bool) error {
 			b = clock.appendTime(b, start+t)
 			b = append(b, '\n')
 			for i := 0; i < n; i++ {
-				b = append(b, elements.Symbol(r.Species[i])...)
+				b = append(b, r.Symbol(i)...)
 				for _, q := range append([]*column{pos}, extra...) {
 					for k := 0; k < 3; k++ {
 						b = append(b, ' ')

@@ -36,6 +36,10 @@ type Selection struct {
 	// ranges "A-B" (0-based, as stored); it subsets state energies,
 	// populations, amplitudes, couplings and hops.
 	States string
+	// Group is the particle group to read (a name under /particles);
+	// "" is the file's default group (trajfile.ReadOptions). It chooses
+	// where the data come from, not a subset, so Empty ignores it.
+	Group string
 }
 
 // Empty reports whether nothing was selected (the whole file).
@@ -622,8 +626,8 @@ func parseAtoms(r *trajfile.Reader, spec string) ([]int, error) {
 		return nil, nil
 	}
 	syms := make([]string, r.N)
-	for i, z := range r.Species {
-		syms[i] = elements.Symbol(z)
+	for i := range syms {
+		syms[i] = r.Symbol(i)
 	}
 	have := fmt.Sprintf("the file has %d atoms, 0..%d (%s)", r.N, r.N-1, abbreviate(syms, 12))
 	if r.N == 0 {

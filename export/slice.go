@@ -6,11 +6,11 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path"
 	"path/filepath"
 	"strconv"
 	"strings"
 
-	"trajvault/internal/elements"
 	"trajvault/internal/outdir"
 	"trajvault/internal/trajfile"
 )
@@ -89,7 +89,7 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
 	}
-	r, err := trajfile.OpenWindowReader(in)
+	r, err := trajfile.OpenWindowReaderWith(in, trajfile.ReadOptions{Group: o.Sel.Group})
 	if err != nil {
 		return nil, err
 	}
@@ -169,7 +169,7 @@ func WriteValues(w io.Writer, in string, sel Selection, format string) error {
 	if format != FormatCSV && format != FormatJSON {
 		return &SelectionError{"--format", format, "values print as csv or json"}
 	}
-	r, err := trajfile.OpenWindowReader(in)
+	r, err := trajfile.OpenWindowReaderWith(in, trajfile.ReadOptions{Group: sel.Group})
 	if err != nil {
 		return err
 	}
@@ -255,10 +255,14 @@ func (p *plan) describe() string {
 	}
 	syms := make([]string, 0, len(p.atomList()))
 	for _, a := range p.atomList() {
-		syms = append(syms, elements.Symbol(p.r.Species[a]))
+		syms = append(syms, p.r.Symbol(a))
+	}
+	file := filepath.Base(p.r.Path)
+	if len(p.r.Groups()) > 1 {
+		file += " [" + path.Base(p.r.Group) + "]" // which particle group
 	}
 	s := fmt.Sprintf("selection of %s: frames %s (%d of %d); atoms %s (%s) of %d",
-		filepath.Base(p.r.Path), p.framesSpec(), len(p.frames), p.r.T, rangeText(p.atomList()), abbreviate(syms, 12), p.r.N)
+		file, p.framesSpec(), len(p.frames), p.r.T, rangeText(p.atomList()), abbreviate(syms, 12), p.r.N)
 	if p.r.States > 0 {
 		s += fmt.Sprintf("; states %s of %d", rangeText(p.stateList()), p.r.States)
 	}
@@ -290,6 +294,7 @@ func rangeText(idx []int) string {
 // and the "selection" member of JSON output).
 type Header struct {
 	File         string           `json:"file"`
+	Group        string           `json:"particle_group"`
 	Description  string           `json:"description"`
 	Frames       string           `json:"frames"`
 	FrameCount   int              `json:"frame_count"`
@@ -320,14 +325,14 @@ type QuantityHeader struct {
 
 func (p *plan) header() Header {
 	h := Header{
-		File: filepath.Base(p.r.Path), Description: p.describe(), Frames: p.framesSpec(),
+		File: filepath.Base(p.r.Path), Group: path.Base(p.r.Group), Description: p.describe(), Frames: p.framesSpec(),
 		FrameCount: len(p.frames), FramesInFile: p.r.T,
 		FirstFrame: p.frames[0], LastFrame: p.frames[len(p.frames)-1],
 		TimeUnit: p.clock.c.TimeUnit, Atoms: p.atomList(), AtomsInFile: p.r.N,
 		States: p.stateList(), StatesInFile: p.r.States, Quantities: []QuantityHeader{},
 	}
 	for _, a := range h.Atoms {
-		h.Species = append(h.Species, elements.Symbol(p.r.Species[a]))
+		h.Species = append(h.Species, p.r.Symbol(a))
 	}
 	for _, q := range p.qs {
 		qh := QuantityHeader{Name: q.def.name, Path: q.el.Path + trajfile.Value, Unit: q.el.Unit,
@@ -505,7 +510,7 @@ func (p *plan) writeXYZ(w *bufio.Writer, extended bool) error {
 			b = strconv.AppendInt(b, int64(f), 10)
 			b = append(b, '\n')
 			for ai, a := range atoms {
-				b = append(b, elements.Symbol(p.r.Species[a])...)
+				b = append(b, p.r.Symbol(a)...)
 				for i, q := range perAtomQ {
 					wd := q.width() / len(atoms)
 					base := t*q.width() + ai*wd

@@ -128,6 +128,11 @@ func trajectoryIn(root, d string, rc *Recipe) (*Trajectory, error) {
 	if err != nil {
 		return nil, err
 	}
+	// Readers in registry order, so that a text geometry beside an .h5
+	// file (perhaps an earlier output) stays the geometry.
+	sort.SliceStable(entries, func(i, j int) bool {
+		return rank(readerFor(extOf(entries[i].Name()))) < rank(readerFor(extOf(entries[j].Name())))
+	})
 	for _, e := range entries {
 		if e.IsDir() || strings.HasPrefix(e.Name(), ".") {
 			continue

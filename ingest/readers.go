@@ -4,7 +4,7 @@ package ingest
 // (the geometry first). Adding a reader means one file holding the
 // reader, its source and its Reader value, and one line here (see
 // DEVELOPERS.md, "How to add a reader").
-var readers = []*Reader{&xyzFormat, &tableFormat, &logFormat}
+var readers = []*Reader{&xyzFormat, &h5mdFormat, &tableFormat, &logFormat}
 
 // register adds a reader (for tests: a toy reader proves that a format
 // needs nothing outside its own file and this list) and returns a

@@ -15,6 +15,7 @@ import (
 	"trajvault/audit"
 	"trajvault/internal/finding"
 	"trajvault/internal/isolate"
+	"trajvault/internal/trajfile"
 )
 
 type auditOptions struct {
@@ -25,6 +26,7 @@ type auditOptions struct {
 	temperature float64
 	energyWarn  float64
 	energyFail  float64
+	group       string
 	iso         isolateOptions
 	// screen, when set, reads each file first in a worker of its own and
 	// returns those that crashed, hung or ran out of memory there
@@ -42,6 +44,7 @@ func (o *auditOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.energyWarn, "energy-warn", d.EnergyWarnEV, "warn when the total energy moves more than this from its start (eV)")
 	c.Flags().Float64Var(&o.energyFail, "energy-fail", d.EnergyFailEV, "fail when the total energy moves more than this from its start (eV)")
 	o.iso.AddFlags(c)
+	c.Flags().StringVar(&o.group, "group", "", "particle group under /particles to audit, e.g. water (default: every group, reported per group)")
 }
 
 func newAuditCommand(g *globals) *cobra.Command {
@@ -64,6 +67,10 @@ Each verdict is also a finding: code A1.. per check (listed below; see also
 ok, unknown and n/a; A10 is a file that could not be audited (the other
 files are audited regardless). The text output lists the findings that
 need attention; --json lists them all.
+
+A file with several particle groups is audited per group (--group NAME
+audits one). On a group without masses or species (both optional in
+H5MD) the checks that need them are not run, and say why.
 
 An audit is evidence about the stored numbers, not a certificate that the
 simulation behind them is sound.
@@ -157,6 +164,7 @@ func runAudit(ctx context.Context, g *globals, o auditOptions, args []string) er
 			return &exitError{exitUsage, fmt.Errorf("audit: %w", err)}
 		}
 	}
+	s.Group = o.group
 	auditing := newBar(g, "audit", "files")
 	rep, err := audit.Ensemble(ctx, withoutFiles(files, crashed), s, o.jobs, auditing)
 	auditing.Finish()
@@ -255,27 +263,36 @@ func writeAtomically(path string, fill func(*os.File) error) error {
 // trajectory followed by its findings that need attention, then the
 // ensemble summary and the caution.
 func printAudit(g *globals, rep *audit.Report) {
-	byFile := map[string][]finding.Finding{}
 	var ens []finding.Finding
 	for _, f := range rep.Attention() {
 		if f.File == "" {
 			ens = append(ens, f)
-			continue
 		}
-		byFile[f.File] = append(byFile[f.File], f)
 	}
+	groups := map[string]int{} // particle groups audited per file
 	for _, t := range rep.Trajectories {
-		line := fmt.Sprintf("%-5s %s (%s)", t.Verdict.Label(), filepath.Base(t.File), plural(t.Frames, "frame"))
+		groups[t.File]++
+	}
+	printed := map[string]bool{} // a file named twice prints its findings once
+	for _, t := range rep.Trajectories {
+		name := filepath.Base(t.File)
+		if groups[t.File] > 1 || (t.Group != "" && t.Group != trajfile.Group) {
+			name += " [" + t.Group + "]" // reported per particle group
+		}
+		line := fmt.Sprintf("%-5s %s (%s)", t.Verdict.Label(), name, plural(t.Frames, "frame"))
 		if n := t.NotRun(); n > 0 {
 			// "ok" covers only the checks that ran (issue 13).
-			line = fmt.Sprintf("%-5s %s (%s; %d of %d checks not run)", t.Verdict.Label(), filepath.Base(t.File), plural(t.Frames, "frame"), n, len(t.Checks))
+			line = fmt.Sprintf("%-5s %s (%s; %d of %d checks not run)", t.Verdict.Label(), name, plural(t.Frames, "frame"), n, len(t.Checks))
 		}
 		fmt.Fprintln(g.stdout, line)
-		for _, f := range byFile[t.File] {
+		if printed[name] {
+			continue
+		}
+		printed[name] = true
+		for _, f := range t.Attention() {
 			f.File = filepath.Base(f.File) // the line above names the file
 			wrap(g, f.String(), "  ")
 		}
-		delete(byFile, t.File) // a file named twice prints its findings once
 	}
 	for _, f := range ens {
 		wrap(g, f.String(), "")

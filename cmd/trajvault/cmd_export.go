@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"trajvault/export"
+	"trajvault/internal/trajfile"
 )
 
 // selectFlags are the selection options shared by export and inspect
@@ -27,6 +28,7 @@ func (o *selectFlags) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.sel.Atoms, "atoms", "", "atoms by index from 0, inclusive range or element, e.g. 0-2,7,H")
 	c.Flags().StringVar(&o.quantities, "quantities", "", "comma-separated quantities: "+strings.Join(export.QuantityNames(), ", "))
 	c.Flags().StringVar(&o.sel.States, "states", "", "electronic states by index from 0, e.g. 0,1 (subsets state energies, populations, amplitudes, couplings, hops)")
+	c.Flags().StringVar(&o.sel.Group, "group", "", "particle group under /particles to read, e.g. water (default: every group)")
 }
 
 func (o *selectFlags) selection() export.Selection {
@@ -86,6 +88,10 @@ velocity) in u angstrom per angstrom*sqrt(u/eV), a time unit of
 that unit); converted numbers are printed in the shortest form that
 reads back to the same float64.
 
+--group NAME reads that particle group (under /particles); without it a
+file with several groups is written one folder per group, DIR/NAME.
+Atoms of a group that stores no species are written as X.
+
 The file is read by a worker process with a memory limit (--max-memory)
 and a time limit (--time-limit): a file that crashes the reader, hangs or
 needs too much memory is reported (X1, X2, X3; exit 1).
@@ -143,6 +149,11 @@ the message says what the file holds).`,
 var fileFormats = map[string]string{".xyz": export.FormatXYZ, ".extxyz": export.FormatExtXYZ, ".csv": export.FormatCSV, ".json": export.FormatJSON}
 
 func runExport(g *globals, restart bool, o exportOptions, in string) error {
+	if o.sel.Group == "" {
+		if groups, err := trajfile.Groups(in); err == nil && len(groups) > 1 {
+			return exportGroups(g, restart, o, in, groups)
+		}
+	}
 	if format, ok := fileFormats[strings.ToLower(filepath.Ext(o.out))]; ok {
 		return exportFile(g, restart, o, in, format)
 	}
@@ -150,7 +161,7 @@ func runExport(g *globals, restart bool, o exportOptions, in string) error {
 	var files []string
 	var err error
 	if sel.Empty() && !restart && o.convention != export.ConventionASE && (o.format == export.FormatXYZ || o.format == export.FormatExtXYZ || o.format == export.FormatCSV) {
-		files, err = export.Export(in, o.out, o.format) // the whole file, as converted
+		files, err = export.ExportGroup(in, o.out, o.format, o.sel.Group) // the whole group, as converted
 	} else {
 		if restart {
 			sel.Frames = strconv.Itoa(o.frame)
@@ -164,6 +175,42 @@ func runExport(g *globals, restart bool, o exportOptions, in string) error {
 		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": o.format, "convention": o.convention, "files": files})
 	}
 	for _, f := range files {
+		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
+	}
+	return nil
+}
+
+// exportGroups writes each particle group of a file with several into
+// its own folder OUT/GROUP, reported per group; OUT must not exist and
+// is removed again when a group fails.
+func exportGroups(g *globals, restart bool, o exportOptions, in string, groups []string) error {
+	if _, ok := fileFormats[strings.ToLower(filepath.Ext(o.out))]; ok {
+		return &exitError{exitUsage, fmt.Errorf("export: %s has %d particle groups (%s); -o %s names one file: add --group NAME, or give a folder", in, len(groups), strings.Join(groups, ", "), o.out)}
+	}
+	if err := os.Mkdir(o.out, 0o755); err != nil {
+		if errors.Is(err, os.ErrExist) {
+			return &exitError{exitUsage, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", o.out)}
+		}
+		return &exitError{exitUsage, fmt.Errorf("export: %w", err)}
+	}
+	var all []string
+	quiet := &globals{stdout: &bytes.Buffer{}, stderr: g.stderr}
+	for _, name := range groups {
+		one := o
+		one.sel.Group, one.out, one.json = name, filepath.Join(o.out, name), false
+		if err := runExport(quiet, restart, one, in); err != nil {
+			os.RemoveAll(o.out)
+			return err
+		}
+		entries, _ := os.ReadDir(one.out)
+		for _, e := range entries {
+			all = append(all, name+"/"+e.Name())
+		}
+	}
+	if o.json {
+		return printEnvelope(g, "export", nil, map[string]any{"input": in, "output": o.out, "format": o.format, "particle_groups": groups, "files": all})
+	}
+	for _, f := range all {
 		fmt.Fprintf(g.stdout, "wrote %s/%s\n", o.out, f)
 	}
 	return nil

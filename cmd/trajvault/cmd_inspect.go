@@ -44,6 +44,11 @@ compression ratio (logical size / stored size).
 line saying what was selected, or as JSON with --json; only the chunks
 that hold the selection are read, and numbers keep their recorded digits.
 
+Every particle group under /particles is summarised, one line each;
+--group NAME shows only that group (and with --values reads it; without
+--group, --values reads the file's default group: ours, else the first
+in name order).
+
 Each file is read by a worker process with a memory limit (--max-memory)
 and a time limit (--time-limit): a file that crashes the reader, hangs or
 needs too much memory is reported (X1, X2, X3) and the next file is read.
@@ -82,7 +87,7 @@ outside the data (the message says what the file holds).`,
 				return inWorker(args[0], func() error { return runValues(g, o, args[0]) })
 			}
 			if o.json {
-				return inWorker(args[0], func() error { return inspectJSON(g, args) })
+				return inWorker(args[0], func() error { return inspectJSON(g, o, args) })
 			}
 			for i, a := range args {
 				if i > 0 {
@@ -101,22 +106,43 @@ outside the data (the message says what the file holds).`,
 
 // inspectJSON prints the summaries of the files, in the order given, as
 // the result of one envelope.
-func inspectJSON(g *globals, paths []string) error {
+func inspectJSON(g *globals, o inspectOptions, paths []string) error {
 	var all []*trajfile.Summary
 	for _, p := range paths {
-		s, err := trajfile.Summarize(p)
+		s, err := summarize(p, o.sel.Group)
 		if err != nil {
-			return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
+			return err
 		}
 		all = append(all, s)
 	}
 	return printEnvelope(g, "inspect", nil, map[string]any{"files": all})
 }
 
-func runInspect(g *globals, o inspectOptions, path string) error {
+// summarize is the summary of path, with only the particle group named
+// group when group is not "" (a usage error when the file lacks it).
+func summarize(path, group string) (*trajfile.Summary, error) {
 	s, err := trajfile.Summarize(path)
 	if err != nil {
-		return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
+		return nil, &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
+	}
+	if group == "" {
+		return s, nil
+	}
+	var names []string
+	for _, p := range s.Groups {
+		if p.Name == group {
+			s.Groups = []trajfile.GroupSummary{p}
+			return s, nil
+		}
+		names = append(names, p.Name)
+	}
+	return nil, &exitError{exitUsage, fmt.Errorf("inspect: %s has no particle group %q; it has: %s", path, group, strings.Join(names, ", "))}
+}
+
+func runInspect(g *globals, o inspectOptions, path string) error {
+	s, err := summarize(path, o.sel.Group)
+	if err != nil {
+		return err
 	}
 	w := tabwriter.NewWriter(g.stdout, 0, 0, 2, ' ', 0)
 	fmt.Fprintf(w, "file\t%s\n", s.File)
@@ -124,7 +150,11 @@ func runInspect(g *globals, o inspectOptions, path string) error {
 	fmt.Fprintf(w, "author\t%s\n", s.Author)
 	fmt.Fprintf(w, "modules\t%s\n", strings.Join(s.Modules, ", "))
 	for _, p := range s.Groups {
-		fmt.Fprintf(w, "particles\t%s: %d atoms (%s), %d frames, steps %d..%d every %d\n", p.Name, p.Atoms, p.Formula, p.Frames, p.FirstStep, p.LastStep, p.Stride)
+		formula := p.Formula
+		if formula == "" {
+			formula = "no species"
+		}
+		fmt.Fprintf(w, "particles\t%s: %d atoms (%s), %d frames, steps %d..%d every %d\n", p.Name, p.Atoms, formula, p.Frames, p.FirstStep, p.LastStep, p.Stride)
 		fmt.Fprintf(w, "time\t%g..%g %s, %g %s per step\n", p.TimeFirst, p.TimeLast, p.TimeUnit, p.StepTime, p.TimeUnit)
 	}
 	if s.States > 0 {

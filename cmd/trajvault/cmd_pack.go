@@ -122,6 +122,10 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
+	trajs, taken, err := takeConverted(g, trajs) // .h5 files already converted are copied
+	if err != nil {
+		return err
+	}
 	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, false, o.json)
 	if err != nil {
 		return err
@@ -154,6 +158,11 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	for i, r := range reps {
 		conv[i] = pack.Converted{Report: r, Result: results[i], File: schema.TrajectoriesDir + "/" + r.Name + schema.TrajectoryExt}
 	}
+	copied, err := copyConverted(tmp, taken)
+	if err != nil {
+		return fail(err)
+	}
+	conv = append(conv, copied...)
 	bo := pack.BundleOptions{Deposit: dep, Algorithms: []string{"sha512", "sha256"}, KeepSources: o.keepSources,
 		Jobs: o.jobs, ToolVersion: toolVersion(), Now: time.Now(), Plots: map[string][]byte{}}
 	if o.md5 {

@@ -2,7 +2,11 @@ package trajfile
 
 import (
 	"fmt"
+	"slices"
+	"sort"
+	"strings"
 
+	"trajvault/internal/elements"
 	"trajvault/internal/h5"
 	"trajvault/internal/textnum"
 	"trajvault/internal/units"
@@ -20,25 +24,44 @@ type Reader struct {
 	Group string // particle group path, e.g. /particles/all
 	N     int    // atoms
 	T     int    // frames
-	// Species are atomic numbers; Masses are in electron masses.
-	Species []int
-	Masses  []float64
-	Steps   []int64   // per frame
-	Times   []float64 // per frame, au_time
-	States  int
+	// Species are atomic numbers; Masses are in electron masses. Both
+	// are optional in H5MD: nil when the group lacks them, and then
+	// NoSpecies and NoMasses say why (for "not run" reasons).
+	Species   []int
+	Masses    []float64
+	NoSpecies string
+	NoMasses  string
+	Steps     []int64   // per frame
+	Times     []float64 // per frame, au_time
+	States    int
 	// TimeStep is the integration step in au_time (/parameters/time_step),
 	// or 0 when the file does not record it.
 	TimeStep float64
 }
 
-// OpenReader opens a trajectory file for analysis.
-func OpenReader(path string) (*Reader, error) {
+// ReadOptions choose what a Reader opens.
+type ReadOptions struct {
+	// Group is the name of the particle group under /particles (e.g.
+	// "water"); "" picks ours when present, else the first group in name
+	// order that holds positions (Groups lists them all).
+	Group string
+}
+
+// OpenReader opens a trajectory file for analysis, its default particle
+// group (see ReadOptions.Group).
+func OpenReader(path string) (*Reader, error) { return OpenReaderWith(path, ReadOptions{}) }
+
+// OpenReaderWith opens a trajectory file for analysis, the particle
+// group o names.
+func OpenReaderWith(path string, o ReadOptions) (*Reader, error) { return open(path, o, true) }
+
+func open(path string, o ReadOptions, withClock bool) (*Reader, error) {
 	f, err := h5.Open(path)
 	if err != nil {
 		return nil, err
 	}
 	r := &Reader{f: f, Path: path}
-	if err := r.init(true); err != nil {
+	if err := r.init(o, withClock); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
@@ -53,7 +76,7 @@ func OpenReaderImage(name string, img []byte) (*Reader, error) {
 		return nil, err
 	}
 	r := &Reader{f: f, Path: name}
-	if err := r.init(true); err != nil {
+	if err := r.init(ReadOptions{}, true); err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
@@ -75,59 +98,82 @@ func (r *Reader) unitFactor(path, to string) (float64, error) {
 	return units.Factor(a.Strings[0], to)
 }
 
-// findGroup picks the particle group: ours when present, else the first
-// (in name order) that holds positions.
-func findGroup(f *h5.File) (string, error) {
+// Groups lists the names of the particle groups of the file at path
+// that hold positions (H5MD 1.1 "particles group": any name, any number
+// of groups), in name order.
+func Groups(path string) ([]string, error) {
+	f, err := h5.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	return groups(f), nil
+}
+
+// Groups lists the file's particle groups that hold positions (as the
+// function Groups does).
+func (r *Reader) Groups() []string { return groups(r.f) }
+
+func groups(f *h5.File) []string {
+	names, _ := f.Links(ParticlesGroup)
+	var out []string
+	for _, n := range names {
+		if f.Kind(Particle(ParticleGroup(n), Position)+Value) == h5.Dataset {
+			out = append(out, n)
+		}
+	}
+	sort.Strings(out)
+	return out
+}
+
+// findGroup picks the particle group: the one named, else ours when
+// present, else the first (in name order) that holds positions.
+func findGroup(f *h5.File, name string) (string, error) {
+	have := groups(f)
+	if name != "" {
+		if strings.Contains(name, "/") || name == "." || name == ".." {
+			return "", fmt.Errorf("particle group %q: give the name of a group under %s, without slashes, e.g. all", name, ParticlesGroup)
+		}
+		if slices.Contains(have, name) {
+			return ParticleGroup(name), nil
+		}
+		return "", fmt.Errorf("no particle group %q with positions under %s; the file has: %s", name, ParticlesGroup, groupList(have))
+	}
 	if f.Kind(Particle(OurGroup, Position)+Value) == h5.Dataset {
 		return OurGroup, nil
 	}
-	names, _ := f.Links(ParticlesGroup)
-	for _, n := range names {
-		if g := ParticleGroup(n); f.Kind(Particle(g, Position)+Value) == h5.Dataset {
-			return g, nil
-		}
+	if len(have) > 0 {
+		return ParticleGroup(have[0]), nil
 	}
 	return "", fmt.Errorf("no particle group with positions under %s", ParticlesGroup)
+}
+
+func groupList(names []string) string {
+	if len(names) == 0 {
+		return "none with positions"
+	}
+	return strings.Join(names, ", ")
 }
 
 // init reads what every use needs and checks the shapes; withClock also
 // loads every frame's step and time (OpenWindowReader leaves them out:
 // on long runs with an explicit clock they cost more than a window).
-func (r *Reader) init(withClock bool) error {
+func (r *Reader) init(o ReadOptions, withClock bool) error {
 	var err error
-	if r.Group, err = findGroup(r.f); err != nil {
+	if r.Group, err = findGroup(r.f, o.Group); err != nil {
 		return err
-	}
-	sp, spShape, err := r.f.ReadInt64(r.Particle(Species))
-	if err != nil {
-		return fmt.Errorf("no species: %v", err)
-	}
-	if spShape.Rank != 1 || len(sp) == 0 {
-		return fmt.Errorf("%s: shape %v, want [N] with N >= 1 atoms", r.Particle(Species), spShape.Dims)
-	}
-	r.N = len(sp)
-	for _, z := range sp {
-		r.Species = append(r.Species, int(z))
-	}
-	m, _, err := r.f.ReadFloat64(r.Particle(Mass))
-	if err != nil || len(m) != r.N {
-		return fmt.Errorf("no masses for %d atoms", r.N)
-	}
-	mf, err := r.unitFactor(r.Particle(Mass), "me")
-	if err != nil {
-		return err
-	}
-	for _, x := range m {
-		r.Masses = append(r.Masses, x*mf)
 	}
 	info, err := r.f.Info(r.Particle(Position) + Value)
 	if err != nil {
 		return fmt.Errorf("no positions [T][N][3]: %w", err)
 	}
-	if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] < 1 || d[1] != r.N || d[2] != 3 {
-		return fmt.Errorf("%s%s: shape %v, want [T][%d][3] with T >= 1 frames", r.Particle(Position), Value, info.Shape.Dims, r.N)
+	if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] < 1 || d[1] < 1 || d[2] != 3 {
+		return fmt.Errorf("%s%s: shape %v, want [T][N][3] with T >= 1 frames and N >= 1 atoms", r.Particle(Position), Value, info.Shape.Dims)
 	}
-	r.T = info.Shape.Dims[0]
+	r.T, r.N = info.Shape.Dims[0], info.Shape.Dims[1]
+	if err := r.atoms(); err != nil {
+		return err
+	}
 	if err := checkFrames(r.T); err != nil {
 		return fmt.Errorf("%s%s: %w", r.Particle(Position), Value, err)
 	}
@@ -174,6 +220,58 @@ func (r *Reader) MassesIn(unit string) ([]float64, error) {
 		}
 	}
 	return m, nil
+}
+
+// atoms reads species and masses, both optional in H5MD 1.1: a group
+// without them leaves them nil with the reason in NoSpecies or NoMasses.
+// Present but wrong (shape, unit) is an error, as everywhere else.
+func (r *Reader) atoms() error {
+	if p := r.Particle(Species); r.f.Kind(p) == h5.Missing {
+		r.NoSpecies = fmt.Sprintf("%s has no %s (chemical elements unknown)", r.Group, Species)
+	} else {
+		sp, shape, err := r.f.ReadInt64(p)
+		if err != nil {
+			return fmt.Errorf("%s: %w", p, err)
+		}
+		if shape.Rank != 1 || len(sp) != r.N {
+			return fmt.Errorf("%s: shape %v, want [%d] (one per atom of the positions)", p, shape.Dims, r.N)
+		}
+		for _, z := range sp {
+			r.Species = append(r.Species, int(z))
+		}
+	}
+	p := r.Particle(Mass)
+	if r.f.Kind(p) == h5.Missing {
+		r.NoMasses = fmt.Sprintf("%s has no %s", r.Group, Mass)
+		return nil
+	}
+	m, shape, err := r.f.ReadFloat64(p)
+	if err != nil {
+		return fmt.Errorf("%s: %w", p, err)
+	}
+	if shape.Rank != 1 || len(m) != r.N {
+		return fmt.Errorf("%s: shape %v, want [%d] (one per atom of the positions)", p, shape.Dims, r.N)
+	}
+	mf, err := r.unitFactor(p, "me")
+	if err != nil {
+		// Unusable rather than wrong: the analyses that need masses say
+		// they did not run, and why.
+		r.NoMasses = err.Error()
+		return nil
+	}
+	for _, x := range m {
+		r.Masses = append(r.Masses, x*mf)
+	}
+	return nil
+}
+
+// Symbol is atom i's chemical symbol, or "X" when the group stores no
+// species (common practice for an unknown element in XYZ files).
+func (r *Reader) Symbol(i int) string {
+	if i < 0 || i >= len(r.Species) {
+		return "X"
+	}
+	return elements.Symbol(r.Species[i])
 }
 
 // MaxStates bounds /parameters/n_states: per frame the couplings hold

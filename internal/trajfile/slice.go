@@ -128,17 +128,12 @@ func rowOffsets(dims []int, keep [][]int) []int {
 // for 1e6 frames). Steps and Times stay nil: ClockAt reads the clock of
 // the frames wanted. The rest (group, species, masses, T, States,
 // TimeStep) is read as OpenReader reads it.
-func OpenWindowReader(path string) (*Reader, error) {
-	f, err := h5.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	r := &Reader{f: f, Path: path}
-	if err := r.init(false); err != nil {
-		f.Close()
-		return nil, fmt.Errorf("%s: %w", path, err)
-	}
-	return r, nil
+func OpenWindowReader(path string) (*Reader, error) { return open(path, ReadOptions{}, false) }
+
+// OpenWindowReaderWith is OpenWindowReader for the particle group o
+// names.
+func OpenWindowReaderWith(path string, o ReadOptions) (*Reader, error) {
+	return open(path, o, false)
 }
 
 // ClockAt reads the steps and times (in the stored time unit) of element
