@@ -129,7 +129,7 @@ func runCompare(c *cobra.Command, g *globals, o compareOptions, a, b string) err
 	s := compare.DefaultSettings
 	s.Threshold, s.RoundOff, s.Alpha = o.threshold, o.roundOff, o.alpha
 	s.TestTimes, s.MinTrajectories = o.testTimes, o.minTrajectories
-	co := (&convertOptions{compat: "1.10"}).packOptions(opt, nil)
+	co := (&conversionFlags{compat: "1.10"}).packOptions(opt, nil)
 	rep, err := compare.Run(c.Context(), a, b, compare.Options{Settings: s, Convert: co})
 	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("compare: %w", err)}

@@ -18,21 +18,48 @@ import (
 	"trajvault/internal/outdir"
 )
 
-type convertOptions struct {
-	readFlags
-	out         string
+// conversionFlags are the settings of a conversion, one flag set shared
+// by convert and pack (and passed on to worker processes).
+type conversionFlags struct {
 	dropPartial bool
 	bitExact    bool
 	forReaders  bool
 	tolerance   []string
 	author      string
 	email       string
-	json        bool
-	jobs        int
 	explicit    bool
 	compat      string
 	series      int
 	accept      bool
+}
+
+func (o *conversionFlags) AddFlags(c *cobra.Command) {
+	c.Flags().BoolVar(&o.dropPartial, "drop-partial", false, "drop a cut last frame instead of failing (recorded in the file)")
+	c.Flags().BoolVar(&o.bitExact, "bit-exact", false, "store each number as the float64 nearest to its printed decimal (larger files); default: scale-offset at the printed decimals, digit-exact")
+	c.Flags().StringArrayVar(&o.tolerance, "tolerance", nil, "allow lossy storage of a quantity within an absolute bound, e.g. --tolerance velocity=5e-7 (recorded in the file)")
+	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER; pack: the first creator)")
+	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
+	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "convert time, positions, velocities, forces and energies into units common H5MD readers understand, with an explicit clock (the stored numbers are then conversions, not the printed digits)")
+	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
+	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
+	c.Flags().BoolVar(&o.accept, "accept-mismatch", false, "convert although a physics cross-check failed (e.g. P17: kinetic energy vs 1/2 m v^2); recorded in the file")
+	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
+}
+
+// check is the usage check of the conversion flags.
+func (o *conversionFlags) check(verb string) error {
+	if _, ok := compatFormats[o.compat]; !ok {
+		return &exitError{exitUsage, fmt.Errorf("%s: --hdf5-compat %q: use 1.10, 1.8 or earliest", verb, o.compat)}
+	}
+	return nil
+}
+
+type convertOptions struct {
+	readFlags
+	conversionFlags
+	out  string
+	json bool
+	jobs int
 	// workerArgs are the flags the user set, for worker processes.
 	workerArgs []string
 	shard      string // I/N: convert one shard of an ensemble
@@ -41,21 +68,12 @@ type convertOptions struct {
 
 func (o *convertOptions) AddFlags(c *cobra.Command) {
 	o.readFlags.AddFlags(c)
+	o.conversionFlags.AddFlags(c)
 	c.Flags().StringVarP(&o.out, "output", "o", "", "trajectory file to write (must not exist)")
-	c.Flags().BoolVar(&o.dropPartial, "drop-partial", false, "drop a cut last frame instead of failing (recorded in the file)")
-	c.Flags().BoolVar(&o.bitExact, "bit-exact", false, "store each number as the float64 nearest to its printed decimal (larger files); default: scale-offset at the printed decimals, digit-exact")
-	c.Flags().StringArrayVar(&o.tolerance, "tolerance", nil, "allow lossy storage of a quantity within an absolute bound, e.g. --tolerance velocity=5e-7 (recorded in the file)")
-	c.Flags().StringVar(&o.author, "author", "", "author name for /h5md/author (default: $USER)")
-	c.Flags().StringVar(&o.email, "email", "", "author e-mail")
 	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result)")
 	c.Flags().IntVarP(&o.jobs, "jobs", "j", runtime.NumCPU(), "trajectories converted at once when SRC is an ensemble folder; above 1, each in a worker process of its own (HDF5 serialises threads)")
-	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "convert time, positions, velocities, forces and energies into units common H5MD readers understand, with an explicit clock (the stored numbers are then conversions, not the printed digits)")
-	c.Flags().BoolVar(&o.explicit, "explicit-clock", false, "store step and time per frame even when sampling is uniform (default: H5MD fixed mode then)")
-	c.Flags().IntVar(&o.series, "chunk-frames", ingest.DefaultSeriesFrames, "frames per chunk of each atom coordinate (time-series chunks); -1 chunks whole frames")
-	c.Flags().BoolVar(&o.accept, "accept-mismatch", false, "convert although a physics cross-check failed (e.g. P17: kinetic energy vs 1/2 m v^2); recorded in the file")
 	c.Flags().StringVar(&o.shard, "shard", "", "convert shard I of N of an ensemble (I/N, e.g. 0/8): one job of a cluster job array; -o may exist, done trajectories are skipped by checksum")
 	c.Flags().BoolVar(&o.gather, "gather", false, "check that the shards have converted every trajectory of the ensemble into -o, unchanged since")
-	c.Flags().StringVar(&o.compat, "hdf5-compat", "1.10", "oldest HDF5 library that must read the files: 1.10, 1.8 or earliest (older formats are a little larger)")
 }
 
 func newConvertCommand(g *globals) *cobra.Command {
@@ -181,7 +199,7 @@ var compatFormats = map[string]h5.Format{"1.10": h5.Format110, "1.8": h5.Format1
 
 // packOptions are the conversion settings common to one trajectory and
 // ensembles.
-func (o *convertOptions) packOptions(opt ingest.Options, tol map[string]float64) ingest.ConvertOptions {
+func (o *conversionFlags) packOptions(opt ingest.Options, tol map[string]float64) ingest.ConvertOptions {
 	author := o.author
 	if author == "" {
 		author = os.Getenv("USER")

@@ -21,6 +21,7 @@ import (
 
 type packOptions struct {
 	readFlags
+	conversionFlags
 	out         string
 	deposit     string
 	md5         bool
@@ -33,7 +34,6 @@ type packOptions struct {
 	maxFileGB   float64
 	noAudit     bool
 	require     string
-	forReaders  bool
 	json        bool
 	split       bool
 	// workerArgs are the conversion flags the user set, for workers.
@@ -42,6 +42,7 @@ type packOptions struct {
 
 func (o *packOptions) AddFlags(c *cobra.Command) {
 	o.readFlags.AddFlags(c)
+	o.conversionFlags.AddFlags(c) // the same conversion as convert
 	c.Flags().StringVarP(&o.out, "output", "o", "", "bundle folder to write (a BagIt bag)")
 	c.Flags().StringVar(&o.deposit, "deposit", "deposit.yaml", "deposit description (write one with trajvault init)")
 	c.Flags().BoolVar(&o.md5, "md5", false, "add an md5 manifest beside sha512 and sha256 (repositories often show md5)")
@@ -54,7 +55,6 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().Float64Var(&o.maxFileGB, "max-file-gb", 10, "repository limit: GB per file (warn above)")
 	c.Flags().BoolVar(&o.noAudit, "no-audit", false, "leave the physics audit out of the data description")
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as one JSON document (tool, command, findings, result)")
-	c.Flags().BoolVar(&o.forReaders, "for-readers", false, "store in units common H5MD readers understand, with an explicit clock (numbers converted, not the printed digits; recorded in the provenance)")
 	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
 }
@@ -91,6 +91,9 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 			if o.require != "" && o.noAudit {
 				return &exitError{exitUsage, errors.New("pack: --require-audit needs the audit; drop --no-audit")}
 			}
+			if err := o.conversionFlags.check("pack"); err != nil {
+				return err
+			}
 			if o.archive != "" && o.archive != "tar.zst" && o.archive != "zip" {
 				return &exitError{exitUsage, fmt.Errorf("pack: --archive %q: use tar.zst or zip", o.archive)}
 			}
@@ -126,7 +129,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return err
 	}
-	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, false, o.json)
+	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, o.dropPartial, o.json)
 	if err != nil {
 		return err
 	}
@@ -138,13 +141,19 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		os.RemoveAll(tmp)
 		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
-	copt := ingest.ConvertOptions{Options: opt, Author: dep.Creators[0].Name, ToolVersion: toolVersion(), ForReaders: o.forReaders,
-		CommandLine: append([]string{"trajvault"}, os.Args[1:]...)}
+	tol, err := parseTolerances(o.tolerance)
+	if err != nil {
+		return fail(err)
+	}
+	if o.author == "" {
+		o.author = dep.Creators[0].Name // the deposit's first creator
+	}
+	copt := o.conversionFlags.packOptions(opt, tol)
 	trajDir := filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir))
 	var results []*ingest.Result
 	if o.jobs > 1 && len(trajs) > 1 {
 		// Worker processes, as convert --jobs: one HDF5 library each.
-		flags := append(o.workerArgs, "--author="+dep.Creators[0].Name)
+		flags := append(o.workerArgs, "--author="+o.author) // the user's, else the creator
 		results, err = convertInWorkers(ctx, g, flags, dir, trajDir, trajs, o.jobs)
 	} else {
 		converting := newBar(g, "convert", "trajectories")

@@ -83,3 +83,37 @@ func TestPackWorkers(t *testing.T) {
 		h5diffSameData(t, filepath.Join(dir, "bag1", "data", "trajectories", n), filepath.Join(dir, "bag2", "data", "trajectories", n))
 	}
 }
+
+// TestPackTakesConversionFlags: pack has convert's conversion flags (one
+// flag set): a cut last frame is refused (exit 1, nothing written) and
+// packed with --drop-partial, in worker processes and in this one, and
+// --hdf5-compat is checked as convert checks it.
+func TestPackTakesConversionFlags(t *testing.T) {
+	dir, deposit := packFixture(t, "1", "100")
+	logs := filepath.Join(dir, "cut")
+	if code, _, errs := runCLI("demo", "--text", "--truncate-last", "--trajectories", "2", "--steps", "100", logs); code != 0 {
+		t.Fatalf("demo: %s", errs)
+	}
+	recipe := repo("testdata", "recipes", "tarnol.yaml")
+	bag := filepath.Join(dir, "bag")
+	if code, _, errs := runCLI("pack", logs, "-o", bag, "--deposit", deposit, "--recipe", recipe, "--no-audit"); code != 1 {
+		t.Errorf("cut last frame without --drop-partial: exit %d, want 1\n%s", code, errs)
+	}
+	if _, err := os.Stat(bag); err == nil {
+		t.Error("a refused pack wrote the bundle")
+	}
+	for _, j := range []string{"1", "2"} {
+		out := bag + j
+		if code, o, errs := runCLI("pack", "-j", j, logs, "-o", out, "--deposit", deposit, "--recipe", recipe, "--no-audit",
+			"--drop-partial", "--author", "Roe, Richard", "--chunk-frames", "64"); code != 0 {
+			t.Fatalf("pack -j %s --drop-partial: exit %d\n%s%s", j, code, o, errs)
+		}
+		b, err := exec.Command("h5dump", "-a", "/h5md/author/name", filepath.Join(out, "data", "trajectories", "traj-001.h5")).CombinedOutput()
+		if err != nil || !strings.Contains(string(b), "Roe, Richard") {
+			t.Errorf("-j %s: --author not recorded (h5dump, Debian's hdf5-tools): %v\n%s", j, err, b)
+		}
+	}
+	if code, _, errs := runCLI("pack", logs, "-o", bag, "--deposit", deposit, "--hdf5-compat", "1.6"); code != 2 || !strings.Contains(errs, "--hdf5-compat") {
+		t.Errorf("--hdf5-compat 1.6: exit %d %s", code, errs)
+	}
+}
