@@ -250,7 +250,7 @@ func TestDataDescriptionCodeRuns(t *testing.T) {
 
 // TestPackForceKilled (issue 12, item 6: a pack --force killed while
 // replacing a bundle left it half-deleted, 10 of 10 trials): pack --force
-// over a valid bundle is killed (SIGKILL) at random points of its run;
+// over a valid bundle is killed (SIGKILL) at 20 random points of its run;
 // after each kill the bundle validates (exit 0), i.e. it is the complete
 // old or the complete new one. A folder named like the old staging folder
 // (bag.partial), which the user owns, survives every run. Seeded.
@@ -275,7 +275,7 @@ func TestPackForceKilled(t *testing.T) {
 		t.Fatalf("pack --force: %v\n%s", err, out)
 	}
 	full := time.Since(start)
-	trials := 12
+	trials := 20 // the 20 random points of issue 12
 	if testing.Short() {
 		trials = 4
 	}
