@@ -33,6 +33,9 @@ var h5mdFormat = Reader{
 	Open:  func(p string, _ any, _ *Recipe) (source, error) { return openH5MD(p) },
 }
 
+// ProbeH5MD reports why p is not an H5MD file convert can read, or nil.
+func ProbeH5MD(p string) error { return probeH5MD(p) }
+
 // probeH5MD accepts HDF5 files with /h5md (H5MD 1.1: a file is H5MD by
 // that group and its version, never by its name).
 func probeH5MD(p string) error {

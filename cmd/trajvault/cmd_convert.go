@@ -125,8 +125,10 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 		return err
 	}
 	for _, a := range args {
-		if isHDF5(a) {
-			return &exitError{exitUsage, fmt.Errorf("convert: %s is an HDF5 file, not a text log; convert reads text logs (to check or read a trajectory file: trajvault validate %s, trajvault inspect %s)", a, a, a)}
+		// H5MD files are an input kind of their own (repacked); any
+		// other HDF5 file is not a log.
+		if isHDF5(a) && ingest.ProbeH5MD(a) != nil {
+			return &exitError{exitUsage, fmt.Errorf("convert: %s is an HDF5 file but not H5MD (no /h5md group), nor a text log; convert reads text logs and H5MD files (to check or read it: trajvault validate %s, trajvault inspect %s)", a, a, a)}
 		}
 	}
 	opt.AcceptMismatch = o.accept

@@ -277,9 +277,15 @@ func TestHintsWorkWhenPasted(t *testing.T) {
 	if strings.Contains(out, "P8") || strings.Contains(errs, "accepts") {
 		t.Errorf("hints pasted %v: exit %d\n%s%s", args, code, out, errs)
 	}
-	h5 := demoFile(t)
-	code, _, errs = runCLI("convert", h5, "-o", filepath.Join(t.TempDir(), "x.h5"))
-	if code != 2 || !strings.Contains(errs, "is an HDF5 file, not a text log") || strings.Contains(errs, "bad header") {
+	// An HDF5 file that is not H5MD (H5MD files are repacked).
+	plain := filepath.Join(t.TempDir(), "plain.h5")
+	f, err := h5.Create(plain)
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	code, _, errs = runCLI("convert", plain, "-o", filepath.Join(t.TempDir(), "x.h5"))
+	if code != 2 || !strings.Contains(errs, "is an HDF5 file but not H5MD") || strings.Contains(errs, "bad header") {
 		t.Errorf("convert of an HDF5 file: exit %d, %q", code, errs)
 	}
 }

@@ -36,9 +36,7 @@ func TestPoisonAuditInspectExport(t *testing.T) {
 				t.Fatalf("exit %d, want 1\n%s%s", code, out, errs)
 			}
 			var rep audit.Report
-			if err := json.Unmarshal([]byte(out), &rep); err != nil {
-				t.Fatal(err)
-			}
+			env := readEnvelope(t, out, &rep)
 			if len(rep.Trajectories) != 3 {
 				t.Fatalf("%d trajectories, want 3", len(rep.Trajectories))
 			}
@@ -52,13 +50,13 @@ func TestPoisonAuditInspectExport(t *testing.T) {
 				}
 			}
 			x1 := 0
-			for _, f := range rep.Findings {
+			for _, f := range env.Findings {
 				if f.Code == "X1" && f.File == poison {
 					x1++
 				}
 			}
 			if x1 != 1 {
-				t.Errorf("%d X1 findings for the poison file, want 1: %+v", x1, rep.Findings)
+				t.Errorf("%d X1 findings for the poison file, want 1: %+v", x1, env.Findings)
 			}
 		})
 		t.Run("inspect-"+mode, func(t *testing.T) {
@@ -79,9 +77,10 @@ func TestPoisonAuditInspectExport(t *testing.T) {
 				t.Errorf("stderr lacks the X1 finding of %s: %s", poison, errs)
 			}
 			code, out, errs = runCLI("inspect", "--json", "--time-limit", "60s", g1, poison, g2)
-			var sums []map[string]any
-			if err := json.Unmarshal([]byte(out), &sums); code != 1 || err != nil || len(sums) != 2 {
-				t.Errorf("--json: exit %d, %v, %d summaries, want 1, 2\n%s", code, err, len(sums), errs)
+			var res struct{ Files []map[string]any }
+			env := readEnvelope(t, out, &res)
+			if code != 1 || len(res.Files) != 2 || len(env.Findings) != 1 || env.Findings[0].Code != "X1" {
+				t.Errorf("--json: exit %d, %d summaries, findings %v; want 1, 2, one X1\n%s", code, len(res.Files), env.Findings, errs)
 			}
 		})
 		t.Run("export-"+mode, func(t *testing.T) {
@@ -160,23 +159,17 @@ func TestHostileCorpus(t *testing.T) {
 		t.Fatalf("validate: exit %d", code)
 	}
 	seen := map[string]bool{}
-	for _, l := range strings.Split(strings.TrimSpace(out), "\n") {
-		var rep struct {
-			File     string `json:"file"`
-			Findings []struct {
-				Code string `json:"code"`
-			} `json:"findings"`
-		}
-		if l == "" {
-			continue
-		}
-		if err := json.Unmarshal([]byte(l), &rep); err != nil {
-			t.Fatalf("validate: %v: %q", err, l)
-		}
-		seen[rep.File] = true
-		for _, f := range rep.Findings {
-			count(f.Code)
-		}
+	var res struct {
+		Files []struct {
+			File string `json:"file"`
+		} `json:"files"`
+	}
+	env := readEnvelope(t, out, &res)
+	for _, f := range res.Files {
+		seen[f.File] = true
+	}
+	for _, f := range env.Findings {
+		count(f.Code)
 	}
 	for _, l := range strings.Split(errs, "\n") {
 		if rest, ok := strings.CutPrefix(l, "trajvault: validate: "); ok {
