@@ -58,24 +58,14 @@ func workerFlags(c *cobra.Command) []string {
 	var known convertOptions
 	kc := &cobra.Command{}
 	known.AddFlags(kc)
-	var args []string
-	c.Flags().Visit(func(f *pflag.Flag) {
-		switch f.Name {
-		case "jobs", "json", "output", "shard", "gather":
-			return
-		}
+	drop := []string{"jobs", "json", "output", "shard", "gather"}
+	c.Flags().VisitAll(func(f *pflag.Flag) {
 		if kc.Flags().Lookup(f.Name) == nil {
-			return
+			drop = append(drop, f.Name)
 		}
-		if sv, ok := f.Value.(pflag.SliceValue); ok {
-			for _, v := range sv.GetSlice() {
-				args = append(args, "--"+f.Name+"="+v)
-			}
-			return
-		}
-		args = append(args, "--"+f.Name+"="+f.Value.String())
 	})
-	return args
+	args := workerArgs(c, nil, drop)
+	return args[1 : len(args)-1] // without the command name and "--"
 }
 
 // convertWithWorkers converts trajs (found under root) into o.out with

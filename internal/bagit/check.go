@@ -279,18 +279,21 @@ func Check(src Source, opt Options) *Result {
 		if len(algs) == 0 && opt.OnPayload == nil {
 			return nil
 		}
-		if opt.OnPayload == nil {
-			// Checksums only: hash straight from the source, no pipe.
-			got, _, err := sums(r, algs)
-			if err != nil {
-				return err
-			}
+		compare := func(got map[string]string) {
 			for _, a := range algs {
 				if got[a] != want[name][a] {
 					add("B7", finding.Error, name, "%s checksum differs from the manifest: the file changed or is damaged", a)
 					valid = false
 				}
 			}
+		}
+		if opt.OnPayload == nil {
+			// Checksums only: hash straight from the source, no pipe.
+			got, _, err := sums(r, algs)
+			if err != nil {
+				return err
+			}
+			compare(got)
 			return nil
 		}
 		pr, pw := io.Pipe()
@@ -312,12 +315,7 @@ func Check(src Source, opt Options) *Result {
 		if err != nil {
 			return err
 		}
-		for _, a := range algs {
-			if got[a] != want[name][a] {
-				add("B7", finding.Error, name, "%s checksum differs from the manifest: the file changed or is damaged", a)
-				valid = false
-			}
-		}
+		compare(got)
 		return nil
 	})
 	if err != nil {
