@@ -25,7 +25,7 @@ u.load_new(
     dimensions=np.tile([20.0, 20.0, 20.0, 90.0, 90.0, 90.0], (T, 1)).astype("f4"),
     dt=0.5,
 )
-# MDAnalysis's own units (MDAnalysis.units); the writer stores them.
+# The library's own units; its writer stores them.
 u.trajectory.units = {"time": "ps", "length": "Angstrom", "velocity": "Angstrom/ps",
                       "force": "kJ/(mol*Angstrom)"}
 with MDAnalysis.Writer(sys.argv[1], n_atoms=n, format="H5MD", n_frames=T,
