@@ -246,7 +246,7 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 			q = ""
 		case q == "":
 			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note,
-				msg:       fmt.Sprintf("column %s is not a quantity trajvault knows (see README, Inputs); it is not stored (map it in a recipe: tables: - columns: {%s: QUANTITY})", c.Name, c.Name),
+				msg:       fmt.Sprintf("column %s is not a quantity trajvault knows (%s); it is not stored (map it in a recipe: tables: - columns: {%s: QUANTITY})", c.Name, quantity.Names(), c.Name),
 				notStored: fmt.Sprintf("column %s: not a known quantity", c.Name)})
 		case !mapped && quantity.Ambiguous(c.Name) != nil:
 			a := quantity.Ambiguous(c.Name)

@@ -410,7 +410,7 @@ func (s *xyzSource) next() (*record, error) {
 	for _, c := range fr.Columns {
 		q := s.columnQuantity(c.Name)
 		if q == "" || q == quantity.Ignore {
-			why := "not a quantity trajvault knows (see README, Inputs); it is not stored"
+			why := "not a quantity trajvault knows (" + quantity.Names() + "); it is not stored"
 			if q == quantity.Ignore {
 				why = "ignored by the recipe"
 			}
@@ -447,7 +447,7 @@ func (s *xyzSource) next() (*record, error) {
 			q = m
 		}
 		if q == quantity.Ignore || (q == "" && !mapped) || (mapped && !perFrame(q)) {
-			why := "not a quantity trajvault knows (see README, Inputs)"
+			why := "not a quantity trajvault knows (" + quantity.Names() + ")"
 			switch {
 			case q == quantity.Ignore:
 				why = "ignored by the recipe"

@@ -150,6 +150,16 @@ var table = []Quantity{
 // All returns the vocabulary.
 func All() []Quantity { return append([]Quantity(nil), table...) }
 
+// Names lists the quantities by name, for messages that say what is
+// known (a user of the binary has no README at hand).
+func Names() string {
+	names := make([]string, len(table))
+	for i, q := range table {
+		names[i] = q.Name
+	}
+	return strings.Join(names, ", ")
+}
+
 // Lookup returns the quantity named name (e.g. "kinetic_energy").
 func Lookup(name string) (Quantity, bool) {
 	for _, q := range table {
