@@ -9,7 +9,9 @@
 package audit
 
 import (
+	"bytes"
 	"context"
+	"encoding/json"
 	"fmt"
 	"math"
 	h5path "path"
@@ -46,14 +48,55 @@ func (v Verdict) rank() int {
 	return map[Verdict]int{NA: 0, OK: 1, Unknown: 2, Warn: 3, Fail: 4}[v]
 }
 
+// Values are the numbers behind a verdict. JSON has no NaN or infinity:
+// a value that is not finite (a damaged file can give one) is written as
+// null, so that the report is still one valid document (RFC 8259 sec. 6).
+type Values map[string]float64
+
+// MarshalJSON writes the values in key order, non-finite ones as null.
+func (v Values) MarshalJSON() ([]byte, error) {
+	if v == nil {
+		return []byte("null"), nil
+	}
+	keys := make([]string, 0, len(v))
+	for k := range v {
+		keys = append(keys, k)
+	}
+	sort.Strings(keys)
+	var b bytes.Buffer
+	b.WriteByte('{')
+	for i, k := range keys {
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		kb, err := json.Marshal(k)
+		if err != nil {
+			return nil, err
+		}
+		b.Write(kb)
+		b.WriteByte(':')
+		if x := v[k]; math.IsNaN(x) || math.IsInf(x, 0) {
+			b.WriteString("null")
+		} else {
+			xb, err := json.Marshal(x) // as encoding/json writes any float
+			if err != nil {
+				return nil, err
+			}
+			b.Write(xb)
+		}
+	}
+	b.WriteByte('}')
+	return b.Bytes(), nil
+}
+
 // Check is the outcome of one check: a verdict, the numbers behind it and
 // a one-line explanation. Name and Code come from the registry.
 type Check struct {
-	Name    string             `json:"check"`
-	Code    string             `json:"code"`
-	Verdict Verdict            `json:"verdict"`
-	Summary string             `json:"summary"`
-	Values  map[string]float64 `json:"values"`
+	Name    string  `json:"check"`
+	Code    string  `json:"code"`
+	Verdict Verdict `json:"verdict"`
+	Summary string  `json:"summary"`
+	Values  Values  `json:"values"`
 	// Steps are the integration steps the verdict points at (e.g. hops
 	// that change the total energy), in increasing order.
 	Steps []int64 `json:"steps,omitempty"`
