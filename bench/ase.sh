@@ -16,6 +16,7 @@
 # replacing an earlier one.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+. bench/lib.sh
 FRAMES=${ASE_FRAMES:-2000}
 SHELLS=${ASE_SHELLS:-3}
 BIN=bin/trajvault
@@ -84,16 +85,5 @@ section=$(
 		echo "values, but scale-offset storage does not keep the sign of zero."
 	fi
 )
-# Replace an earlier section (from its heading to the next heading or the
-# end) or append.
-if [ -f bench/results.md ]; then
-	awk '/^## ASE-style run/ { skip = 1; next } skip && /^## / { skip = 0 } !skip { print }' bench/results.md >"$work/results.md"
-else
-	: >"$work/results.md"
-fi
-{
-	cat "$work/results.md"
-	[ -n "$(tail -n 1 "$work/results.md")" ] && echo
-	echo "$section"
-} >bench/results.md
+replace_section "## ASE-style run" "$section"
 echo "$section"

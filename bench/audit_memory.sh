@@ -15,6 +15,7 @@
 # section goes before the slices section when there is one.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+. bench/lib.sh
 TRAJ=${TRAJ:-200}
 STEPS=${STEPS:-100000}
 SIZES=${SIZES:-"10 50 $TRAJ"}
@@ -83,16 +84,5 @@ section=$(
 		echo "| $n | $a | $w | $(awk -v k="$kb" 'BEGIN { printf "%.1f", k / 1024 }') |"
 	done
 )
-# Replace an earlier section of this script; put it before the slices
-# section (which bench/slices.sh rewrites to the end of the file).
-touch bench/results.md
-awk -v sec="$section" '
-	/^## Audit memory: / { skip = 1; next }
-	/^## / && skip { skip = 0 }
-	skip { next }
-	/^## Slices: / && !done { print sec; print ""; done = 1 }
-	{ print }
-	END { if (!done) { print ""; print sec } }
-' bench/results.md >"$work/results.md"
-cat -s "$work/results.md" >bench/results.md
+replace_section "## Audit memory: " "$section"
 echo "$section"

@@ -13,6 +13,7 @@
 # Replaces its own section of bench/results.md.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+. bench/lib.sh
 TRAJ=${TRAJ:-8}
 STEPS=${STEPS:-40000}
 MOLECULES=${MOLECULES:-10}
@@ -89,12 +90,5 @@ section=$(
 		echo "| ${name//|/\\|} | $wall | $cpu | $mbs | $ratio |"
 	done
 )
-# Replace this section (from its heading to the next one) or append it.
-touch bench/results.md
-awk -v h="## Fixity: " 'index($0, h) == 1 { skip = 1; next } skip && /^## / { skip = 0 } !skip { print }' bench/results.md >"$work/results.md"
-{
-	cat "$work/results.md"
-	[ -n "$(tail -n 1 "$work/results.md")" ] && echo
-	echo "$section"
-} >bench/results.md
+replace_section "## Fixity: " "$section"
 echo "$section"

@@ -12,6 +12,7 @@
 # Replaces its own section of bench/results.md.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+. bench/lib.sh
 TRAJ=${TRAJ:-16}
 STEPS=${STEPS:-20000}
 MOLECULES=${MOLECULES:-10}
@@ -69,11 +70,5 @@ section=$(
 		echo "| $name | $wall | $cpu | $rss | $up |"
 	done
 )
-touch bench/results.md
-awk -v h="## Jobs: " 'index($0, h) == 1 { skip = 1; next } skip && /^## / { skip = 0 } !skip { print }' bench/results.md >"$work/results.md"
-{
-	cat "$work/results.md"
-	[ -n "$(tail -n 1 "$work/results.md")" ] && echo
-	echo "$section"
-} >bench/results.md
+replace_section "## Jobs: " "$section"
 echo "$section"

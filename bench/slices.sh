@@ -21,6 +21,7 @@
 # bench/results.md, replacing an earlier one.
 set -euo pipefail
 cd "$(dirname "$0")/.."
+. bench/lib.sh
 STEPS=${STEPS:-1000000}
 RUNS=${RUNS:-21}
 XZRUNS=${XZRUNS:-3}
@@ -119,12 +120,5 @@ section=$(
 		echo "| ${name//|/\\|} | $med | $lo | $hi | $over |"
 	done
 )
-# Replace an earlier section (from its heading to the next one) or append.
-touch bench/results.md
-awk -v h="## Slices: " 'index($0, h) == 1 { skip = 1; next } skip && /^## / { skip = 0 } !skip { print }' bench/results.md >"$work/results.md
-{
-	cat "$work/results.md"
-	[ -n "$(tail -n 1 "$work/results.md")" ] && echo
-	echo "$section"
-} >bench/results.md
+replace_section "## Slices: " "$section"
 echo "$section"
