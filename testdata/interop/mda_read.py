@@ -17,9 +17,9 @@ import warnings
 warnings.simplefilter("ignore")
 
 import h5py  # noqa: E402
-import MDAnalysis  # noqa: E402
+import MDAnalysis as analysis  # noqa: E402
 from MDAnalysis.coordinates.H5MD import H5MDReader  # noqa: E402
-from MDAnalysis.units import MDANALYSIS_BASE_UNITS  # noqa: E402
+from MDAnalysis.units import MDANALYSIS_BASE_UNITS as BASE_UNITS  # noqa: E402
 
 path = sys.argv[1]
 # The library (2.4) holds coordinates as float32 (hard-wired,
@@ -42,7 +42,7 @@ r.close()
 
 # The same file through a Universe, as users open a trajectory whose
 # topology comes from elsewhere.
-u = MDAnalysis.Universe.empty(n_atoms, trajectory=True)
+u = analysis.Universe.empty(n_atoms, trajectory=True)
 u.load_new(path, format="H5MD")
 universe_frames = len(u.trajectory)
 
@@ -55,8 +55,8 @@ with h5py.File(path, "r") as f:
     types["/h5md/author@name"] = type(f["h5md/author"].attrs["name"]).__name__
 
 json.dump({
-    "mda_version": MDAnalysis.__version__,
-    "base_units": {k: MDANALYSIS_BASE_UNITS[k] for k in ("length", "time", "speed", "force")},
+    "mda_version": analysis.__version__,
+    "base_units": {k: BASE_UNITS[k] for k in ("length", "time", "speed", "force")},
     "file_units": units,
     "frames": frames,
     "universe_frames": universe_frames,

@@ -11,12 +11,12 @@ import warnings
 warnings.simplefilter("ignore")
 
 import numpy as np  # noqa: E402
-import MDAnalysis  # noqa: E402
+import MDAnalysis as analysis  # noqa: E402
 from MDAnalysis.coordinates.memory import MemoryReader  # noqa: E402
 
 n, T = 5, 4
 rng = np.random.default_rng(3)
-u = MDAnalysis.Universe.empty(n, trajectory=False)
+u = analysis.Universe.empty(n, trajectory=False)
 u.load_new(
     20.0 * rng.random((T, n, 3)).astype("f4"),
     format=MemoryReader,
@@ -28,7 +28,7 @@ u.load_new(
 # The library's own units; its writer stores them.
 u.trajectory.units = {"time": "ps", "length": "Angstrom", "velocity": "Angstrom/ps",
                       "force": "kJ/(mol*Angstrom)"}
-with MDAnalysis.Writer(sys.argv[1], n_atoms=n, format="H5MD", n_frames=T,
+with analysis.Writer(sys.argv[1], n_atoms=n, format="H5MD", n_frames=T,
                        positions=True, velocities=True, forces=True) as w:
     for ts in u.trajectory:
         w.write(u.atoms)
