@@ -16,3 +16,18 @@ replace_section() {
 	} >bench/results.md
 	rm -f "$rest"
 }
+
+# keep_sections HEAD: HEAD (the main table with its own sections: chunk
+# length, file format) takes the place of the head of bench/results.md;
+# the sections the other scripts wrote stay after it.
+keep_sections() {
+	local head=$1 rest
+	rest=$(mktemp)
+	touch bench/results.md
+	awk '/^## / && !/^## (Chunk length|HDF5 file format)/ { keep = 1 } keep { print }' bench/results.md >"$rest"
+	{
+		cat "$head"
+		if [ -s "$rest" ]; then echo; cat "$rest"; fi
+	} >bench/results.md
+	rm -f "$rest"
+}

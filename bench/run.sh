@@ -7,7 +7,7 @@
 # the positions, JOBS parallel conversions. The logs are the invented demo
 # scenario (trajvault demo --text), generated before timing starts.
 #
-# Writes the table to stdout and to bench/results.md (replaced each run).
+# Writes the table to stdout and to the head of bench/results.md.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 TRAJ=${TRAJ:-4}
@@ -15,12 +15,17 @@ STEPS=${STEPS:-20000}
 MOLECULES=${MOLECULES:-10}
 DECIMALS=${DECIMALS:-8}
 JOBS=${JOBS:-$(nproc)}
+# PARTS: which measurements to run (default all); e.g. PARTS="main jobs".
+PARTS=${PARTS:-main slices audit fixity jobs ase}
 BIN=bin/trajvault
+. bench/lib.sh
+want() { case " $PARTS " in *" $1 "*) return 0 ;; esac; return 1; }
 .ci/deps.sh bench
 [ -x "$BIN" ] || { echo "bench: build first (make build)" >&2; exit 2; }
 
 work=$(mktemp -d)
 trap 'rm -rf "$work"' EXIT
+if want main; then
 echo "bench: generating $TRAJ trajectories x $STEPS steps x $((3 * MOLECULES)) atoms" >&2
 "$BIN" demo --text --trajectories "$TRAJ" --steps "$STEPS" --molecules "$MOLECULES" --decimals "$DECIMALS" "$work/logs" >/dev/null
 text=$(du -sb "$work/logs" | cut -f1)
@@ -115,25 +120,29 @@ cpu=$(grep -m1 'model name' /proc/cpuinfo | cut -d: -f2 | sed 's/^ *//')
 		IFS=';' read -r c bytes <<<"$r"
 		echo "| $c | $bytes |"
 	done
-} | tee bench/results.md
+} >"$work/main.md"
+cat "$work/main.md"
+# The main table heads the file; the other scripts' sections stay.
+keep_sections "$work/main.md"
+fi
 
 # Slices (bench/slices.sh): one frame and a 1,000-frame window out of a
 # 1e6-frame run against reaching them in compressed text; appends its
 # own section to bench/results.md.
-bench/slices.sh
+if want slices; then bench/slices.sh; fi
 
 # Audit memory (bench/audit_memory.sh): peak RSS of audit against the
 # number of trajectories.
-bench/audit_memory.sh
+if want audit; then bench/audit_memory.sh; fi
 
 # Fixity (bench/fixity.sh): validate --fixity-only against the coreutils
 # hashers on the same payload; replaces its own section.
-bench/fixity.sh
+if want fixity; then bench/fixity.sh; fi
 
 # Jobs (bench/jobs.sh): --jobs 1 against worker processes, and peak RSS
 # on a 400-trajectory ensemble; replaces its own section.
-bench/jobs.sh
+if want jobs; then bench/jobs.sh; fi
 
 # ASE-style run (bench/ase.sh): momenta printed with 8 decimals, against
 # tar | xz -9 of the text; appends its own section.
-bench/ase.sh
+if want ase; then bench/ase.sh; fi
