@@ -325,13 +325,18 @@ func printReport(g *globals, rep *validate.Report) {
 	if rep.Notes > 0 {
 		counts += ", " + plural(rep.Notes, "note")
 	}
-	rules := ""
+	// What was checked: a fixity-only run read no trajectory file, so it
+	// names no layout version.
+	checked := "layout " + rep.LayoutVersion
+	if rep.LayoutVersion == "" {
+		checked = "checksums only"
+	}
 	if rep.Profile != "" {
-		rules = ", " + rep.Profile + " profile"
+		checked += ", " + rep.Profile + " profile"
 	}
 	// The header line stays whole (a long path is what it is); findings
 	// wrap at 80 columns.
-	fmt.Fprintf(g.stdout, "%s: %s, %s (layout %s%s)\n", rep.File, verdict, counts, rep.LayoutVersion, rules)
+	fmt.Fprintf(g.stdout, "%s: %s, %s (%s)\n", rep.File, verdict, counts, checked)
 	for _, f := range rep.Findings {
 		wrap(g, f.String(), "  ")
 	}
@@ -365,5 +370,8 @@ func fixityOne(o validateOptions, path string) (*validate.Report, string, error)
 	if err != nil {
 		return nil, fmt.Sprintf("%s: %v", path, err), nil
 	}
+	// No trajectory file was read: no layout version was checked.
+	rep.LayoutVersion = ""
+	rep.Profile = ""
 	return rep, "", nil
 }

@@ -22,6 +22,10 @@ func TestValidateFixityOnly(t *testing.T) {
 	if code != 0 || !strings.Contains(out, "B20") || !strings.Contains(out, "manifest-sha512.txt") {
 		t.Errorf("fixity, sha256 only: exit %d\n%s%s", code, out, errs)
 	}
+	// No trajectory file was read, so the header names no layout version.
+	if !strings.Contains(out, "(checksums only)") || strings.Contains(out, "layout") {
+		t.Errorf("fixity header claims a layout check:\n%s", out)
+	}
 	h5s, _ := filepath.Glob(filepath.Join(bag, "data", "trajectories", "*.h5"))
 	if len(h5s) == 0 {
 		t.Fatal("no trajectory file in the bundle")
