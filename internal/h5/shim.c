@@ -4,6 +4,7 @@
 // failing function keeps the stack (keep_err) before it cleans up.
 #include <errno.h>
 #include <limits.h>
+#include <malloc.h>
 #include <stdint.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -109,7 +110,19 @@ char *tv_err_take(size_t *len) {
 	return b.buf;
 }
 
+// tv_trim_threshold is the free memory glibc may keep at the top of a
+// heap before giving it back. HDF5 allocates and frees chunk and filter
+// buffers (about 1 MiB) from cgo threads, that is from glibc's per-thread
+// arenas, which give freed memory back with madvise(MADV_DONTNEED) at the
+// default threshold (128 KiB): one TLB shootdown across all CPUs per
+// chunk, which on virtual machines cost about half of convert's CPU time
+// (measured: 3.2 s of 6.3 s CPU on 78 MB of text; 0.3 s with this
+// threshold). Peak memory is not raised: what is kept was already in use.
+// mallopt(3): setting it also fixes the mmap threshold at its default.
+#define TV_TRIM_THRESHOLD (64 << 20)
+
 void tv_init(void) {
+	mallopt(M_TRIM_THRESHOLD, TV_TRIM_THRESHOLD);
 	H5open();
 	H5Eset_auto2(H5E_DEFAULT, NULL, NULL);
 }
