@@ -86,7 +86,9 @@ On a cluster, "pack --shard I/N" converts every N-th trajectory into
 BUNDLE.shards (one job of an array; run again, it skips what its ledger
 says is done and unchanged), and "pack --gather" then makes the bundle
 from those files without converting again; trajvault slurm pack writes
-the job scripts. Give every run the same conversion flags.
+the job scripts. Give every run the same conversion flags. With
+SOURCE_DATE_EPOCH set (reproducible-builds.org), the same logs give the
+same payload, byte for byte, however and wherever they were packed.
 
 Exit status: 0 success, 1 the logs have problems (nothing written),
 or a gather finds trajectories no shard has converted, 2 usage or I/O
@@ -285,6 +287,9 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 		if r.Archive != "" {
 			fmt.Fprintf(g.stdout, "upload: %s\n", r.Archive)
 		}
+	}
+	if o.gather {
+		fmt.Fprintf(g.stdout, "shards: %s (no longer needed: the bundle has the files)\n", shards)
 	}
 	return nil
 }
