@@ -9,6 +9,8 @@ import (
 	"path/filepath"
 	"strings"
 
+	"trajvault/pack"
+
 	"github.com/spf13/cobra"
 )
 
@@ -118,6 +120,10 @@ Exit status: 0 success, 2 usage or I/O error (sbatch refused a script).`,
 		RunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
 				return &exitError{exitUsage, errors.New("slurm pack: name the bundle folder with -o, e.g. -o deposit-bag")}
+			}
+			// A deposit the jobs cannot load fails here, not in every task.
+			if _, err := pack.LoadDeposit(o.deposit); err != nil {
+				return &exitError{exitUsage, fmt.Errorf("slurm pack: %w", err)}
 			}
 			// Every pack flag the user set goes to both jobs (the shards
 			// use the conversion flags, the gather the bundle's).

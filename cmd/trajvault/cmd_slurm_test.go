@@ -117,3 +117,36 @@ func TestSlurmPack(t *testing.T) {
 		t.Errorf("validate: exit %d\n%s%s", code, o, e)
 	}
 }
+
+// TestSlurmPackScripts: without --submit, slurm pack writes an array of
+// N tasks, each packing its shard with the user's flags and one job, and
+// a gather job with the same flags (no SLURM needed); a deposit that
+// cannot be loaded is a usage error before anything is written.
+func TestSlurmPackScripts(t *testing.T) {
+	dir, deposit := packFixture(t, "1", "10")
+	out := filepath.Join(dir, "bag")
+	code, o, e := runCLI("slurm", "pack", "--shards", "3", "--deposit", deposit, "--no-audit", "--sbatch=--time=00:10:00", filepath.Join(dir, "logs"), "-o", out)
+	if code != 0 {
+		t.Fatalf("slurm pack: exit %d\n%s%s", code, o, e)
+	}
+	array, err1 := os.ReadFile(filepath.Join(out+".slurm", "pack-array.sbatch"))
+	gather, err2 := os.ReadFile(filepath.Join(out+".slurm", "gather.sbatch"))
+	if err1 != nil || err2 != nil {
+		t.Fatal(err1, err2)
+	}
+	flags := "'--deposit=" + deposit + "' '--no-audit=true' -o '" + out + "' '" + filepath.Join(dir, "logs") + "'"
+	for _, want := range []string{"#SBATCH --array=0-2\n", "#SBATCH --time=00:10:00\n", `pack --shard "$SLURM_ARRAY_TASK_ID/3" --jobs 1 ` + flags + "\n"} {
+		if !strings.Contains(string(array), want) {
+			t.Errorf("pack-array.sbatch lacks %q:\n%s", want, array)
+		}
+	}
+	if want := " pack --gather " + flags + "\n"; !strings.Contains(string(gather), want) {
+		t.Errorf("gather.sbatch lacks %q:\n%s", want, gather)
+	}
+	if code, _, e := runCLI("slurm", "pack", "--shards", "3", "--deposit", filepath.Join(dir, "none.yaml"), filepath.Join(dir, "logs"), "-o", out+"2"); code != 2 || !strings.Contains(e, "none.yaml") {
+		t.Errorf("missing deposit: exit %d, want 2 naming the file: %s", code, e)
+	}
+	if _, err := os.Stat(out + "2.slurm"); err == nil {
+		t.Error("a refused slurm pack wrote scripts")
+	}
+}
