@@ -47,7 +47,8 @@ func samePayload(t *testing.T, a, b string) {
 // is done, after a shard's file was changed, or with other conversion
 // settings names what is missing and writes nothing (exit 1); a shard
 // run again skips what its ledger says is done and redoes a file whose
-// checksum no longer matches.
+// checksum no longer matches. The gather links the shards' files into the
+// bag (the same inode) instead of converting again.
 func TestPackShards(t *testing.T) {
 	dir, deposit := packFixture(t, "3", "100")
 	t.Setenv("SOURCE_DATE_EPOCH", "1700000000")
@@ -105,6 +106,14 @@ func TestPackShards(t *testing.T) {
 		t.Fatalf("pack --gather: exit %d\n%s%s", code, o, e)
 	}
 	samePayload(t, filepath.Join(dir, "local1"), bag)
+	// The gather converted nothing: the bag's files are the shards' own.
+	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5"} {
+		a, err1 := os.Stat(filepath.Join(bag, "data", "trajectories", n))
+		b, err2 := os.Stat(filepath.Join(bag+".shards", n))
+		if err1 != nil || err2 != nil || !os.SameFile(a, b) {
+			t.Errorf("%s: the bag's file is not the shard's (%v %v)", n, err1, err2)
+		}
+	}
 	if code, o, e := runCLI("validate", bag); code != 0 {
 		t.Errorf("validate: exit %d\n%s%s", code, o, e)
 	}
