@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"trajvault/internal/elements"
+	"trajvault/internal/epoch"
 	"trajvault/internal/finding"
 	"trajvault/internal/h5"
 	"trajvault/internal/quantity"
@@ -138,7 +139,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 			s.close()
 		}
 	}()
-	started := time.Now().UTC()
+	started := epoch.Now() // SOURCE_DATE_EPOCH when set: reproducible files
 	hctx, stopHashing := context.WithCancel(ctx)
 	defer stopHashing()
 	hashes := hashSources(hctx, rep, opt)
@@ -191,7 +192,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	}
 	rec := provenance.Record{
 		Tool: "trajvault", ToolVersion: opt.ToolVersion, CommandLine: opt.CommandLine,
-		Started: started.Format(time.RFC3339), Finished: time.Now().UTC().Format(time.RFC3339),
+		Started: started.Format(time.RFC3339), Finished: epoch.Now().Format(time.RFC3339),
 		Sources: h.sources, Units: storedUnits(rep.Units, opt), ConstantSet: provenance.ConstantSet,
 		Storage: res.Storage, Dropped: res.Dropped, NotStored: res.NotStored, Accepted: res.Accepted,
 	}

@@ -7,13 +7,14 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"strings"
-	"time"
 
 	"github.com/spf13/cobra"
 
 	"trajvault/audit"
 	"trajvault/ingest"
+	"trajvault/internal/epoch"
 	"trajvault/internal/finding"
 	"trajvault/pack"
 	"trajvault/schema"
@@ -38,6 +39,8 @@ type packOptions struct {
 	split       bool
 	// workerArgs are the conversion flags the user set, for workers.
 	workerArgs []string
+	shard      string // I/N: convert one shard into BUNDLE.shards
+	gather     bool   // make the bundle from the shards' files
 }
 
 func (o *packOptions) AddFlags(c *cobra.Command) {
@@ -57,6 +60,8 @@ func (o *packOptions) AddFlags(c *cobra.Command) {
 	c.Flags().BoolVar(&o.json, "json", false, "print the result as one JSON document (tool, command, findings, result)")
 	c.Flags().StringVar(&o.require, "require-audit", "", "refuse (exit 1, nothing written) unless the audit verdict is at best ok, or at worst warn")
 	c.Flags().BoolVar(&o.split, "split", false, "when the limits are exceeded, write several bags BUNDLE-1, BUNDLE-2, ... (Bag-Group-Identifier, Bag-Count)")
+	c.Flags().StringVar(&o.shard, "shard", "", "convert shard I of N of the ensemble (I/N, e.g. 0/8) into BUNDLE.shards: one job of a cluster job array; done trajectories are skipped by checksum")
+	c.Flags().BoolVar(&o.gather, "gather", false, "make the bundle from the files the shards wrote into BUNDLE.shards (no conversion)")
 }
 
 func newPackCommand(g *globals) *cobra.Command {
@@ -77,9 +82,18 @@ existing BUNDLE is swapped for the new one in one step and stays complete
 until then. Licensing and third-party rights remain
 the depositor's responsibility.
 
+On a cluster, "pack --shard I/N" converts every N-th trajectory into
+BUNDLE.shards (one job of an array; run again, it skips what its ledger
+says is done and unchanged), and "pack --gather" then makes the bundle
+from those files without converting again; trajvault slurm pack writes
+the job scripts. Give every run the same conversion flags. With
+SOURCE_DATE_EPOCH set (reproducible-builds.org), the same logs give the
+same payload, byte for byte, however and wherever they were packed.
+
 Exit status: 0 success, 1 the logs have problems (nothing written),
-2 usage or I/O error.`,
-		Example: "  trajvault init --title \"...\" --creator \"Family, Given\"\n  trajvault pack runs/ -o deposit-bag --deposit deposit.yaml --recipe lab.yaml",
+or a gather finds trajectories no shard has converted, 2 usage or I/O
+error.`,
+		Example: "  trajvault init --title \"...\" --creator \"Family, Given\"\n  trajvault pack runs/ -o deposit-bag --deposit deposit.yaml --recipe lab.yaml\n  trajvault pack runs/ -o deposit-bag --recipe lab.yaml --shard 0/2   # and 1/2\n  trajvault pack runs/ -o deposit-bag --recipe lab.yaml --gather",
 		Args:    cobra.ExactArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
 			if o.out == "" {
@@ -97,6 +111,14 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 			if o.archive != "" && o.archive != "tar.zst" && o.archive != "zip" {
 				return &exitError{exitUsage, fmt.Errorf("pack: --archive %q: use tar.zst or zip", o.archive)}
 			}
+			if o.shard != "" && o.gather {
+				return &exitError{exitUsage, errors.New("pack: --shard converts, --gather assembles: give one, e.g. --shard 0/8 on every array task, then --gather once")}
+			}
+			if o.shard != "" {
+				if _, err := parseShard(o.shard); err != nil {
+					return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+				}
+			}
 			return nil
 		},
 		RunE: func(c *cobra.Command, args []string) error {
@@ -110,7 +132,7 @@ Exit status: 0 success, 1 the logs have problems (nothing written),
 
 func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	out := filepath.Clean(o.out)
-	if _, err := os.Stat(out); err == nil && !o.force {
+	if _, err := os.Stat(out); err == nil && !o.force && o.shard == "" {
 		return &exitError{exitUsage, fmt.Errorf("pack: %s already exists; use --force to replace it", out)}
 	}
 	dep, err := pack.LoadDeposit(o.deposit)
@@ -129,43 +151,53 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	if err != nil {
 		return err
 	}
-	reps, err := scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, o.dropPartial, o.json)
-	if err != nil {
-		return err
-	}
-	tmp, err := pack.NewStaging(out) // a fresh hidden name; nothing of the user's is removed
-	if err != nil {
-		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
-	}
-	fail := func(err error) error {
-		os.RemoveAll(tmp)
-		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
-	}
 	tol, err := parseTolerances(o.tolerance)
 	if err != nil {
-		return fail(err)
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
 	if o.author == "" {
 		o.author = dep.Creators[0].Name // the deposit's first creator
 	}
+	// The same settings give the same files: locally, in workers, or
+	// shard by shard on a cluster (with SOURCE_DATE_EPOCH set, byte for
+	// byte).
+	settings := append(slices.Clone(o.workerArgs), "--author="+o.author)
 	copt := o.conversionFlags.packOptions(opt, tol)
-	trajDir := filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir))
-	var results []*ingest.Result
-	if o.jobs > 1 && len(trajs) > 1 {
-		// Worker processes, as convert --jobs: one HDF5 library each.
-		flags := append(o.workerArgs, "--author="+o.author) // the user's, else the creator
-		results, err = convertInWorkers(ctx, g, flags, dir, trajDir, trajs, o.jobs)
+	copt.CommandLine = packCommandLine(o.workerArgs, dir)
+	shards := out + ".shards"
+	if o.shard != "" {
+		return runShard(ctx, g, shardRun{verb: "pack", spec: o.shard, root: dir, out: shards, trajs: trajs,
+			opt: opt, copt: copt, settings: settings, dropPartial: o.dropPartial})
+	}
+	var conv []pack.Converted
+	var tmp string
+	if o.gather {
+		entries, missing, err := gatherLedger(dir, shards, trajs, settings)
+		if err != nil {
+			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+		}
+		if len(missing) > 0 {
+			return reportMissing(g, "pack", missing, len(trajs))
+		}
+		if tmp, err = pack.NewStaging(out); err != nil {
+			return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+		}
+		for _, e := range entries {
+			file := schema.TrajectoriesDir + "/" + e.Name + schema.TrajectoryExt
+			if err := linkOrCopy(filepath.Join(shards, e.Name+".h5"), filepath.Join(tmp, filepath.FromSlash(file))); err != nil {
+				os.RemoveAll(tmp)
+				return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+			}
+			conv = append(conv, pack.Converted{Report: e.Report, File: file})
+		}
 	} else {
-		converting := newBar(g, "convert", "trajectories")
-		results, err = ingest.ConvertAll(ctx, reps, trajDir, copt, o.jobs, converting)
-		converting.Finish()
+		if tmp, conv, err = packConvert(ctx, g, o, dir, trajs, opt, copt); err != nil {
+			return err
+		}
 	}
-	if err != nil {
-		return fail(err)
-	}
-	conv := make([]pack.Converted, len(trajs))
-	for i, r := range reps {
-		conv[i] = pack.Converted{Report: r, Result: results[i], File: schema.TrajectoriesDir + "/" + r.Name + schema.TrajectoryExt}
+	fail := func(err error) error {
+		os.RemoveAll(tmp)
+		return &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
 	copied, err := copyConverted(tmp, taken)
 	if err != nil {
@@ -173,7 +205,7 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 	}
 	conv = append(conv, copied...)
 	bo := pack.BundleOptions{Deposit: dep, Algorithms: []string{"sha512", "sha256"}, KeepSources: o.keepSources,
-		Jobs: o.jobs, ToolVersion: toolVersion(), Now: time.Now(), Plots: map[string][]byte{}}
+		Jobs: o.jobs, ToolVersion: toolVersion(), Now: epoch.Now(), Plots: map[string][]byte{}}
 	if o.md5 {
 		bo.Algorithms = append(bo.Algorithms, "md5")
 	}
@@ -256,7 +288,87 @@ func runPack(ctx context.Context, g *globals, o packOptions, dir string) error {
 			fmt.Fprintf(g.stdout, "upload: %s\n", r.Archive)
 		}
 	}
+	if o.gather {
+		fmt.Fprintf(g.stdout, "shards: %s (no longer needed: the bundle has the files)\n", shards)
+	}
 	return nil
+}
+
+// packConvert scans and converts trajs into a new staging folder of the
+// bundle: in worker processes with --jobs above 1 (each scans and
+// converts its trajectories, and its reply carries the scan report: every
+// log is read by one scan), else in process. All or nothing: refused
+// trajectories are printed and nothing is kept.
+func packConvert(ctx context.Context, g *globals, o packOptions, dir string, trajs []*ingest.Trajectory, opt ingest.Options, copt ingest.ConvertOptions) (string, []pack.Converted, error) {
+	var reps []*ingest.TrajReport
+	if o.jobs <= 1 || len(trajs) <= 1 {
+		var err error
+		if reps, err = scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, o.dropPartial, o.json); err != nil {
+			return "", nil, err
+		}
+	}
+	tmp, err := pack.NewStaging(filepath.Clean(o.out)) // a fresh hidden name; nothing of the user's is removed
+	if err != nil {
+		return "", nil, &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	}
+	trajDir := filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir))
+	if reps == nil {
+		// Worker processes, as convert --jobs: one HDF5 library each.
+		flags := append(slices.Clone(o.workerArgs), "--author="+o.author) // the user's, else the creator
+		var refused []convertReply
+		reps, refused, err = convertInWorkers(ctx, g, flags, copt.CommandLine, dir, trajDir, trajs, o.jobs)
+		if err == nil && len(refused) > 0 {
+			os.RemoveAll(tmp)
+			if o.json {
+				var bad []*ingest.TrajReport
+				for _, r := range refused {
+					bad = append(bad, r.Report)
+				}
+				printEnvelopeOK(g, "pack", false, scanFindings(bad), nil) // nothing was made
+			} else {
+				for _, r := range refused {
+					fmt.Fprint(g.stdout, r.ScanText)
+				}
+			}
+			fmt.Fprintf(g.stderr, "trajvault: pack: %d of %s have problems; nothing written\n", len(refused), plural(len(trajs), "trajectory"))
+			return "", nil, errFindings
+		}
+	} else {
+		converting := newBar(g, "convert", "trajectories")
+		_, err = ingest.ConvertAll(ctx, reps, trajDir, copt, o.jobs, converting)
+		converting.Finish()
+	}
+	if err != nil {
+		os.RemoveAll(tmp)
+		return "", nil, &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
+	}
+	conv := make([]pack.Converted, len(reps))
+	for i, r := range reps {
+		conv[i] = pack.Converted{Report: r, File: schema.TrajectoriesDir + "/" + r.Name + schema.TrajectoryExt}
+	}
+	return tmp, conv, nil
+}
+
+// packCommandLine is the command line pack records in each file's
+// provenance: the conversion flags the user set and the ensemble folder.
+// Where the files were written (-o, a shard's staging folder) and how
+// the work was split (--jobs, --shard) do not change a file, so they are
+// left out and the same pack gives the same bytes however it ran.
+func packCommandLine(flags []string, dir string) []string {
+	return append(append([]string{"trajvault", "pack"}, flags...), dir)
+}
+
+// linkOrCopy puts the shard's file src at dst: a hard link where the
+// file system allows (the shards folder sits beside the bundle), else a
+// copy.
+func linkOrCopy(src, dst string) error {
+	if err := os.MkdirAll(filepath.Dir(dst), 0o755); err != nil {
+		return err
+	}
+	if os.Link(src, dst) == nil {
+		return nil
+	}
+	return pack.CopyTrajectory(src, dst)
 }
 
 // auditAccepted reports whether an audit verdict passes --require-audit

@@ -9,23 +9,27 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 
 	"trajvault/ingest"
 )
 
-// Shards split an ensemble conversion into independent units for a
-// cluster scheduler's job array: shard I of N takes the trajectories at
-// positions I, I+N, I+2N, ... of the ensemble (sorted by name). Every
-// shard writes its files into the same output folder, each file
-// atomically, and a ledger entry per trajectory (sha256 of every input
-// and of the output) under OUT/.trajvault-shards/. A shard run again
-// skips trajectories whose inputs and output still match their ledger,
-// so a restarted array redoes only what is missing or changed; --gather
-// checks that every trajectory is there.
+// Shards split an ensemble conversion (convert --shard, pack --shard)
+// into independent units for a cluster scheduler's job array: shard I of
+// N takes the trajectories at positions I, I+N, I+2N, ... of the
+// ensemble (sorted by name). Every shard writes its files into one
+// folder (convert: the output folder; pack: BUNDLE.shards beside the
+// bundle), each file atomically, and a ledger entry per trajectory
+// (sha256 of every input and of the output, the conversion settings and
+// the scan report) under FOLDER/.trajvault-shards/. A shard run again
+// skips trajectories whose inputs, settings and output still match their
+// ledger, so a restarted array redoes only what is missing or changed;
+// gathering checks that every trajectory is there and reads the reports
+// from the ledger instead of scanning the logs again.
 
-// shardDir is the ledger folder inside the output folder.
+// shardDir is the ledger folder inside the shards' output folder.
 const shardDir = ".trajvault-shards"
 
 // shardSpec is "I/N" parsed.
@@ -47,6 +51,12 @@ type ledgerEntry struct {
 	Inputs map[string]string `json:"inputs"` // path relative to the ensemble -> sha256
 	Output string            `json:"output_sha256"`
 	Frames int               `json:"frames"`
+	// Settings are the conversion flags in force: other settings make
+	// other files, so the trajectory is converted again.
+	Settings []string `json:"settings"`
+	// Report is the scan report (its public part), for a gather that
+	// writes the data description without reading the logs again.
+	Report *ingest.TrajReport `json:"report"`
 }
 
 func fileSHA256(p string) (string, error) {
@@ -80,117 +90,158 @@ func inputSums(root string, t *ingest.Trajectory) (map[string]string, error) {
 	return sums, nil
 }
 
-// ledgerDone reports whether t's ledger entry in out matches its inputs
-// (sums) and its output file.
-func ledgerDone(out string, t *ingest.Trajectory, sums map[string]string) bool {
+// readLedger returns t's ledger entry in out when it matches t's inputs
+// (sums), the settings and the output file; else nil.
+func readLedger(out string, t *ingest.Trajectory, sums map[string]string, settings []string) *ledgerEntry {
 	b, err := os.ReadFile(filepath.Join(out, shardDir, t.Name+".json"))
 	if err != nil {
-		return false
+		return nil
 	}
 	var e ledgerEntry
-	if json.Unmarshal(b, &e) != nil || len(e.Inputs) != len(sums) {
-		return false
+	if json.Unmarshal(b, &e) != nil || e.Name != t.Name || e.Report == nil || len(e.Inputs) != len(sums) || !slices.Equal(e.Settings, settings) {
+		return nil
 	}
 	for k, v := range sums {
 		if e.Inputs[k] != v {
-			return false
+			return nil
 		}
 	}
-	s, err := fileSHA256(filepath.Join(out, t.Name+".h5"))
-	return err == nil && s == e.Output
+	if s, err := fileSHA256(filepath.Join(out, t.Name+".h5")); err != nil || s != e.Output {
+		return nil
+	}
+	return &e
 }
 
-// convertShard converts the trajectories of one shard into o.out.
-func convertShard(ctx context.Context, g *globals, o convertOptions, root string, trajs []*ingest.Trajectory, opt ingest.Options, tol map[string]float64) error {
-	sh, err := parseShard(o.shard)
+// shardRun is the work of one shard: convert --shard and pack --shard.
+type shardRun struct {
+	verb        string // convert or pack, for messages
+	spec        string // I/N as given
+	root        string // the ensemble folder
+	out         string // folder of the files and the ledger
+	trajs       []*ingest.Trajectory
+	opt         ingest.Options
+	copt        ingest.ConvertOptions
+	settings    []string // the conversion flags, recorded in the ledger
+	dropPartial bool
+}
+
+// runShard converts the trajectories of one shard into r.out, skipping
+// those its ledger says are done.
+func runShard(ctx context.Context, g *globals, r shardRun) error {
+	sh, err := parseShard(r.spec)
 	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("%s: %w", r.verb, err)}
+	}
+	if err := os.MkdirAll(filepath.Join(r.out, shardDir), 0o755); err != nil {
 		return &exitError{exitUsage, err}
 	}
-	if err := os.MkdirAll(filepath.Join(o.out, shardDir), 0o755); err != nil {
-		return &exitError{exitUsage, err}
-	}
-	copt := o.packOptions(opt, tol)
 	done, skipped, bad := 0, 0, 0
-	for k, t := range trajs {
+	for k, t := range r.trajs {
 		if k%sh.N != sh.I {
 			continue
 		}
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		sums, err := inputSums(root, t)
+		sums, err := inputSums(r.root, t)
 		if err != nil {
-			return &exitError{exitUsage, fmt.Errorf("convert: %s: %w", t.Name, err)}
+			return &exitError{exitUsage, fmt.Errorf("%s: %s: %w", r.verb, t.Name, err)}
 		}
-		if ledgerDone(o.out, t, sums) {
+		if readLedger(r.out, t, sums, r.settings) != nil {
 			skipped++
 			continue
 		}
-		rep, err := ingest.Scan(ctx, t, opt)
+		rep, err := ingest.Scan(ctx, t, r.opt)
 		if err != nil {
-			return &exitError{exitUsage, fmt.Errorf("convert: %s: %w", t.Name, err)}
+			return &exitError{exitUsage, fmt.Errorf("%s: %s: %w", r.verb, t.Name, err)}
 		}
-		if rep.Refusal(o.dropPartial) != nil {
+		if rep.Refusal(r.dropPartial) != nil {
 			printScan(g, rep)
 			bad++
 			continue
 		}
-		dst := filepath.Join(o.out, t.Name+".h5")
+		dst := filepath.Join(r.out, t.Name+".h5")
 		if _, err := os.Stat(dst); err == nil {
-			// A file of an earlier shard run whose inputs changed since is
-			// ours to replace (it has a ledger entry); anything else is not.
-			if _, err := os.Stat(filepath.Join(o.out, shardDir, t.Name+".json")); err != nil {
-				return &exitError{exitUsage, fmt.Errorf("convert: %s exists and no shard wrote it; trajvault never overwrites outputs", dst)}
+			// A file of an earlier shard run whose inputs, settings or
+			// bytes changed since is ours to replace (it has a ledger
+			// entry); anything else is not.
+			if _, err := os.Stat(filepath.Join(r.out, shardDir, t.Name+".json")); err != nil {
+				return &exitError{exitUsage, fmt.Errorf("%s: %s exists and no shard wrote it; trajvault never overwrites outputs", r.verb, dst)}
 			}
 			if err := os.Remove(dst); err != nil {
 				return &exitError{exitUsage, err}
 			}
 		}
-		res, err := ingest.Convert(ctx, rep, dst, copt)
+		res, err := ingest.Convert(ctx, rep, dst, r.copt)
 		if err != nil {
-			return &exitError{exitUsage, fmt.Errorf("convert: %s: %w", t.Name, err)}
+			return &exitError{exitUsage, fmt.Errorf("%s: %s: %w", r.verb, t.Name, err)}
 		}
 		s, err := fileSHA256(dst)
 		if err != nil {
 			return &exitError{exitUsage, err}
 		}
-		b, _ := json.MarshalIndent(ledgerEntry{Name: t.Name, Inputs: sums, Output: s, Frames: res.Frames}, "", "  ")
-		if err := replaceFile(filepath.Join(o.out, shardDir, t.Name+".json"), b); err != nil {
+		b, err := json.MarshalIndent(ledgerEntry{Name: t.Name, Inputs: sums, Output: s, Frames: res.Frames, Settings: r.settings, Report: rep}, "", "  ")
+		if err != nil {
+			return &exitError{exitUsage, err}
+		}
+		if err := replaceFile(filepath.Join(r.out, shardDir, t.Name+".json"), b); err != nil {
 			return &exitError{exitUsage, err}
 		}
 		done++
 	}
 	fmt.Fprintf(g.stdout, "shard %d/%d: %s converted, %d already done, %s refused -> %s/\n",
-		sh.I, sh.N, nounCount(done, "trajectory", "trajectories"), skipped, nounCount(bad, "trajectory", "trajectories"), filepath.Clean(o.out))
+		sh.I, sh.N, nounCount(done, "trajectory", "trajectories"), skipped, nounCount(bad, "trajectory", "trajectories"), filepath.Clean(r.out))
 	if bad > 0 {
 		return errFindings
 	}
 	return nil
 }
 
-// gatherShards checks that every trajectory of the ensemble has been
-// converted by some shard and is unchanged since (its ledger).
-func gatherShards(g *globals, o convertOptions, root string, trajs []*ingest.Trajectory) error {
-	var missing []string
-	frames := 0
+// gatherLedger returns the ledger entries of every trajectory of the
+// ensemble, in the order of trajs, or the names of those no shard has
+// converted (or that changed since).
+func gatherLedger(root, out string, trajs []*ingest.Trajectory, settings []string) (entries []*ledgerEntry, missing []string, err error) {
 	for _, t := range trajs {
 		sums, err := inputSums(root, t)
 		if err != nil {
-			return &exitError{exitUsage, fmt.Errorf("convert: %s: %w", t.Name, err)}
+			return nil, nil, fmt.Errorf("%s: %w", t.Name, err)
 		}
-		if !ledgerDone(o.out, t, sums) {
+		e := readLedger(out, t, sums, settings)
+		if e == nil {
 			missing = append(missing, t.Name)
 			continue
 		}
-		var e ledgerEntry
-		b, _ := os.ReadFile(filepath.Join(o.out, shardDir, t.Name+".json"))
-		json.Unmarshal(b, &e)
-		frames += e.Frames
+		entries = append(entries, e)
+	}
+	return entries, missing, nil
+}
+
+// reportMissing says which trajectories the shards have not converted.
+func reportMissing(g *globals, verb string, missing []string, total int) error {
+	fmt.Fprintf(g.stderr, "trajvault: %s: %d of %d trajectories not converted (or changed since, or converted with other settings): %s; run their shards again\n",
+		verb, len(missing), total, strings.Join(missing, ", "))
+	return errFindings
+}
+
+// convertShard converts the trajectories of one shard into o.out.
+func convertShard(ctx context.Context, g *globals, o convertOptions, root string, trajs []*ingest.Trajectory, opt ingest.Options, tol map[string]float64) error {
+	return runShard(ctx, g, shardRun{verb: "convert", spec: o.shard, root: root, out: o.out, trajs: trajs,
+		opt: opt, copt: o.packOptions(opt, tol), settings: o.workerArgs, dropPartial: o.dropPartial})
+}
+
+// gatherShards checks that every trajectory of the ensemble has been
+// converted by some shard and is unchanged since (its ledger).
+func gatherShards(g *globals, o convertOptions, root string, trajs []*ingest.Trajectory) error {
+	entries, missing, err := gatherLedger(root, o.out, trajs, o.workerArgs)
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("convert: %w", err)}
 	}
 	if len(missing) > 0 {
-		fmt.Fprintf(g.stderr, "trajvault: convert: %d of %d trajectories not converted (or changed since): %s; run their shards again\n",
-			len(missing), len(trajs), strings.Join(missing, ", "))
-		return errFindings
+		return reportMissing(g, "convert", missing, len(trajs))
+	}
+	frames := 0
+	for _, e := range entries {
+		frames += e.Frames
 	}
 	fmt.Fprintf(g.stdout, "%s, %d frames, all converted -> %s/\n", nounCount(len(trajs), "trajectory", "trajectories"), frames, filepath.Clean(o.out))
 	return nil

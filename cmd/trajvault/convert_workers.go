@@ -46,9 +46,12 @@ type convertReply struct {
 	Refused bool   `json:"refused,omitempty"`
 	// ScanText is scan's report of a refused trajectory, as printScan
 	// prints it.
-	ScanText string         `json:"scan_text,omitempty"`
-	Result   *ingest.Result `json:"result,omitempty"`
-	Error    string         `json:"error,omitempty"`
+	ScanText string `json:"scan_text,omitempty"`
+	// Report is the scan report (its public part): pack's data
+	// description needs it, and the worker's scan is the only one.
+	Report *ingest.TrajReport `json:"report,omitempty"`
+	Result *ingest.Result     `json:"result,omitempty"`
+	Error  string             `json:"error,omitempty"`
 }
 
 // workerFlags are the conversion flags the user set on c (convert or
@@ -347,6 +350,7 @@ func convertOne(ctx context.Context, t *ingest.Trajectory, job convertJob, opt i
 		r.Error = err.Error()
 		return r
 	}
+	r.Report = rep
 	if rep.Refusal(dropPartial) != nil {
 		var b bytes.Buffer
 		printScan(&globals{stdout: &b, stderr: io.Discard}, rep)
@@ -365,41 +369,54 @@ func convertOne(ctx context.Context, t *ingest.Trajectory, job convertJob, opt i
 	return r
 }
 
-// convertInWorkers converts already scanned trajectories (pack) into dir
-// with jobs worker processes; extra are flags beyond the user's (e.g. the
-// author pack takes from the deposit). Results are in the order of
-// trajs; any trajectory that fails or is refused fails the whole.
-func convertInWorkers(ctx context.Context, g *globals, flags []string, root, dir string, trajs []*ingest.Trajectory, jobs int) ([]*ingest.Result, error) {
+// convertInWorkers scans and converts trajs (pack) into dir with jobs
+// worker processes; flags are the conversion flags beyond the user's
+// (e.g. the author pack takes from the deposit), cmdline the command
+// line the files record. It returns the scan reports in the order of
+// trajs, or the replies of refused trajectories (whose problems the
+// caller prints; nothing is converted after the first refusal); any
+// trajectory that fails otherwise fails the whole.
+func convertInWorkers(ctx context.Context, g *globals, flags, cmdline []string, root, dir string, trajs []*ingest.Trajectory, jobs int) ([]*ingest.TrajReport, []convertReply, error) {
 	exe, err := os.Executable()
 	if err != nil {
-		return nil, fmt.Errorf("cannot find this program to start workers: %w", err)
+		return nil, nil, fmt.Errorf("cannot find this program to start workers: %w", err)
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	parent, _ := json.Marshal(append([]string{"trajvault"}, os.Args[1:]...))
+	parent, _ := json.Marshal(cmdline)
 	args := append([]string{"worker-convert", "--root", root, "--parent-args", string(parent)}, flags...)
 	bar := newBar(g, "convert", "trajectories")
 	replies := runConvertWorkers(ctx, exe, args, dir, trajs, jobs, bar)
 	bar.Finish()
 	if err := ctx.Err(); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
-	results := make([]*ingest.Result, len(replies))
+	reps := make([]*ingest.TrajReport, len(replies))
 	var bad []string
+	var refused []convertReply
+	for _, r := range replies {
+		if r.Refused && r.Report != nil {
+			refused = append(refused, r)
+		}
+	}
 	for i, r := range replies {
 		switch {
-		case r.Refused:
-			bad = append(bad, r.Name+": refused by the worker's scan")
+		case r.Refused && r.Report != nil:
 		case r.Error != "":
 			bad = append(bad, r.Name+": "+r.Error)
-		case r.Result == nil:
+		case r.Report == nil || r.Result == nil && len(refused) == 0:
+			// Without a refusal every trajectory is converted; after
+			// one, the rest are only scanned.
 			bad = append(bad, r.Name+": no result")
 		}
-		results[i] = r.Result
+		reps[i] = r.Report
 	}
 	if len(bad) > 0 {
-		return nil, fmt.Errorf("%d of %d trajectories could not be converted: %s", len(bad), len(trajs), strings.Join(bad, "; "))
+		return nil, nil, fmt.Errorf("%d of %d trajectories could not be converted: %s", len(bad), len(trajs), strings.Join(bad, "; "))
 	}
-	return results, nil
+	if len(refused) > 0 {
+		return nil, refused, nil
+	}
+	return reps, nil, nil
 }

@@ -301,6 +301,9 @@ hid_t tv_create(const char *path, int libver_low, int istore_k) {
 	if (libver_low == 18 && H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_LATEST) < 0) goto done;
 	if (libver_low == 110 && H5Pset_libver_bounds(fapl, H5F_LIBVER_V110, H5F_LIBVER_LATEST) < 0) goto done;
 	if (istore_k > 0 && H5Pset_istore_k(fcpl, (unsigned)istore_k) < 0) goto done;
+	// No object times (the root group's here, each object's at its
+	// creation): the same writes give the same bytes whenever they run.
+	if (H5Pset_obj_track_times(fcpl, 0) < 0) goto done;
 	f = H5Fcreate(path, H5F_ACC_EXCL, fcpl, fapl);
 done:
 	if (f < 0) keep_err();
@@ -449,7 +452,11 @@ int tv_softlink(tv_ctx *c, hid_t loc, const char *target, const char *dst) {
 
 int tv_group_create(tv_ctx *c, hid_t loc, const char *path) {
 	(void)c;
-	hid_t g = H5Gcreate2(loc, path, H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT);
+	hid_t gcpl = H5Pcreate(H5P_GROUP_CREATE);
+	if (gcpl < 0) return -1;
+	hid_t g = -1;
+	if (H5Pset_obj_track_times(gcpl, 0) >= 0) g = H5Gcreate2(loc, path, H5P_DEFAULT, gcpl, H5P_DEFAULT);
+	H5Pclose(gcpl);
 	if (g < 0) return -1;
 	return H5Gclose(g);
 }
@@ -761,6 +768,7 @@ hid_t tv_dset_create(tv_ctx *c, hid_t loc, const char *path, int filecode, int r
 	hid_t d = -1;
 	if (dcpl < 0 || lcpl < 0) goto done;
 	if (H5Pset_create_intermediate_group(lcpl, 1) < 0) goto done;
+	if (H5Pset_obj_track_times(dcpl, 0) < 0) goto done;
 	if (chunk != NULL && rank > 0) {
 		if (H5Pset_chunk(dcpl, rank, chunk) < 0) goto done;
 		if (f != NULL) {
@@ -790,9 +798,11 @@ hid_t tv_dset_create_strings(tv_ctx *c, hid_t loc, const char *path, const char 
 	hsize_t dims[1] = {(hsize_t)n};
 	hid_t s = H5Screate_simple(1, dims, NULL);
 	hid_t lcpl = H5Pcreate(H5P_LINK_CREATE);
+	hid_t dcpl = H5Pcreate(H5P_DATASET_CREATE);
 	hid_t d = -1;
-	if (s >= 0 && lcpl >= 0 && H5Pset_create_intermediate_group(lcpl, 1) >= 0) {
-		d = H5Dcreate2(loc, path, t, s, lcpl, H5P_DEFAULT, c->dapl);
+	if (s >= 0 && lcpl >= 0 && dcpl >= 0 && H5Pset_create_intermediate_group(lcpl, 1) >= 0 &&
+	    H5Pset_obj_track_times(dcpl, 0) >= 0) {
+		d = H5Dcreate2(loc, path, t, s, lcpl, dcpl, c->dapl);
 		if (d >= 0 && H5Dwrite(d, t, H5S_ALL, H5S_ALL, H5P_DEFAULT, vlen ? (const void *)ptrs : (const void *)fixed) < 0) {
 			keep_err();
 			H5Dclose(d);
@@ -802,6 +812,7 @@ hid_t tv_dset_create_strings(tv_ctx *c, hid_t loc, const char *path, const char 
 	if (d < 0) keep_err();
 	if (s >= 0) H5Sclose(s);
 	if (lcpl >= 0) H5Pclose(lcpl);
+	if (dcpl >= 0) H5Pclose(dcpl);
 	H5Tclose(t);
 	free(ptrs);
 	free(fixed);
