@@ -888,7 +888,10 @@ static hid_t open_dset(tv_ctx *c, hid_t loc, const char *path, hid_t *dcpl) {
 	return d;
 }
 
-int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *st) {
+// tv_dset_info describes a dataset; with want_storage also the bytes it
+// occupies, which for chunked data walks the whole chunk index
+// (H5Dget_storage_size visits every chunk).
+int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *st, int want_storage) {
 	hid_t pl = -1;
 	hid_t d = open_dset(c, loc, path, &pl);
 	if (d < 0) return -1;
@@ -911,7 +914,7 @@ int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage 
 	}
 	st->nfilters = H5Pget_nfilters(pl);
 	if (st->nexternal < 0 || st->nfilters < 0) goto done;
-	if (st->layout != 3 && st->nexternal == 0) st->storage = (unsigned long long)H5Dget_storage_size(d);
+	if (want_storage && st->layout != 3 && st->nexternal == 0) st->storage = (unsigned long long)H5Dget_storage_size(d);
 	rc = outside(c, pl);
 done:
 	if (rc == -1) keep_err();
