@@ -86,6 +86,11 @@ func MustCompileString(url, schema string) *Schema {
 // if '$schema' attribute is missing, it is treated as draft7. to change this
 // behavior change Compiler.Draft value
 func NewCompiler() *Compiler {
+	metaOnce.Do(loadDrafts) // trajvault patch: see metaOnce
+	return newCompiler()
+}
+
+func newCompiler() *Compiler {
 	return &Compiler{
 		Draft:      latest,
 		resources:  make(map[string]*resource),

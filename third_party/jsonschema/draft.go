@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"strconv"
 	"strings"
+	"sync"
 )
 
 // A Draft represents json-schema draft
@@ -38,7 +39,7 @@ func (d *Draft) String() string {
 }
 
 func (d *Draft) loadMeta(url, schema string) {
-	c := NewCompiler()
+	c := newCompiler()
 	c.AssertFormat = true
 	if err := c.AddResource(url, strings.NewReader(schema)); err != nil {
 		panic(err)
@@ -290,7 +291,16 @@ func init() {
 
 	subschemas["prefixItems"] = item
 	Draft2020.subschemas = clone(subschemas)
+}
 
+// metaOnce compiles the draft metaschemas on first use (trajvault patch:
+// the release compiles them in init, about 8 ms at every start of every
+// program that links the package, whether it validates or not).
+var metaOnce sync.Once
+
+// loadDrafts compiles the metaschemas of every draft, in the order the
+// release's init did.
+func loadDrafts() {
 	Draft4.loadMeta("http://json-schema.org/draft-04/schema", `{
 		"$schema": "http://json-schema.org/draft-04/schema#",
 		"description": "Core schema meta-schema",
