@@ -24,7 +24,8 @@
 #
 # SLICES_DIR=DIR keeps the generated run (logs, trajectory file,
 # compressed text) in DIR and reuses it on later runs with the same STEPS
-# instead of generating it again (minutes for 1e6 steps).
+# instead of generating it again (minutes for 1e6 steps). XZRUNS=0 leaves
+# xz out.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 . bench/lib.sh
@@ -44,7 +45,7 @@ mid=$((STEPS / 2))
 win=1000
 run="$data/logs/traj-001"
 h5="$data/run.h5"
-if [ "$(cat "$data/steps" 2>/dev/null)" = "$STEPS" ] && [ -s "$h5" ] && [ -s "$data/geom.xyz.xz" ]; then
+if [ "$(cat "$data/steps" 2>/dev/null)" = "$STEPS" ] && [ -s "$h5" ] && [ -s "$data/geom.xyz.zst" ]; then
 	echo "bench: slices: reusing the run in $data" >&2
 else
 	rm -rf "${data:?}/logs" "$h5" "$data/steps" "$data"/geom*
@@ -54,10 +55,16 @@ else
 	"$BIN" convert --recipe testdata/recipes/tarnol.yaml "$run" -o "$h5" >/dev/null
 	# The geometry text up to the end of the window, compressed.
 	head -n $(((mid + win + 1) * 5)) "$run/geom.xyz" >"$data/geom-head.xyz"
-	echo "bench: slices: compressing $(stat -c %s "$data/geom-head.xyz") bytes of text" >&2
+	echo "bench: slices: compressing $(stat -c %s "$data/geom-head.xyz") bytes of text (zstd)" >&2
 	zstd -q -3 -T1 "$data/geom-head.xyz" -o "$data/geom.xyz.zst"
-	xz -6 -T0 -c "$data/geom-head.xyz" >"$data/geom.xyz.xz"
 	echo "$STEPS" >"$data/steps"
+fi
+# XZRUNS=0 leaves xz out: compressing the text of 1e6 steps with xz -6
+# takes many minutes on a busy machine.
+if [ "$XZRUNS" -gt 0 ] && [ ! -s "$data/geom.xyz.xz" ]; then
+	echo "bench: slices: compressing the text (xz)" >&2
+	xz -6 -T0 -c "$data/geom-head.xyz" >"$data/geom.xyz.xz.partial"
+	mv "$data/geom.xyz.xz.partial" "$data/geom.xyz.xz"
 fi
 frames=$(($(wc -l <"$run/geom.xyz") / 5))
 
@@ -128,20 +135,25 @@ row "floor: trajvault --version" "$RUNS" "$BIN" --version
 row "trajvault export --frame $mid --format extxyz" "$RUNS" one_export
 row "trajvault inspect --values --frames $mid --quantities position" "$RUNS" one_values
 row "zstd -3 text: decompress to frame $mid" "$RUNS" one_zstd
-row "xz -6 text: decompress to frame $mid" "$XZRUNS" one_xz
+if [ "$XZRUNS" -gt 0 ]; then row "xz -6 text: decompress to frame $mid" "$XZRUNS" one_xz; fi
 row "trajvault export --frames $mid:$((mid + win)) --atoms 0-2 --quantities position --format npy" "$RUNS" win_npy
 row "trajvault inspect --values --frames $mid:$((mid + win)) --atoms 0-2 --quantities position" "$RUNS" win_csv
 row "trajvault inspect --values --frames $mid:$((mid + win)) --atoms 0-2 (every quantity)" "$RUNS" win_all
 row "zstd -3 text: decompress frames $mid..$((mid + win - 1))" "$RUNS" win_zstd
-row "xz -6 text: decompress frames $mid..$((mid + win - 1))" "$XZRUNS" win_xz
+if [ "$XZRUNS" -gt 0 ]; then row "xz -6 text: decompress frames $mid..$((mid + win - 1))" "$XZRUNS" win_xz; fi
 
 section=$(
 	echo "## Slices: one frame and a window out of a long run"
 	echo
 	echo "Made by bench/slices.sh (the last part of \`make bench\`) on $(date -u +%Y-%m-%d), same machine; load average at the end: $(cut -d' ' -f1-3 /proc/loadavg)."
 	echo "Input: one invented demo trajectory, $frames frames x 3 atoms; trajectory file $(stat -c %s "$h5") bytes;"
-	echo "geometry text up to the end of the window $(stat -c %s "$data/geom-head.xyz") bytes, zstd -3 $(stat -c %s "$data/geom.xyz.zst") bytes, xz -6 $(stat -c %s "$data/geom.xyz.xz") bytes."
-	echo "Time of the whole command (process start included), warm page cache; median of $RUNS runs ($XZRUNS for xz)."
+	if [ "$XZRUNS" -gt 0 ]; then
+		echo "geometry text up to the end of the window $(stat -c %s "$data/geom-head.xyz") bytes, zstd -3 $(stat -c %s "$data/geom.xyz.zst") bytes, xz -6 $(stat -c %s "$data/geom.xyz.xz") bytes."
+		echo "Time of the whole command (process start included), warm page cache; median of $RUNS runs ($XZRUNS for xz)."
+	else
+		echo "geometry text up to the end of the window $(stat -c %s "$data/geom-head.xyz") bytes, zstd -3 $(stat -c %s "$data/geom.xyz.zst") bytes; xz left out (XZRUNS=0)."
+		echo "Time of the whole command (process start included), warm page cache; median of $RUNS runs."
+	fi
 	echo "CPU is user + system time of every process of the command. The exported frame was checked digit for digit"
 	echo "against the text before timing. The floor rows show what starting a process costs on this machine at the"
 	echo "time of the run. Each trajvault command starts two trajvault processes (the command, and the worker that"
