@@ -33,3 +33,8 @@ require (
 	golang.org/x/image v0.30.0 // indirect
 	golang.org/x/term v0.44.0 // indirect
 )
+
+// The release compiles its draft metaschemas at package init (about 8 ms
+// at every start of trajvault, every worker included); the copy in
+// third_party compiles them on first use. See third_party/jsonschema/PATCH.md.
+replace github.com/santhosh-tekuri/jsonschema/v5 => ./third_party/jsonschema

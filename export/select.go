@@ -248,7 +248,11 @@ func (p *plan) quantity(name string, explicit bool) (*quantity, error) {
 		return nil, &SelectionError{"--quantities", name, "unknown quantity; known: " + strings.Join(QuantityNames(), ", ") + "; this file stores " + strings.Join(present(p.r), ", ")}
 	}
 	def := quantityDefs[i]
-	absent := &SelectionError{"--quantities", name, "the file stores no " + name + "; it stores " + strings.Join(present(p.r), ", ")}
+	// absent lists what the file stores, which reads every element (and
+	// the hops table): only for the error message.
+	absent := func() error {
+		return &SelectionError{"--quantities", name, "the file stores no " + name + "; it stores " + strings.Join(present(p.r), ", ")}
+	}
 	if def.kind == eventTable {
 		h, err := p.r.Hops()
 		if err != nil {
@@ -256,7 +260,7 @@ func (p *plan) quantity(name string, explicit bool) (*quantity, error) {
 		}
 		if h == nil {
 			if explicit {
-				return nil, absent
+				return nil, absent()
 			}
 			return nil, nil
 		}
@@ -269,7 +273,7 @@ func (p *plan) quantity(name string, explicit bool) (*quantity, error) {
 	}
 	if el == nil {
 		if explicit {
-			return nil, absent
+			return nil, absent()
 		}
 		return nil, nil
 	}

@@ -162,42 +162,84 @@ func ExportSelection(in, dir string, o Options) ([]string, error) {
 	return written, nil
 }
 
-// WriteValues prints the selection of file in to w as CSV (with a
-// comment line saying what was selected, and hops as a second table) or
-// JSON.
-func WriteValues(w io.Writer, in string, sel Selection, format string) error {
-	if format != FormatCSV && format != FormatJSON {
-		return &SelectionError{"--format", format, "values print as csv or json"}
-	}
+// Values is a selection resolved against an open file, ready to be
+// printed: every usage error (a selection outside the data) has been
+// found by OpenValues, before anything is written.
+type Values struct {
+	r *trajfile.Reader
+	p *plan
+}
+
+// OpenValues opens file in and resolves sel against it. Close the
+// result.
+func OpenValues(in string, sel Selection) (*Values, error) {
 	r, err := trajfile.OpenWindowReaderWith(in, trajfile.ReadOptions{Group: sel.Group})
 	if err != nil {
-		return err
+		return nil, err
 	}
-	defer r.Close()
 	p, err := resolve(r, sel, defaults(FormatJSON, false, sel))
 	if err != nil {
-		return err
+		r.Close()
+		return nil, err
 	}
+	return &Values{r: r, p: p}, nil
+}
+
+// Close releases the file.
+func (v *Values) Close() error { return v.r.Close() }
+
+// WriteCSV prints the values as CSV, after a comment line saying what
+// was selected, with the hops as a second table.
+func (v *Values) WriteCSV(w io.Writer) error {
+	p := v.p
 	bw := bufio.NewWriterSize(w, 1<<16)
-	if format == FormatJSON {
-		err = p.writeJSON(bw)
+	var err error
+	if len(p.qs) > 0 {
+		err = p.writeCSV(bw, true)
 	} else {
+		bw.WriteString("# " + p.describe() + "\n")
+	}
+	if err == nil && p.wantH {
 		if len(p.qs) > 0 {
-			err = p.writeCSV(bw, true)
-		} else {
-			bw.WriteString("# " + p.describe() + "\n")
+			bw.WriteString("\n")
 		}
-		if err == nil && p.wantH {
-			if len(p.qs) > 0 {
-				bw.WriteString("\n")
-			}
-			p.writeHopsCSV(bw)
-		}
+		p.writeHopsCSV(bw)
 	}
 	if err2 := bw.Flush(); err == nil {
 		err = err2
 	}
 	return err
+}
+
+// WriteJSON prints the values as one JSON object: "selection" (Header),
+// "frame", "step" and "time" of the selected frames, "values" by
+// quantity name ([frame][...] nested arrays) and "hops" when selected.
+// Numbers keep their recorded digits. The object ends with a newline.
+func (v *Values) WriteJSON(w io.Writer) error {
+	bw := bufio.NewWriterSize(w, 1<<16)
+	err := v.p.writeJSON(bw)
+	if err2 := bw.Flush(); err == nil {
+		err = err2
+	}
+	return err
+}
+
+// WriteValues prints the selection of file in to w as CSV (with a
+// comment line saying what was selected, and hops as a second table) or
+// JSON (Values.WriteJSON).
+func WriteValues(w io.Writer, in string, sel Selection, format string) error {
+	if format != FormatCSV && format != FormatJSON {
+		return &SelectionError{"--format", format, "values print as csv or json"}
+	}
+	v, err := OpenValues(in, sel)
+	if err != nil {
+		return err
+	}
+	defer v.Close()
+	if format == FormatJSON {
+		return v.WriteJSON(w)
+	}
+	return v.WriteCSV(w)
 }
 
 func (p *plan) has(name string) bool {

@@ -23,7 +23,7 @@ type inspectOptions struct {
 }
 
 func (o *inspectOptions) AddFlags(c *cobra.Command) {
-	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result); with --values, the values as JSON")
+	c.Flags().BoolVar(&o.json, "json", false, "print one JSON document (tool, command, ok, findings, result); with --values, result holds the selection and its values")
 	c.Flags().BoolVar(&o.values, "values", false, "print the values of a selection (CSV, or JSON with --json) instead of the summary")
 	o.selectFlags.AddFlags(c)
 	o.iso.AddFlags(c)
@@ -41,7 +41,8 @@ compression ratio (logical size / stored size).
 
 --values prints the numbers of a selection instead (--frames or --time,
 --atoms, --quantities, --states; indices from 0), as CSV after a comment
-line saying what was selected, or as JSON with --json; only the chunks
+line saying what was selected, or with --json as the result of the JSON
+document (selection, frame, step, time, values, hops); only the chunks
 that hold the selection are read, and numbers keep their recorded digits.
 
 Every particle group under /particles is summarised, one line each;
@@ -272,13 +273,20 @@ func filterAbbrev(f string) string {
 	return f
 }
 
-// runValues prints the values of a selection.
+// runValues prints the values of a selection: CSV, or with --json the
+// envelope whose result is the selection and its values.
 func runValues(g *globals, o inspectOptions, path string) error {
-	format := export.FormatCSV
-	if o.json {
-		format = export.FormatJSON
+	v, err := export.OpenValues(path, o.selection())
+	if err != nil {
+		return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
 	}
-	if err := export.WriteValues(g.stdout, path, o.selection(), format); err != nil {
+	defer v.Close()
+	if o.json {
+		err = printEnvelopeStream(g, "inspect", v.WriteJSON)
+	} else {
+		err = v.WriteCSV(g.stdout)
+	}
+	if err != nil {
 		return &exitError{exitUsage, fmt.Errorf("inspect: %w", err)}
 	}
 	return nil

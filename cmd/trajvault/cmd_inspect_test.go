@@ -2,6 +2,7 @@ package main
 
 import (
 	"encoding/json"
+	"fmt"
 	"strings"
 	"testing"
 )
@@ -32,16 +33,53 @@ func TestInspectValues(t *testing.T) {
 			t.Errorf("row %d: %q", i, l)
 		}
 	}
-	code, stdout, _ = runCLI("inspect", "--values", "--json", f, "--frames", "5", "--quantities", "active_state")
-	var doc struct {
-		Selection struct {
-			FrameCount int `json:"frame_count"`
-		} `json:"selection"`
-		Frame  []int            `json:"frame"`
-		Values map[string][]int `json:"values"`
+}
+
+// TestInspectValuesJSON: --values --json prints the one envelope of every
+// command (envelope.schema.json), the selection and its values in
+// result, and the same numbers as the CSV.
+func TestInspectValuesJSON(t *testing.T) {
+	f := demoFile(t)
+	code, stdout, stderr := runCLI("inspect", "--values", "--json", f, "--frames", "5:8", "--atoms", "0", "--quantities", "active_state,position,hops")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
 	}
-	if code != 0 || json.Unmarshal([]byte(stdout), &doc) != nil || doc.Selection.FrameCount != 1 || len(doc.Values["active_state"]) != 1 || doc.Frame[0] != 5 {
-		t.Errorf("json values: exit %d, %s", code, stdout)
+	var res struct {
+		Selection struct {
+			FrameCount int   `json:"frame_count"`
+			Atoms      []int `json:"atoms"`
+		} `json:"selection"`
+		Frame  []int `json:"frame"`
+		Values struct {
+			ActiveState []int         `json:"active_state"`
+			Position    [][][]float64 `json:"position"`
+		} `json:"values"`
+		Hops []json.RawMessage `json:"hops"`
+	}
+	env := readEnvelope(t, stdout, &res)
+	if env.Command != "inspect" || !env.OK || len(env.Findings) != 0 {
+		t.Errorf("envelope: command %q, ok %v, findings %v", env.Command, env.OK, env.Findings)
+	}
+	if res.Selection.FrameCount != 3 || len(res.Frame) != 3 || res.Frame[0] != 5 || len(res.Values.ActiveState) != 3 ||
+		len(res.Values.Position) != 3 || len(res.Values.Position[0]) != 1 || len(res.Values.Position[0][0]) != 3 || res.Hops == nil {
+		t.Fatalf("result: %+v\n%s", res, stdout)
+	}
+	// The CSV of the same selection has the same numbers.
+	code, csv, _ := runCLI("inspect", "--values", f, "--frames", "5:8", "--atoms", "0", "--quantities", "active_state,position")
+	rows := strings.Split(strings.TrimSpace(csv), "\n")[2:]
+	if code != 0 || len(rows) != 3 {
+		t.Fatalf("csv: exit %d, %q", code, csv)
+	}
+	for i, row := range rows {
+		var fr, step, state int
+		var tm, x, y, z float64
+		if _, err := fmt.Sscanf(strings.ReplaceAll(row, ",", " "), "%d %d %g %d %g %g %g", &fr, &step, &tm, &state, &x, &y, &z); err != nil {
+			t.Fatalf("csv row %q: %v", row, err)
+		}
+		p := res.Values.Position[i][0]
+		if fr != res.Frame[i] || state != res.Values.ActiveState[i] || x != p[0] || y != p[1] || z != p[2] {
+			t.Errorf("frame %d: csv %q, json state %d position %v", res.Frame[i], row, res.Values.ActiveState[i], p)
+		}
 	}
 }
 

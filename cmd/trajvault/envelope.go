@@ -1,8 +1,11 @@
 package main
 
 import (
+	"bufio"
+	"bytes"
 	"encoding/json"
 	"fmt"
+	"io"
 
 	"trajvault/internal/finding"
 )
@@ -45,4 +48,27 @@ func printEnvelopeOK(g *globals, command string, ok bool, findings []finding.Fin
 	}
 	_, err = fmt.Fprintln(g.stdout, string(b))
 	return err
+}
+
+// printEnvelopeStream is printEnvelope for a result too large to build in
+// memory (the values of a selection): writeResult writes the result's
+// JSON itself, after the other members; ok is true and there are no
+// findings. Call it once every usage error has been ruled out: an error
+// while writeResult writes leaves the document incomplete, and is
+// returned (exit 2).
+func printEnvelopeStream(g *globals, command string, writeResult func(io.Writer) error) error {
+	e := envelope{Tool: toolInfo{"trajvault", toolVersion()}, Command: command, OK: true, Findings: []finding.Finding{}}
+	b, err := json.MarshalIndent(e, "", "  ")
+	if err != nil {
+		return err
+	}
+	w := bufio.NewWriter(g.stdout)
+	w.Write(bytes.TrimSuffix(b, []byte("\n}")))
+	w.WriteString(",\n  \"result\": ")
+	if err := writeResult(w); err != nil {
+		w.Flush()
+		return err
+	}
+	w.WriteString("}\n")
+	return w.Flush()
 }

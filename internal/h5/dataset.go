@@ -357,7 +357,7 @@ type DatasetInfo struct {
 	Layout       string // compact, contiguous, chunked
 	Chunk        []int
 	Filters      []Filter
-	StorageBytes int64 // bytes allocated in the file
+	StorageBytes int64 // bytes allocated in the file; -1 from Describe
 }
 
 // LogicalBytes is the uncompressed size of the data; math.MaxInt64 when
@@ -373,7 +373,16 @@ func (d DatasetInfo) LogicalBytes() int64 {
 // Info describes the dataset at path. A dataset whose data lies outside
 // the file (external storage, virtual dataset) is described and an
 // *ExternalError returned with the description.
-func (f *File) Info(path string) (DatasetInfo, error) {
+func (f *File) Info(path string) (DatasetInfo, error) { return f.info(path, true) }
+
+// Describe is Info without StorageBytes (left at -1) and Filters (nil):
+// for readers that need the type, shape and chunking only. The stored
+// size of chunked data is the sum over every chunk (H5Dget_storage_size
+// walks the whole chunk index), which on a long run costs more than
+// reading a window of it. Outside data is refused as by Info.
+func (f *File) Describe(path string) (DatasetInfo, error) { return f.info(path, false) }
+
+func (f *File) info(path string, full bool) (DatasetInfo, error) {
 	lock()
 	defer unlock()
 	if err := f.readable("describe dataset", path, ""); err != nil {
@@ -383,7 +392,11 @@ func (f *File) Info(path string) (DatasetInfo, error) {
 	defer C.free(unsafe.Pointer(p))
 	var ci C.tv_info
 	var st C.tv_storage
-	rc := C.tv_dset_info(f.ctx, f.id(), p, &ci, &st)
+	want := C.int(0)
+	if full {
+		want = 1
+	}
+	rc := C.tv_dset_info(f.ctx, f.id(), p, &ci, &st, want)
 	if rc < 0 && rc != C.TV_E_EXTERNAL {
 		return DatasetInfo{}, f.fail("describe dataset", path, "", rc)
 	}
@@ -400,6 +413,10 @@ func (f *File) Info(path string) (DatasetInfo, error) {
 		for i := 0; i < d.Shape.Rank; i++ {
 			d.Chunk = append(d.Chunk, clampInt(uint64(st.chunk[i])))
 		}
+	}
+	if !full {
+		d.StorageBytes = -1
+		return d, nil
 	}
 	d.StorageBytes = int64(min(uint64(st.storage), math.MaxInt64))
 	for i := 0; i < int(st.nfilters); i++ {

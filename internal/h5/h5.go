@@ -42,24 +42,27 @@ import (
 // mu guards every call into the HDF5 C library.
 var mu sync.Mutex
 
+// started says that the library was initialised (H5open); guarded by mu.
+var started bool
+
 // lock takes the library mutex and pins the goroutine to its OS thread, so
 // that the per-thread error-printing switch and error stack apply to the
-// calls that follow; a stale stack from an earlier call is dropped.
+// calls that follow; a stale stack from an earlier call is dropped. The
+// first call initialises the library: a command that never reads HDF5
+// (--version, help, a worker's parent) does not pay for it at start-up.
 func lock() {
 	mu.Lock()
 	runtime.LockOSThread()
+	if !started {
+		C.tv_init()
+		started = true
+	}
 	C.tv_quiet()
 	C.tv_err_reset()
 }
 
 func unlock() {
 	runtime.UnlockOSThread()
-	mu.Unlock()
-}
-
-func init() {
-	mu.Lock()
-	C.tv_init()
 	mu.Unlock()
 }
 

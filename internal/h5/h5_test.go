@@ -204,6 +204,8 @@ func TestNoLeaks(t *testing.T) {
 	f.ReadFloat64("/a/names") // strings: refused type
 	f.ReadStrings("/a/b/x")   // numbers: refused type
 	f.Info("/a/missing")
+	f.Describe("/a/b/x")
+	f.Describe("/a/missing")
 	f.AttrNames("/a/b/x")
 	f.AttrNames("/a/missing")
 	f.Links("/a/missing")
@@ -229,6 +231,39 @@ func TestNoLeaks(t *testing.T) {
 	}
 	if n := OpenObjects(); n != base {
 		t.Errorf("after image: %d open identifiers, want %d", n, base)
+	}
+}
+
+// TestDescribeIsInfoWithoutStorage: Describe gives Info's type, shape,
+// layout and chunking, and leaves out what walks the chunk index.
+func TestDescribeIsInfoWithoutStorage(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "d.h5")
+	build(t, path)
+	f, err := Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	info, err := f.Info("/a/b/x")
+	if err != nil {
+		t.Fatal(err)
+	}
+	d, err := f.Describe("/a/b/x")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d.StorageBytes != -1 || d.Filters != nil {
+		t.Errorf("Describe: storage %d, filters %v; want -1 and none", d.StorageBytes, d.Filters)
+	}
+	if info.StorageBytes <= 0 {
+		t.Errorf("Info: storage %d, want the bytes stored", info.StorageBytes)
+	}
+	d.StorageBytes, d.Filters = info.StorageBytes, info.Filters
+	if !reflect.DeepEqual(d, info) {
+		t.Errorf("Describe %+v, Info %+v", d, info)
+	}
+	if _, err := f.Describe("/a/missing"); err == nil {
+		t.Error("Describe of a missing dataset: no error")
 	}
 }
 

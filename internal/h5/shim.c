@@ -912,7 +912,10 @@ static hid_t open_dset(tv_ctx *c, hid_t loc, const char *path, hid_t *dcpl) {
 	return d;
 }
 
-int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *st) {
+// tv_dset_info describes a dataset; with want_storage also the bytes it
+// occupies, which for chunked data walks the whole chunk index
+// (H5Dget_storage_size visits every chunk).
+int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *st, int want_storage) {
 	hid_t pl = -1;
 	hid_t d = open_dset(c, loc, path, &pl);
 	if (d < 0) return -1;
@@ -935,7 +938,7 @@ int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage 
 	}
 	st->nfilters = H5Pget_nfilters(pl);
 	if (st->nexternal < 0 || st->nfilters < 0) goto done;
-	if (st->layout != 3 && st->nexternal == 0) st->storage = (unsigned long long)H5Dget_storage_size(d);
+	if (want_storage && st->layout != 3 && st->nexternal == 0) st->storage = (unsigned long long)H5Dget_storage_size(d);
 	rc = outside(c, pl);
 done:
 	if (rc == -1) keep_err();
@@ -990,16 +993,39 @@ fail:
 	return -1;
 }
 
+// xfer_for is the transfer list of a read of buflen bytes: its
+// type-conversion buffer holds the whole read (every memory type is 8
+// bytes, as wide as any stored numeric type), at least 4 KiB, or
+// H5P_DEFAULT when HDF5's default (1 MiB) is smaller. HDF5 allocates that
+// buffer zeroed on the first read that converts (ints to int64 or
+// float64), which for a small read cost more than the read: 1 MiB written
+// and 256 page faults in a process that reads one frame. A read larger
+// than the buffer is converted in strips, with the same result (HDF5 1.10
+// reference manual, H5Pset_buffer). -1 when the list cannot be made.
+static hid_t xfer_for(size_t buflen) {
+	const size_t lo = 4096, def = 1 << 20;
+	size_t n = buflen < lo ? lo : buflen;
+	if (n >= def) return H5P_DEFAULT;
+	hid_t x = H5Pcreate(H5P_DATASET_XFER);
+	if (x < 0) return -1;
+	if (H5Pset_buffer(x, n, NULL, NULL) < 0) {
+		H5Pclose(x);
+		return -1;
+	}
+	return x;
+}
+
 // tv_dset_read_block reads the hyperslab start/count (whole dataset when
 // start is NULL) into buf of buflen bytes, after checking it fits.
 int tv_dset_read_block(hid_t d, int memcode, int rank, const hsize_t *start, const hsize_t *count,
                        void *buf, size_t buflen) {
 	int rc = -1;
 	hid_t fs = H5Dget_space(d), ms = -1;
-	if (fs < 0) goto done;
+	hid_t xfer = xfer_for(buflen);
+	if (fs < 0 || xfer < 0) goto done;
 	if (start == NULL) {
 		if (!fits(fs, memcode, buflen)) { rc = TV_E_SIZE; goto done; }
-		rc = H5Dread(d, tv_memtype(memcode), H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0 ? -1 : 0;
+		rc = H5Dread(d, tv_memtype(memcode), H5S_ALL, H5S_ALL, xfer, buf) < 0 ? -1 : 0;
 		goto done;
 	}
 	if (H5Sget_simple_extent_ndims(fs) != rank) { rc = TV_E_SIZE; goto done; }
@@ -1008,11 +1034,12 @@ int tv_dset_read_block(hid_t d, int memcode, int rank, const hsize_t *start, con
 	ms = H5Screate_simple(rank, count, NULL);
 	if (ms < 0) goto done;
 	if (!fits(ms, memcode, buflen)) { rc = TV_E_SIZE; goto done; }
-	rc = H5Dread(d, tv_memtype(memcode), ms, fs, H5P_DEFAULT, buf) < 0 ? -1 : 0;
+	rc = H5Dread(d, tv_memtype(memcode), ms, fs, xfer, buf) < 0 ? -1 : 0;
 done:
 	if (rc == -1) keep_err();
 	if (ms >= 0) H5Sclose(ms);
 	if (fs >= 0) H5Sclose(fs);
+	if (xfer > 0 && xfer != H5P_DEFAULT) H5Pclose(xfer);
 	return rc;
 }
 

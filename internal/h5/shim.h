@@ -104,7 +104,7 @@ hid_t tv_dset_create_strings(tv_ctx *c, hid_t loc, const char *path, const char 
 int tv_dset_close(hid_t d);
 int tv_dset_append(hid_t d, int memcode, hsize_t rows, const void *buf, size_t buflen);
 int tv_dset_write(hid_t d, int memcode, const void *buf, size_t buflen);
-int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *s);
+int tv_dset_info(tv_ctx *c, hid_t loc, const char *path, tv_info *t, tv_storage *s, int want_storage);
 int tv_dset_filter(tv_ctx *c, hid_t loc, const char *path, int idx, unsigned *id, char *name, size_t namelen,
                    unsigned *cd, size_t *ncd);
 hid_t tv_dset_open_checked(tv_ctx *c, hid_t loc, const char *path, tv_info *t, int *rc);

@@ -163,7 +163,7 @@ func (r *Reader) init(o ReadOptions, withClock bool) error {
 	if r.Group, err = findGroup(r.f, o.Group); err != nil {
 		return err
 	}
-	info, err := r.f.Info(r.Particle(Position) + Value)
+	info, err := r.f.Describe(r.Particle(Position) + Value)
 	if err != nil {
 		return fmt.Errorf("no positions [T][N][3]: %w", err)
 	}
@@ -316,7 +316,7 @@ func (r *Reader) states() error {
 		if !r.Has(e.el) {
 			continue
 		}
-		info, err := r.f.Info(r.at(e.el) + Value)
+		info, err := r.f.Describe(r.at(e.el) + Value)
 		if err != nil {
 			return err
 		}
@@ -378,7 +378,7 @@ func readClock(f *h5.File, el string) (*Clock, error) {
 	if err != nil {
 		return nil, fmt.Errorf("no time for %s", el)
 	}
-	info, err := f.Info(el + Value)
+	info, err := f.Describe(el + Value)
 	T := 0
 	if err == nil && info.Shape.Rank > 0 {
 		T = info.Shape.Dims[0]
@@ -462,7 +462,7 @@ func (r *Reader) Element(el string) (*Element, error) {
 		return nil, nil
 	}
 	el = r.at(el)
-	info, err := r.f.Info(el + Value)
+	info, err := r.f.Describe(el + Value)
 	if err != nil {
 		return nil, err
 	}
@@ -494,7 +494,7 @@ func (r *Reader) Has(el string) bool { return r.f.Kind(r.at(el)+Value) == h5.Dat
 // read.
 func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 	el = r.at(el)
-	info, err := r.f.Info(el + Value)
+	info, err := r.f.Describe(el + Value)
 	if err != nil {
 		return nil, h5.Shape{}, err
 	}
@@ -521,7 +521,7 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 // ([T][N][3]) converted to unit: the streaming path for long runs.
 func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 	el = r.at(el)
-	info, err := r.f.Info(el + Value)
+	info, err := r.f.Describe(el + Value)
 	if err != nil {
 		return nil, err
 	}

@@ -82,7 +82,7 @@ func (r *Reader) gather(path string, shape h5.Shape, frames, offs []int) ([]floa
 // asked for, so sparse frames are best read one by one).
 func (r *Reader) readBlock(path string, frames []int) int {
 	chunk := 0
-	if info, err := r.f.Info(path); err == nil && len(info.Chunk) > 0 {
+	if info, err := r.f.Describe(path); err == nil && len(info.Chunk) > 0 {
 		chunk = max(info.Chunk[0], 1)
 	}
 	dense := len(frames) > 0 && frames[len(frames)-1]-frames[0] == len(frames)-1
@@ -141,7 +141,7 @@ func OpenWindowReaderWith(path string, o ReadOptions) (*Reader, error) {
 // (value i = offset + i increment), read by chunk for explicit clocks.
 // Steps of explicit clocks pass through float64 and are exact up to 2^53.
 func (r *Reader) ClockAt(el string, frames []int) (*Clock, error) {
-	info, err := r.f.Info(el + Value)
+	info, err := r.f.Describe(el + Value)
 	if err != nil || info.Shape.Rank == 0 {
 		return nil, fmt.Errorf("no values for %s", el)
 	}
@@ -155,11 +155,11 @@ func (r *Reader) ClockAt(el string, frames []int) (*Clock, error) {
 	if a, err := r.f.Attr(el+Time, UnitAttr); err == nil && len(a.Strings) == 1 {
 		c.TimeUnit = a.Strings[0]
 	}
-	si, err := r.f.Info(el + Step)
+	si, err := r.f.Describe(el + Step)
 	if err != nil {
 		return nil, fmt.Errorf("no step for %s", el)
 	}
-	ti, err := r.f.Info(el + Time)
+	ti, err := r.f.Describe(el + Time)
 	if err != nil {
 		return nil, fmt.Errorf("no time for %s", el)
 	}

@@ -182,7 +182,7 @@ func group(f *h5.File, p, name string) GroupSummary {
 		}
 		g.Formula = elements.Formula(zs)
 	}
-	info, err := f.Info(Particle(p, Position) + Value)
+	info, err := f.Describe(Particle(p, Position) + Value)
 	if err == nil && info.Shape.Rank == 3 {
 		g.Frames = info.Shape.Dims[0]
 		if g.Atoms == 0 {
