@@ -107,9 +107,8 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
-	geo := rep.geometry()
-	if geo == nil || geo.Kept == 0 {
-		return nil, fmt.Errorf("%s: no geometry frames", rep.Name)
+	if fr := rep.frameFile(); fr == nil || fr.Kept == 0 {
+		return nil, fmt.Errorf("%s: no frames (no geometry frames and no records)", rep.Name)
 	}
 	res := &Result{Output: out, Storage: map[string]string{}, NotStored: append([]string{}, rep.NotStored...)}
 	for _, p := range rep.Problems {
@@ -310,7 +309,8 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	u := rep.Units
 	spec := trajfile.Spec{
 		Author: opt.Author, Email: opt.Email, Creator: "trajvault", CreatorVersion: opt.ToolVersion,
-		Species: zs, Masses: masses,
+		ObservablesOnly: rep.ObservablesOnly,
+		Species:         zs, Masses: masses,
 		Units: trajfile.Units{Length: u[string(quantity.Position)], Time: u[string(quantity.Time)], Velocity: u[string(quantity.Velocity)], Force: u[string(quantity.Force)],
 			Energy: u[string(quantity.Energy)], Mass: "u", InverseTime: ""},
 		Velocity: has(quantity.VelocityQ) || (has(quantity.MomentumQ) && u[string(quantity.Velocity)] != ""),
@@ -464,7 +464,7 @@ func stream(ctx context.Context, rep *TrajReport, srcs []source, w *trajfile.Wri
 		fr   *trajfile.Frame
 		line int
 	}
-	geo := rep.geometry()
+	geo := rep.frameFile()
 	ch := make(chan item, 256)
 	g, gctx := errgroup.WithContext(ctx)
 	g.Go(func() error {
@@ -492,15 +492,17 @@ func stream(ctx context.Context, rep *TrajReport, srcs []source, w *trajfile.Wri
 	return g.Wait()
 }
 
-// produce walks the geometry frames and joins the other files' records
-// to them by step (or by order when there are no steps), handing each
-// assembled frame to emit; it stops at emit's first error.
+// produce walks the geometry frames (observables only: the first
+// table's records) and joins the other files' records to them by step
+// (or by order when there are no steps), handing each assembled frame
+// to emit; it stops at emit's first error.
 func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*trajfile.Frame, int) error) error {
 	var geo *keptIter
 	var others []*keptIter
+	frames := rep.frameFile()
 	for i, s := range srcs {
 		it := newKeptIter(s, rep.Files[i])
-		if rep.Files[i].reader.Role == RoleGeometry {
+		if rep.Files[i] == frames {
 			geo = it
 		} else if rep.Files[i].Kept > 0 { // event-only logs add no frames
 			others = append(others, it)

@@ -30,7 +30,7 @@ const (
 	PUnit        = "P8"  // no unit for a quantity
 	PUnreadable  = "P9"  // other parse error
 	PUnknownFile = "P10" // file not used
-	PNoGeometry  = "P11" // no geometry
+	PNoGeometry  = "P11" // geometry needed but absent (per-atom data, or nothing else to store)
 	PNoTime      = "P12" // no times
 	PConflict    = "P13" // two files give the same quantity
 	PStateBase   = "P14" // states numbered from 1 (detected)
@@ -97,6 +97,11 @@ type TrajReport struct {
 	Precision  map[string]string `json:"precision"`
 	Quantities []string          `json:"quantities"`
 	Problems   []finding.Finding `json:"problems"`
+	// ObservablesOnly is set for a run without a geometry file whose
+	// records (energies, states) are stored as observables alone, with
+	// no particle group (H5MD 1.1 makes particles optional); Frames then
+	// counts those records.
+	ObservablesOnly bool `json:"observables_only,omitempty"`
 	// NotStored lists what the files hold that convert does not store,
 	// each with its file and reason (also in convert's output and the
 	// provenance).
@@ -194,9 +199,6 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 	}
 	for _, u := range t.unknown {
 		rep.add(PUnknownFile, finding.Note, u, 0, "not read (no reader takes its extension: %s); name it in a recipe to use it", knownExtensions())
-	}
-	if t.geometry() == "" {
-		rep.add(PNoGeometry, finding.Error, t.Dir, 0, "no geometry file (.xyz or extended .xyz): a trajectory needs positions")
 	}
 	// Files that fail their reader's probe are skipped with a note, not
 	// fatal.
@@ -422,7 +424,7 @@ func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
 
 // combine checks the files against each other and fills the summary.
 func (t *TrajReport) combine(opt Options) {
-	geo := t.geometry()
+	geo := t.frameFile()
 	for _, f := range t.Files {
 		for q, fm := range f.fmts {
 			if old, ok := t.formats[q]; ok {
@@ -498,7 +500,7 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		t.Formula = elements.Formula(zs)
 	}
-	if geo == nil {
+	if !t.checkObservablesOnly(geo) {
 		return
 	}
 	t.Frames = geo.Kept
@@ -508,7 +510,7 @@ func (t *TrajReport) combine(opt Options) {
 		for _, f := range t.Files {
 			if f != geo && f.hasSteps {
 				if f.Kept != geo.Kept {
-					t.add(PLength, finding.Error, f.File, 0, "%d records but the geometry file has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, geo.Kept)
+					t.add(PLength, finding.Error, f.File, 0, "%d records but %s has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, t.frameName(geo), geo.Kept)
 				}
 				clock = f
 				break
@@ -521,7 +523,7 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		if f.hasSteps && clock.hasSteps {
 			if ok, miss := contains(&f.keys, &clock.keys); !ok {
-				t.add(PLength, finding.Error, f.File, 0, "no record for step %d, which the geometry has; every frame needs its row", miss)
+				t.add(PLength, finding.Error, f.File, 0, "no record for step %d, which %s has; every frame needs its row", miss, t.frameName(geo))
 			}
 		} else if f.Kept != geo.Kept {
 			t.add(PLength, finding.Error, f.File, 0, "%d records for %d frames, and no steps to match them by", f.Kept, geo.Kept)
@@ -552,7 +554,7 @@ func (t *TrajReport) combine(opt Options) {
 		t.clock = &trajfile.FixedClock{StepOffset: tf.s0, StepIncrement: tf.stride, TimeOffset: tf.t0, TimeIncrement: tf.dt}
 	}
 	// Units for every quantity present.
-	need := map[quantity.Kind]bool{quantity.Position: true}
+	need := map[quantity.Kind]bool{quantity.Position: !t.ObservablesOnly}
 	for _, q := range t.Quantities {
 		if k := quantity.StoredUnit(q); k != "" && q != quantity.MomentumQ {
 			need[k] = true
@@ -598,6 +600,65 @@ func (t *TrajReport) combine(opt Options) {
 	}
 	t.momentumUnits(geo, opt)
 	t.checkKinetic(opt)
+}
+
+// frameFile is the file whose records are the stored frames: the
+// geometry file, else (observables only) the first file of records that
+// kept any.
+func (t *TrajReport) frameFile() *FileReport {
+	if g := t.geometry(); g != nil {
+		return g
+	}
+	for _, f := range t.Files {
+		if f.Kept > 0 {
+			return f
+		}
+	}
+	return nil
+}
+
+// checkObservablesOnly decides, for a run without a geometry file,
+// whether its records can be stored as observables alone (H5MD 1.1,
+// "General organization": only the h5md group is mandatory at the root,
+// so a file without /particles is valid). That needs something per
+// frame to store (an energy or electronic-state quantity) and no
+// per-atom quantity, which has no place without positions: otherwise
+// P11. It reports whether combine goes on with frames from frames.
+func (t *TrajReport) checkObservablesOnly(frames *FileReport) bool {
+	if t.geometry() != nil {
+		return frames != nil
+	}
+	var perAtom, stored []string
+	for _, q := range t.Quantities {
+		x, _ := quantity.Lookup(q)
+		switch {
+		case x.PerAtom:
+			perAtom = append(perAtom, q)
+		case x.Element != "" && q != quantity.TimeQ:
+			stored = append(stored, q)
+		}
+	}
+	if t.hasActive() {
+		stored = append(stored, quantity.ActiveState)
+	}
+	switch {
+	case len(perAtom) > 0:
+		t.add(PNoGeometry, finding.Error, t.traj.Dir, 0, "%s given per atom but no geometry file (.xyz or extended .xyz): per-atom data needs positions; add the geometry file", strings.Join(perAtom, ", "))
+		return false
+	case frames == nil || len(stored) == 0:
+		t.add(PNoGeometry, finding.Error, t.traj.Dir, 0, "no geometry file (.xyz or extended .xyz) and no energies or states to store as observables; add the geometry file or a table with energy or state columns")
+		return false
+	}
+	t.ObservablesOnly = true
+	return true
+}
+
+// frameName names the frame file in messages.
+func (t *TrajReport) frameName(f *FileReport) string {
+	if t.ObservablesOnly {
+		return f.File + " (the first table, whose rows are the frames)"
+	}
+	return "the geometry file"
 }
 
 // geometry is the report of the geometry file (found by its reader's

@@ -52,6 +52,23 @@ func converted(t *testing.T) string {
 	return out
 }
 
+// observablesOnly converts a table of energies and states without a
+// geometry file (a file with /observables and no /particles).
+func observablesOnly(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	var b strings.Builder
+	b.WriteString("# step time[fs] Epot[hartree] Ekin[hartree] E_0[hartree] E_1[hartree] state\n")
+	for i := 0; i < 50; i++ {
+		fmt.Fprintf(&b, "%d %.2f %.8f %.8f %.6f %.6f 0\n", 10*i, 0.5*float64(i), -76.4+1e-5*float64(i), 0.001, -76.4, -76.2)
+	}
+	mustDo(t, os.WriteFile(filepath.Join(dir, "energies.dat"), []byte(b.String()), 0o644))
+	out := filepath.Join(t.TempDir(), "obs.h5")
+	_, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{ToolVersion: "test"})
+	mustDo(t, err)
+	return out
+}
+
 // editRecord rewrites the stored provenance JSON text with edit.
 func editRecord(edit func(string) string) func(t *testing.T, f *h5.File) {
 	return func(t *testing.T, f *h5.File) {
@@ -149,6 +166,9 @@ func TestWriterOutputIsClean(t *testing.T) {
 	}{
 		{"trajectory writer", base, []string{"R1"}},
 		{"converted from logs", converted, nil},
+		// No /particles: H5MD 1.1.0, "General organization", makes only
+		// the h5md group mandatory at the root (V41 stays quiet).
+		{"observables only", observablesOnly, nil},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			rep, err := File(c.make(t), Options{ToolVersion: "test"})
@@ -300,7 +320,10 @@ func TestRules(t *testing.T) {
 			pyRun(t, py, path)
 			return path
 		}},
-		{"V41", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V41", finding.Error, "no particles group and no observables", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.Delete("/particles"))
+			mustDo(t, f.Delete("/observables"))
+		}, nil},
 		{"V32", finding.Error, "particle group is a dataset", func(t *testing.T, f *h5.File) { create(t, f, "/particles/extra", h5.Float64, []int{1}, []float64{0}) }, nil},
 		{"V33", finding.Error, "damaged object header", nil, func(t *testing.T) string {
 			// h5py (Debian python3-h5py, HDF5 1.10 API) gives the object

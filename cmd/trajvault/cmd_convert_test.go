@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"os/exec"
@@ -316,4 +317,51 @@ func shellWords(s string) []string {
 		words = append(words, cur.String())
 	}
 	return words
+}
+
+// TestObservablesOnlyCLI: a table of energies without geometry (issue
+// 10, item 8) goes through scan, convert, validate, inspect and export
+// --format csv with exit 0; the file has no /particles group, which the
+// H5MD 1.1.0 specification ("General organization") makes optional, and
+// the csv gives back every printed digit. Exports that need atoms exit 2
+// and say why.
+func TestObservablesOnlyCLI(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "energies")
+	os.MkdirAll(dir, 0o755)
+	var b strings.Builder
+	var want strings.Builder
+	b.WriteString("# step time[fs] Epot[eV] Ekin[eV] Etot[eV]\n")
+	want.WriteString("step,time[fs],kinetic_energy[eV],potential_energy[eV],total_energy[eV]\n")
+	for i := 0; i <= 1000; i++ {
+		ep, ek := -3.25+0.001*float64(i%17), 0.5-0.001*float64(i%17)
+		row := []string{fmt.Sprint(5 * i), fmt.Sprintf("%.2f", 0.25*float64(i)), fmt.Sprintf("%.6f", ep), fmt.Sprintf("%.6f", ek), fmt.Sprintf("%.6f", ep+ek)}
+		b.WriteString(strings.Join(row, " ") + "\n")
+		want.WriteString(strings.Join([]string{row[0], row[1], row[3], row[2], row[4]}, ",") + "\n")
+	}
+	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte(b.String()), 0o644)
+	code, out, errs := runCLI("scan", dir)
+	if code != 0 || !strings.Contains(out, "energies: 1001 records, observables only, steps 0..5000") {
+		t.Fatalf("scan: exit %d\n%s%s", code, out, errs)
+	}
+	h5path := filepath.Join(t.TempDir(), "energies.h5")
+	if code, out, errs := runCLI("convert", dir, "-o", h5path); code != 0 {
+		t.Fatalf("convert: exit %d\n%s%s", code, out, errs)
+	}
+	if code, out, _ := runCLI("validate", h5path); code != 0 || !strings.Contains(out, "ok, 0 errors, 0 warnings") {
+		t.Fatalf("validate: exit %d\n%s", code, out)
+	}
+	if code, out, errs := runCLI("inspect", h5path); code != 0 || !strings.Contains(out, "potential_energy") || strings.Contains(out, "/particles") {
+		t.Errorf("inspect: exit %d\n%s%s", code, out, errs)
+	}
+	csv := filepath.Join(t.TempDir(), "back.csv")
+	if code, _, errs := runCLI("export", h5path, "-o", csv, "--format", "csv"); code != 0 {
+		t.Fatalf("export csv: exit %d\n%s", code, errs)
+	}
+	if got, _ := os.ReadFile(csv); string(got) != want.String() {
+		t.Errorf("export csv differs from the table's digits:\n%.300s", got)
+	}
+	code, _, errs = runCLI("export", h5path, "-o", filepath.Join(t.TempDir(), "x"), "--format", "xyz")
+	if code != 2 || !strings.Contains(errs, "observables only") {
+		t.Errorf("export xyz of an observables-only file: exit %d, %q; want 2 and the reason", code, errs)
+	}
 }

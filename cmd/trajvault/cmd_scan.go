@@ -108,7 +108,11 @@ func scanFindings(reps []*ingest.TrajReport) []finding.Finding {
 // printScan prints one trajectory's report in lines of at most 80
 // columns.
 func printScan(g *globals, r *ingest.TrajReport) {
-	head := fmt.Sprintf("%s: %s (%s), %s, steps %d..%d, time %g..%g %s", r.Name, plural(r.Atoms, "atom"), r.Formula, plural(r.Frames, "frame"), r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
+	what := fmt.Sprintf("%s (%s), %s", plural(r.Atoms, "atom"), r.Formula, plural(r.Frames, "frame"))
+	if r.ObservablesOnly {
+		what = plural(r.Frames, "record") + ", observables only"
+	}
+	head := fmt.Sprintf("%s: %s, steps %d..%d, time %g..%g %s", r.Name, what, r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
 	if r.States > 0 {
 		head += fmt.Sprintf(", %s, %s", plural(r.States, "state"), plural(r.Hops, "hop attempt"))
 	}

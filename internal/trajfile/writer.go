@@ -61,6 +61,13 @@ type Spec struct {
 	Author, Email           string
 	Creator, CreatorVersion string
 
+	// ObservablesOnly writes no particle group: a run of energies or
+	// electronic states without geometry (H5MD 1.1 makes /particles
+	// optional). Species, Masses, Edges, Velocity and Force must then be
+	// empty, and the first observable holds the step and time datasets
+	// the others link to.
+	ObservablesOnly bool
+
 	Species  []int     // atomic numbers, length N
 	Masses   []float64 // length N
 	Boundary []string  // per axis "periodic" or "none"; nil = all none
@@ -192,21 +199,24 @@ type element struct {
 
 // Writer writes one trajectory file. Its first error is sticky.
 type Writer struct {
-	spec     Spec
-	final    string
-	tmp      string
-	f        *h5.File
-	n        int
-	chunk    int
-	step     *element
-	time     *element
-	elems    []*element
-	get      []func(*Frame) ([]float64, error)
-	hops     []Hop
-	frames   int
-	lastStep int64
-	err      error
-	closed   bool
+	spec  Spec
+	final string
+	tmp   string
+	f     *h5.File
+	n     int
+	chunk int
+	step  *element
+	time  *element
+	// clockGroup is the element holding the step and time datasets
+	// (positions, or the first observable); the others hard-link them.
+	clockGroup string
+	elems      []*element
+	get        []func(*Frame) ([]float64, error)
+	hops       []Hop
+	frames     int
+	lastStep   int64
+	err        error
+	closed     bool
 	// src are the units of the numbers given; spec.Units those stored.
 	// tf converts given times to stored ones.
 	src Units
@@ -242,7 +252,12 @@ func Create(path string, spec Spec) (*Writer, error) {
 		return nil, fmt.Errorf("%s: already exists; trajvault never overwrites an output (remove it or choose another name)", path)
 	}
 	n := len(spec.Species)
-	if n == 0 || len(spec.Masses) != n {
+	switch {
+	case spec.ObservablesOnly && (n > 0 || len(spec.Masses) > 0 || len(spec.Edges) > 0 || spec.Velocity || spec.Force):
+		return nil, errors.New("trajfile: an observables-only file has no atoms: no species, masses, box, velocities or forces")
+	case spec.ObservablesOnly && !(spec.Kinetic || spec.Potential || spec.Total || spec.NStates > 0):
+		return nil, errors.New("trajfile: an observables-only file needs an observable (an energy or electronic-state data)")
+	case !spec.ObservablesOnly && (n == 0 || len(spec.Masses) != n):
 		return nil, fmt.Errorf("trajfile: %d species and %d masses; need N > 0 of each", n, len(spec.Masses))
 	}
 	if spec.Units == (Units{}) {
@@ -270,7 +285,7 @@ func Create(path string, spec Spec) (*Writer, error) {
 	if chunk <= 0 {
 		// About 256 KiB of positions per chunk: large enough to compress
 		// well, small enough to read a few frames cheaply.
-		chunk = max(1, min(4096, 256*1024/(8*3*n)))
+		chunk = max(1, min(4096, 256*1024/(8*3*max(n, 1))))
 	}
 	tmp := filepath.Join(filepath.Dir(path), fmt.Sprintf(".%s.partial-%d", filepath.Base(path), os.Getpid()))
 	outdir.Clean(filepath.Dir(path)) // leftovers of killed runs, by their markers
@@ -291,6 +306,9 @@ func Create(path string, spec Spec) (*Writer, error) {
 	}
 	w.header()
 	w.layout()
+	if w.err == nil && w.step == nil {
+		w.err = errors.New("trajfile: no time-dependent element to write")
+	}
 	if w.err != nil {
 		err := w.err
 		w.Abort()
@@ -422,6 +440,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		}
 		w.step = &element{path: group + Step, row: 1}
 		w.time = &element{path: group + Time, row: 1}
+		w.clockGroup = group
 	} else if w.step == nil {
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
@@ -436,15 +455,18 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		}
 		w.step = &element{path: group + Step, row: 1, w: sw}
 		w.time = &element{path: group + Time, row: 1, w: tw}
+		w.clockGroup = group
 	} else {
-		w.do(w.f.HardLink(Particle(pgroup, Position)+Step, group+Step))
-		w.do(w.f.HardLink(Particle(pgroup, Position)+Time, group+Time))
+		w.do(w.f.HardLink(w.clockGroup+Step, group+Step))
+		w.do(w.f.HardLink(w.clockGroup+Time, group+Time))
 	}
 	w.elems = append(w.elems, e)
 	return e
 }
 
-func (w *Writer) layout() {
+// atoms writes the particle group's time-independent part: box,
+// species and masses.
+func (w *Writer) atoms() {
 	s, n := w.spec, w.n
 	d := len(s.Boundary)
 	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
@@ -460,6 +482,13 @@ func (w *Writer) layout() {
 	}
 	w.fixed(Particle(pgroup, Species), sp, []int{n}, "", h5.Int32)
 	w.fixed(Particle(pgroup, Mass), scaled(s.Masses, w.factor(func(u Units) string { return u.Mass })), []int{n}, s.Units.Mass, h5.Float64)
+}
+
+func (w *Writer) layout() {
+	s, n := w.spec, w.n
+	if !s.ObservablesOnly {
+		w.atoms()
+	}
 
 	// add creates an element whose numbers get returns in the given
 	// units; sel picks its unit (nil: dimensionless or integer).
@@ -502,7 +531,9 @@ func (w *Writer) layout() {
 			return v, nil
 		}
 	}
-	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
+	if !s.ObservablesOnly {
+		add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
+	}
 	if s.Velocity {
 		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, uVelocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
 	}
