@@ -71,6 +71,9 @@ type Result struct {
 	// Accepted are the physics cross-check findings accepted with
 	// AcceptMismatch.
 	Accepted []string `json:"accepted_mismatches,omitempty"`
+	// Overrides are the file units replaced by given ones
+	// (Options.UnitsOverFile).
+	Overrides []string `json:"unit_overrides,omitempty"`
 }
 
 // DefaultSeriesFrames is the time-series chunk length, chosen by
@@ -110,7 +113,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if fr := rep.frameFile(); fr == nil || fr.Kept == 0 {
 		return nil, fmt.Errorf("%s: no frames (no geometry frames and no records)", rep.Name)
 	}
-	res := &Result{Output: out, Storage: map[string]string{}, NotStored: append([]string{}, rep.NotStored...)}
+	res := &Result{Output: out, Storage: map[string]string{}, NotStored: append([]string{}, rep.NotStored...), Overrides: rep.Overrides}
 	for _, p := range rep.Problems {
 		if p.Code == PKinetic && p.Severity != finding.Error {
 			res.Accepted = append(res.Accepted, p.String())
@@ -197,6 +200,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if opt.Recipe != nil {
 		rec.Recipe = opt.Recipe.Text
 	}
+	rec.Conversions = append(rec.Conversions, rep.Overrides...)
 	if opt.ForReaders {
 		rec.Conversions = append(rec.Conversions, readerConversion(rep.Units))
 	}

@@ -59,6 +59,7 @@ type FileReport struct {
 	partial   int // record index of a cut last frame (-1 none)
 	fmts      map[string]textnum.Format
 	units     map[string]string
+	unitAt    map[string]string // where each of units is written
 	maxAbs    map[string]float64
 	states    int // per-state columns: highest index + 1, as written
 	minState  int // lowest per-state index with a value (-1 none)
@@ -102,6 +103,9 @@ type TrajReport struct {
 	// no particle group (H5MD 1.1 makes particles optional); Frames then
 	// counts those records.
 	ObservablesOnly bool `json:"observables_only,omitempty"`
+	// Overrides lists the file units replaced by given ones
+	// (Options.UnitsOverFile), for convert's output and the provenance.
+	Overrides []string `json:"unit_overrides,omitempty"`
 	// NotStored lists what the files hold that convert does not store,
 	// each with its file and reason (also in convert's output and the
 	// provenance).
@@ -124,13 +128,19 @@ type TrajReport struct {
 type Options struct {
 	Recipe *Recipe
 	// Units given on the command line (--unit kind=unit); they fill in
-	// what neither the files nor the recipe say.
+	// what neither the files nor the recipe say. One that differs from a
+	// file's own unit is refused (UnitConflictError) unless UnitsOverFile.
 	Units map[string]string
 	// DropPartial drops a cut last frame instead of failing.
 	DropPartial bool
 	// Dt is the time per step, in Units["time"], when the logs give no
 	// times.
 	Dt float64
+	// UnitsOverFile lets a unit given in Units (or the recipe) replace a
+	// different unit written in a file (its label is wrong); without it
+	// that conflict is a UnitConflictError. Each override is recorded
+	// (TrajReport.Overrides, provenance).
+	UnitsOverFile bool
 	// AcceptMismatch turns a failed physics cross-check (P17) from an
 	// error into a warning, so that convert goes ahead; the accepted
 	// findings are recorded in the provenance.
@@ -229,6 +239,9 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 			return nil, err
 		}
 		rep.Files = append(rep.Files, fr)
+	}
+	if err := rep.checkGivenUnits(opt); err != nil {
+		return nil, err
 	}
 	rep.combine(opt)
 	rep.checkRecipeRules(srcs)
@@ -378,6 +391,12 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		fr.Formats[q] = f.String()
 	}
 	fr.units = s.units()
+	if w, ok := s.(unitLocator); ok {
+		fr.unitAt = map[string]string{}
+		for k := range fr.units {
+			fr.unitAt[k] = w.unitWhere(k)
+		}
+	}
 	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
 	}
@@ -406,9 +425,15 @@ func (t *TrajReport) stateBase(opt Options) int {
 }
 
 // unitFor resolves the unit of a kind: the files, then the recipe, then
-// the command line.
+// the command line (checkGivenUnits has refused a given unit that
+// contradicts a file's, unless UnitsOverFile puts the given one first).
 func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
 	k := string(kind)
+	if opt.UnitsOverFile {
+		if g, _ := givenUnit(k, opt); g != "" {
+			return g
+		}
+	}
 	for _, f := range t.Files {
 		if u := f.units[k]; u != "" {
 			return u
@@ -420,6 +445,86 @@ func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
 		}
 	}
 	return opt.Units[k]
+}
+
+// unitLocator is a source that says where each unit it gives is written
+// (file:line[:column] and the text), for messages.
+type unitLocator interface{ unitWhere(kind string) string }
+
+// UnitConflictError is a unit given on the command line or in the
+// recipe that differs from the unit a file writes for the same kind of
+// quantity. A given unit is honoured or refused, never ignored: the
+// caller treats it as a usage error (exit 2).
+type UnitConflictError struct {
+	Kind       string // unit kind, e.g. "energy"
+	Given      string // the given unit
+	GivenBy    string // "--unit" or "the recipe"
+	FileUnit   string // the unit the file writes
+	Where      string // file:line[:column] (text) of the file's unit
+	Trajectory string // trajectory name
+}
+
+func (e *UnitConflictError) Error() string {
+	// Quoted when it holds a space, so that it works when pasted.
+	flag := "--unit " + e.Kind + "=" + e.Given
+	if strings.Contains(e.Given, " ") {
+		flag = "--unit '" + e.Kind + "=" + e.Given + "'"
+	}
+	if e.GivenBy != "--unit" {
+		flag = e.GivenBy + " (units: " + e.Kind + ": " + e.Given + ")"
+	}
+	return fmt.Sprintf("%s: unit of %s: %s says %q but %s gives %q; a given unit is honoured or refused, never ignored. Drop %s to keep the file's unit, or add --units-over-file if the file's label is wrong (the override is recorded in the provenance)",
+		e.Trajectory, e.Kind, e.Where, e.FileUnit, flag, e.Given, flag)
+}
+
+// givenUnit is the unit given for kind k and who gave it: the command
+// line, else the recipe.
+func givenUnit(k string, opt Options) (unit, by string) {
+	if u := opt.Units[k]; u != "" {
+		return u, "--unit"
+	}
+	if opt.Recipe != nil && opt.Recipe.Units[k] != "" {
+		return opt.Recipe.Units[k], "the recipe"
+	}
+	return "", ""
+}
+
+// sameUnit reports whether a and b name the same unit (spellings that
+// convert with factor exactly 1, e.g. "Angstrom" and "angstrom").
+func sameUnit(a, b string) bool {
+	if a == b {
+		return true
+	}
+	f, err := units.Factor(a, b)
+	return err == nil && f == 1
+}
+
+// checkGivenUnits compares every unit given (--unit, the recipe) with
+// the units the files write: a different unit is a UnitConflictError,
+// or with UnitsOverFile an override recorded in t.Overrides.
+func (t *TrajReport) checkGivenUnits(opt Options) error {
+	for _, ki := range quantity.Kinds() {
+		k := string(ki.Kind)
+		given, by := givenUnit(k, opt)
+		if given == "" {
+			continue
+		}
+		for _, f := range t.Files {
+			fu := f.units[k]
+			if fu == "" || sameUnit(fu, given) {
+				continue
+			}
+			where := f.unitAt[k]
+			if where == "" {
+				where = f.File
+			}
+			if !opt.UnitsOverFile {
+				return &UnitConflictError{Kind: k, Given: given, GivenBy: by, FileUnit: fu, Where: where, Trajectory: t.Name}
+			}
+			t.Overrides = append(t.Overrides, fmt.Sprintf("unit of %s: %s says %q; %s gives %q, used (--units-over-file)", k, where, fu, by, given))
+		}
+	}
+	return nil
 }
 
 // combine checks the files against each other and fills the summary.

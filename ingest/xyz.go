@@ -340,6 +340,8 @@ type xyzSource struct {
 	columns map[string]string
 	// unit holds the units named by KEY_unit= comment keys, by unit kind.
 	unit map[string]string
+	// unitAt says where each unit of unit is written (unitWhere).
+	unitAt map[string]string
 	notes
 }
 
@@ -365,7 +367,10 @@ func (s *xyzSource) unitKey(fr *Frame, key, val string, col int) (bool, error) {
 		return true, &ParseError{File: s.path, Line: fr.Line + 1, Column: col, Err: detail(ErrHeader, "%s: %s is in %q here and %q before; trajvault stores numbers as printed, so one unit per kind of quantity", key, kind, val, old)}
 	}
 	if s.unit == nil {
-		s.unit = map[string]string{}
+		s.unit, s.unitAt = map[string]string{}, map[string]string{}
+	}
+	if _, ok := s.unit[kind]; !ok {
+		s.unitAt[kind] = fmt.Sprintf("%s:%d:%d (%s=%s)", s.path, fr.Line+1, col, key, val)
 	}
 	s.unit[kind] = val
 	return true, nil
@@ -389,6 +394,7 @@ func (s *xyzSource) file() string                        { return s.path }
 func (s *xyzSource) provides() map[string]textnum.Format { return s.fmts }
 func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts[quantity.TimeQ] }
 func (s *xyzSource) units() map[string]string            { return s.unit }
+func (s *xyzSource) unitWhere(kind string) string        { return s.unitAt[kind] }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
 

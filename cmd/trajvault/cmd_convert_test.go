@@ -365,3 +365,42 @@ func TestObservablesOnlyCLI(t *testing.T) {
 		t.Errorf("export xyz of an observables-only file: exit %d, %q; want 2 and the reason", code, errs)
 	}
 }
+
+// TestUnitGivenVsFile: --unit naming a different unit than the table's
+// header is refused by scan and convert with exit 2 (usage), naming both
+// units, the header's line and the way out; the same unit passes; with
+// --units-over-file the given unit is stored and the override is in the
+// provenance record (issue 10: a given unit is honoured or refused,
+// never ignored).
+func TestUnitGivenVsFile(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "run")
+	os.MkdirAll(dir, 0o755)
+	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte("# step time[fs] Epot[hartree]\n0 0.0 -1.50\n1 0.5 -1.40\n2 1.0 -1.30\n"), 0o644)
+	for _, verb := range []string{"scan", "convert"} {
+		args := []string{verb, dir, "--unit", "energy=eV"}
+		if verb == "convert" {
+			args = append(args, "-o", filepath.Join(t.TempDir(), "x.h5"))
+		}
+		code, _, errs := runCLI(args...)
+		if code != 2 || !strings.Contains(errs, `energies.dat:1 (header column Epot[hartree]) says "hartree" but --unit energy=eV gives "eV"`) || !strings.Contains(errs, "--units-over-file") {
+			t.Errorf("%s with a conflicting --unit: exit %d, %q; want 2, both units and the flag", verb, code, errs)
+		}
+	}
+	if code, out, errs := runCLI("scan", dir, "--unit", "energy=hartree"); code != 0 {
+		t.Errorf("scan with the file's own unit: exit %d\n%s%s", code, out, errs)
+	}
+	out := filepath.Join(t.TempDir(), "over.h5")
+	if code, o, errs := runCLI("convert", dir, "--unit", "energy=eV", "--units-over-file", "-o", out); code != 0 || !strings.Contains(o, "unit override:") {
+		t.Fatalf("convert --units-over-file: exit %d\n%s%s", code, o, errs)
+	}
+	f, err := h5.Open(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	u, _ := f.Attr(trajfile.PotentialEnergy+trajfile.Value, trajfile.UnitAttr)
+	p, _ := f.Attr(trajfile.ParametersGroup, trajfile.ProvenanceAttr)
+	if len(u.Strings) != 1 || u.Strings[0] != "eV" || len(p.Strings) != 1 || !strings.Contains(p.Strings[0], `says \"hartree\"; --unit gives \"eV\", used (--units-over-file)`) {
+		t.Errorf("stored unit %v; provenance %.400v; want eV and the override recorded", u.Strings, p.Strings)
+	}
+}
