@@ -358,7 +358,9 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 			continue
 		}
 		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
-		if fm.Fixed() && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
+		// Negative zeros keep their sign through scale-offset in a list
+		// (trajfile.NegativeZerosAttr), up to a bound; beyond it float64.
+		if fm.Fixed() && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled && rep.negZeros[q] <= trajfile.MaxNegativeZeros {
 			st.Decimals = fm.Decimals
 		}
 		if tol, ok := opt.Tolerance[el]; ok && tol > 0 {
@@ -378,6 +380,8 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		switch {
 		case st.Tolerance > 0:
 			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals, lossy within %g", st.Decimals, st.Tolerance)
+		case st.Decimals >= 0 && rep.negZeros[q] > 0:
+			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals (as printed, exact; %d negative zeros listed)", st.Decimals, rep.negZeros[q])
 		case st.Decimals >= 0:
 			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals (as printed, exact)", st.Decimals)
 		default:
@@ -634,7 +638,7 @@ func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, r
 	}
 	d := fm.Decimals + int(math.Ceil(math.Log10(1.01*mMax)))
 	vMax := rep.maxAbs[quantity.MomentumQ] / mMin
-	if !fm.Fixed() || opt.BitExact || mMin <= 0 || d < 0 || vMax*math.Pow10(d) >= maxExactScaled {
+	if !fm.Fixed() || opt.BitExact || mMin <= 0 || d < 0 || vMax*math.Pow10(d) >= maxExactScaled || rep.negZeros[quantity.MomentumQ] > trajfile.MaxNegativeZeros {
 		spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: -1}
 		res.Storage["velocity"] = "float64, lossless (momenta / masses)"
 		return

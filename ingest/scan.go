@@ -61,8 +61,9 @@ type FileReport struct {
 	units     map[string]string
 	unitAt    map[string]string // where each of units is written
 	maxAbs    map[string]float64
-	states    int // per-state columns: highest index + 1, as written
-	minState  int // lowest per-state index with a value (-1 none)
+	negZeros  map[string]int // values printed as negative zeros ("-0.00"), by quantity
+	states    int            // per-state columns: highest index + 1, as written
+	minState  int            // lowest per-state index with a value (-1 none)
 	maxActive int
 	minActive int // lowest active state seen (-1 none)
 	active    bool
@@ -111,13 +112,14 @@ type TrajReport struct {
 	// provenance).
 	NotStored []string `json:"not_stored"`
 
-	traj    *Trajectory
-	base    int
-	clock   *trajfile.FixedClock
-	symbols []string
-	masses  []float64
-	formats map[string]textnum.Format
-	maxAbs  map[string]float64
+	traj     *Trajectory
+	base     int
+	clock    *trajfile.FixedClock
+	symbols  []string
+	masses   []float64
+	formats  map[string]textnum.Format
+	maxAbs   map[string]float64
+	negZeros map[string]int
 	// kinetic-energy cross-check: the first frames' sums, by join key
 	ke       []*keFrame
 	keByKey  map[int64]*keFrame
@@ -202,7 +204,7 @@ const checkEvery = 64
 // errors.
 func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) {
 	rep := &TrajReport{Name: t.Name, traj: t, Units: map[string]string{}, Precision: map[string]string{},
-		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []finding.Finding{},
+		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, negZeros: map[string]int{}, Quantities: []string{}, Problems: []finding.Finding{},
 		NotStored: []string{}, keByKey: map[int64]*keFrame{}}
 	for _, m := range t.missing {
 		rep.add(PMissing, finding.Error, t.Dir, 0, "no file matches the recipe pattern %q", m)
@@ -253,7 +255,7 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	// The report keeps no reference to s: a closed source still holds its
 	// line buffer (1 MiB), and an ensemble's reports live until the
 	// conversion ends.
-	fr := &FileReport{File: s.file(), Format: r.Kind, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1, minActive: -1}
+	fr := &FileReport{File: s.file(), Format: r.Kind, reader: r, partial: -1, maxAbs: map[string]float64{}, negZeros: map[string]int{}, minState: -1, maxActive: -1, minActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
@@ -304,27 +306,26 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			}
 			for _, c := range rec.atoms {
 				for _, v := range c.values {
-					fr.maxAbs[c.quantity] = math.Max(fr.maxAbs[c.quantity], math.Abs(v))
+					fr.note(c.quantity, v)
 				}
 			}
 		}
 		for i, ok := range rec.hasScalar {
 			if ok {
-				q := quantity.ScalarNames[i]
-				fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(rec.scalar[i]))
+				fr.note(quantity.ScalarNames[i], rec.scalar[i])
 			}
 		}
 		if rec.hasTime {
-			fr.maxAbs[quantity.TimeQ] = math.Max(fr.maxAbs[quantity.TimeQ], math.Abs(rec.time))
+			fr.note(quantity.TimeQ, rec.time)
 		}
 		for _, v := range rec.stateE {
 			if !math.IsNaN(v) { // NaN marks a state index the log skipped
-				fr.maxAbs[quantity.StateEnergy] = math.Max(fr.maxAbs[quantity.StateEnergy], math.Abs(v))
+				fr.note(quantity.StateEnergy, v)
 			}
 		}
 		for _, v := range rec.pop {
 			if !math.IsNaN(v) {
-				fr.maxAbs[quantity.Population] = math.Max(fr.maxAbs[quantity.Population], math.Abs(v))
+				fr.note(quantity.Population, v)
 			}
 		}
 		fr.states = max(fr.states, len(rec.stateE), len(rec.pop))
@@ -412,6 +413,16 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		}
 	}
 	return fr, nil
+}
+
+// note keeps what storage needs to know of a value of q: the largest
+// magnitude, and the count of negative zeros (scale-offset storage
+// records where they are, trajfile.NegativeZerosAttr).
+func (fr *FileReport) note(q string, v float64) {
+	fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(v))
+	if v == 0 && math.Signbit(v) {
+		fr.negZeros[q]++
+	}
 }
 
 // stateBase is how the logs number electronic states: as the recipe
@@ -540,6 +551,9 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		for q, v := range f.maxAbs {
 			t.maxAbs[q] = math.Max(t.maxAbs[q], v)
+		}
+		for q, n := range f.negZeros {
+			t.negZeros[q] += n
 		}
 	}
 	givers := map[string][]string{}

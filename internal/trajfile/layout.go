@@ -78,6 +78,11 @@ const (
 	OffsetAttr    = "offset"
 	FormatAttr    = "trajvault_format"
 	ToleranceAttr = "trajvault_tolerance"
+	// NegativeZerosAttr (int64[K] on a scale-offset value dataset) lists
+	// the flat row-major indices of the values printed as negative zero
+	// ("-0.000"): scale-offset decodes k/10^D + min, which loses the sign
+	// of zero, and readers put it back.
+	NegativeZerosAttr = "trajvault_negative_zeros"
 	// ProvenanceAttr (on /parameters) holds the provenance record.
 	ProvenanceAttr = "trajvault_provenance"
 	// String attributes of /parameters written by convert

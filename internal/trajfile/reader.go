@@ -3,6 +3,7 @@ package trajfile
 import (
 	"errors"
 	"fmt"
+	"math"
 	"slices"
 	"sort"
 	"strings"
@@ -42,6 +43,32 @@ type Reader struct {
 	// (ReadOptions.ObservablesOnly).
 	ObservablesOnly bool
 	clockEl         string
+	// negZeros caches each value dataset's NegativeZerosAttr.
+	negZeros map[string][]int64
+}
+
+// signZeros gives back the sign of the values of the dataset at path
+// (value of an element) that were printed as negative zeros
+// (NegativeZerosAttr): v holds the flat values from index first on. Only
+// zeros are touched: a listed index whose value is not zero (a damaged
+// or edited file) is left as stored.
+func (r *Reader) signZeros(path string, v []float64, first int64) {
+	idx, ok := r.negZeros[path]
+	if !ok {
+		if a, err := r.f.Attr(path, NegativeZerosAttr); err == nil {
+			idx = a.Ints
+		}
+		if r.negZeros == nil {
+			r.negZeros = map[string][]int64{}
+		}
+		r.negZeros[path] = idx
+	}
+	negZero := math.Copysign(0, -1)
+	for _, i := range idx {
+		if j := i - first; j >= 0 && j < int64(len(v)) && v[j] == 0 {
+			v[j] = negZero
+		}
+	}
 }
 
 // ClockElement is the element whose step and time are the frames' clock:
@@ -548,7 +575,11 @@ func (r *Reader) Element(el string) (*Element, error) {
 
 // Raw reads frames [start, start+count) of e's values as stored.
 func (r *Reader) Raw(e *Element, start, count int) ([]float64, error) {
-	return r.f.ReadRows(e.Path+Value, e.Shape, start, count)
+	v, err := r.f.ReadRows(e.Path+Value, e.Shape, start, count)
+	if err == nil {
+		r.signZeros(e.Path+Value, v, int64(start)*int64(e.Width()))
+	}
+	return v, err
 }
 
 // Has reports whether the time-dependent element exists (e.g.
@@ -574,6 +605,7 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 	if err != nil {
 		return nil, shape, err
 	}
+	r.signZeros(el+Value, v, 0)
 	if unit != "" {
 		fct, err := r.unitFactor(el+Value, unit)
 		if err != nil {
@@ -604,6 +636,7 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 	if err != nil {
 		return nil, err
 	}
+	r.signZeros(el+Value, v, int64(start)*int64(r.N)*3)
 	fct, err := r.unitFactor(el+Value, unit)
 	if err != nil {
 		return nil, err

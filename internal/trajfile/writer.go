@@ -195,7 +195,17 @@ type element struct {
 	buf  []float64
 	ibuf []int64
 	w    *h5.Writer
+	// scaled is set for scale-offset float storage, which loses the sign
+	// of zero; negZeros then collects the flat indices of negative zeros
+	// (written as NegativeZerosAttr by Close).
+	scaled   bool
+	negZeros []int64
 }
+
+// MaxNegativeZeros bounds the negative zeros one element records (64 KiB
+// of indices, the attribute size every HDF5 file format stores); convert
+// stores a column with more as float64, which keeps the sign itself.
+const MaxNegativeZeros = 8192
 
 // Writer writes one trajectory file. Its first error is sticky.
 type Writer struct {
@@ -417,7 +427,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	for _, d := range shape {
 		row *= d
 	}
-	e := &element{path: group + Value, row: row, w: ww}
+	e := &element{path: group + Value, row: row, w: ww, scaled: typ == h5.Float64 && fl.ScaleOffsetFloat}
 	if w.step == nil && w.spec.Clock != nil && !w.spec.ForReaders {
 		c := w.spec.Clock
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
@@ -603,7 +613,19 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 			w.err = fmt.Errorf("frame %d (step %d): %w", w.frames, fr.Step, err)
 			return w.err
 		}
-		w.elems[i].buf = append(w.elems[i].buf, v...)
+		e := w.elems[i]
+		if e.scaled {
+			for j, x := range v {
+				if x == 0 && math.Signbit(x) {
+					if len(e.negZeros) == MaxNegativeZeros {
+						w.err = fmt.Errorf("frame %d (step %d): %s: more than %d negative zeros; store it as float64 (convert does so when scan counts them)", w.frames, fr.Step, e.path, MaxNegativeZeros)
+						return w.err
+					}
+					e.negZeros = append(e.negZeros, int64(w.frames)*int64(e.row)+int64(j))
+				}
+			}
+		}
+		e.buf = append(e.buf, v...)
 	}
 	w.step.ibuf = append(w.step.ibuf, fr.Step)
 	w.time.buf = append(w.time.buf, fr.Time*w.tf)
@@ -711,6 +733,11 @@ func (w *Writer) Close() error {
 		w.flush()
 		if w.spec.Hops {
 			w.writeHops()
+		}
+		for _, e := range w.elems {
+			if len(e.negZeros) > 0 {
+				w.do(w.f.SetInt64s(e.path, NegativeZerosAttr, e.negZeros, false))
+			}
 		}
 	}
 	for _, e := range append(w.elems, w.step, w.time) {
