@@ -646,6 +646,9 @@ func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, r
 	tol := 0.5 * math.Pow10(-d)
 	spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: d, Tolerance: tol}
 	res.Storage["velocity"] = fmt.Sprintf("scale-offset, %d decimals (momenta / masses, within %g; mass x velocity gives the momenta as printed, %d decimals)", d, tol, fm.Decimals)
+	if n := rep.negZeros[quantity.MomentumQ]; n > 0 {
+		res.Storage["velocity"] = strings.TrimSuffix(res.Storage["velocity"], ")") + fmt.Sprintf("; %d negative zeros listed)", n)
+	}
 }
 
 // dtStorage is how times computed as step x dt are stored (issue 10): a

@@ -23,7 +23,7 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "negzero")
 	os.MkdirAll(dir, 0o755)
 	var xyz, tab strings.Builder
-	var wantPos, wantE []string
+	var wantPos, wantE, wantP []string
 	tab.WriteString("# step time[fs] Epot[eV]\n")
 	negZero := math.Copysign(0, -1) // a Go constant -0.0 is +0
 	for i := 0; i < 300; i++ {
@@ -31,13 +31,18 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 		if i%3 == 0 {
 			xs[4] = negZero
 		}
-		fmt.Fprintf(&xyz, "2\nProperties=species:S:1:pos:R:3 step=%d time=%.1f\n", i, 0.5*float64(i))
+		fmt.Fprintf(&xyz, "2\nProperties=species:S:1:pos:R:3:momenta:R:3 step=%d time=%.1f\n", i, 0.5*float64(i))
 		for a := 0; a < 2; a++ {
 			line := []string{"H"}
 			for k := 0; k < 3; k++ {
 				s := fmt.Sprintf("%.8f", xs[3*a+k])
 				line = append(line, s)
 				wantPos = append(wantPos, s)
+			}
+			for k := 0; k < 3; k++ {
+				s := fmt.Sprintf("%.8f", xs[5-(3*a+k)]*0.01)
+				line = append(line, s)
+				wantP = append(wantP, s)
 			}
 			xyz.WriteString(strings.Join(line, " ") + "\n")
 		}
@@ -50,15 +55,15 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 	}
 	os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(xyz.String()), 0o644)
 	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte(tab.String()), 0o644)
-	if n := strings.Count(xyz.String(), "-0.00000000") + strings.Count(tab.String(), "-0.000000"); n < 700 {
+	if n := strings.Count(xyz.String(), "-0.00000000") + strings.Count(tab.String(), "-0.000000"); n < 1400 {
 		t.Fatalf("only %d negative zeros planted", n)
 	}
 	out := filepath.Join(t.TempDir(), "out.h5")
-	_, res, err := ConvertFiles(context.Background(), []string{dir}, out, ConvertOptions{Options: Options{Units: map[string]string{"position": "angstrom"}}})
+	_, res, err := ConvertFiles(context.Background(), []string{dir}, out, ConvertOptions{Options: Options{Units: map[string]string{"position": "angstrom", "momentum": "u angstrom fs-1"}}})
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, el := range []string{"position", "potential_energy"} {
+	for _, el := range []string{"position", "potential_energy", "velocity"} {
 		if !strings.Contains(res.Storage[el], "scale-offset") || !strings.Contains(res.Storage[el], "negative zeros listed") {
 			t.Errorf("%s stored %q; want scale-offset with the negative zeros listed", el, res.Storage[el])
 		}
@@ -95,6 +100,26 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 		w, _ := r.Raw(e, 10, 1)
 		if i := 10 * e.Width(); !math.Signbit(w[0]) && strings.HasPrefix(c.want[i], "-0.") && c.want[i] != "-0.000000" {
 			t.Errorf("%s frame 10: sign lost in a partial read", c.el)
+		}
+	}
+	// Momenta are stored as velocities p/m (scale-offset at more
+	// decimals); m v printed at the momenta's 8 decimals, as export does,
+	// gives every printed momentum, negative zeros included.
+	e, _ := r.Element(r.Particle(trajfile.Velocity))
+	v, err := r.Raw(e, 0, r.T)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m, err := r.MassesIn("u")
+	if err != nil {
+		t.Fatal(err)
+	}
+	bad := 0
+	for i, x := range v {
+		if got := fmt.Sprintf("%.8f", m[(i/3)%r.N]*x); got != wantP[i] {
+			if bad++; bad < 4 {
+				t.Errorf("momentum %d: m v printed %q, text %q", i, got, wantP[i])
+			}
 		}
 	}
 }
