@@ -354,6 +354,10 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	}
 	for q, fm := range rep.formats {
 		el := quantity.Element(q)
+		if name, ok := strings.CutPrefix(q, ExtraPrefix); ok {
+			el = name
+			spec.Extras = append(spec.Extras, trajfile.Extra{Name: name, Width: rep.extraWidth[name]})
+		}
 		if el == "" {
 			continue
 		}
@@ -387,6 +391,10 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		default:
 			res.Storage[el] = "float64, lossless"
 		}
+	}
+	sort.Slice(spec.Extras, func(i, j int) bool { return spec.Extras[i].Name < spec.Extras[j].Name })
+	for _, x := range spec.Extras {
+		res.Storage[x.Name] += fmt.Sprintf("; per-atom column %s kept as %s (no unit: not a quantity trajvault knows)", x.Name, trajfile.Particle(trajfile.OurGroup, x.Name))
 	}
 	if spec.Clock != nil {
 		res.Storage["time"] = "H5MD fixed mode (uniform sampling: offset and increment)"
@@ -519,6 +527,13 @@ func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOpt
 	base := rep.stateBase(opt.Options)
 	S := rep.States
 	pending := make([]*record, len(others))
+	var extras []string // in the writer's order (specFor sorts them)
+	for q := range rep.formats {
+		if name, ok := strings.CutPrefix(q, ExtraPrefix); ok {
+			extras = append(extras, name)
+		}
+	}
+	sort.Strings(extras)
 	for n := 0; ; n++ {
 		if n%checkEvery == 0 {
 			if err := ctx.Err(); err != nil {
@@ -593,6 +608,9 @@ func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOpt
 			fr.Velocity = v
 		}
 		fr.Force = g.atom(quantity.ForceQ)
+		for _, x := range extras {
+			fr.Extras = append(fr.Extras, g.extra(x))
+		}
 		fr.Kinetic, fr.Potential, fr.Total = merged.scalar[0], merged.scalar[1], merged.scalar[2]
 		if S > 0 {
 			fr.StateEnergies = shiftStates(merged.stateE, base, S)

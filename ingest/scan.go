@@ -120,6 +120,9 @@ type TrajReport struct {
 	formats  map[string]textnum.Format
 	maxAbs   map[string]float64
 	negZeros map[string]int
+	// extraWidth is the values per atom of each extra per-atom column
+	// (by column name), as first seen.
+	extraWidth map[string]int
 	// kinetic-energy cross-check: the first frames' sums, by join key
 	ke       []*keFrame
 	keByKey  map[int64]*keFrame
@@ -204,7 +207,7 @@ const checkEvery = 64
 // errors.
 func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) {
 	rep := &TrajReport{Name: t.Name, traj: t, Units: map[string]string{}, Precision: map[string]string{},
-		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, negZeros: map[string]int{}, Quantities: []string{}, Problems: []finding.Finding{},
+		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, negZeros: map[string]int{}, extraWidth: map[string]int{}, Quantities: []string{}, Problems: []finding.Finding{},
 		NotStored: []string{}, keByKey: map[int64]*keFrame{}}
 	for _, m := range t.missing {
 		rep.add(PMissing, finding.Error, t.Dir, 0, "no file matches the recipe pattern %q", m)
@@ -307,6 +310,14 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			for _, c := range rec.atoms {
 				for _, v := range c.values {
 					fr.note(c.quantity, v)
+				}
+			}
+			for _, c := range rec.extras {
+				if _, ok := rep.extraWidth[c.quantity]; !ok && len(rec.symbols) > 0 {
+					rep.extraWidth[c.quantity] = len(c.values) / len(rec.symbols)
+				}
+				for _, v := range c.values {
+					fr.note(ExtraPrefix+c.quantity, v)
 				}
 			}
 		}

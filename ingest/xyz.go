@@ -11,6 +11,7 @@ import (
 	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
+	"trajvault/internal/trajfile"
 )
 
 // Column is one per-atom property of a frame, flattened row-major (N x
@@ -415,11 +416,22 @@ func (s *xyzSource) next() (*record, error) {
 	rec := &record{line: fr.Line, symbols: fr.Symbols}
 	for _, c := range fr.Columns {
 		q := s.columnQuantity(c.Name)
-		if q == "" || q == quantity.Ignore {
-			why := "not a quantity trajvault knows (" + quantity.Names() + "); it is not stored"
-			if q == quantity.Ignore {
-				why = "ignored by the recipe"
+		if q == "" {
+			// Kept under its own name, without a unit (issue 10: unknown
+			// per-atom columns are extra particle elements).
+			why := trajfile.ExtraNameProblem(c.Name)
+			if why == "" {
+				s.fmts.merge(ExtraPrefix+c.Name, c.Format)
+				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values})
+				continue
 			}
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
+				msg:       fmt.Sprintf("per-atom column %s (%d value(s) per atom) is not a quantity trajvault knows and cannot be kept under its own name: %s; rename it, or map it in a recipe", c.Name, c.Width, why),
+				notStored: fmt.Sprintf("per-atom column %s: not a known quantity, and %s", c.Name, why)})
+			continue
+		}
+		if q == quantity.Ignore {
+			why := "ignored by the recipe"
 			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
 				msg:       fmt.Sprintf("per-atom column %s (%d value(s) per atom): %s", c.Name, c.Width, why),
 				notStored: fmt.Sprintf("per-atom column %s: %s", c.Name, why)})

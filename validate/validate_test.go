@@ -69,6 +69,25 @@ func observablesOnly(t *testing.T) string {
 	return out
 }
 
+// extraColumn converts an extended XYZ file with a per-atom column no
+// quantity names (tags:I:1), kept as /particles/all/tags.
+func extraColumn(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	var b strings.Builder
+	for i := 0; i < 20; i++ {
+		fmt.Fprintf(&b, "2\nProperties=species:S:1:pos:R:3:tags:I:1 step=%d time=%.1f\nH 0.0 0.0 %.4f 1\nH 0.0 0.0 %.4f 2\n", i, 0.5*float64(i), 0.01*float64(i), 0.74)
+	}
+	mustDo(t, os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(b.String()), 0o644))
+	out := filepath.Join(t.TempDir(), "tags.h5")
+	_, res, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{ToolVersion: "test", Options: ingest.Options{Units: map[string]string{"position": "angstrom", "time": "fs"}}})
+	mustDo(t, err)
+	if res.Storage["tags"] == "" {
+		t.Fatalf("tags not stored: %v", res.Storage)
+	}
+	return out
+}
+
 // editRecord rewrites the stored provenance JSON text with edit.
 func editRecord(edit func(string) string) func(t *testing.T, f *h5.File) {
 	return func(t *testing.T, f *h5.File) {
@@ -169,6 +188,8 @@ func TestWriterOutputIsClean(t *testing.T) {
 		// No /particles: H5MD 1.1.0, "General organization", makes only
 		// the h5md group mandatory at the root (V41 stays quiet).
 		{"observables only", observablesOnly, nil},
+		// Unknown per-atom columns kept as extra particle elements.
+		{"extra per-atom column", extraColumn, nil},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			rep, err := File(c.make(t), Options{ToolVersion: "test"})
@@ -270,6 +291,17 @@ func TestRules(t *testing.T) {
 			rewrite(t, f, pg+"/force/value", h5.Float64, func(v []float64, d []int) ([]float64, []int) {
 				return v[:d[0]*2*3], []int{d[0], 2, 3}
 			})
+		}, nil},
+		{"V14", finding.Error, "extra per-atom element with other N", func(t *testing.T, f *h5.File) {
+			// An element the layout does not name (as convert keeps an
+			// unknown per-atom column) still needs N rows per frame.
+			info, err := f.Info(pg + "/position/value")
+			mustDo(t, err)
+			T := info.Shape.Dims[0]
+			mustDo(t, f.CreateGroup(pg+"/tags"))
+			create(t, f, pg+"/tags/value", h5.Float64, []int{T, 2, 1}, make([]float64, 2*T))
+			mustDo(t, f.HardLink(pg+"/position/step", pg+"/tags/step"))
+			mustDo(t, f.HardLink(pg+"/position/time", pg+"/tags/time"))
 		}, nil},
 		{"V15", finding.Error, "integer mass", func(t *testing.T, f *h5.File) { rewrite(t, f, pg+"/mass", h5.Int32, same) }, nil},
 		{"V15", finding.Error, "float species", func(t *testing.T, f *h5.File) { rewrite(t, f, pg+"/species", h5.Float64, same) }, nil},

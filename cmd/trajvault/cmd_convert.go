@@ -187,7 +187,7 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	}
 	sort.Strings(keys)
 	for _, k := range keys {
-		fmt.Fprintf(g.stdout, "  %-17s %s\n", k, res.Storage[k])
+		wrap(g, fmt.Sprintf("%-17s %s", k, res.Storage[k]), "  ")
 	}
 	for _, d := range res.Dropped {
 		fmt.Fprintf(g.stdout, "  dropped: %s\n", d)

@@ -84,6 +84,11 @@ type Spec struct {
 	// clock.
 	ForReaders bool
 
+	// Extras are per-atom columns no quantity names, stored as
+	// time-dependent particle elements /particles/all/NAME, [T][N][Width],
+	// without a unit (ExtraNameProblem says which names can be used).
+	Extras []Extra
+
 	Velocity, Force               bool
 	Kinetic, Potential, Total     bool
 	NStates                       int // > 0 enables the electronic module
@@ -118,6 +123,12 @@ type Spec struct {
 	// on fixed mode (schema/layout.md, "Written for readers"). Without a
 	// Clock the writer stores explicit mode, one step and time per frame.
 	Clock *FixedClock
+}
+
+// Extra is an extra per-atom element: its name and values per atom.
+type Extra struct {
+	Name  string
+	Width int
 }
 
 // FixedClock is a uniformly sampled frame clock (H5MD fixed mode).
@@ -172,6 +183,7 @@ type Frame struct {
 	Time                      float64
 	Position                  []float64
 	Velocity, Force           []float64
+	Extras                    [][]float64 // N*Width values per Spec.Extras entry
 	Kinetic, Potential, Total float64
 	StateEnergies             []float64
 	ActiveState               int
@@ -263,7 +275,7 @@ func Create(path string, spec Spec) (*Writer, error) {
 	}
 	n := len(spec.Species)
 	switch {
-	case spec.ObservablesOnly && (n > 0 || len(spec.Masses) > 0 || len(spec.Edges) > 0 || spec.Velocity || spec.Force):
+	case spec.ObservablesOnly && (n > 0 || len(spec.Masses) > 0 || len(spec.Edges) > 0 || spec.Velocity || spec.Force || len(spec.Extras) > 0):
 		return nil, errors.New("trajfile: an observables-only file has no atoms: no species, masses, box, velocities or forces")
 	case spec.ObservablesOnly && !(spec.Kinetic || spec.Potential || spec.Total || spec.NStates > 0):
 		return nil, errors.New("trajfile: an observables-only file needs an observable (an energy or electronic-state data)")
@@ -549,6 +561,18 @@ func (w *Writer) layout() {
 	}
 	if s.Force {
 		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, uForce, vec("force", func(f *Frame) []float64 { return f.Force }))
+	}
+	for i, x := range s.Extras {
+		if why := ExtraNameProblem(x.Name); why != "" || x.Width < 1 {
+			w.do(fmt.Errorf("trajfile: extra element %q (width %d): %s", x.Name, x.Width, why))
+			return
+		}
+		add(Particle(pgroup, x.Name), []int{n, x.Width}, h5.Float64, nil, func(f *Frame) ([]float64, error) {
+			if i >= len(f.Extras) || len(f.Extras[i]) != n*x.Width {
+				return nil, fmt.Errorf("per-atom column %s missing or not %d x %d values (every frame needs it, with the same width)", x.Name, n, x.Width)
+			}
+			return f.Extras[i], nil
+		})
 	}
 	if s.Kinetic {
 		add(KineticEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Kinetic }))
