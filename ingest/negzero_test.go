@@ -96,6 +96,29 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 		if bad > 0 {
 			t.Errorf("%s: %d of %d values differ from the text", c.el, bad, len(v))
 		}
+		// A selection (frames 10 and 12, some columns) finds its zeros
+		// too, as export's --frames/--atoms read them.
+		keep := [][]int{}
+		if e.Shape.Rank == 3 {
+			keep = [][]int{{0, 1}, {1}}
+		}
+		sel, err := r.Window(e, []int{10, 12}, keep)
+		if err != nil {
+			t.Fatal(err)
+		}
+		var wantSel []string
+		for _, f := range []int{10, 12} {
+			if e.Shape.Rank == 3 {
+				wantSel = append(wantSel, c.want[f*6+1], c.want[f*6+4])
+			} else {
+				wantSel = append(wantSel, c.want[f])
+			}
+		}
+		for i, x := range sel {
+			if got := string(e.Format.Append(nil, x)); got != wantSel[i] {
+				t.Errorf("%s selection value %d: printed %q, text %q", c.el, i, got, wantSel[i])
+			}
+		}
 		// A window in the middle starts its indices at the window.
 		w, _ := r.Raw(e, 10, 1)
 		if i := 10 * e.Width(); !math.Signbit(w[0]) && strings.HasPrefix(c.want[i], "-0.") && c.want[i] != "-0.000000" {

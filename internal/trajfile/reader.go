@@ -47,12 +47,9 @@ type Reader struct {
 	negZeros map[string][]int64
 }
 
-// signZeros gives back the sign of the values of the dataset at path
-// (value of an element) that were printed as negative zeros
-// (NegativeZerosAttr): v holds the flat values from index first on. Only
-// zeros are touched: a listed index whose value is not zero (a damaged
-// or edited file) is left as stored.
-func (r *Reader) signZeros(path string, v []float64, first int64) {
+// negativeZeros is the NegativeZerosAttr list of the dataset at path
+// (nil when it has none), read once.
+func (r *Reader) negativeZeros(path string) []int64 {
 	idx, ok := r.negZeros[path]
 	if !ok {
 		if a, err := r.f.Attr(path, NegativeZerosAttr); err == nil {
@@ -63,6 +60,16 @@ func (r *Reader) signZeros(path string, v []float64, first int64) {
 		}
 		r.negZeros[path] = idx
 	}
+	return idx
+}
+
+// signZeros gives back the sign of the values of the dataset at path
+// (value of an element) that were printed as negative zeros
+// (NegativeZerosAttr): v holds the flat values from index first on. Only
+// zeros are touched: a listed index whose value is not zero (a damaged
+// or edited file) is left as stored.
+func (r *Reader) signZeros(path string, v []float64, first int64) {
+	idx := r.negativeZeros(path)
 	negZero := math.Copysign(0, -1)
 	for _, i := range idx {
 		if j := i - first; j >= 0 && j < int64(len(v)) && v[j] == 0 {
