@@ -60,12 +60,12 @@ type clockColumns struct {
 }
 
 func readClock(r *trajfile.Reader) (*clockColumns, error) {
-	c, err := r.Clock(r.Particle(trajfile.Position))
+	c, err := r.Clock(r.ClockElement())
 	if err != nil {
 		return nil, err
 	}
 	cc := &clockColumns{c: c}
-	cc.time, cc.ok = r.TimeFormat(r.Particle(trajfile.Position))
+	cc.time, cc.ok = r.TimeFormat(r.ClockElement())
 	return cc, nil
 }
 
@@ -91,7 +91,7 @@ func ExportGroup(in, dir, format, group string) ([]string, error) {
 	if _, err := os.Stat(dir); err == nil {
 		return nil, fmt.Errorf("export: %s already exists; trajvault never overwrites outputs", dir)
 	}
-	r, err := trajfile.OpenReaderWith(in, trajfile.ReadOptions{Group: group})
+	r, err := trajfile.OpenReaderWith(in, trajfile.ReadOptions{Group: group, ObservablesOnly: format == FormatCSV})
 	if err != nil {
 		return nil, err
 	}

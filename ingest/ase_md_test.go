@@ -33,6 +33,8 @@ type aseMD struct {
 		Forces    [][]float64 `json:"forces"`
 		Energy    float64     `json:"energy"`
 		Kinetic   float64     `json:"kinetic"`
+		Tags      []float64   `json:"tags"`
+		Energies  []float64   `json:"energies"` // per atom
 		Step      int64       `json:"step"`
 		Time      float64     `json:"time"`
 	} `json:"frames"`
@@ -137,10 +139,12 @@ func TestASEMolecularDynamics(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// Nothing dropped without a word: tags and per-atom energies, the
-	// cell keys, free_energy=, and the table's epot (the comment line
-	// gives the potential energy too) are listed in the result and the
-	// provenance.
+	// Nothing dropped without a word: the cell keys, free_energy=, and
+	// the table's epot (the comment line gives the potential energy too)
+	// are listed in the result and the provenance; tags and per-atom
+	// energies, which no quantity names, are stored as extra particle
+	// elements (checked below against ASE's get_tags and
+	// get_potential_energies).
 	f, err := h5.Open(out)
 	if err != nil {
 		t.Fatal(err)
@@ -154,11 +158,22 @@ func TestASEMolecularDynamics(t *testing.T) {
 	if err := json.Unmarshal([]byte(a.Strings[0]), &prov); err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"per-atom column tags", "per-atom column energies", "comment key free_energy", "comment key pbc", "energies.dat: potential_energy"} {
+	for _, want := range []string{"comment key free_energy", "comment key pbc", "energies.dat: potential_energy"} {
 		for name, list := range map[string][]string{"result": res.NotStored, "provenance": prov.NotStored} {
 			if !containsPrefix(list, want) {
 				t.Errorf("%s does not list %q as not stored: %q", name, want, list)
 			}
+		}
+	}
+	for _, col := range []string{"tags", "energies"} {
+		for name, list := range map[string][]string{"result": res.NotStored, "provenance": prov.NotStored} {
+			if containsPrefix(list, "per-atom column "+col) {
+				t.Errorf("%s lists %s as not stored: %q", name, col, list)
+			}
+		}
+		want := "per-atom column " + col + " kept as " + trajfile.Particle(trajfile.OurGroup, col)
+		if !strings.Contains(res.Storage[col], want) || !strings.Contains(prov.Storage[col], want) {
+			t.Errorf("storage of %s: result %q, provenance %q; want %q", col, res.Storage[col], prov.Storage[col], want)
 		}
 	}
 	if prov.Units["momentum"] != pu || !strings.Contains(strings.Join(prov.Conversions, " "), "momentum in "+pu) {
@@ -177,6 +192,8 @@ func TestASEMolecularDynamics(t *testing.T) {
 	vel := read(trajfile.Particle(g, trajfile.Velocity) + trajfile.Value)
 	frc := read(trajfile.Particle(g, trajfile.Force) + trajfile.Value)
 	epot := read(trajfile.PotentialEnergy + trajfile.Value)
+	tags := read(trajfile.Particle(g, "tags") + trajfile.Value)
+	eat := read(trajfile.Particle(g, "energies") + trajfile.Value)
 	ekin := read(trajfile.KineticEnergy + trajfile.Value)
 	n := len(ref.Frames[0].Masses)
 	if len(pos) != len(ref.Frames)*n*3 || len(vel) != len(pos) || len(frc) != len(pos) || len(epot) != len(ref.Frames) {
@@ -188,6 +205,18 @@ func TestASEMolecularDynamics(t *testing.T) {
 	}
 	p8 := textnum.Format{Decimals: 8} // ASE prints per-atom reals %16.8f
 	s8 := func(x float64) string { return string(p8.Append(nil, x)) }
+	if len(tags) != len(ref.Frames)*n || len(eat) != len(tags) {
+		t.Fatalf("%d tags, %d per-atom energies for %d frames of %d atoms", len(tags), len(eat), len(ref.Frames), n)
+	}
+	for i, fr := range ref.Frames {
+		for a := 0; a < n; a++ {
+			// Tags are integers (exact); per-atom energies are printed
+			// %16.8f, so equal at 8 decimals.
+			if tags[i*n+a] != fr.Tags[a] || s8(eat[i*n+a]) != s8(fr.Energies[a]) {
+				t.Errorf("frame %d atom %d: tag %v energy %v, ASE %v %v", i, a, tags[i*n+a], eat[i*n+a], fr.Tags[a], fr.Energies[a])
+			}
+		}
+	}
 	for i, fr := range ref.Frames {
 		// energy= is printed in Python's repr: the shortest round-trip
 		// class, stored losslessly, equal bit for bit.

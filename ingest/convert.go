@@ -72,6 +72,9 @@ type Result struct {
 	// Accepted are the physics cross-check findings accepted with
 	// AcceptMismatch.
 	Accepted []string `json:"accepted_mismatches,omitempty"`
+	// Overrides are the file units replaced by given ones
+	// (Options.UnitsOverFile).
+	Overrides []string `json:"unit_overrides,omitempty"`
 }
 
 // DefaultSeriesFrames is the time-series chunk length, chosen by
@@ -108,11 +111,10 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
-	geo := rep.geometry()
-	if geo == nil || geo.Kept == 0 {
-		return nil, fmt.Errorf("%s: no geometry frames", rep.Name)
+	if fr := rep.frameFile(); fr == nil || fr.Kept == 0 {
+		return nil, fmt.Errorf("%s: no frames (no geometry frames and no records)", rep.Name)
 	}
-	res := &Result{Output: out, Storage: map[string]string{}, NotStored: append([]string{}, rep.NotStored...)}
+	res := &Result{Output: out, Storage: map[string]string{}, NotStored: append([]string{}, rep.NotStored...), Overrides: rep.Overrides}
 	for _, p := range rep.Problems {
 		if p.Code == PKinetic && p.Severity != finding.Error {
 			res.Accepted = append(res.Accepted, p.String())
@@ -199,6 +201,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if opt.Recipe != nil {
 		rec.Recipe = opt.Recipe.Text
 	}
+	rec.Conversions = append(rec.Conversions, rep.Overrides...)
 	if opt.ForReaders {
 		rec.Conversions = append(rec.Conversions, readerConversion(rep.Units))
 	}
@@ -311,7 +314,8 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	u := rep.Units
 	spec := trajfile.Spec{
 		Author: opt.Author, Email: opt.Email, Creator: "trajvault", CreatorVersion: opt.ToolVersion,
-		Species: zs, Masses: masses,
+		ObservablesOnly: rep.ObservablesOnly,
+		Species:         zs, Masses: masses,
 		Units: trajfile.Units{Length: u[string(quantity.Position)], Time: u[string(quantity.Time)], Velocity: u[string(quantity.Velocity)], Force: u[string(quantity.Force)],
 			Energy: u[string(quantity.Energy)], Mass: "u", InverseTime: ""},
 		Velocity: has(quantity.VelocityQ) || (has(quantity.MomentumQ) && u[string(quantity.Velocity)] != ""),
@@ -351,11 +355,17 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 	}
 	for q, fm := range rep.formats {
 		el := quantity.Element(q)
+		if name, ok := strings.CutPrefix(q, ExtraPrefix); ok {
+			el = name
+			spec.Extras = append(spec.Extras, trajfile.Extra{Name: name, Width: rep.extraWidth[name]})
+		}
 		if el == "" {
 			continue
 		}
 		st := trajfile.Storage{Format: fm.String(), Decimals: -1}
-		if fm.Fixed() && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled {
+		// Negative zeros keep their sign through scale-offset in a list
+		// (trajfile.NegativeZerosAttr), up to a bound; beyond it float64.
+		if fm.Fixed() && !opt.BitExact && rep.maxAbs[q]*math.Pow10(fm.Decimals) < maxExactScaled && rep.negZeros[q] <= trajfile.MaxNegativeZeros {
 			st.Decimals = fm.Decimals
 		}
 		if tol, ok := opt.Tolerance[el]; ok && tol > 0 {
@@ -375,11 +385,17 @@ func specFor(rep *TrajReport, opt ConvertOptions, res *Result) (trajfile.Spec, e
 		switch {
 		case st.Tolerance > 0:
 			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals, lossy within %g", st.Decimals, st.Tolerance)
+		case st.Decimals >= 0 && rep.negZeros[q] > 0:
+			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals (as printed, exact; %d negative zeros listed)", st.Decimals, rep.negZeros[q])
 		case st.Decimals >= 0:
 			res.Storage[el] = fmt.Sprintf("scale-offset, %d decimals (as printed, exact)", st.Decimals)
 		default:
 			res.Storage[el] = "float64, lossless"
 		}
+	}
+	sort.Slice(spec.Extras, func(i, j int) bool { return spec.Extras[i].Name < spec.Extras[j].Name })
+	for _, x := range spec.Extras {
+		res.Storage[x.Name] += fmt.Sprintf("; per-atom column %s kept as %s (no unit: not a quantity trajvault knows)", x.Name, trajfile.Particle(trajfile.OurGroup, x.Name))
 	}
 	if spec.Clock != nil {
 		res.Storage["time"] = "H5MD fixed mode (uniform sampling: offset and increment)"
@@ -465,7 +481,7 @@ func stream(ctx context.Context, rep *TrajReport, srcs []source, w *trajfile.Wri
 		fr   *trajfile.Frame
 		line int
 	}
-	geo := rep.geometry()
+	geo := rep.frameFile()
 	ch := make(chan item, 256)
 	g, gctx := errgroup.WithContext(ctx)
 	g.Go(func() error {
@@ -493,15 +509,17 @@ func stream(ctx context.Context, rep *TrajReport, srcs []source, w *trajfile.Wri
 	return g.Wait()
 }
 
-// produce walks the geometry frames and joins the other files' records
-// to them by step (or by order when there are no steps), handing each
-// assembled frame to emit; it stops at emit's first error.
+// produce walks the geometry frames (observables only: the first
+// table's records) and joins the other files' records to them by step
+// (or by order when there are no steps), handing each assembled frame
+// to emit; it stops at emit's first error.
 func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOptions, emit func(*trajfile.Frame, int) error) error {
 	var geo *keptIter
 	var others []*keptIter
+	frames := rep.frameFile()
 	for i, s := range srcs {
 		it := newKeptIter(s, rep.Files[i])
-		if rep.Files[i].reader.Role == RoleGeometry {
+		if rep.Files[i] == frames {
 			geo = it
 		} else if rep.Files[i].Kept > 0 { // event-only logs add no frames
 			others = append(others, it)
@@ -510,6 +528,13 @@ func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOpt
 	base := rep.stateBase(opt.Options)
 	S := rep.States
 	pending := make([]*record, len(others))
+	var extras []string // in the writer's order (specFor sorts them)
+	for q := range rep.formats {
+		if name, ok := strings.CutPrefix(q, ExtraPrefix); ok {
+			extras = append(extras, name)
+		}
+	}
+	sort.Strings(extras)
 	for n := 0; ; n++ {
 		if n%checkEvery == 0 {
 			if err := ctx.Err(); err != nil {
@@ -584,6 +609,9 @@ func produce(ctx context.Context, rep *TrajReport, srcs []source, opt ConvertOpt
 			fr.Velocity = v
 		}
 		fr.Force = g.atom(quantity.ForceQ)
+		for _, x := range extras {
+			fr.Extras = append(fr.Extras, g.extra(x))
+		}
 		fr.Kinetic, fr.Potential, fr.Total = merged.scalar[0], merged.scalar[1], merged.scalar[2]
 		if S > 0 {
 			fr.StateEnergies = shiftStates(merged.stateE, base, S)
@@ -629,7 +657,7 @@ func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, r
 	}
 	d := fm.Decimals + int(math.Ceil(math.Log10(1.01*mMax)))
 	vMax := rep.maxAbs[quantity.MomentumQ] / mMin
-	if !fm.Fixed() || opt.BitExact || mMin <= 0 || d < 0 || vMax*math.Pow10(d) >= maxExactScaled {
+	if !fm.Fixed() || opt.BitExact || mMin <= 0 || d < 0 || vMax*math.Pow10(d) >= maxExactScaled || rep.negZeros[quantity.MomentumQ] > trajfile.MaxNegativeZeros {
 		spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: -1}
 		res.Storage["velocity"] = "float64, lossless (momenta / masses)"
 		return
@@ -637,6 +665,9 @@ func momentumStorage(rep *TrajReport, opt ConvertOptions, spec *trajfile.Spec, r
 	tol := 0.5 * math.Pow10(-d)
 	spec.Storage[trajfile.Velocity] = trajfile.Storage{Decimals: d, Tolerance: tol}
 	res.Storage["velocity"] = fmt.Sprintf("scale-offset, %d decimals (momenta / masses, within %g; mass x velocity gives the momenta as printed, %d decimals)", d, tol, fm.Decimals)
+	if n := rep.negZeros[quantity.MomentumQ]; n > 0 {
+		res.Storage["velocity"] = strings.TrimSuffix(res.Storage["velocity"], ")") + fmt.Sprintf("; %d negative zeros listed)", n)
+	}
 }
 
 // dtStorage is how times computed as step x dt are stored (issue 10): a

@@ -30,7 +30,7 @@ const (
 	PUnit        = "P8"  // no unit for a quantity
 	PUnreadable  = "P9"  // other parse error
 	PUnknownFile = "P10" // file not used
-	PNoGeometry  = "P11" // no geometry
+	PNoGeometry  = "P11" // geometry needed but absent (per-atom data, or nothing else to store)
 	PNoTime      = "P12" // no times
 	PConflict    = "P13" // two files give the same quantity
 	PStateBase   = "P14" // states numbered from 1 (detected)
@@ -59,9 +59,11 @@ type FileReport struct {
 	partial   int // record index of a cut last frame (-1 none)
 	fmts      map[string]textnum.Format
 	units     map[string]string
+	unitAt    map[string]string // where each of units is written
 	maxAbs    map[string]float64
-	states    int // per-state columns: highest index + 1, as written
-	minState  int // lowest per-state index with a value (-1 none)
+	negZeros  map[string]int // values printed as negative zeros ("-0.00"), by quantity
+	states    int            // per-state columns: highest index + 1, as written
+	minState  int            // lowest per-state index with a value (-1 none)
 	maxActive int
 	minActive int // lowest active state seen (-1 none)
 	active    bool
@@ -97,18 +99,30 @@ type TrajReport struct {
 	Precision  map[string]string `json:"precision"`
 	Quantities []string          `json:"quantities"`
 	Problems   []finding.Finding `json:"problems"`
+	// ObservablesOnly is set for a run without a geometry file whose
+	// records (energies, states) are stored as observables alone, with
+	// no particle group (H5MD 1.1 makes particles optional); Frames then
+	// counts those records.
+	ObservablesOnly bool `json:"observables_only,omitempty"`
+	// Overrides lists the file units replaced by given ones
+	// (Options.UnitsOverFile), for convert's output and the provenance.
+	Overrides []string `json:"unit_overrides,omitempty"`
 	// NotStored lists what the files hold that convert does not store,
 	// each with its file and reason (also in convert's output and the
 	// provenance).
 	NotStored []string `json:"not_stored"`
 
-	traj    *Trajectory
-	base    int
-	clock   *trajfile.FixedClock
-	symbols []string
-	masses  []float64
-	formats map[string]textnum.Format
-	maxAbs  map[string]float64
+	traj     *Trajectory
+	base     int
+	clock    *trajfile.FixedClock
+	symbols  []string
+	masses   []float64
+	formats  map[string]textnum.Format
+	maxAbs   map[string]float64
+	negZeros map[string]int
+	// extraWidth is the values per atom of each extra per-atom column
+	// (by column name), as first seen.
+	extraWidth map[string]int
 	// kinetic-energy cross-check: the first frames' sums, by join key
 	ke       []*keFrame
 	keByKey  map[int64]*keFrame
@@ -119,13 +133,19 @@ type TrajReport struct {
 type Options struct {
 	Recipe *Recipe
 	// Units given on the command line (--unit kind=unit); they fill in
-	// what neither the files nor the recipe say.
+	// what neither the files nor the recipe say. One that differs from a
+	// file's own unit is refused (UnitConflictError) unless UnitsOverFile.
 	Units map[string]string
 	// DropPartial drops a cut last frame instead of failing.
 	DropPartial bool
 	// Dt is the time per step, in Units["time"], when the logs give no
 	// times.
 	Dt float64
+	// UnitsOverFile lets a unit given in Units (or the recipe) replace a
+	// different unit written in a file (its label is wrong); without it
+	// that conflict is a UnitConflictError. Each override is recorded
+	// (TrajReport.Overrides, provenance).
+	UnitsOverFile bool
 	// AcceptMismatch turns a failed physics cross-check (P17) from an
 	// error into a warning, so that convert goes ahead; the accepted
 	// findings are recorded in the provenance.
@@ -187,16 +207,13 @@ const checkEvery = 64
 // errors.
 func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) {
 	rep := &TrajReport{Name: t.Name, traj: t, Units: map[string]string{}, Precision: map[string]string{},
-		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, Quantities: []string{}, Problems: []finding.Finding{},
+		formats: map[string]textnum.Format{}, maxAbs: map[string]float64{}, negZeros: map[string]int{}, extraWidth: map[string]int{}, Quantities: []string{}, Problems: []finding.Finding{},
 		NotStored: []string{}, keByKey: map[int64]*keFrame{}}
 	for _, m := range t.missing {
 		rep.add(PMissing, finding.Error, t.Dir, 0, "no file matches the recipe pattern %q", m)
 	}
 	for _, u := range t.unknown {
 		rep.add(PUnknownFile, finding.Note, u, 0, "not read (no reader takes its extension: %s); name it in a recipe to use it", knownExtensions())
-	}
-	if t.geometry() == "" {
-		rep.add(PNoGeometry, finding.Error, t.Dir, 0, "no geometry file (.xyz or extended .xyz): a trajectory needs positions")
 	}
 	// Files that fail their reader's probe are skipped with a note, not
 	// fatal.
@@ -228,6 +245,9 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 		}
 		rep.Files = append(rep.Files, fr)
 	}
+	if err := rep.checkGivenUnits(opt); err != nil {
+		return nil, err
+	}
 	rep.combine(opt)
 	rep.checkRecipeRules(srcs)
 	rep.checkHopEvents()
@@ -238,7 +258,7 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	// The report keeps no reference to s: a closed source still holds its
 	// line buffer (1 MiB), and an ensemble's reports live until the
 	// conversion ends.
-	fr := &FileReport{File: s.file(), Format: r.Kind, reader: r, partial: -1, maxAbs: map[string]float64{}, minState: -1, maxActive: -1, minActive: -1}
+	fr := &FileReport{File: s.file(), Format: r.Kind, reader: r, partial: -1, maxAbs: map[string]float64{}, negZeros: map[string]int{}, minState: -1, maxActive: -1, minActive: -1}
 	idx := 0
 	var prevTime float64
 	var prevStep int64
@@ -289,27 +309,34 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			}
 			for _, c := range rec.atoms {
 				for _, v := range c.values {
-					fr.maxAbs[c.quantity] = math.Max(fr.maxAbs[c.quantity], math.Abs(v))
+					fr.note(c.quantity, v)
+				}
+			}
+			for _, c := range rec.extras {
+				if _, ok := rep.extraWidth[c.quantity]; !ok && len(rec.symbols) > 0 {
+					rep.extraWidth[c.quantity] = len(c.values) / len(rec.symbols)
+				}
+				for _, v := range c.values {
+					fr.note(ExtraPrefix+c.quantity, v)
 				}
 			}
 		}
 		for i, ok := range rec.hasScalar {
 			if ok {
-				q := quantity.ScalarNames[i]
-				fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(rec.scalar[i]))
+				fr.note(quantity.ScalarNames[i], rec.scalar[i])
 			}
 		}
 		if rec.hasTime {
-			fr.maxAbs[quantity.TimeQ] = math.Max(fr.maxAbs[quantity.TimeQ], math.Abs(rec.time))
+			fr.note(quantity.TimeQ, rec.time)
 		}
 		for _, v := range rec.stateE {
 			if !math.IsNaN(v) { // NaN marks a state index the log skipped
-				fr.maxAbs[quantity.StateEnergy] = math.Max(fr.maxAbs[quantity.StateEnergy], math.Abs(v))
+				fr.note(quantity.StateEnergy, v)
 			}
 		}
 		for _, v := range rec.pop {
 			if !math.IsNaN(v) {
-				fr.maxAbs[quantity.Population] = math.Max(fr.maxAbs[quantity.Population], math.Abs(v))
+				fr.note(quantity.Population, v)
 			}
 		}
 		fr.states = max(fr.states, len(rec.stateE), len(rec.pop))
@@ -376,6 +403,12 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		fr.Formats[q] = f.String()
 	}
 	fr.units = s.units()
+	if w, ok := s.(unitLocator); ok {
+		fr.unitAt = map[string]string{}
+		for k := range fr.units {
+			fr.unitAt[k] = w.unitWhere(k)
+		}
+	}
 	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
 	}
@@ -393,6 +426,16 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	return fr, nil
 }
 
+// note keeps what storage needs to know of a value of q: the largest
+// magnitude, and the count of negative zeros (scale-offset storage
+// records where they are, trajfile.NegativeZerosAttr).
+func (fr *FileReport) note(q string, v float64) {
+	fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(v))
+	if v == 0 && math.Signbit(v) {
+		fr.negZeros[q]++
+	}
+}
+
 // stateBase is how the logs number electronic states: as the recipe
 // says, else 1 when no per-state column or group has index 0 (detected
 // and reported as a note), else 0.
@@ -404,9 +447,15 @@ func (t *TrajReport) stateBase(opt Options) int {
 }
 
 // unitFor resolves the unit of a kind: the files, then the recipe, then
-// the command line.
+// the command line (checkGivenUnits has refused a given unit that
+// contradicts a file's, unless UnitsOverFile puts the given one first).
 func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
 	k := string(kind)
+	if opt.UnitsOverFile {
+		if g, _ := givenUnit(k, opt); g != "" {
+			return g
+		}
+	}
 	for _, f := range t.Files {
 		if u := f.units[k]; u != "" {
 			return u
@@ -420,9 +469,89 @@ func (t *TrajReport) unitFor(kind quantity.Kind, opt Options) string {
 	return opt.Units[k]
 }
 
+// unitLocator is a source that says where each unit it gives is written
+// (file:line[:column] and the text), for messages.
+type unitLocator interface{ unitWhere(kind string) string }
+
+// UnitConflictError is a unit given on the command line or in the
+// recipe that differs from the unit a file writes for the same kind of
+// quantity. A given unit is honoured or refused, never ignored: the
+// caller treats it as a usage error (exit 2).
+type UnitConflictError struct {
+	Kind       string // unit kind, e.g. "energy"
+	Given      string // the given unit
+	GivenBy    string // "--unit" or "the recipe"
+	FileUnit   string // the unit the file writes
+	Where      string // file:line[:column] (text) of the file's unit
+	Trajectory string // trajectory name
+}
+
+func (e *UnitConflictError) Error() string {
+	// Quoted when it holds a space, so that it works when pasted.
+	flag := "--unit " + e.Kind + "=" + e.Given
+	if strings.Contains(e.Given, " ") {
+		flag = "--unit '" + e.Kind + "=" + e.Given + "'"
+	}
+	if e.GivenBy != "--unit" {
+		flag = e.GivenBy + " (units: " + e.Kind + ": " + e.Given + ")"
+	}
+	return fmt.Sprintf("%s: unit of %s: %s says %q but %s gives %q; a given unit is honoured or refused, never ignored. Drop %s to keep the file's unit, or add --units-over-file if the file's label is wrong (the override is recorded in the provenance)",
+		e.Trajectory, e.Kind, e.Where, e.FileUnit, flag, e.Given, flag)
+}
+
+// givenUnit is the unit given for kind k and who gave it: the command
+// line, else the recipe.
+func givenUnit(k string, opt Options) (unit, by string) {
+	if u := opt.Units[k]; u != "" {
+		return u, "--unit"
+	}
+	if opt.Recipe != nil && opt.Recipe.Units[k] != "" {
+		return opt.Recipe.Units[k], "the recipe"
+	}
+	return "", ""
+}
+
+// sameUnit reports whether a and b name the same unit (spellings that
+// convert with factor exactly 1, e.g. "Angstrom" and "angstrom").
+func sameUnit(a, b string) bool {
+	if a == b {
+		return true
+	}
+	f, err := units.Factor(a, b)
+	return err == nil && f == 1
+}
+
+// checkGivenUnits compares every unit given (--unit, the recipe) with
+// the units the files write: a different unit is a UnitConflictError,
+// or with UnitsOverFile an override recorded in t.Overrides.
+func (t *TrajReport) checkGivenUnits(opt Options) error {
+	for _, ki := range quantity.Kinds() {
+		k := string(ki.Kind)
+		given, by := givenUnit(k, opt)
+		if given == "" {
+			continue
+		}
+		for _, f := range t.Files {
+			fu := f.units[k]
+			if fu == "" || sameUnit(fu, given) {
+				continue
+			}
+			where := f.unitAt[k]
+			if where == "" {
+				where = f.File
+			}
+			if !opt.UnitsOverFile {
+				return &UnitConflictError{Kind: k, Given: given, GivenBy: by, FileUnit: fu, Where: where, Trajectory: t.Name}
+			}
+			t.Overrides = append(t.Overrides, fmt.Sprintf("unit of %s: %s says %q; %s gives %q, used (--units-over-file)", k, where, fu, by, given))
+		}
+	}
+	return nil
+}
+
 // combine checks the files against each other and fills the summary.
 func (t *TrajReport) combine(opt Options) {
-	geo := t.geometry()
+	geo := t.frameFile()
 	for _, f := range t.Files {
 		for q, fm := range f.fmts {
 			if old, ok := t.formats[q]; ok {
@@ -433,6 +562,9 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		for q, v := range f.maxAbs {
 			t.maxAbs[q] = math.Max(t.maxAbs[q], v)
+		}
+		for q, n := range f.negZeros {
+			t.negZeros[q] += n
 		}
 	}
 	givers := map[string][]string{}
@@ -498,7 +630,7 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		t.Formula = elements.Formula(zs)
 	}
-	if geo == nil {
+	if !t.checkObservablesOnly(geo) {
 		return
 	}
 	t.Frames = geo.Kept
@@ -508,7 +640,7 @@ func (t *TrajReport) combine(opt Options) {
 		for _, f := range t.Files {
 			if f != geo && f.hasSteps {
 				if f.Kept != geo.Kept {
-					t.add(PLength, finding.Error, f.File, 0, "%d records but the geometry file has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, geo.Kept)
+					t.add(PLength, finding.Error, f.File, 0, "%d records but %s has %d frames and no steps to match them by; the files must cover the same frames", f.Kept, t.frameName(geo), geo.Kept)
 				}
 				clock = f
 				break
@@ -521,7 +653,7 @@ func (t *TrajReport) combine(opt Options) {
 		}
 		if f.hasSteps && clock.hasSteps {
 			if ok, miss := contains(&f.keys, &clock.keys); !ok {
-				t.add(PLength, finding.Error, f.File, 0, "no record for step %d, which the geometry has; every frame needs its row", miss)
+				t.add(PLength, finding.Error, f.File, 0, "no record for step %d, which %s has; every frame needs its row", miss, t.frameName(geo))
 			}
 		} else if f.Kept != geo.Kept {
 			t.add(PLength, finding.Error, f.File, 0, "%d records for %d frames, and no steps to match them by", f.Kept, geo.Kept)
@@ -552,7 +684,7 @@ func (t *TrajReport) combine(opt Options) {
 		t.clock = &trajfile.FixedClock{StepOffset: tf.s0, StepIncrement: tf.stride, TimeOffset: tf.t0, TimeIncrement: tf.dt}
 	}
 	// Units for every quantity present.
-	need := map[quantity.Kind]bool{quantity.Position: true}
+	need := map[quantity.Kind]bool{quantity.Position: !t.ObservablesOnly}
 	for _, q := range t.Quantities {
 		if k := quantity.StoredUnit(q); k != "" && q != quantity.MomentumQ {
 			need[k] = true
@@ -598,6 +730,65 @@ func (t *TrajReport) combine(opt Options) {
 	}
 	t.momentumUnits(geo, opt)
 	t.checkKinetic(opt)
+}
+
+// frameFile is the file whose records are the stored frames: the
+// geometry file, else (observables only) the first file of records that
+// kept any.
+func (t *TrajReport) frameFile() *FileReport {
+	if g := t.geometry(); g != nil {
+		return g
+	}
+	for _, f := range t.Files {
+		if f.Kept > 0 {
+			return f
+		}
+	}
+	return nil
+}
+
+// checkObservablesOnly decides, for a run without a geometry file,
+// whether its records can be stored as observables alone (H5MD 1.1,
+// "General organization": only the h5md group is mandatory at the root,
+// so a file without /particles is valid). That needs something per
+// frame to store (an energy or electronic-state quantity) and no
+// per-atom quantity, which has no place without positions: otherwise
+// P11. It reports whether combine goes on with frames from frames.
+func (t *TrajReport) checkObservablesOnly(frames *FileReport) bool {
+	if t.geometry() != nil {
+		return frames != nil
+	}
+	var perAtom, stored []string
+	for _, q := range t.Quantities {
+		x, _ := quantity.Lookup(q)
+		switch {
+		case x.PerAtom:
+			perAtom = append(perAtom, q)
+		case x.Element != "" && q != quantity.TimeQ:
+			stored = append(stored, q)
+		}
+	}
+	if t.hasActive() {
+		stored = append(stored, quantity.ActiveState)
+	}
+	switch {
+	case len(perAtom) > 0:
+		t.add(PNoGeometry, finding.Error, t.traj.Dir, 0, "%s given per atom but no geometry file (.xyz or extended .xyz): per-atom data needs positions; add the geometry file", strings.Join(perAtom, ", "))
+		return false
+	case frames == nil || len(stored) == 0:
+		t.add(PNoGeometry, finding.Error, t.traj.Dir, 0, "no geometry file (.xyz or extended .xyz) and no energies or states to store as observables; add the geometry file or a table with energy or state columns")
+		return false
+	}
+	t.ObservablesOnly = true
+	return true
+}
+
+// frameName names the frame file in messages.
+func (t *TrajReport) frameName(f *FileReport) string {
+	if t.ObservablesOnly {
+		return f.File + " (the first table, whose rows are the frames)"
+	}
+	return "the geometry file"
 }
 
 // geometry is the report of the geometry file (found by its reader's

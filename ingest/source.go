@@ -147,6 +147,24 @@ type record struct {
 	// whose quantity the source knows.
 	symbols []string
 	atoms   []atomColumn
+	// extras are the numeric per-atom columns no quantity names, kept
+	// as extra particle elements (quantity name ExtraPrefix + column).
+	extras []atomColumn
+}
+
+// ExtraPrefix marks, in scan's quantities and formats, a per-atom
+// column stored as an extra particle element under its own name
+// (e.g. "extra:tags" is /particles/all/tags), without a unit.
+const ExtraPrefix = "extra:"
+
+// extra returns the values of the extra per-atom column name, or nil.
+func (r *record) extra(name string) []float64 {
+	for _, c := range r.extras {
+		if c.quantity == name {
+			return c.values
+		}
+	}
+	return nil
 }
 
 // atomColumn is one per-atom quantity of a frame, flattened row-major.

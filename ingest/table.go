@@ -35,6 +35,8 @@ type TableReader struct {
 	pending []byte // first data line, read while looking for the header
 	pendLn  int
 	rows    int
+	// HeaderLine is the line (from 1) of the header naming the columns.
+	HeaderLine int
 }
 
 var unitInHeader = regexp.MustCompile(`^(.+?)\s*[\[(]([^\])]*)[\])]$`)
@@ -106,6 +108,7 @@ func allNumbers(fs []field) bool {
 }
 
 func (t *TableReader) header(b []byte, line int) error {
+	t.HeaderLine = line
 	if t.sep == 0 {
 		t.sep = detectSep(b)
 	}
@@ -216,6 +219,8 @@ type tableSource struct {
 	quant []string
 	state []int
 	unit  map[string]string
+	// unitAt says where each unit of unit is written (unitWhere).
+	unitAt map[string]string
 	notes
 }
 
@@ -229,7 +234,7 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 		f.Close()
 		return nil, err
 	}
-	s := &tableSource{path: path, f: f, t: t, row: make([]float64, len(t.Columns)), unit: map[string]string{}}
+	s := &tableSource{path: path, f: f, t: t, row: make([]float64, len(t.Columns)), unit: map[string]string{}, unitAt: map[string]string{}}
 	for _, c := range t.Columns {
 		q, k := c.Quantity, c.State
 		mapped := false
@@ -263,15 +268,19 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 				return nil, &ParseError{File: path, Line: 1, Err: detail(ErrHeader, "columns of %s are in %q and %q; trajvault stores numbers as printed, so one unit per kind of quantity", kind, old, c.Unit)}
 			}
 			s.unit[kind] = c.Unit
+			if _, ok := s.unitAt[kind]; !ok {
+				s.unitAt[kind] = fmt.Sprintf("%s:%d (header column %s[%s])", path, t.HeaderLine, c.Name, c.Unit)
+			}
 		}
 	}
 	return s, nil
 }
 
-func (s *tableSource) file() string             { return s.path }
-func (s *tableSource) units() map[string]string { return s.unit }
-func (s *tableSource) hops() []hop              { return nil }
-func (s *tableSource) close()                   { s.f.Close() }
+func (s *tableSource) file() string                 { return s.path }
+func (s *tableSource) units() map[string]string     { return s.unit }
+func (s *tableSource) unitWhere(kind string) string { return s.unitAt[kind] }
+func (s *tableSource) hops() []hop                  { return nil }
+func (s *tableSource) close()                       { s.f.Close() }
 
 func (s *tableSource) timeFormat() textnum.Format {
 	var f textnum.Format

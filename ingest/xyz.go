@@ -11,6 +11,7 @@ import (
 	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
+	"trajvault/internal/trajfile"
 )
 
 // Column is one per-atom property of a frame, flattened row-major (N x
@@ -340,6 +341,8 @@ type xyzSource struct {
 	columns map[string]string
 	// unit holds the units named by KEY_unit= comment keys, by unit kind.
 	unit map[string]string
+	// unitAt says where each unit of unit is written (unitWhere).
+	unitAt map[string]string
 	notes
 }
 
@@ -365,7 +368,10 @@ func (s *xyzSource) unitKey(fr *Frame, key, val string, col int) (bool, error) {
 		return true, &ParseError{File: s.path, Line: fr.Line + 1, Column: col, Err: detail(ErrHeader, "%s: %s is in %q here and %q before; trajvault stores numbers as printed, so one unit per kind of quantity", key, kind, val, old)}
 	}
 	if s.unit == nil {
-		s.unit = map[string]string{}
+		s.unit, s.unitAt = map[string]string{}, map[string]string{}
+	}
+	if _, ok := s.unit[kind]; !ok {
+		s.unitAt[kind] = fmt.Sprintf("%s:%d:%d (%s=%s)", s.path, fr.Line+1, col, key, val)
 	}
 	s.unit[kind] = val
 	return true, nil
@@ -389,6 +395,7 @@ func (s *xyzSource) file() string                        { return s.path }
 func (s *xyzSource) provides() map[string]textnum.Format { return s.fmts }
 func (s *xyzSource) timeFormat() textnum.Format          { return s.fmts[quantity.TimeQ] }
 func (s *xyzSource) units() map[string]string            { return s.unit }
+func (s *xyzSource) unitWhere(kind string) string        { return s.unitAt[kind] }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
 
@@ -409,11 +416,22 @@ func (s *xyzSource) next() (*record, error) {
 	rec := &record{line: fr.Line, symbols: fr.Symbols}
 	for _, c := range fr.Columns {
 		q := s.columnQuantity(c.Name)
-		if q == "" || q == quantity.Ignore {
-			why := "not a quantity trajvault knows (" + quantity.Names() + "); it is not stored"
-			if q == quantity.Ignore {
-				why = "ignored by the recipe"
+		if q == "" {
+			// Kept under its own name, without a unit (issue 10: unknown
+			// per-atom columns are extra particle elements).
+			why := trajfile.ExtraNameProblem(c.Name)
+			if why == "" {
+				s.fmts.merge(ExtraPrefix+c.Name, c.Format)
+				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values})
+				continue
 			}
+			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
+				msg:       fmt.Sprintf("per-atom column %s (%d value(s) per atom) is not a quantity trajvault knows and cannot be kept under its own name: %s; rename it, or map it in a recipe", c.Name, c.Width, why),
+				notStored: fmt.Sprintf("per-atom column %s: not a known quantity, and %s", c.Name, why)})
+			continue
+		}
+		if q == quantity.Ignore {
+			why := "ignored by the recipe"
 			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
 				msg:       fmt.Sprintf("per-atom column %s (%d value(s) per atom): %s", c.Name, c.Width, why),
 				notStored: fmt.Sprintf("per-atom column %s: %s", c.Name, why)})

@@ -174,14 +174,32 @@ func (c *checker) run() {
 		for _, g := range groups {
 			c.particles(trajfile.ParticleGroup(g))
 		}
-	} else {
-		c.errorf("V41", trajfile.ParticlesGroup, "no %s group: a trajectory needs %s/<group>/position; write positions with their species and masses", trajfile.ParticlesGroup, trajfile.ParticlesGroup)
+	} else if !c.hasObservables() {
+		// H5MD 1.1.0, "General organization": only the h5md group is
+		// mandatory at the root, so a run of observables alone (energies,
+		// electronic states) is a valid file without /particles.
+		c.errorf("V41", trajfile.ParticlesGroup, "no %s group and no %s: the file holds no data; write positions (%s/<group>/position with species and masses) or, for a run without geometry, energies or states under %s", trajfile.ParticlesGroup, trajfile.ObservablesGroup, trajfile.ParticlesGroup, trajfile.ObservablesGroup)
 	}
 	c.observables()
 	c.electronic()
 	c.connectivity()
 	c.provenance()
 	c.reportFixedStrings()
+}
+
+// hasObservables reports whether /observables holds at least one
+// time-dependent element (a group with a value dataset).
+func (c *checker) hasObservables() bool {
+	if c.f.Kind(trajfile.ObservablesGroup) != h5.Group {
+		return false
+	}
+	names, _ := c.f.Links(trajfile.ObservablesGroup)
+	for _, n := range names {
+		if c.f.Kind(trajfile.ObservablesGroup+"/"+n+trajfile.Value) == h5.Dataset {
+			return true
+		}
+	}
+	return false
 }
 
 // ---------------------------------------------------------------- header

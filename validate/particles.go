@@ -75,6 +75,39 @@ func (c *checker) particles(g string) {
 		}
 	}
 	c.edges(g, dim, boundary, pos, b)
+	c.extras(g, b)
+}
+
+// knownParticleNames are the members of a particle group checked above.
+var knownParticleNames = map[string]bool{
+	trajfile.Species: true, trajfile.Mass: true, trajfile.Charge: true, trajfile.ID: true,
+	trajfile.Position: true, trajfile.Velocity: true, trajfile.Force: true, trajfile.Image: true, trajfile.Box: true,
+}
+
+// extras checks the time-dependent members of particle group g the
+// layout does not name: per-atom columns convert keeps under their own
+// name (schema/layout.md, "/particles/{group}/{extra}"), or another
+// writer's per-particle data (H5MD 1.1.0, "particles group": a group
+// may hold further elements). Each must be a valid time-dependent
+// element (V6-V9) with one row per particle (V14, N as species gives it).
+func (c *checker) extras(g string, b bindings) {
+	names, err := c.f.Links(g)
+	if err != nil {
+		return // reported as V33 by the walk
+	}
+	for _, name := range names {
+		p := trajfile.Particle(g, name)
+		if knownParticleNames[name] || !c.isElement(p) {
+			continue
+		}
+		e := c.element(p)
+		if e == nil {
+			continue
+		}
+		if n, ok := b["N"]; ok && (e.value.Shape.Rank < 2 || e.value.Shape.Dims[1] != n) {
+			c.errorf("V14", e.valuePath(), "shape %s; a per-particle element has one row per particle per frame, [T][%d][...]", e.value.Shape, n)
+		}
+	}
 }
 
 // typed checks a time-dependent element against its layout entry.

@@ -52,6 +52,42 @@ func converted(t *testing.T) string {
 	return out
 }
 
+// observablesOnly converts a table of energies and states without a
+// geometry file (a file with /observables and no /particles).
+func observablesOnly(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	var b strings.Builder
+	b.WriteString("# step time[fs] Epot[hartree] Ekin[hartree] E_0[hartree] E_1[hartree] state\n")
+	for i := 0; i < 50; i++ {
+		fmt.Fprintf(&b, "%d %.2f %.8f %.8f %.6f %.6f 0\n", 10*i, 0.5*float64(i), -76.4+1e-5*float64(i), 0.001, -76.4, -76.2)
+	}
+	mustDo(t, os.WriteFile(filepath.Join(dir, "energies.dat"), []byte(b.String()), 0o644))
+	out := filepath.Join(t.TempDir(), "obs.h5")
+	_, _, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{ToolVersion: "test"})
+	mustDo(t, err)
+	return out
+}
+
+// extraColumn converts an extended XYZ file with a per-atom column no
+// quantity names (tags:I:1), kept as /particles/all/tags.
+func extraColumn(t *testing.T) string {
+	t.Helper()
+	dir := t.TempDir()
+	var b strings.Builder
+	for i := 0; i < 20; i++ {
+		fmt.Fprintf(&b, "2\nProperties=species:S:1:pos:R:3:tags:I:1 step=%d time=%.1f\nH 0.0 0.0 %.4f 1\nH 0.0 0.0 %.4f 2\n", i, 0.5*float64(i), 0.01*float64(i), 0.74)
+	}
+	mustDo(t, os.WriteFile(filepath.Join(dir, "geom.xyz"), []byte(b.String()), 0o644))
+	out := filepath.Join(t.TempDir(), "tags.h5")
+	_, res, err := ingest.ConvertFiles(context.Background(), []string{dir}, out, ingest.ConvertOptions{ToolVersion: "test", Options: ingest.Options{Units: map[string]string{"position": "angstrom", "time": "fs"}}})
+	mustDo(t, err)
+	if res.Storage["tags"] == "" {
+		t.Fatalf("tags not stored: %v", res.Storage)
+	}
+	return out
+}
+
 // editRecord rewrites the stored provenance JSON text with edit.
 func editRecord(edit func(string) string) func(t *testing.T, f *h5.File) {
 	return func(t *testing.T, f *h5.File) {
@@ -149,6 +185,11 @@ func TestWriterOutputIsClean(t *testing.T) {
 	}{
 		{"trajectory writer", base, []string{"R1"}},
 		{"converted from logs", converted, nil},
+		// No /particles: H5MD 1.1.0, "General organization", makes only
+		// the h5md group mandatory at the root (V41 stays quiet).
+		{"observables only", observablesOnly, nil},
+		// Unknown per-atom columns kept as extra particle elements.
+		{"extra per-atom column", extraColumn, nil},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			rep, err := File(c.make(t), Options{ToolVersion: "test"})
@@ -251,6 +292,17 @@ func TestRules(t *testing.T) {
 				return v[:d[0]*2*3], []int{d[0], 2, 3}
 			})
 		}, nil},
+		{"V14", finding.Error, "extra per-atom element with other N", func(t *testing.T, f *h5.File) {
+			// An element the layout does not name (as convert keeps an
+			// unknown per-atom column) still needs N rows per frame.
+			info, err := f.Info(pg + "/position/value")
+			mustDo(t, err)
+			T := info.Shape.Dims[0]
+			mustDo(t, f.CreateGroup(pg+"/tags"))
+			create(t, f, pg+"/tags/value", h5.Float64, []int{T, 2, 1}, make([]float64, 2*T))
+			mustDo(t, f.HardLink(pg+"/position/step", pg+"/tags/step"))
+			mustDo(t, f.HardLink(pg+"/position/time", pg+"/tags/time"))
+		}, nil},
 		{"V15", finding.Error, "integer mass", func(t *testing.T, f *h5.File) { rewrite(t, f, pg+"/mass", h5.Int32, same) }, nil},
 		{"V15", finding.Error, "float species", func(t *testing.T, f *h5.File) { rewrite(t, f, pg+"/species", h5.Float64, same) }, nil},
 		{"V17", finding.Error, "connectivity index out of range", func(t *testing.T, f *h5.File) {
@@ -300,7 +352,10 @@ func TestRules(t *testing.T) {
 			pyRun(t, py, path)
 			return path
 		}},
-		{"V41", finding.Error, "no particles group", func(t *testing.T, f *h5.File) { mustDo(t, f.Delete("/particles")) }, nil},
+		{"V41", finding.Error, "no particles group and no observables", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.Delete("/particles"))
+			mustDo(t, f.Delete("/observables"))
+		}, nil},
 		{"V32", finding.Error, "particle group is a dataset", func(t *testing.T, f *h5.File) { create(t, f, "/particles/extra", h5.Float64, []int{1}, []float64{0}) }, nil},
 		{"V33", finding.Error, "damaged object header", nil, func(t *testing.T) string {
 			// h5py (Debian python3-h5py, HDF5 1.10 API) gives the object

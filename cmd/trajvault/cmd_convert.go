@@ -95,10 +95,14 @@ the file (/parameters@trajvault_dropped); what the logs hold but the
 file does not store is listed ("not stored") and recorded in the
 provenance. A physics cross-check that fails (P17: the kinetic energy
 column against 1/2 m v^2 of the stored data, a sign of a wrong unit)
-refuses the conversion unless --accept-mismatch.
+refuses the conversion unless --accept-mismatch. A --unit that differs
+from the unit a file writes is refused (exit 2) unless --units-over-file
+(recorded). A table of energies or states without a geometry file gives
+a file of observables only (no /particles group).
 
 Exit status: 0 success, 1 the logs have problems (as scan reports them),
-2 usage or I/O error. No output file appears unless conversion succeeded.`,
+2 usage or I/O error (a --unit contradicting a file's unit among them).
+No output file appears unless conversion succeeded.`,
 		Example: "  trajvault convert runs/traj-001 -o traj-001.h5\n  trajvault convert geom.xyz energies.dat --unit position=angstrom -o run.h5",
 		Args:    cobra.MinimumNArgs(1),
 		PreRunE: func(c *cobra.Command, args []string) error {
@@ -183,7 +187,7 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	}
 	sort.Strings(keys)
 	for _, k := range keys {
-		fmt.Fprintf(g.stdout, "  %-17s %s\n", k, res.Storage[k])
+		wrap(g, fmt.Sprintf("%-17s %s", k, res.Storage[k]), "  ")
 	}
 	for _, d := range res.Dropped {
 		fmt.Fprintf(g.stdout, "  dropped: %s\n", d)
@@ -193,6 +197,9 @@ func runConvert(ctx context.Context, g *globals, o convertOptions, args []string
 	}
 	for _, d := range res.Accepted {
 		fmt.Fprintf(g.stdout, "  accepted: %s\n", d)
+	}
+	for _, d := range res.Overrides {
+		wrap(g, "unit override: "+d, "  ")
 	}
 	return nil
 }

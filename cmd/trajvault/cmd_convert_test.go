@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"os/exec"
@@ -316,4 +317,90 @@ func shellWords(s string) []string {
 		words = append(words, cur.String())
 	}
 	return words
+}
+
+// TestObservablesOnlyCLI: a table of energies without geometry (issue
+// 10, item 8) goes through scan, convert, validate, inspect and export
+// --format csv with exit 0; the file has no /particles group, which the
+// H5MD 1.1.0 specification ("General organization") makes optional, and
+// the csv gives back every printed digit. Exports that need atoms exit 2
+// and say why.
+func TestObservablesOnlyCLI(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "energies")
+	os.MkdirAll(dir, 0o755)
+	var b strings.Builder
+	var want strings.Builder
+	b.WriteString("# step time[fs] Epot[eV] Ekin[eV] Etot[eV]\n")
+	want.WriteString("step,time[fs],kinetic_energy[eV],potential_energy[eV],total_energy[eV]\n")
+	for i := 0; i <= 1000; i++ {
+		ep, ek := -3.25+0.001*float64(i%17), 0.5-0.001*float64(i%17)
+		row := []string{fmt.Sprint(5 * i), fmt.Sprintf("%.2f", 0.25*float64(i)), fmt.Sprintf("%.6f", ep), fmt.Sprintf("%.6f", ek), fmt.Sprintf("%.6f", ep+ek)}
+		b.WriteString(strings.Join(row, " ") + "\n")
+		want.WriteString(strings.Join([]string{row[0], row[1], row[3], row[2], row[4]}, ",") + "\n")
+	}
+	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte(b.String()), 0o644)
+	code, out, errs := runCLI("scan", dir)
+	if code != 0 || !strings.Contains(out, "energies: 1001 records, observables only, steps 0..5000") {
+		t.Fatalf("scan: exit %d\n%s%s", code, out, errs)
+	}
+	h5path := filepath.Join(t.TempDir(), "energies.h5")
+	if code, out, errs := runCLI("convert", dir, "-o", h5path); code != 0 {
+		t.Fatalf("convert: exit %d\n%s%s", code, out, errs)
+	}
+	if code, out, _ := runCLI("validate", h5path); code != 0 || !strings.Contains(out, "ok, 0 errors, 0 warnings") {
+		t.Fatalf("validate: exit %d\n%s", code, out)
+	}
+	if code, out, errs := runCLI("inspect", h5path); code != 0 || !strings.Contains(out, "potential_energy") || strings.Contains(out, "/particles") {
+		t.Errorf("inspect: exit %d\n%s%s", code, out, errs)
+	}
+	csv := filepath.Join(t.TempDir(), "back.csv")
+	if code, _, errs := runCLI("export", h5path, "-o", csv, "--format", "csv"); code != 0 {
+		t.Fatalf("export csv: exit %d\n%s", code, errs)
+	}
+	if got, _ := os.ReadFile(csv); string(got) != want.String() {
+		t.Errorf("export csv differs from the table's digits:\n%.300s", got)
+	}
+	code, _, errs = runCLI("export", h5path, "-o", filepath.Join(t.TempDir(), "x"), "--format", "xyz")
+	if code != 2 || !strings.Contains(errs, "observables only") {
+		t.Errorf("export xyz of an observables-only file: exit %d, %q; want 2 and the reason", code, errs)
+	}
+}
+
+// TestUnitGivenVsFile: --unit naming a different unit than the table's
+// header is refused by scan and convert with exit 2 (usage), naming both
+// units, the header's line and the way out; the same unit passes; with
+// --units-over-file the given unit is stored and the override is in the
+// provenance record (issue 10: a given unit is honoured or refused,
+// never ignored).
+func TestUnitGivenVsFile(t *testing.T) {
+	dir := filepath.Join(t.TempDir(), "run")
+	os.MkdirAll(dir, 0o755)
+	os.WriteFile(filepath.Join(dir, "energies.dat"), []byte("# step time[fs] Epot[hartree]\n0 0.0 -1.50\n1 0.5 -1.40\n2 1.0 -1.30\n"), 0o644)
+	for _, verb := range []string{"scan", "convert"} {
+		args := []string{verb, dir, "--unit", "energy=eV"}
+		if verb == "convert" {
+			args = append(args, "-o", filepath.Join(t.TempDir(), "x.h5"))
+		}
+		code, _, errs := runCLI(args...)
+		if code != 2 || !strings.Contains(errs, `energies.dat:1 (header column Epot[hartree]) says "hartree" but --unit energy=eV gives "eV"`) || !strings.Contains(errs, "--units-over-file") {
+			t.Errorf("%s with a conflicting --unit: exit %d, %q; want 2, both units and the flag", verb, code, errs)
+		}
+	}
+	if code, out, errs := runCLI("scan", dir, "--unit", "energy=hartree"); code != 0 {
+		t.Errorf("scan with the file's own unit: exit %d\n%s%s", code, out, errs)
+	}
+	out := filepath.Join(t.TempDir(), "over.h5")
+	if code, o, errs := runCLI("convert", dir, "--unit", "energy=eV", "--units-over-file", "-o", out); code != 0 || !strings.Contains(o, "unit override:") {
+		t.Fatalf("convert --units-over-file: exit %d\n%s%s", code, o, errs)
+	}
+	f, err := h5.Open(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	u, _ := f.Attr(trajfile.PotentialEnergy+trajfile.Value, trajfile.UnitAttr)
+	p, _ := f.Attr(trajfile.ParametersGroup, trajfile.ProvenanceAttr)
+	if len(u.Strings) != 1 || u.Strings[0] != "eV" || len(p.Strings) != 1 || !strings.Contains(p.Strings[0], `says \"hartree\"; --unit gives \"eV\", used (--units-over-file)`) {
+		t.Errorf("stored unit %v; provenance %.400v; want eV and the override recorded", u.Strings, p.Strings)
+	}
 }

@@ -36,8 +36,12 @@ precision of each quantity, and every problem: cut last frames, missing
 files, changing atom counts, clocks going backwards, restarts that repeat
 steps, NaN or Inf, files that disagree on frames, quantities without units.
 
+A --unit that differs from the unit a file writes for the same kind
+(a table header, an extended-XYZ KEY_unit key) is refused with exit 2,
+unless --units-over-file says the file's label is wrong.
+
 Exit status: 0 no problems, 1 problems found (notes do not count),
-2 usage or I/O error.`,
+2 usage or I/O error (a --unit contradicting a file's unit among them).`,
 		Example: "  trajvault scan runs/\n  trajvault scan --recipe lab.yaml --json runs/",
 		Args:    cobra.ExactArgs(1),
 		RunE:    func(c *cobra.Command, args []string) error { return runScan(commandContext(c), g, o, args[0]) },
@@ -108,7 +112,11 @@ func scanFindings(reps []*ingest.TrajReport) []finding.Finding {
 // printScan prints one trajectory's report in lines of at most 80
 // columns.
 func printScan(g *globals, r *ingest.TrajReport) {
-	head := fmt.Sprintf("%s: %s (%s), %s, steps %d..%d, time %g..%g %s", r.Name, plural(r.Atoms, "atom"), r.Formula, plural(r.Frames, "frame"), r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
+	what := fmt.Sprintf("%s (%s), %s", plural(r.Atoms, "atom"), r.Formula, plural(r.Frames, "frame"))
+	if r.ObservablesOnly {
+		what = plural(r.Frames, "record") + ", observables only"
+	}
+	head := fmt.Sprintf("%s: %s, steps %d..%d, time %g..%g %s", r.Name, what, r.FirstStep, r.LastStep, r.TimeFirst, r.TimeLast, r.Units["time"])
 	if r.States > 0 {
 		head += fmt.Sprintf(", %s, %s", plural(r.States, "state"), plural(r.Hops, "hop attempt"))
 	}

@@ -16,16 +16,20 @@ type readFlags struct {
 	recipe string
 	units  []string
 	dt     float64
+	// unitsOverFile lets --unit (or the recipe) replace a unit the
+	// files write; without it a different unit is refused (exit 2).
+	unitsOverFile bool
 }
 
 func (o *readFlags) AddFlags(c *cobra.Command) {
 	c.Flags().StringVar(&o.recipe, "recipe", "", "recipe file (YAML) saying which files, columns and units the logs have (trajvault demo --text writes one to copy)")
 	c.Flags().StringArrayVar(&o.units, "unit", nil, "unit of a kind of quantity the logs do not state, e.g. --unit position=angstrom (kinds: "+quantity.KindNames()+")")
+	c.Flags().BoolVar(&o.unitsOverFile, "units-over-file", false, "let --unit (or the recipe) replace a different unit a file writes, when the file's label is wrong (recorded in the file); without it such a conflict is refused")
 	c.Flags().Float64Var(&o.dt, "dt", 0, "time per step, in the time unit, when the logs give no times (with --unit time=fs)")
 }
 
 func (o *readFlags) options() (ingest.Options, error) {
-	opt := ingest.Options{Units: map[string]string{}, Dt: o.dt}
+	opt := ingest.Options{Units: map[string]string{}, Dt: o.dt, UnitsOverFile: o.unitsOverFile}
 	for _, u := range o.units {
 		k, v, ok := strings.Cut(u, "=")
 		_, known := quantity.LookupKind(k)

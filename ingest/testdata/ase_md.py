@@ -1,7 +1,8 @@
 """Run a short NVE molecular dynamics of a small copper cluster with ASE's
 EMT calculator and velocity Verlet (Debian python3-ase), writing what an
 MD user keeps: an extended XYZ trajectory with momenta, forces, energy,
-step and time (ase.io.write, format="extxyz"), and an energy table
+step and time (ase.io.write, format="extxyz"; with tags and the
+calculator's per-atom energies, columns no quantity names), and an energy table
 printed with %.10f. Then read the trajectory back with ase.io.read and
 print what ASE reports, as JSON.
 
@@ -23,6 +24,7 @@ from ase.md.verlet import VelocityVerlet
 out = sys.argv[1]
 nframes = int(sys.argv[2]) if len(sys.argv) > 2 else 12
 atoms = Icosahedron("Cu", 2)  # 13 atoms
+atoms.set_tags([i % 3 for i in range(len(atoms))])  # an extxyz "tags" column
 atoms.calc = EMT()
 MaxwellBoltzmannDistribution(atoms, temperature_K=600, rng=np.random.default_rng(3))
 dt_fs = 2.0
@@ -58,6 +60,8 @@ for a in read(xyz, index=":", format="extxyz"):
         "forces": a.get_forces().tolist(),
         "energy": a.get_potential_energy(),
         "kinetic": a.get_kinetic_energy(),
+        "tags": a.get_tags().tolist(),
+        "energies": a.get_potential_energies().tolist(),
         "step": int(a.info["step"]),
         "time": float(a.info["time"]),
     })

@@ -78,6 +78,11 @@ const (
 	OffsetAttr    = "offset"
 	FormatAttr    = "trajvault_format"
 	ToleranceAttr = "trajvault_tolerance"
+	// NegativeZerosAttr (int64[K] on a scale-offset value dataset) lists
+	// the flat row-major indices of the values printed as negative zero
+	// ("-0.000"): scale-offset decodes k/10^D + min, which loses the sign
+	// of zero, and readers put it back.
+	NegativeZerosAttr = "trajvault_negative_zeros"
 	// ProvenanceAttr (on /parameters) holds the provenance record.
 	ProvenanceAttr = "trajvault_provenance"
 	// String attributes of /parameters written by convert
@@ -99,6 +104,35 @@ const (
 	BoundaryAttr       = "boundary"        // box
 	ParticlesGroupAttr = "particles_group" // connectivity
 )
+
+// reservedNames are the names an extra per-atom element cannot take:
+// the layout's own elements and H5MD's particle-group names, and the
+// keys of Spec.Storage.
+var reservedNames = map[string]bool{
+	Position: true, Velocity: true, Force: true, Species: true, Mass: true, Box: true, ID: true, Charge: true, Image: true,
+	"step": true, "time": true, "value": true, "momentum": true, "momenta": true,
+	"kinetic_energy": true, "potential_energy": true, "total_energy": true,
+	"state_energies": true, "active_state": true, "populations": true, "amplitudes": true, "couplings": true,
+}
+
+// ExtraNameProblem says why name cannot be an extra particle element
+// (a per-atom column no quantity names, stored as /particles/all/NAME),
+// or "" when it can: 1 to 64 ASCII letters, digits and underscores, not
+// starting with a digit, and not a name the layout or H5MD uses.
+func ExtraNameProblem(name string) string {
+	if name == "" || len(name) > 64 {
+		return "an element name has 1 to 64 characters"
+	}
+	for i, r := range name {
+		if !(r == '_' || r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || i > 0 && r >= '0' && r <= '9') {
+			return "an element name has only letters, digits and underscores, and starts with a letter or underscore"
+		}
+	}
+	if reservedNames[strings.ToLower(name)] || strings.HasPrefix(strings.ToLower(name), "trajvault") {
+		return "the layout or H5MD uses that name for another element"
+	}
+	return ""
+}
 
 // ParticleGroup is the path of the particle group named name.
 func ParticleGroup(name string) string { return ParticlesGroup + "/" + name }

@@ -1,7 +1,9 @@
 package trajfile
 
 import (
+	"errors"
 	"fmt"
+	"math"
 	"slices"
 	"sort"
 	"strings"
@@ -37,7 +39,93 @@ type Reader struct {
 	// TimeStep is the integration step in au_time (/parameters/time_step),
 	// or 0 when the file does not record it.
 	TimeStep float64
+	// ObservablesOnly is set for a file read without a particle group
+	// (ReadOptions.ObservablesOnly).
+	ObservablesOnly bool
+	clockEl         string
+	// negZeros caches each value dataset's NegativeZerosAttr.
+	negZeros map[string][]int64
 }
+
+// negativeZeros is the NegativeZerosAttr list of the dataset at path
+// (nil when it has none), read once.
+func (r *Reader) negativeZeros(path string) []int64 {
+	idx, ok := r.negZeros[path]
+	if !ok {
+		if a, err := r.f.Attr(path, NegativeZerosAttr); err == nil {
+			idx = a.Ints
+		}
+		if r.negZeros == nil {
+			r.negZeros = map[string][]int64{}
+		}
+		r.negZeros[path] = idx
+	}
+	return idx
+}
+
+// signZeros gives back the sign of the values of the dataset at path
+// (value of an element) that were printed as negative zeros
+// (NegativeZerosAttr): v holds the flat values from index first on. Only
+// zeros are touched: a listed index whose value is not zero (a damaged
+// or edited file) is left as stored.
+func (r *Reader) signZeros(path string, v []float64, first int64) {
+	idx := r.negativeZeros(path)
+	negZero := math.Copysign(0, -1)
+	for _, i := range idx {
+		if j := i - first; j >= 0 && j < int64(len(v)) && v[j] == 0 {
+			v[j] = negZero
+		}
+	}
+}
+
+// ClockElement is the element whose step and time are the frames' clock:
+// the particle group's positions, or (observables only) the first
+// observable.
+func (r *Reader) ClockElement() string {
+	if r.ObservablesOnly {
+		return r.clockEl
+	}
+	return r.Particle(Position)
+}
+
+// observablesOnly sets r up for a file without a particle group: its
+// frames are those of the first time-dependent observable in name order,
+// and every other observable must have as many.
+func (r *Reader) observablesOnly() error {
+	names, err := r.f.Links(ObservablesGroup)
+	if err != nil {
+		return err
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		el := ObservablesGroup + "/" + n
+		if r.f.Kind(el+Value) != h5.Dataset {
+			continue
+		}
+		info, err := r.f.Info(el + Value)
+		if err != nil {
+			return err
+		}
+		if info.Shape.Rank < 1 {
+			return fmt.Errorf("%s%s: scalar, want one value per frame", el, Value)
+		}
+		if r.clockEl == "" {
+			r.clockEl, r.T = el, info.Shape.Dims[0]
+		} else if info.Shape.Dims[0] != r.T {
+			return fmt.Errorf("%s%s: %d frames, but %s has %d; every observable needs one value per frame", el, Value, info.Shape.Dims[0], r.clockEl, r.T)
+		}
+	}
+	if r.clockEl == "" {
+		return fmt.Errorf("no particle group and no time-dependent observable under %s", ObservablesGroup)
+	}
+	r.ObservablesOnly = true
+	return checkFrames(r.T)
+}
+
+// ErrObservablesOnly is returned by OpenReader for a file without a
+// particle group that holds observables (energies, electronic states):
+// valid H5MD 1.1, but with no atoms to analyse per frame.
+var ErrObservablesOnly = errors.New("the file holds observables only (no atoms)")
 
 // ReadOptions choose what a Reader opens.
 type ReadOptions struct {
@@ -45,6 +133,12 @@ type ReadOptions struct {
 	// "water"); "" picks ours when present, else the first group in name
 	// order that holds positions (Groups lists them all).
 	Group string
+	// ObservablesOnly accepts a file without a particle group that holds
+	// observables (H5MD 1.1 makes /particles optional): the Reader then
+	// has N = 0, Group "" and the clock of the first observable in name
+	// order (ClockElement); only observables can be read. Without it such
+	// a file gives ErrObservablesOnly.
+	ObservablesOnly bool
 }
 
 // OpenReader opens a trajectory file for analysis, its default particle
@@ -145,6 +239,9 @@ func findGroup(f *h5.File, name string) (string, error) {
 	if len(have) > 0 {
 		return ParticleGroup(have[0]), nil
 	}
+	if f.Kind(ParticlesGroup) != h5.Group && f.Kind(ObservablesGroup) == h5.Group {
+		return "", fmt.Errorf("%w: no %s group, only %s; inspect lists them and export --format csv writes them", ErrObservablesOnly, ParticlesGroup, ObservablesGroup)
+	}
 	return "", fmt.Errorf("no particle group with positions under %s", ParticlesGroup)
 }
 
@@ -160,29 +257,35 @@ func groupList(names []string) string {
 // on long runs with an explicit clock they cost more than a window).
 func (r *Reader) init(o ReadOptions, withClock bool) error {
 	var err error
-	if r.Group, err = findGroup(r.f, o.Group); err != nil {
+	if r.Group, err = findGroup(r.f, o.Group); errors.Is(err, ErrObservablesOnly) && o.ObservablesOnly && o.Group == "" {
+		r.Group = ""
+		if err := r.observablesOnly(); err != nil {
+			return err
+		}
+	} else if err != nil {
 		return err
-	}
-	info, err := r.f.Describe(r.Particle(Position) + Value)
-	if err != nil {
-		return fmt.Errorf("no positions [T][N][3]: %w", err)
-	}
-	if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] < 1 || d[1] < 1 || d[2] != 3 {
-		return fmt.Errorf("%s%s: shape %v, want [T][N][3] with T >= 1 frames and N >= 1 atoms", r.Particle(Position), Value, info.Shape.Dims)
-	}
-	r.T, r.N = info.Shape.Dims[0], info.Shape.Dims[1]
-	if err := r.atoms(); err != nil {
-		return err
-	}
-	if err := checkFrames(r.T); err != nil {
-		return fmt.Errorf("%s%s: %w", r.Particle(Position), Value, err)
+	} else {
+		info, err := r.f.Describe(r.Particle(Position) + Value)
+		if err != nil {
+			return fmt.Errorf("no positions [T][N][3]: %w", err)
+		}
+		if d := info.Shape.Dims; info.Shape.Rank != 3 || d[0] < 1 || d[1] < 1 || d[2] != 3 {
+			return fmt.Errorf("%s%s: shape %v, want [T][N][3] with T >= 1 frames and N >= 1 atoms", r.Particle(Position), Value, info.Shape.Dims)
+		}
+		r.T, r.N = info.Shape.Dims[0], info.Shape.Dims[1]
+		if err := r.atoms(); err != nil {
+			return err
+		}
+		if err := checkFrames(r.T); err != nil {
+			return fmt.Errorf("%s%s: %w", r.Particle(Position), Value, err)
+		}
 	}
 	if withClock {
-		c, err := readClock(r.f, r.Particle(Position))
+		c, err := readClock(r.f, r.ClockElement())
 		if err != nil {
 			return err
 		}
-		tf, err := r.unitFactor(r.Particle(Position)+Time, "au_time")
+		tf, err := r.unitFactor(r.ClockElement()+Time, "au_time")
 		if err != nil {
 			return err
 		}
@@ -479,7 +582,11 @@ func (r *Reader) Element(el string) (*Element, error) {
 
 // Raw reads frames [start, start+count) of e's values as stored.
 func (r *Reader) Raw(e *Element, start, count int) ([]float64, error) {
-	return r.f.ReadRows(e.Path+Value, e.Shape, start, count)
+	v, err := r.f.ReadRows(e.Path+Value, e.Shape, start, count)
+	if err == nil {
+		r.signZeros(e.Path+Value, v, int64(start)*int64(e.Width()))
+	}
+	return v, err
 }
 
 // Has reports whether the time-dependent element exists (e.g.
@@ -505,6 +612,7 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 	if err != nil {
 		return nil, shape, err
 	}
+	r.signZeros(el+Value, v, 0)
 	if unit != "" {
 		fct, err := r.unitFactor(el+Value, unit)
 		if err != nil {
@@ -535,6 +643,7 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 	if err != nil {
 		return nil, err
 	}
+	r.signZeros(el+Value, v, int64(start)*int64(r.N)*3)
 	fct, err := r.unitFactor(el+Value, unit)
 	if err != nil {
 		return nil, err

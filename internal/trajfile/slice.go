@@ -2,6 +2,7 @@ package trajfile
 
 import (
 	"fmt"
+	"math"
 	"slices"
 
 	"trajvault/internal/h5"
@@ -43,7 +44,36 @@ func (r *Reader) Window(e *Element, frames []int, keep [][]int) ([]float64, erro
 			}
 		}
 	}
-	return r.gather(e.Path+Value, e.Shape, frames, rowOffsets(dims, keep))
+	offs := rowOffsets(dims, keep)
+	v, err := r.gather(e.Path+Value, e.Shape, frames, offs)
+	if err == nil {
+		r.signZerosWindow(e, v, frames, offs)
+	}
+	return v, err
+}
+
+// signZerosWindow gives back the sign of listed negative zeros
+// (NegativeZerosAttr) in a window read: v holds, per selected frame, the
+// values at offsets offs (increasing) of its row.
+func (r *Reader) signZerosWindow(e *Element, v []float64, frames, offs []int) {
+	row := int64(e.Width())
+	if row == 0 {
+		return
+	}
+	negZero := math.Copysign(0, -1)
+	for _, idx := range r.negativeZeros(e.Path + Value) {
+		fi, ok := slices.BinarySearch(frames, int(idx/row))
+		if !ok {
+			continue
+		}
+		oi, ok := slices.BinarySearch(offs, int(idx%row))
+		if !ok {
+			continue
+		}
+		if j := fi*len(offs) + oi; j < len(v) && v[j] == 0 {
+			v[j] = negZero
+		}
+	}
 }
 
 // gather reads rows frames (increasing, checked) of the dataset at path

@@ -61,6 +61,13 @@ type Spec struct {
 	Author, Email           string
 	Creator, CreatorVersion string
 
+	// ObservablesOnly writes no particle group: a run of energies or
+	// electronic states without geometry (H5MD 1.1 makes /particles
+	// optional). Species, Masses, Edges, Velocity and Force must then be
+	// empty, and the first observable holds the step and time datasets
+	// the others link to.
+	ObservablesOnly bool
+
 	Species  []int     // atomic numbers, length N
 	Masses   []float64 // length N
 	Boundary []string  // per axis "periodic" or "none"; nil = all none
@@ -76,6 +83,11 @@ type Spec struct {
 	// Off by default: a converted log keeps its units, digits and compact
 	// clock.
 	ForReaders bool
+
+	// Extras are per-atom columns no quantity names, stored as
+	// time-dependent particle elements /particles/all/NAME, [T][N][Width],
+	// without a unit (ExtraNameProblem says which names can be used).
+	Extras []Extra
 
 	Velocity, Force               bool
 	Kinetic, Potential, Total     bool
@@ -111,6 +123,12 @@ type Spec struct {
 	// on fixed mode (schema/layout.md, "Written for readers"). Without a
 	// Clock the writer stores explicit mode, one step and time per frame.
 	Clock *FixedClock
+}
+
+// Extra is an extra per-atom element: its name and values per atom.
+type Extra struct {
+	Name  string
+	Width int
 }
 
 // FixedClock is a uniformly sampled frame clock (H5MD fixed mode).
@@ -165,6 +183,7 @@ type Frame struct {
 	Time                      float64
 	Position                  []float64
 	Velocity, Force           []float64
+	Extras                    [][]float64 // N*Width values per Spec.Extras entry
 	Kinetic, Potential, Total float64
 	StateEnergies             []float64
 	ActiveState               int
@@ -188,25 +207,38 @@ type element struct {
 	buf  []float64
 	ibuf []int64
 	w    *h5.Writer
+	// scaled is set for scale-offset float storage, which loses the sign
+	// of zero; negZeros then collects the flat indices of negative zeros
+	// (written as NegativeZerosAttr by Close).
+	scaled   bool
+	negZeros []int64
 }
+
+// MaxNegativeZeros bounds the negative zeros one element records (64 KiB
+// of indices, the attribute size every HDF5 file format stores); convert
+// stores a column with more as float64, which keeps the sign itself.
+const MaxNegativeZeros = 8192
 
 // Writer writes one trajectory file. Its first error is sticky.
 type Writer struct {
-	spec     Spec
-	final    string
-	tmp      string
-	f        *h5.File
-	n        int
-	chunk    int
-	step     *element
-	time     *element
-	elems    []*element
-	get      []func(*Frame) ([]float64, error)
-	hops     []Hop
-	frames   int
-	lastStep int64
-	err      error
-	closed   bool
+	spec  Spec
+	final string
+	tmp   string
+	f     *h5.File
+	n     int
+	chunk int
+	step  *element
+	time  *element
+	// clockGroup is the element holding the step and time datasets
+	// (positions, or the first observable); the others hard-link them.
+	clockGroup string
+	elems      []*element
+	get        []func(*Frame) ([]float64, error)
+	hops       []Hop
+	frames     int
+	lastStep   int64
+	err        error
+	closed     bool
 	// src are the units of the numbers given; spec.Units those stored.
 	// tf converts given times to stored ones.
 	src Units
@@ -242,7 +274,12 @@ func Create(path string, spec Spec) (*Writer, error) {
 		return nil, fmt.Errorf("%s: already exists; trajvault never overwrites an output (remove it or choose another name)", path)
 	}
 	n := len(spec.Species)
-	if n == 0 || len(spec.Masses) != n {
+	switch {
+	case spec.ObservablesOnly && (n > 0 || len(spec.Masses) > 0 || len(spec.Edges) > 0 || spec.Velocity || spec.Force || len(spec.Extras) > 0):
+		return nil, errors.New("trajfile: an observables-only file has no atoms: no species, masses, box, velocities or forces")
+	case spec.ObservablesOnly && !(spec.Kinetic || spec.Potential || spec.Total || spec.NStates > 0):
+		return nil, errors.New("trajfile: an observables-only file needs an observable (an energy or electronic-state data)")
+	case !spec.ObservablesOnly && (n == 0 || len(spec.Masses) != n):
 		return nil, fmt.Errorf("trajfile: %d species and %d masses; need N > 0 of each", n, len(spec.Masses))
 	}
 	if spec.Units == (Units{}) {
@@ -270,7 +307,7 @@ func Create(path string, spec Spec) (*Writer, error) {
 	if chunk <= 0 {
 		// About 256 KiB of positions per chunk: large enough to compress
 		// well, small enough to read a few frames cheaply.
-		chunk = max(1, min(4096, 256*1024/(8*3*n)))
+		chunk = max(1, min(4096, 256*1024/(8*3*max(n, 1))))
 	}
 	tmp := filepath.Join(filepath.Dir(path), fmt.Sprintf(".%s.partial-%d", filepath.Base(path), os.Getpid()))
 	outdir.Clean(filepath.Dir(path)) // leftovers of killed runs, by their markers
@@ -291,6 +328,9 @@ func Create(path string, spec Spec) (*Writer, error) {
 	}
 	w.header()
 	w.layout()
+	if w.err == nil && w.step == nil {
+		w.err = errors.New("trajfile: no time-dependent element to write")
+	}
 	if w.err != nil {
 		err := w.err
 		w.Abort()
@@ -399,7 +439,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 	for _, d := range shape {
 		row *= d
 	}
-	e := &element{path: group + Value, row: row, w: ww}
+	e := &element{path: group + Value, row: row, w: ww, scaled: typ == h5.Float64 && fl.ScaleOffsetFloat}
 	if w.step == nil && w.spec.Clock != nil && !w.spec.ForReaders {
 		c := w.spec.Clock
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64})
@@ -422,6 +462,7 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		}
 		w.step = &element{path: group + Step, row: 1}
 		w.time = &element{path: group + Time, row: 1}
+		w.clockGroup = group
 	} else if w.step == nil {
 		sw, err := w.f.CreateDataset(group+Step, h5.DatasetSpec{Type: h5.Int64, Dims: []int{0}, MaxDims: []int{h5.Unlimited}, Chunk: []int{max(w.chunk, 1024)},
 			Filters: h5.Filters{ScaleOffsetInt: true, Deflate: fl.Deflate, Fletcher32: fl.Fletcher32}})
@@ -436,15 +477,18 @@ func (w *Writer) timeDep(group string, shape []int, typ h5.DType, unit string) *
 		}
 		w.step = &element{path: group + Step, row: 1, w: sw}
 		w.time = &element{path: group + Time, row: 1, w: tw}
+		w.clockGroup = group
 	} else {
-		w.do(w.f.HardLink(Particle(pgroup, Position)+Step, group+Step))
-		w.do(w.f.HardLink(Particle(pgroup, Position)+Time, group+Time))
+		w.do(w.f.HardLink(w.clockGroup+Step, group+Step))
+		w.do(w.f.HardLink(w.clockGroup+Time, group+Time))
 	}
 	w.elems = append(w.elems, e)
 	return e
 }
 
-func (w *Writer) layout() {
+// atoms writes the particle group's time-independent part: box,
+// species and masses.
+func (w *Writer) atoms() {
 	s, n := w.spec, w.n
 	d := len(s.Boundary)
 	w.do(w.f.CreateGroup(Particle(pgroup, Box)))
@@ -460,6 +504,13 @@ func (w *Writer) layout() {
 	}
 	w.fixed(Particle(pgroup, Species), sp, []int{n}, "", h5.Int32)
 	w.fixed(Particle(pgroup, Mass), scaled(s.Masses, w.factor(func(u Units) string { return u.Mass })), []int{n}, s.Units.Mass, h5.Float64)
+}
+
+func (w *Writer) layout() {
+	s, n := w.spec, w.n
+	if !s.ObservablesOnly {
+		w.atoms()
+	}
 
 	// add creates an element whose numbers get returns in the given
 	// units; sel picks its unit (nil: dimensionless or integer).
@@ -502,12 +553,26 @@ func (w *Writer) layout() {
 			return v, nil
 		}
 	}
-	add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
+	if !s.ObservablesOnly {
+		add(Particle(pgroup, Position), []int{n, 3}, h5.Float64, uLength, vec("position", func(f *Frame) []float64 { return f.Position }))
+	}
 	if s.Velocity {
 		add(Particle(pgroup, Velocity), []int{n, 3}, h5.Float64, uVelocity, vec("velocity", func(f *Frame) []float64 { return f.Velocity }))
 	}
 	if s.Force {
 		add(Particle(pgroup, Force), []int{n, 3}, h5.Float64, uForce, vec("force", func(f *Frame) []float64 { return f.Force }))
+	}
+	for i, x := range s.Extras {
+		if why := ExtraNameProblem(x.Name); why != "" || x.Width < 1 {
+			w.do(fmt.Errorf("trajfile: extra element %q (width %d): %s", x.Name, x.Width, why))
+			return
+		}
+		add(Particle(pgroup, x.Name), []int{n, x.Width}, h5.Float64, nil, func(f *Frame) ([]float64, error) {
+			if i >= len(f.Extras) || len(f.Extras[i]) != n*x.Width {
+				return nil, fmt.Errorf("per-atom column %s missing or not %d x %d values (every frame needs it, with the same width)", x.Name, n, x.Width)
+			}
+			return f.Extras[i], nil
+		})
 	}
 	if s.Kinetic {
 		add(KineticEnergy, nil, h5.Float64, uEnergy, scalar(func(f *Frame) float64 { return f.Kinetic }))
@@ -572,7 +637,19 @@ func (w *Writer) WriteFrame(fr *Frame) error {
 			w.err = fmt.Errorf("frame %d (step %d): %w", w.frames, fr.Step, err)
 			return w.err
 		}
-		w.elems[i].buf = append(w.elems[i].buf, v...)
+		e := w.elems[i]
+		if e.scaled {
+			for j, x := range v {
+				if x == 0 && math.Signbit(x) {
+					if len(e.negZeros) == MaxNegativeZeros {
+						w.err = fmt.Errorf("frame %d (step %d): %s: more than %d negative zeros; store it as float64 (convert does so when scan counts them)", w.frames, fr.Step, e.path, MaxNegativeZeros)
+						return w.err
+					}
+					e.negZeros = append(e.negZeros, int64(w.frames)*int64(e.row)+int64(j))
+				}
+			}
+		}
+		e.buf = append(e.buf, v...)
 	}
 	w.step.ibuf = append(w.step.ibuf, fr.Step)
 	w.time.buf = append(w.time.buf, fr.Time*w.tf)
@@ -680,6 +757,11 @@ func (w *Writer) Close() error {
 		w.flush()
 		if w.spec.Hops {
 			w.writeHops()
+		}
+		for _, e := range w.elems {
+			if len(e.negZeros) > 0 {
+				w.do(w.f.SetInt64s(e.path, NegativeZerosAttr, e.negZeros, false))
+			}
 		}
 	}
 	for _, e := range append(w.elems, w.step, w.time) {
