@@ -166,7 +166,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 		f := frameOf(h.Step)
 		if f <= 0 || f >= T || h.From < 0 || h.From >= S || h.To < 0 || h.To >= S {
 			undecidable++
-			why["not stored"]++
+			why["not_stored"]++
 			continue
 		}
 		gap, between := math.NaN(), a.r.Steps[f] != h.Step
@@ -177,20 +177,20 @@ func (a *auditor) hops(*derived) (Check, string) {
 			switch {
 			case math.IsNaN(gap):
 				undecidable++
-				why["no state energies"]++
+				why["no_state_energies"]++
 			case gap <= 0:
 				badFr++
 				bad = append(bad, h.Step)
 			default:
 				undecidable++ // needs the coupling vector
-				why["frustrated uphill"]++
+				why["frustrated_uphill"]++
 			}
 			continue
 		}
 		tol := tolAt(f)
 		if math.IsNaN(tol) {
 			undecidable++
-			why["no ordinary frames near"]++
+			why["no_ordinary_frames"]++
 			continue
 		}
 		change := a.etot[f] - a.etot[f-1]
@@ -208,7 +208,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 				inGroups += n
 			} else {
 				undecidable += n
-				why["several between two frames"] += n
+				why["several_in_one_interval"] += n
 			}
 			continue
 		}
@@ -220,7 +220,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			switch {
 			case g <= tol:
 				undecidable++
-				why["gap below the tolerance"]++
+				why["gap_below_tolerance"]++
 			case change*gap > 0 && math.Abs(change) > tol && math.Abs(change) > hopSeamFraction*g:
 				bad = append(bad, h.Step)
 				worstRatio = math.Max(worstRatio, math.Abs(change)/tol)
@@ -229,7 +229,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 				}
 			case math.Abs(change) > tol:
 				undecidable++ // beyond the ordinary, below the gap
-				why["change below the gap"]++
+				why["change_below_gap"]++
 			}
 			continue
 		}
@@ -242,7 +242,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			}
 		case !math.IsNaN(gap) && math.Abs(gap) <= tol:
 			undecidable++ // a missing rescaling would not stand out
-			why["gap below the tolerance"]++
+			why["gap_below_tolerance"]++
 		}
 	}
 	a.res.HopsAccepted, a.res.HopsFrustrated = accepted, frustrated
@@ -267,7 +267,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 	}
 	reasons := make([]string, 0, len(why))
 	for r, n := range why {
-		vals["undecidable_"+strings.ReplaceAll(r, " ", "_")] = float64(n)
+		vals["undecidable_"+r] = float64(n)
 		reasons = append(reasons, r)
 	}
 	sort.Strings(reasons)
@@ -279,7 +279,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			if i > 0 {
 				b.WriteString(", ")
 			}
-			fmt.Fprintf(&b, "%s %d", r, why[r])
+			fmt.Fprintf(&b, "%d %s", why[r], undecidableWhy[r])
 		}
 		tail = fmt.Sprintf("; %d hops cannot be judged (%s)", undecidable, b.String())
 	}
@@ -309,6 +309,18 @@ func (a *auditor) hops(*derived) (Check, string) {
 		v = Unknown
 	}
 	return result(v, vals, "%s; every hop judged keeps the total energy and no frustrated hop was downhill%s", head, tail), path
+}
+
+// undecidableWhy words each reason a hop cannot be judged, by the key of
+// its count in the check's values (undecidable_KEY).
+var undecidableWhy = map[string]string{
+	"not_stored":              "outside the stored frames or naming no stored state",
+	"no_state_energies":       "frustrated without state energies",
+	"frustrated_uphill":       "frustrated uphill (needs the coupling vector)",
+	"no_ordinary_frames":      "without ordinary frames near",
+	"several_in_one_interval": "sharing a stored interval, net change within the limits",
+	"gap_below_tolerance":     "with a gap below the tolerance",
+	"change_below_gap":        "beyond the ordinary but below half the smallest gap",
 }
 
 // groupList prints the first hopSteps groups of steps as "a+b" and how
