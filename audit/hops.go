@@ -63,10 +63,17 @@ const hopSteps = 5
 // the hopWindow frames on either side that carry no hop and no change of
 // the active state, so the hops never inflate their own tolerance; where
 // the state energies are stored the change must also exceed
-// hopGapFraction of the hop's own gap. A hop whose gap is below its
-// tolerance could not show a missing rescaling and is counted as
-// undecidable, as is one whose frames are not stored or that shares its
-// stored frame interval with another accepted hop.
+// hopGapFraction of the hop's own gap; for a hop between stored frames,
+// whose own gap is unknown, hopSeamFraction of the smallest gap of its
+// two states over the run, with the sign of the gap. A hop whose gap is
+// below its tolerance could not show a missing rescaling and is counted
+// as undecidable, as is one outside the stored frames. Accepted hops
+// sharing one stored interval are judged together by their net change
+// (which has no known sign: an unrescaled hop up and one down cancel in
+// part): beyond both limits, at least one of them broke the energy and
+// the interval fails with its steps listed together; within them, they
+// are undecidable. Each reason for undecidable is counted
+// (undecidableWhy).
 //
 // A frustrated hop must have been energetically forbidden: a downhill one
 // (V_to <= V_from) never is. Whether an uphill one had enough kinetic
@@ -281,7 +288,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			}
 			fmt.Fprintf(&b, "%d %s", why[r], undecidableWhy[r])
 		}
-		tail = fmt.Sprintf("; %d hops cannot be judged (%s)", undecidable, b.String())
+		tail = fmt.Sprintf("; %d hops cannot be judged: %s", undecidable, b.String())
 	}
 	if len(bad) > 0 || len(groups) > 0 {
 		msg := head
