@@ -100,6 +100,9 @@ type Check struct {
 	// Steps are the integration steps the verdict points at (e.g. hops
 	// that change the total energy), in increasing order.
 	Steps []int64 `json:"steps,omitempty"`
+	// Bounds are quantities the data bound from above only (the true
+	// value lies below); such a quantity is never also in Values.
+	Bounds Values `json:"upper_bounds,omitempty"`
 
 	path string // HDF5 path of the quantity judged, for the finding
 }

@@ -29,18 +29,24 @@ const hopTolFactor = 3
 // unseen in exchange.
 const hopGapFraction = 0.5
 
-// hopGapFractionBetween replaces hopGapFraction for a hop whose own step
-// is not stored (frames kept every k-th step): its gap is known only at
-// the stored frames around it, and hops sit near the seam where the gap
-// is smallest, so the smaller of the two stored gaps can be several times
-// the hop's own (3-8 times on the demo model at 10-step storage). There
-// an accepted hop violates the bookkeeping when its change has the sign
-// of the gap and exceeds this fraction of the smaller stored gap.
-// Measured on the demo model (hop-rich, 10- and 20-step storage,
-// 1072 rescaled and 461 unrescaled hops): rescaled hops change E_tot by
-// at most 0.083 of that gap, unrescaled ones alone in their interval by
-// at least 0.22 of it.
-const hopGapFractionBetween = 0.15
+// hopSeamFraction replaces hopGapFraction for a hop whose own step is not
+// stored (frames kept every k-th step): its own gap is unknown, and hops
+// sit near the seam where the gap is smallest, so the stored frames
+// around it can show gaps many times its own (3-30 times on the demo
+// model at 10- and 20-step storage). The scale used instead is the
+// smallest gap between the hop's two states over all stored frames of
+// the run (pairSeam): the hop's own gap is at least the seam gap, and a
+// run that passes the seam often stores frames near it. An accepted hop
+// then violates the bookkeeping when its change has the sign of the gap,
+// exceeds the tolerance and exceeds this fraction of that smallest gap.
+// Measured on the demo model (8 seeds, 20000 steps, coupling scales
+// 0.1, 0.3 and 1, 10- and 20-step storage; 6452 rescaled hops and 2262
+// unrescaled ones alone in their interval): rescaled hops change E_tot by
+// at most 0.19 of that gap, unrescaled ones by at least 0.72 of it.
+// Half lies between, as hopGapFraction does for a hop's own gap. It
+// assumes the stored frames sample the seam; where they never come near
+// it, the smallest stored gap overstates the seam and hops go undecided.
+const hopSeamFraction = 0.5
 
 // hopSteps lists at most this many steps in a summary line.
 const hopSteps = 5
@@ -57,10 +63,17 @@ const hopSteps = 5
 // the hopWindow frames on either side that carry no hop and no change of
 // the active state, so the hops never inflate their own tolerance; where
 // the state energies are stored the change must also exceed
-// hopGapFraction of the hop's own gap. A hop whose gap is below its
-// tolerance could not show a missing rescaling and is counted as
-// undecidable, as is one whose frames are not stored or that shares its
-// stored frame interval with another accepted hop.
+// hopGapFraction of the hop's own gap; for a hop between stored frames,
+// whose own gap is unknown, hopSeamFraction of the smallest gap of its
+// two states over the run, with the sign of the gap. A hop whose gap is
+// below its tolerance could not show a missing rescaling and is counted
+// as undecidable, as is one outside the stored frames. Accepted hops
+// sharing one stored interval are judged together by their net change
+// (which has no known sign: an unrescaled hop up and one down cancel in
+// part): beyond both limits, at least one of them broke the energy and
+// the interval fails with its steps listed together; within them, they
+// are undecidable. Each reason for undecidable is counted
+// (undecidableWhy).
 //
 // A frustrated hop must have been energetically forbidden: a downhill one
 // (V_to <= V_from) never is. Whether an uphill one had enough kinetic
@@ -99,11 +112,12 @@ func (a *auditor) hops(*derived) (Check, string) {
 		}
 	}
 	// Accepted hops sharing one stored frame interval cannot be told
-	// apart: an unrescaled hop up and one back down cancel.
-	perFrame := map[int]int{}
+	// apart: an unrescaled hop up and one back down may cancel. Their net
+	// change is judged once for the interval.
+	perFrame := map[int][]int64{}
 	for _, h := range hops {
-		if !h.Frustrated {
-			perFrame[frameOf(h.Step)]++
+		if f := frameOf(h.Step); !h.Frustrated && f > 0 && f < T {
+			perFrame[f] = append(perFrame[f], h.Step)
 		}
 	}
 	tolAt := func(f int) float64 {
@@ -120,11 +134,36 @@ func (a *auditor) hops(*derived) (Check, string) {
 		// Rounding of the stored energies: a few units in the last place.
 		return math.Max(hopTolFactor*worst, 8*math.Abs(a.etot[f])*0x1p-52)
 	}
+	seam := map[[2]int]float64{}
+	pairSeam := func(i, j int) float64 {
+		if se == nil {
+			return math.NaN()
+		}
+		k := [2]int{min(i, j), max(i, j)}
+		if g, ok := seam[k]; ok {
+			return g
+		}
+		g := math.Inf(1)
+		for f := 0; f < T; f++ {
+			if d := math.Abs(se[f*S+j] - se[f*S+i]); !math.IsNaN(d) {
+				g = math.Min(g, d)
+			}
+		}
+		seam[k] = g
+		return g
+	}
 	var (
 		accepted, frustrated, badFr, undecidable, matchGap int
 		bad                                                []int64
 		worstRatio                                         float64
+		// Intervals holding several accepted hops whose net change is
+		// beyond both the ordinary and half the smallest gap: at least
+		// one of their hops did not keep the energy.
+		groups   [][]int64
+		inGroups int
+		why      = map[string]int{}
 	)
+	judged := map[int]bool{}
 	for _, h := range hops {
 		if h.Frustrated {
 			frustrated++
@@ -134,40 +173,75 @@ func (a *auditor) hops(*derived) (Check, string) {
 		f := frameOf(h.Step)
 		if f <= 0 || f >= T || h.From < 0 || h.From >= S || h.To < 0 || h.To >= S {
 			undecidable++
+			why["not_stored"]++
 			continue
 		}
-		gap, frac, between := math.NaN(), hopGapFraction, a.r.Steps[f] != h.Step
+		gap, between := math.NaN(), a.r.Steps[f] != h.Step
 		if se != nil {
 			gap = se[f*S+h.To] - se[f*S+h.From]
-			if between {
-				frac = hopGapFractionBetween
-				// The hop's own step is not stored: its gap lies near
-				// those of the frames around it; take the smaller.
-				if g := se[(f-1)*S+h.To] - se[(f-1)*S+h.From]; math.Abs(g) < math.Abs(gap) {
-					gap = g
-				}
-			}
 		}
 		if h.Frustrated {
 			switch {
 			case math.IsNaN(gap):
 				undecidable++
+				why["no_state_energies"]++
 			case gap <= 0:
 				badFr++
 				bad = append(bad, h.Step)
 			default:
 				undecidable++ // needs the coupling vector
+				why["frustrated_uphill"]++
 			}
 			continue
 		}
 		tol := tolAt(f)
-		if math.IsNaN(tol) || perFrame[f] > 1 {
+		if math.IsNaN(tol) {
 			undecidable++
+			why["no_ordinary_frames"]++
 			continue
 		}
 		change := a.etot[f] - a.etot[f-1]
+		if n := len(perFrame[f]); n > 1 {
+			if judged[f] {
+				continue // counted with the first hop of the interval
+			}
+			judged[f] = true
+			// The net change of several hops has no known sign; the
+			// smallest gap they could each have changed E_tot by is
+			// the seam of their pair.
+			g := pairSeam(h.From, h.To)
+			if math.Abs(change) > tol && math.Abs(change) > hopSeamFraction*g {
+				groups = append(groups, perFrame[f])
+				inGroups += n
+			} else {
+				undecidable += n
+				why["several_in_one_interval"] += n
+			}
+			continue
+		}
+		if between && se != nil {
+			// The hop's own step is not stored: judge against the
+			// smallest gap of its two states (hopSeamFraction), with
+			// the sign of the gap at the frames around it.
+			g := pairSeam(h.From, h.To)
+			switch {
+			case g <= tol:
+				undecidable++
+				why["gap_below_tolerance"]++
+			case change*gap > 0 && math.Abs(change) > tol && math.Abs(change) > hopSeamFraction*g:
+				bad = append(bad, h.Step)
+				worstRatio = math.Max(worstRatio, math.Abs(change)/tol)
+				if math.Abs(change) >= g-tol {
+					matchGap++ // at least the seam gap: a whole gap
+				}
+			case math.Abs(change) > tol:
+				undecidable++ // beyond the ordinary, below the gap
+				why["change_below_gap"]++
+			}
+			continue
+		}
 		switch {
-		case math.Abs(change) > tol && (math.IsNaN(gap) || math.Abs(change) > frac*math.Abs(gap) && (!between || change*gap > 0)):
+		case math.Abs(change) > tol && (math.IsNaN(gap) || math.Abs(change) > hopGapFraction*math.Abs(gap)):
 			bad = append(bad, h.Step)
 			worstRatio = math.Max(worstRatio, math.Abs(change)/tol)
 			if !math.IsNaN(gap) && math.Abs(change-gap) <= math.Max(tol, 0.1*math.Abs(gap)) {
@@ -175,8 +249,7 @@ func (a *auditor) hops(*derived) (Check, string) {
 			}
 		case !math.IsNaN(gap) && math.Abs(gap) <= tol:
 			undecidable++ // a missing rescaling would not stand out
-		case math.Abs(change) > tol && between:
-			undecidable++ // beyond the ordinary, below a gap only estimated
+			why["gap_below_tolerance"]++
 		}
 	}
 	a.res.HopsAccepted, a.res.HopsFrustrated = accepted, frustrated
@@ -195,12 +268,29 @@ func (a *auditor) hops(*derived) (Check, string) {
 	if badAcc > 0 {
 		vals["worst_change_over_tolerance"] = worstRatio
 	}
+	if len(groups) > 0 {
+		vals["intervals_several_hops_violating"] = float64(len(groups))
+		vals["hops_in_violating_intervals"] = float64(inGroups)
+	}
+	reasons := make([]string, 0, len(why))
+	for r, n := range why {
+		vals["undecidable_"+r] = float64(n)
+		reasons = append(reasons, r)
+	}
+	sort.Strings(reasons)
 	head := fmt.Sprintf("%d accepted and %d frustrated hops (%.0f %% frustrated)", accepted, frustrated, 100*frac)
 	tail := ""
 	if undecidable > 0 {
-		tail = fmt.Sprintf("; %d hops cannot be judged (not stored, several between two frames, gap below the tolerance, or frustrated uphill without the coupling vector)", undecidable)
+		var b strings.Builder
+		for i, r := range reasons {
+			if i > 0 {
+				b.WriteString(", ")
+			}
+			fmt.Fprintf(&b, "%d %s", why[r], undecidableWhy[r])
+		}
+		tail = fmt.Sprintf("; %d hops cannot be judged: %s", undecidable, b.String())
 	}
-	if len(bad) > 0 {
+	if len(bad) > 0 || len(groups) > 0 {
 		msg := head
 		if badAcc > 0 {
 			msg += fmt.Sprintf("; %d accepted hops (%.0f %%) change the total energy beyond the ordinary steps around them", badAcc, 100*badFrac)
@@ -211,7 +301,13 @@ func (a *auditor) hops(*derived) (Check, string) {
 		if badFr > 0 {
 			msg += fmt.Sprintf("; %d frustrated hops were downhill", badFr)
 		}
-		c := result(Fail, vals, "%s, at steps %s%s", msg, stepList(bad), tail)
+		if len(bad) > 0 {
+			msg += ", at steps " + stepList(bad)
+		}
+		if len(groups) > 0 {
+			msg += fmt.Sprintf("; in %d stored intervals holding %d hops the net change exceeds the ordinary and half the smallest gap, so at least one hop of each breaks the energy (which one the frames cannot tell: steps %s)", len(groups), inGroups, groupList(groups))
+		}
+		c := result(Fail, vals, "%s%s", msg, tail)
 		c.Steps = bad
 		return c, path
 	}
@@ -220,6 +316,40 @@ func (a *auditor) hops(*derived) (Check, string) {
 		v = Unknown
 	}
 	return result(v, vals, "%s; every hop judged keeps the total energy and no frustrated hop was downhill%s", head, tail), path
+}
+
+// undecidableWhy words each reason a hop cannot be judged, by the key of
+// its count in the check's values (undecidable_KEY).
+var undecidableWhy = map[string]string{
+	"not_stored":              "outside the stored frames or naming no stored state",
+	"no_state_energies":       "frustrated without state energies",
+	"frustrated_uphill":       "frustrated uphill (needs the coupling vector)",
+	"no_ordinary_frames":      "without ordinary frames near",
+	"several_in_one_interval": "sharing a stored interval, net change within the limits",
+	"gap_below_tolerance":     "with a gap below the tolerance",
+	"change_below_gap":        "beyond the ordinary but below half the smallest gap",
+}
+
+// groupList prints the first hopSteps groups of steps as "a+b" and how
+// many more.
+func groupList(g [][]int64) string {
+	var b strings.Builder
+	for i, x := range g {
+		if i == hopSteps {
+			fmt.Fprintf(&b, " and %d more", len(g)-hopSteps)
+			break
+		}
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		for j, s := range x {
+			if j > 0 {
+				b.WriteString("+")
+			}
+			fmt.Fprint(&b, s)
+		}
+	}
+	return b.String()
 }
 
 // stepFrames returns a function from an integration step to the first

@@ -120,7 +120,7 @@ var checks = []Spec{
 		Name: "hops", Code: "A6", Quantity: "hops",
 		Doc: "Energy bookkeeping per hop: an accepted hop with velocity rescaling keeps K + V, one without changes E_tot by the gap V_to - V_from; each hop's change is judged against the ordinary steps around it (never a level the hops themselves raise) and against its own gap; a frustrated hop must not be downhill (derived; J. Chem. Phys. 93, 1061 (1990), doi:10.1063/1.459170); see auditor.hops.",
 		Rule: func(Settings) string {
-			return fmt.Sprintf("fail when an accepted hop changes the total energy by more than %d times the largest change of the %d ordinary frames on either side and by more than %g of its own gap (a hop between stored frames: in the gap's direction and by more than %g of the smaller gap of those frames), or a frustrated hop was downhill; a hop whose gap is below its tolerance cannot be judged", hopTolFactor, hopWindow, hopGapFraction, hopGapFractionBetween)
+			return fmt.Sprintf("fail when an accepted hop changes the total energy by more than %d times the largest change of the %d ordinary frames on either side and by more than %g of its own gap (a hop between stored frames: in the gap's direction and by more than %g of the smallest gap of its two states over the stored frames), or a frustrated hop was downhill; several hops between the same two frames fail together when their net change exceeds both limits, else cannot be judged, as a hop whose gap is below its tolerance", hopTolFactor, hopWindow, hopGapFraction, hopSeamFraction)
 		},
 		file: (*auditor).hops,
 	},

@@ -146,3 +146,64 @@ func TestAuditNotRunNeverOK(t *testing.T) {
 		}
 	}
 }
+
+// TestAuditBoundShownAsBound: force noise the data cannot resolve (1e-6
+// hartree/bohr on a hop-rich run at 0.2 fs steps, where the noise-free
+// run is bounded only at some 2e-6; see audit.TestForceNoiseBelowFloor)
+// is an upper bound everywhere: JSON carries it in upper_bounds and
+// never as a value, the finding and the HTML report say "an upper bound
+// and not a value", and no output prints "sigma_F =".
+func TestAuditBoundShownAsBound(t *testing.T) {
+	dir := t.TempDir()
+	p := filepath.Join(dir, "quiet.h5")
+	o := demo.DefaultOptions
+	o.Seed, o.Steps, o.DtFs = 2, 10000, 0.2
+	o.Faults = demo.Faults{CouplingScale: 0.3, ForceNoise: 1e-6}
+	if err := demo.WriteH5(p, o); err != nil {
+		t.Fatal(err)
+	}
+	_, out, errs := runCLI("audit", "--json", "--no-fail", p)
+	var doc struct {
+		Trajectories []struct {
+			Checks []struct {
+				Check, Summary string
+				Values         map[string]*float64
+				Bounds         map[string]*float64 `json:"upper_bounds"`
+			}
+		}
+	}
+	readEnvelope(t, out, &doc)
+	found := false
+	for _, c := range doc.Trajectories[0].Checks {
+		if c.Check != "force-noise" {
+			continue
+		}
+		found = true
+		if b := c.Bounds["sigma_F_hartree_per_bohr"]; b == nil || *b < 1e-6 {
+			t.Errorf("JSON upper_bounds lacks sigma_F at or above 1e-6: %v", c.Bounds)
+		}
+		if _, ok := c.Values["sigma_F_hartree_per_bohr"]; ok {
+			t.Errorf("JSON gives sigma_F as a value as well: %v", c.Values)
+		}
+		if !strings.Contains(c.Summary, "an upper bound and not a value") {
+			t.Errorf("summary does not say it is a bound: %s", c.Summary)
+		}
+	}
+	if !found {
+		t.Fatalf("no force-noise check in\n%s%s", out, errs)
+	}
+	if !strings.Contains(out, "force-noise: pass: sigma_F below") {
+		t.Errorf("no finding states the bound:\n%s", out)
+	}
+	rep := filepath.Join(dir, "r.html")
+	if code, txt, errs := runCLI("audit", "--no-fail", "--report", rep, p); code != 0 || strings.Contains(txt, "sigma_F =") {
+		t.Fatalf("report: exit %d %s%s", code, txt, errs)
+	}
+	b, err := os.ReadFile(rep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(b), "an upper bound and not a value") || strings.Contains(string(b), "sigma_F =") {
+		t.Errorf("HTML report does not show the force noise as a bound")
+	}
+}
