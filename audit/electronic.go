@@ -172,7 +172,7 @@ func (a *auditor) hopProbability(*derived) (Check, string) {
 }
 
 // hopInputs reads the amplitudes and couplings for hop-probability
-// alone; they are dropped when it ends (4 S^2 + 2 S values per frame
+// alone; they are dropped when it ends (S^2 + 2 S values per frame
 // that no other check needs). Unreadable couplings cost only
 // hop-probability, which says why.
 func (a *auditor) hopInputs() (amp, cpl []float64, ampErr, cplErr error) {
