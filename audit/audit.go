@@ -190,7 +190,14 @@ type Result struct {
 	Times     []float64   `json:"-"` // fs
 	EnergyDev []float64   `json:"-"` // eV, E(t) - E(0)
 	Active    []int64     `json:"-"`
-	Pops      [][]float64 `json:"-"` // per frame, |c_k|^2
+	Pops      [][]float64 `json:"-"` // per frame, |c_k|^2 (a Result built by hand)
+	// pops holds |c_k|^2 of a file's frames in one series, states per
+	// frame (File fills it instead of Pops: no slice header per frame).
+	pops   []float64
+	states int
+	// devTimes are the times (fs) of EnergyDev when File thinned it
+	// already (fold then keeps them in place of Times).
+	devTimes []float64
 	// Hop attempts in the hop log, for the ensemble's consistency check.
 	HopsAccepted, HopsFrustrated int `json:"-"`
 }
@@ -242,7 +249,11 @@ type auditor struct {
 	s   Settings
 	res *Result
 
-	etot, kin []float64 // hartree per frame
+	etot      []float64 // hartree per frame
+	kin       []float64 // hartree per frame, while scanFrames forms it
+	kinMean   float64   // <K>, hartree (0: unknown); no series is kept
+	kinStored bool      // K is stored (else formed from velocities)
+	dtFrame   float64   // frameInterval, once computed (0: not yet)
 	sumV2     float64   // <sum |v|^2>, au
 	v2        []float64 // sum |v|^2 per frame, au
 	hasVel    bool
@@ -254,12 +265,12 @@ type auditor struct {
 	mom    *momentumTracker
 	zpe    *zpeTracker
 
-	// Electronic data (loadElectronic).
-	pops, amps []float64 // per frame x state; amps as re, im pairs
-	cpl        []float64 // couplings, au_time-1
-	cplErr     error     // why stored couplings could not be read
-	se         []float64 // state energies per frame x state, hartree
-	seErr      error     // why stored state energies could not be read
+	// Electronic data (loadElectronic); amplitudes and couplings are
+	// read by hop-probability alone (hopInputs).
+	pops    []float64 // |c_k|^2 per frame x state
+	hasAmps bool      // pops came from stored amplitudes
+	se      []float64 // state energies per frame x state, hartree
+	seErr   error     // why stored state energies could not be read
 }
 
 // safeRun is run with a panic turned into an error, so that data no
@@ -318,7 +329,8 @@ func (a *auditor) loadEnergy() error {
 		if err != nil {
 			return err
 		}
-		a.kin = k
+		// Only <K> is used (the energy check's oscillation scale).
+		a.kinMean, a.kinStored = mean(k), true
 	}
 	switch {
 	case r.Has(trajfile.TotalEnergy):
@@ -348,7 +360,7 @@ func (a *auditor) scanFrames() error {
 	// Without masses (optional in H5MD) nothing weighted by mass is
 	// formed; the checks that need it say so (runCheck).
 	massOK, speciesOK := r.Masses != nil, r.Species != nil
-	needKin := a.kin == nil && a.hasVel && massOK
+	needKin := !a.kinStored && a.hasVel && massOK
 	if a.kineticFromAtoms() && (!massOK || len(r.Groups()) > 1) {
 		// V alone, or V plus one group's K, is not a total energy.
 		a.etot, needKin = nil, false
@@ -367,23 +379,26 @@ func (a *auditor) scanFrames() error {
 	if h := a.frameInterval(); massOK && a.hasVel && a.hasForce && h > 0 && math.Abs(h-a.integrationStep()) <= 0.01*h {
 		shadow = newShadowTracker(h, r.T, r.Masses)
 	}
+	var acc []float64     // accelerations of one frame, reused
+	var x, v, f []float64 // one block of frames, reused
 	for start := 0; start < r.T; start += frameBlock {
 		if err := a.ctx.Err(); err != nil {
 			return err
 		}
 		n := min(frameBlock, r.T-start)
-		x, err := r.Frames(r.Particle(trajfile.Position), "bohr", start, n)
-		if err != nil {
+		// One buffer per quantity for the whole pass: no garbage per
+		// block, so the heap stays near what the checks keep.
+		var err error
+		if x, err = r.FramesInto(r.Particle(trajfile.Position), "bohr", start, n, x); err != nil {
 			return err
 		}
-		var v, f []float64
 		if a.hasVel {
-			if v, err = r.Frames(r.Particle(trajfile.Velocity), "bohr au_time-1", start, n); err != nil {
+			if v, err = r.FramesInto(r.Particle(trajfile.Velocity), "bohr au_time-1", start, n, v); err != nil {
 				return err
 			}
 		}
 		if a.hasForce {
-			if f, err = r.Frames(r.Particle(trajfile.Force), "hartree bohr-1", start, n); err != nil {
+			if f, err = r.FramesInto(r.Particle(trajfile.Force), "hartree bohr-1", start, n, f); err != nil {
 				return err
 			}
 		}
@@ -403,7 +418,10 @@ func (a *auditor) scanFrames() error {
 			}
 			if a.hasForce && tau != nil {
 				fs := f[t*3*r.N : (t+1)*3*r.N]
-				acc := make([]float64, len(fs))
+				if cap(acc) < len(fs) {
+					acc = make([]float64, len(fs))
+				}
+				acc = acc[:len(fs)]
 				for i := range fs {
 					acc[i] = fs[i] / r.Masses[i/3]
 				}
@@ -442,6 +460,12 @@ func (a *auditor) scanFrames() error {
 			a.etot[i] += a.kin[i]
 		}
 	}
+	// Only <K> is needed from here on (the energy check's oscillation
+	// scale): the series goes.
+	if a.kin != nil {
+		a.kinMean = mean(a.kin)
+	}
+	a.kin = nil
 	if a.hasVel {
 		a.sumV2 = sumV2 / float64(r.T)
 	}
@@ -450,8 +474,15 @@ func (a *auditor) scanFrames() error {
 }
 
 // frameInterval is the time between stored frames (au_time), the median
-// of the differences.
+// of the differences; computed once (several checks ask).
 func (a *auditor) frameInterval() float64 {
+	if a.dtFrame == 0 {
+		a.dtFrame = a.medianInterval()
+	}
+	return a.dtFrame
+}
+
+func (a *auditor) medianInterval() float64 {
 	t := a.r.Times
 	if len(t) < 2 {
 		return 0
@@ -490,13 +521,10 @@ func (a *auditor) energy(*derived) (Check, string) {
 	if a.etot == nil {
 		return result(NA, nil, "no total or potential energy stored"), a.energyPath()
 	}
-	st := energyStats(a.r.Times, a.etot, a.kin)
+	st := energyStats(a.r.Times, a.etot, a.kinMean)
 	dev := st.MaxDeviation * hartreeEV
 	jump := st.MaxJump * hartreeEV
-	a.res.EnergyDev = make([]float64, len(a.etot))
-	for i, e := range a.etot {
-		a.res.EnergyDev[i] = (e - a.etot[0]) * hartreeEV
-	}
+	a.res.EnergyDev, a.res.devTimes = a.energyDeviation()
 	ps := 1000 / auFs // au_time per ps
 	vals := map[string]float64{
 		"max_deviation_eV": dev, "max_jump_eV": jump, "jump_frame": float64(st.JumpFrame),
@@ -512,6 +540,28 @@ func (a *auditor) energy(*derived) (Check, string) {
 	}
 	return result(v, vals, "total energy moves at most %.3g eV from its start, largest step jump %.3g eV (frame %d), drift %.3g eV/ps",
 		dev, jump, st.JumpFrame, vals["drift_eV_per_ps"]), a.energyPath()
+}
+
+// energyDeviation is E(t) - E(0) in eV for the report's plot, thinned
+// to energyPoints as popSums.fold thins a full series (the same frames),
+// with the times of those frames (fs; nil when not thinned, the times
+// being Result.Times): a run's full series is never held.
+func (a *auditor) energyDeviation() (dev, times []float64) {
+	n := len(a.etot)
+	if n <= energyPoints {
+		dev = make([]float64, n)
+		for i, e := range a.etot {
+			dev[i] = (e - a.etot[0]) * hartreeEV
+		}
+		return dev, nil
+	}
+	step := float64(n-1) / float64(energyPoints-1)
+	dev, times = make([]float64, energyPoints), make([]float64, energyPoints)
+	for i := range dev {
+		j := int(math.Round(float64(i) * step))
+		dev[i], times[i] = (a.etot[j]-a.etot[0])*hartreeEV, a.res.Times[j]
+	}
+	return dev, times
 }
 
 // timeStep compares the integration step with the shortest period T of

@@ -17,12 +17,17 @@ func (a *auditor) loadElectronic() error {
 	}
 	var err error
 	if r.Has(trajfile.Amplitudes) {
-		if a.amps, _, err = r.Values(trajfile.Amplitudes, ""); err != nil {
+		// The amplitudes (2 S values per frame) are read again by
+		// hop-probability, the one check that needs them: only |c_k|^2
+		// stays while the other checks run.
+		amps, _, err := r.Values(trajfile.Amplitudes, "")
+		if err != nil {
 			return err
 		}
-		a.pops = make([]float64, len(a.amps)/2)
+		a.hasAmps = amps != nil
+		a.pops = make([]float64, len(amps)/2)
 		for i := range a.pops {
-			re, im := a.amps[2*i], a.amps[2*i+1]
+			re, im := amps[2*i], amps[2*i+1]
 			a.pops[i] = re*re + im*im
 		}
 	} else if r.Has(trajfile.Populations) {
@@ -47,10 +52,6 @@ func (a *auditor) loadElectronic() error {
 		if a.seErr == nil && len(a.se) < r.T*r.States {
 			a.se, a.seErr = nil, fmt.Errorf("state energies cover fewer frames than the positions")
 		}
-	}
-	if a.amps != nil && r.Has(trajfile.Couplings) {
-		// Unreadable couplings cost only hop-probability, which says why.
-		a.cpl, _, a.cplErr = r.Values(trajfile.Couplings, "au_time-1")
 	}
 	return nil
 }
@@ -77,10 +78,10 @@ func (a *auditor) populations(*derived) (Check, string) {
 	}
 	p := a.pops
 	worstNorm, worstFrame, outOfRange := 0.0, 0, 0
-	a.res.Pops = make([][]float64, a.r.T)
+	// One flat series for the ensemble (no slice header per frame).
+	a.res.pops, a.res.states = p[:a.r.T*S], S
 	for t := 0; t < a.r.T; t++ {
 		row := p[t*S : (t+1)*S]
-		a.res.Pops[t] = row
 		sum := 0.0
 		for _, x := range row {
 			sum += x
@@ -118,14 +119,17 @@ func (a *auditor) populations(*derived) (Check, string) {
 // the coupling.
 func (a *auditor) hopProbability(*derived) (Check, string) {
 	const path = trajfile.Couplings
-	amp, cpl, S := a.amps, a.cpl, a.r.States
+	S := a.r.States
+	amp, cpl, ampErr, cplErr := a.hopInputs()
 	switch {
 	case S == 0:
 		return result(NA, nil, "no electronic states stored"), path
-	case amp == nil:
+	case !a.hasAmps:
 		return result(NA, nil, "needs complex amplitudes"), path
-	case a.cplErr != nil:
-		return result(NA, nil, "couplings cannot be read: %v", a.cplErr), path
+	case ampErr != nil:
+		return result(NA, nil, "amplitudes cannot be read again: %v", ampErr), path
+	case cplErr != nil:
+		return result(NA, nil, "couplings cannot be read: %v", cplErr), path
 	case cpl == nil:
 		return result(NA, nil, "no time-derivative couplings stored"), path
 	case a.res.Active == nil:
@@ -165,6 +169,24 @@ func (a *auditor) hopProbability(*derived) (Check, string) {
 	}
 	return result(v, map[string]float64{"max_total_probability": worst, "frame": float64(worstFrame)},
 		"recomputed fewest-switches hop probability per step at most %.3g (frame %d); above 1 the step is too large for the coupling", worst, worstFrame), path
+}
+
+// hopInputs reads the amplitudes and couplings for hop-probability
+// alone; they are dropped when it ends (S^2 + 2 S values per frame
+// that no other check needs). Unreadable couplings cost only
+// hop-probability, which says why.
+func (a *auditor) hopInputs() (amp, cpl []float64, ampErr, cplErr error) {
+	r := a.r
+	if r.States == 0 || !a.hasAmps {
+		return nil, nil, nil, nil
+	}
+	if amp, _, ampErr = r.Values(trajfile.Amplitudes, ""); ampErr != nil {
+		return nil, nil, ampErr, nil
+	}
+	if r.Has(trajfile.Couplings) {
+		cpl, _, cplErr = r.Values(trajfile.Couplings, "au_time-1")
+	}
+	return amp, cpl, nil, cplErr
 }
 
 func complexConj(c complex128) complex128 { return complex(real(c), -imag(c)) }

@@ -22,9 +22,9 @@ type EnergyStats struct {
 	PeakToPeak  float64 // hartree, detrended
 }
 
-// energyStats computes EnergyStats; kin is the kinetic energy series
-// (for the oscillation scale), may be nil.
-func energyStats(t, e, kin []float64) EnergyStats {
+// energyStats computes EnergyStats; kinMean is the mean kinetic energy
+// (for the oscillation scale), 0 when unknown.
+func energyStats(t, e []float64, kinMean float64) EnergyStats {
 	var s EnergyStats
 	n := len(e)
 	if n == 0 {
@@ -46,11 +46,8 @@ func energyStats(t, e, kin []float64) EnergyStats {
 		lo, hi = math.Min(lo, r), math.Max(hi, r)
 	}
 	s.PeakToPeak = hi - lo
-	if kin != nil {
-		k := mean(kin)
-		if k > 0 {
-			s.Oscillation = s.PeakToPeak / (2 * k)
-		}
+	if kinMean > 0 {
+		s.Oscillation = s.PeakToPeak / (2 * kinMean)
 	}
 	return s
 }

@@ -64,7 +64,7 @@ func onePerFile(res []*Result) {
 			continue
 		}
 		if g != r.Group {
-			r.Active, r.Pops = nil, nil
+			r.Active, r.Pops, r.pops = nil, nil, nil
 		}
 	}
 }

@@ -19,9 +19,34 @@ import (
 type momentumTracker struct {
 	m          []float64
 	M          float64
-	trans, rot []float64
-	vals       []float64 // eigenvalues of I0
+	trans, rot spreadTracker // only their spread is judged: no series kept
+	vals       []float64     // eigenvalues of I0
 	vecs       *mat.Dense
+}
+
+// spreadTracker keeps max - min of a series as it streams past, with
+// spread's NaN rule (math.Min and math.Max from the first value on), so
+// that a run's memory does not grow with its frames.
+type spreadTracker struct {
+	n      int
+	lo, hi float64
+}
+
+func (s *spreadTracker) add(x float64) {
+	if s.n == 0 {
+		s.lo, s.hi = x, x
+	}
+	s.lo, s.hi = math.Min(s.lo, x), math.Max(s.hi, x)
+	s.n++
+}
+
+// spread is max - min of the values added (0 for none), as spread gives
+// it for the whole series.
+func (s *spreadTracker) spread() float64 {
+	if s.n == 0 {
+		return 0
+	}
+	return s.hi - s.lo
 }
 
 func newMomentumTracker(m []float64) *momentumTracker {
@@ -72,7 +97,7 @@ func (t *momentumTracker) add(x, v []float64) {
 			}
 		}
 	}
-	t.trans = append(t.trans, (P[0]*P[0]+P[1]*P[1]+P[2]*P[2])/(2*t.M))
+	t.trans.add((P[0]*P[0] + P[1]*P[1] + P[2]*P[2]) / (2 * t.M))
 	if t.vecs == nil {
 		var eig mat.EigenSym
 		if !eig.Factorize(I, true) {
@@ -93,18 +118,7 @@ func (t *momentumTracker) add(x, v []float64) {
 		proj := L[0]*t.vecs.At(0, k) + L[1]*t.vecs.At(1, k) + L[2]*t.vecs.At(2, k)
 		erot += proj * proj / (2 * t.vals[k])
 	}
-	t.rot = append(t.rot, erot)
-}
-
-func spread(v []float64) float64 {
-	if len(v) == 0 {
-		return 0
-	}
-	lo, hi := v[0], v[0]
-	for _, x := range v {
-		lo, hi = math.Min(lo, x), math.Max(hi, x)
-	}
-	return hi - lo
+	t.rot.add(erot)
 }
 
 // momentum reports the change of E_trans and E_rot against k_B T.
@@ -114,7 +128,7 @@ func (a *auditor) momentum(*derived) (Check, string) {
 		return result(NA, nil, "needs velocities"), path
 	}
 	kt := kB * a.s.Temperature
-	dT, dR := spread(t.trans), spread(t.rot)
+	dT, dR := t.trans.spread(), t.rot.spread()
 	vals := map[string]float64{"translational_change_eV": dT * hartreeEV, "rotational_change_eV": dR * hartreeEV,
 		"kT_eV": kt * hartreeEV, "translational_over_kT": dT / kt, "rotational_over_kT": dR / kt}
 	v := OK

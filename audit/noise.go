@@ -92,7 +92,7 @@ func (s *shadowTracker) add(v, f []float64) {
 		}
 		s.corr[s.n-1] -= h2 / 12 * vdf
 	}
-	s.prev2, s.prevF = s.prevF, append([]float64(nil), f...)
+	s.prev2, s.prevF = s.prevF, append(s.prev2[:0], f...) // reuses the dropped frame's buffer
 	s.prevV = append(s.prevV[:0], v...)
 	s.n++
 }

@@ -37,8 +37,9 @@ const energyPoints = 500
 // drops the per-frame series the report does not need, keeping the
 // energy deviation thinned to energyPoints for the plot.
 func (p *popSums) fold(r *Result) {
-	if r.Active != nil && r.Pops != nil && len(r.Pops) > 0 {
-		T := min(len(r.Active), len(r.Pops), len(r.Times))
+	S, rows := r.popRows()
+	if r.Active != nil && rows > 0 {
+		T := min(len(r.Active), rows, len(r.Times))
 		p.mu.Lock()
 		p.used++
 		if p.shortT < 0 || T < p.shortT {
@@ -54,7 +55,7 @@ func (p *popSums) fold(r *Result) {
 				p.amp[k] = append(p.amp[k], make([]int64, T-len(p.amp[k]))...)
 			}
 		}
-		for S := len(r.Pops[0]); len(p.inK) < S; {
+		for len(p.inK) < S {
 			p.inK = append(p.inK, make([]int64, len(p.n)))
 			p.amp = append(p.amp, make([]int64, len(p.n)))
 		}
@@ -64,7 +65,7 @@ func (p *popSums) fold(r *Result) {
 			if k := r.Active[t]; k >= 0 && int(k) < len(p.inK) {
 				p.inK[k][t]++
 			}
-			for k, c := range r.Pops[t] {
+			for k, c := range r.popRow(t) {
 				if k < len(p.amp) {
 					p.amp[k][t] += toFixed(c)
 				}
@@ -72,8 +73,10 @@ func (p *popSums) fold(r *Result) {
 		}
 		p.mu.Unlock()
 	}
-	r.Active, r.Pops = nil, nil
-	if n := len(r.EnergyDev); n > energyPoints {
+	r.Active, r.Pops, r.pops = nil, nil, nil
+	if r.devTimes != nil {
+		r.Times, r.devTimes = r.devTimes, nil
+	} else if n := len(r.EnergyDev); n > energyPoints {
 		step := float64(n-1) / float64(energyPoints-1)
 		ts, es := make([]float64, energyPoints), make([]float64, energyPoints)
 		for i := range ts {
@@ -91,4 +94,25 @@ func toFixed(c float64) int64 {
 		return 0 // the populations check fails such a file
 	}
 	return int64(math.Round(math.Max(-fixedMax, math.Min(fixedMax, c)) * fixedOne))
+}
+
+// popRows gives the number of states of the first frame's |c_k|^2 and
+// the number of frames that have them, from the one series File fills
+// or from Pops.
+func (r *Result) popRows() (states, rows int) {
+	if r.pops != nil && r.states > 0 {
+		return r.states, len(r.pops) / r.states
+	}
+	if len(r.Pops) > 0 {
+		return len(r.Pops[0]), len(r.Pops)
+	}
+	return 0, 0
+}
+
+// popRow is frame t's |c_k|^2.
+func (r *Result) popRow(t int) []float64 {
+	if r.pops != nil && r.states > 0 {
+		return r.pops[t*r.states : (t+1)*r.states]
+	}
+	return r.Pops[t]
 }

@@ -38,7 +38,7 @@ func newZPETracker(s Settings, r *trajfile.Reader, x []float64) *zpeTracker {
 		mi, mj := r.Masses[p[0]], r.Masses[p[1]]
 		z.pairs = append(z.pairs, p)
 		z.mu = append(z.mu, mi*mj/(mi+mj))
-		z.kin = append(z.kin, nil)
+		z.kin = append(z.kin, make([]float64, 0, r.T)) // one value per frame
 	}
 	return z
 }

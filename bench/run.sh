@@ -16,7 +16,7 @@ MOLECULES=${MOLECULES:-10}
 DECIMALS=${DECIMALS:-8}
 JOBS=${JOBS:-$(nproc)}
 # PARTS: which measurements to run (default all); e.g. PARTS="main jobs".
-PARTS=${PARTS:-main slices audit fixity jobs ase}
+PARTS=${PARTS:-main slices audit fixity jobs ase memory}
 BIN=bin/trajvault
 . bench/lib.sh
 want() { case " $PARTS " in *" $1 "*) return 0 ;; esac; return 1; }
@@ -142,6 +142,11 @@ if want fixity; then bench/fixity.sh; fi
 # Jobs (bench/jobs.sh): --jobs 1 against worker processes, and peak RSS
 # on a 400-trajectory ensemble; replaces its own section.
 if want jobs; then bench/jobs.sh; fi
+
+# Memory on one long run (bench/memory_long.sh): peak RSS of convert,
+# validate and audit at 1e6 frames, and of validating bags (folder,
+# .tar.zst, .zip) as the trajectory file grows; replaces its own section.
+if want memory; then bench/memory_long.sh; fi
 
 # ASE-style run (bench/ase.sh): momenta printed with 8 decimals, against
 # tar | xz -9 of the text; appends its own section.

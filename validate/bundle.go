@@ -1,7 +1,6 @@
 package validate
 
 import (
-	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -26,9 +25,11 @@ type BundleOptions struct {
 	// (Options.Profile); "" lets each file say.
 	FileProfile Profile
 	Limits      bagit.Limits
-	// MaxImageBytes bounds a trajectory file read into memory from an
-	// archive for its layout check (larger ones are reported, not read).
-	MaxImageBytes int64
+	// MaxMemberBytes bounds a trajectory file of an archive written to
+	// the temporary folder for its layout check (larger ones, and ones
+	// larger than the free space there, are reported as B15, not read);
+	// 0 means Limits.MaxEntryBytes.
+	MaxMemberBytes int64
 	// FixityOnly checks the bag alone (RFC 8493 completeness and
 	// checksums), not the trajectory files nor the metadata: a repository's
 	// periodic sweep at the speed of hashing. Digests limits the
@@ -39,8 +40,9 @@ type BundleOptions struct {
 	// place of Member below: the command runs it in a worker process
 	// of its own, so that a file that crashes the HDF5 library is a
 	// finding of that file and the other files are still checked (issue
-	// 12). Either img holds the file's bytes or, for a file too large to
-	// hold in a folder bag, path names it on disk.
+	// 12). Bundle gives path, the file on disk (in a folder bag, or an
+	// archive member written to a temporary file), and img nil; img is
+	// for callers that hold a file's bytes.
 	Member func(name string, img []byte, path string) []finding.Finding
 }
 
@@ -78,17 +80,19 @@ func IsBundle(path string) bool {
 // profile. Codes: B (bag), V/E/R (trajectory files, located by the file
 // inside the bag and the HDF5 path), M (metadata).
 //
-// Each payload file is read from its source once: the bag checker streams
-// it through every checksum and hands the same bytes to the trajectory
-// check, which opens them in memory. Only a trajectory file larger than
-// MaxImageBytes is handled otherwise: in a folder it is validated in
-// place (a second read), in an archive it is reported (B15).
+// Memory does not grow with the size of a trajectory file (issue 14):
+// the bag checker streams each payload file through every checksum; a
+// trajectory file of a folder bag is then checked in place, one of an
+// archive is written, as it streams past, to a file in a private
+// temporary folder (removed after) and checked from there. An archive
+// member larger than MaxMemberBytes or than the free space there is
+// reported (B15), not written.
 func Bundle(path string, opt BundleOptions) (*Report, error) {
 	if opt.Limits == (bagit.Limits{}) {
 		opt.Limits = bagit.DefaultLimits
 	}
-	if opt.MaxImageBytes == 0 {
-		opt.MaxImageBytes = 2 << 30
+	if opt.MaxMemberBytes == 0 {
+		opt.MaxMemberBytes = opt.Limits.MaxEntryBytes
 	}
 	src, err := bagit.Open(path, opt.Limits)
 	if err != nil {
@@ -108,6 +112,12 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 	// The metadata files are kept as they stream past, so that an archive
 	// is not read again to find them.
 	meta := map[string][]byte{schema.CratePath: nil, schema.DataCitePath: nil}
+	var sp *spool // made at the first trajectory member of an archive
+	defer func() {
+		if sp != nil {
+			sp.Close()
+		}
+	}()
 	onPayload := func(name string, size int64, r io.Reader) error {
 		if _, ok := meta[name]; ok && size <= maxMetadataBytes {
 			b, err := io.ReadAll(io.LimitReader(r, maxMetadataBytes))
@@ -117,24 +127,34 @@ func Bundle(path string, opt BundleOptions) (*Report, error) {
 		if !schema.IsTrajectory(name) {
 			return nil
 		}
-		loc := finding.Location{Path: name}
-		if size > opt.MaxImageBytes {
-			if !dirBag {
-				rep.Findings = append(rep.Findings, finding.Finding{Code: "B15", Severity: finding.Warning, Location: loc, Message: fmt.Sprintf("%d bytes: too large to check in memory (limit %d); unpack the archive and validate the file", size, opt.MaxImageBytes)})
-				return nil
-			}
-			// Too large to hold: validate the file in place, read again.
+		if dirBag {
+			// A file the walk of the bag found (never a path taken from
+			// a manifest), read again by HDF5 in ranges.
 			rep.Findings = append(rep.Findings, member(name, nil, filepath.Join(path, filepath.FromSlash(name)))...)
 			return nil
 		}
-		// The declared size is checked against the limit above and the
-		// read is capped by it, so the buffer is allocated once.
-		var buf bytes.Buffer
-		buf.Grow(int(size))
-		if _, err := buf.ReadFrom(io.LimitReader(r, opt.MaxImageBytes)); err != nil {
+		if sp == nil {
+			s, err := newSpool(opt.MaxMemberBytes)
+			if err != nil {
+				return err
+			}
+			sp = s
+		}
+		tmp, err := sp.write(size, r)
+		if errors.Is(err, errSpoolFull) {
+			rep.Findings = append(rep.Findings, finding.Finding{Code: "B15", Severity: finding.Warning, Location: finding.Location{Path: name},
+				Message: fmt.Sprintf("not checked: %v; unpack the archive where there is room and validate the file", err)})
+			return nil
+		}
+		if err != nil {
 			return err
 		}
-		rep.Findings = append(rep.Findings, member(name, buf.Bytes(), "")...)
+		defer sp.release(tmp)
+		for _, f := range member(name, nil, tmp) {
+			// A message that quotes the temporary file names the member.
+			f.Message = strings.ReplaceAll(f.Message, tmp, name)
+			rep.Findings = append(rep.Findings, f)
+		}
 		return nil
 	}
 	if opt.FixityOnly {

@@ -94,3 +94,104 @@ func TestBundleTrajectoryFindings(t *testing.T) {
 		})
 	}
 }
+
+// archives writes the bag folder dir as a .tar.zst and a .zip.
+func archives(t *testing.T, dir string) []string {
+	t.Helper()
+	var out []string
+	for _, ext := range []string{".tar.zst", ".zip"} {
+		p := filepath.Join(t.TempDir(), "bag"+ext)
+		f, err := os.Create(p)
+		mustDo(t, err)
+		if ext == ".zip" {
+			mustDo(t, bagit.WriteZip(dir, f, time.Unix(0, 0)))
+		} else {
+			mustDo(t, bagit.WriteTarZst(dir, f, time.Unix(0, 0)))
+		}
+		mustDo(t, f.Close())
+		out = append(out, p)
+	}
+	return out
+}
+
+// TestArchiveMembersSpooled (issue 14: validating an archive held each
+// trajectory file in memory): a trajectory member of a .tar.zst or .zip
+// is checked from a file in a private folder under the temporary
+// folder, byte for byte the member, never from memory; the folder is
+// gone when Bundle returns; a member that does not fit (the limit, or
+// the free space) is B15 and nothing is written for it.
+func TestArchiveMembersSpooled(t *testing.T) {
+	img, err := os.ReadFile(base(t))
+	mustDo(t, err)
+	const name = "data/trajectories/run.h5"
+	dir := handBag(t, map[string][]byte{name: img})
+	for _, arch := range archives(t, dir) {
+		t.Run(filepath.Base(arch), func(t *testing.T) {
+			tmp := t.TempDir()
+			t.Setenv("TMPDIR", tmp) // os.TempDir, and so the spool, follow it
+			seen := 0
+			member := func(n string, b []byte, p string) []finding.Finding {
+				seen++
+				if b != nil || p == "" {
+					t.Errorf("%s: given %d bytes in memory and path %q, want a file", n, len(b), p)
+					return nil
+				}
+				if rel, err := filepath.Rel(tmp, p); err != nil || strings.HasPrefix(rel, "..") || filepath.Dir(rel) == "." {
+					t.Errorf("%s: read from %s, not from a folder of its own under %s", n, p, tmp)
+				}
+				if st, err := os.Stat(filepath.Dir(p)); err != nil || st.Mode().Perm() != 0o700 {
+					t.Errorf("%s: the temporary folder is not private: %v %v", n, st.Mode(), err)
+				}
+				got, err := os.ReadFile(p)
+				if err != nil || string(got) != string(img) {
+					t.Errorf("%s: the temporary file is not the member (%d of %d bytes, %v)", n, len(got), len(img), err)
+				}
+				return Member(n, nil, p, "")
+			}
+			rep, err := Bundle(arch, BundleOptions{Member: member})
+			mustDo(t, err)
+			if seen != 1 {
+				t.Errorf("%d trajectory files checked, want 1", seen)
+			}
+			for _, f := range rep.Findings {
+				if f.Severity == finding.Error && f.Code[0] != 'M' { // the hand-made bag has no metadata
+					t.Errorf("finding on a valid member: %v", f)
+				}
+			}
+			left, _ := os.ReadDir(tmp)
+			if len(left) != 0 {
+				t.Errorf("left in the temporary folder: %v", left)
+			}
+
+			// Too large for the limit, then for the free space: B15,
+			// and the member's checker never runs.
+			for _, tc := range []struct {
+				name string
+				max  int64
+				free int64
+			}{
+				{"limit", int64(len(img)) - 1, 1 << 40},
+				{"free space", 0, int64(len(img)) - 1},
+			} {
+				saved := freeBytes
+				freeBytes = func(string) (int64, error) { return tc.free, nil }
+				seen = 0
+				rep, err := Bundle(arch, BundleOptions{Member: member, MaxMemberBytes: tc.max})
+				freeBytes = saved
+				mustDo(t, err)
+				b15 := 0
+				for _, f := range rep.Findings {
+					if f.Code == "B15" && f.Path == name && f.Severity == finding.Warning {
+						b15++
+					}
+				}
+				if b15 != 1 || seen != 0 {
+					t.Errorf("%s: %d B15 findings, member checked %d times; want 1 and 0", tc.name, b15, seen)
+				}
+				if left, _ := os.ReadDir(tmp); len(left) != 0 {
+					t.Errorf("%s: left in the temporary folder: %v", tc.name, left)
+				}
+			}
+		})
+	}
+}

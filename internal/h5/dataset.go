@@ -458,21 +458,32 @@ func (f *File) ReadInt64(path string) ([]int64, Shape, error) {
 func (f *File) ReadRows(path string, shape Shape, start, count int) ([]float64, error) {
 	lock()
 	defer unlock()
-	out, _, err := readRowsLocked[float64](f, path, C.TV_T_F64, &shape, start, count)
+	out, _, err := readRowsLocked[float64](f, path, C.TV_T_F64, &shape, start, count, nil)
+	return out, err
+}
+
+// ReadRowsInto is ReadRows into dst's memory when it is large enough
+// (else a new slice): a caller streaming blocks of rows reuses one
+// buffer instead of leaving one behind per block.
+func (f *File) ReadRowsInto(path string, shape Shape, start, count int, dst []float64) ([]float64, error) {
+	lock()
+	defer unlock()
+	out, _, err := readRowsLocked[float64](f, path, C.TV_T_F64, &shape, start, count, dst)
 	return out, err
 }
 
 func readAll[T float64 | int64](f *File, path string, code C.int) ([]T, Shape, error) {
 	lock()
 	defer unlock()
-	return readRowsLocked[T](f, path, code, nil, 0, -1)
+	return readRowsLocked[T](f, path, code, nil, 0, -1, nil)
 }
 
 // readRowsLocked reads rows [start, start+count) (count -1: to the end)
 // of a numeric dataset, checking the declared shape against the budget
 // before allocating and reading by bounded hyperslabs. want, if set,
-// must equal the dataset's shape.
-func readRowsLocked[T float64 | int64](f *File, path string, code C.int, want *Shape, start, count int) ([]T, Shape, error) {
+// must equal the dataset's shape. The rows go into dst when its
+// capacity holds them (the budget is checked all the same).
+func readRowsLocked[T float64 | int64](f *File, path string, code C.int, want *Shape, start, count int, dst []T) ([]T, Shape, error) {
 	const op = "read dataset"
 	if err := f.readable(op, path, ""); err != nil {
 		return nil, Shape{}, err
@@ -519,7 +530,12 @@ func readRowsLocked[T float64 | int64](f *File, path string, code C.int, want *S
 	if err != nil {
 		return nil, shape, err
 	}
-	out := make([]T, n)
+	var out []T
+	if cap(dst) >= n {
+		out = dst[:n]
+	} else {
+		out = make([]T, n)
+	}
 	if n == 0 {
 		return out, shape, nil
 	}

@@ -628,6 +628,13 @@ func (r *Reader) Values(el, unit string) ([]float64, h5.Shape, error) {
 // Frames reads frames [start, start+count) of a per-atom element
 // ([T][N][3]) converted to unit: the streaming path for long runs.
 func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
+	return r.FramesInto(el, unit, start, count, nil)
+}
+
+// FramesInto is Frames into dst's memory when it is large enough (else
+// a new slice), so that a pass over a long run in blocks reuses one
+// buffer per element.
+func (r *Reader) FramesInto(el, unit string, start, count int, dst []float64) ([]float64, error) {
 	el = r.at(el)
 	info, err := r.f.Describe(el + Value)
 	if err != nil {
@@ -639,7 +646,7 @@ func (r *Reader) Frames(el, unit string, start, count int) ([]float64, error) {
 	if start < 0 || count < 0 || start > r.T || count > r.T-start {
 		return nil, fmt.Errorf("%s: %s%s: frames [%d, %d+%d) outside 0..%d", r.Path, el, Value, start, start, count, r.T)
 	}
-	v, err := r.f.ReadRows(el+Value, info.Shape, start, count)
+	v, err := r.f.ReadRowsInto(el+Value, info.Shape, start, count, dst)
 	if err != nil {
 		return nil, err
 	}
