@@ -386,6 +386,19 @@ func TestUnitGivenVsFile(t *testing.T) {
 			t.Errorf("%s with a conflicting --unit: exit %d, %q; want 2, both units and the flag", verb, code, errs)
 		}
 	}
+	// The same refusal from worker processes (an ensemble, --jobs 2).
+	ens := t.TempDir()
+	for _, n := range []string{"traj-1", "traj-2"} {
+		os.MkdirAll(filepath.Join(ens, n), 0o755)
+		os.WriteFile(filepath.Join(ens, n, "energies.dat"), []byte("# step time[fs] Epot[hartree]\n0 0.0 -1.50\n1 0.5 -1.40\n2 1.0 -1.30\n"), 0o644)
+	}
+	ensOut := filepath.Join(t.TempDir(), "ens")
+	if code, _, errs := runCLI("convert", ens, "--jobs", "2", "--unit", "energy=eV", "-o", ensOut); code != 2 || !strings.Contains(errs, `says "hartree" but --unit energy=eV gives "eV"`) {
+		t.Errorf("convert --jobs 2 with a conflicting --unit: exit %d, %q; want 2 and both units", code, errs)
+	}
+	if _, err := os.Stat(ensOut); err == nil {
+		t.Errorf("convert --jobs 2 refused but left %s", ensOut)
+	}
 	if code, out, errs := runCLI("scan", dir, "--unit", "energy=hartree"); code != 0 {
 		t.Errorf("scan with the file's own unit: exit %d\n%s%s", code, out, errs)
 	}

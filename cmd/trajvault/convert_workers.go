@@ -52,6 +52,9 @@ type convertReply struct {
 	Report *ingest.TrajReport `json:"report,omitempty"`
 	Result *ingest.Result     `json:"result,omitempty"`
 	Error  string             `json:"error,omitempty"`
+	// Usage marks an Error that is the user's to fix on the command line
+	// (a given unit that contradicts a file's): exit 2, as in process.
+	Usage bool `json:"usage,omitempty"`
 }
 
 // workerFlags are the conversion flags the user set on c (convert or
@@ -116,6 +119,11 @@ func convertWithWorkers(ctx context.Context, g *globals, o convertOptions, root 
 		}
 		if len(failed) > 0 {
 			fmt.Fprintf(g.stderr, "trajvault: convert: %d of %d trajectories could not be converted; nothing written\n", len(failed), len(trajs))
+		}
+		for _, r := range failed {
+			if r.Usage {
+				return &exitError{exitUsage, errors.New("convert: a given unit contradicts a file's (see above)")}
+			}
 		}
 		return errFindings
 	}
@@ -347,7 +355,8 @@ func convertOne(ctx context.Context, t *ingest.Trajectory, job convertJob, opt i
 	}
 	rep, err := ingest.Scan(ctx, t, opt)
 	if err != nil {
-		r.Error = err.Error()
+		var uc *ingest.UnitConflictError
+		r.Error, r.Usage = err.Error(), errors.As(err, &uc)
 		return r
 	}
 	r.Report = rep
@@ -413,7 +422,13 @@ func convertInWorkers(ctx context.Context, g *globals, flags, cmdline []string, 
 		reps[i] = r.Report
 	}
 	if len(bad) > 0 {
-		return nil, nil, fmt.Errorf("%d of %d trajectories could not be converted: %s", len(bad), len(trajs), strings.Join(bad, "; "))
+		err := fmt.Errorf("%d of %d trajectories could not be converted: %s", len(bad), len(trajs), strings.Join(bad, "; "))
+		for _, r := range replies {
+			if r.Usage {
+				return nil, nil, &exitError{exitUsage, err}
+			}
+		}
+		return nil, nil, err
 	}
 	if len(refused) > 0 {
 		return nil, refused, nil
