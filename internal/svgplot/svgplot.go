@@ -11,12 +11,12 @@ import (
 	"html/template"
 	"image/color"
 	"math"
-	"os"
 	"regexp"
 	"sort"
 	"strconv"
 	"strings"
-	"time"
+
+	"trajvault/internal/epoch"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -299,16 +299,10 @@ func (IntegerTicks) Ticks(lo, hi float64) []plot.Tick {
 }
 
 // Stamp says who drew a plot and when: "trajvault VERSION, DATE". The
-// date is SOURCE_DATE_EPOCH when set (reproducible-builds.org
-// specification), so that a rebuild gives the same bytes; else today.
+// date is the outputs' one clock (epoch.Now: SOURCE_DATE_EPOCH when
+// set), so that a rebuild gives the same bytes.
 func Stamp(version string) string {
-	t := time.Now().UTC()
-	if s := os.Getenv("SOURCE_DATE_EPOCH"); s != "" {
-		if n, err := strconv.ParseInt(s, 10, 64); err == nil {
-			t = time.Unix(n, 0).UTC()
-		}
-	}
-	return fmt.Sprintf("trajvault %s, %s", version, t.Format("2006-01-02"))
+	return fmt.Sprintf("trajvault %s, %s", version, epoch.Now().Format("2006-01-02"))
 }
 
 // Caption adds a line under the title: thresholds, stamp.
