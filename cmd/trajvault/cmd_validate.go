@@ -36,10 +36,12 @@ type validateOptions struct {
 	digests      []string
 }
 
-// Worker defaults: a trajectory file read in memory from an archive may be
-// up to 2 GiB (validate.BundleOptions.MaxImageBytes) and HDF5 copies the
-// image once, so 6 GiB of address space; 10 minutes is far above what a
-// well-formed file of that size takes.
+// Worker defaults: workers read files from disk (an archive's members
+// through a temporary file), so what they hold is one read of at most
+// the read budget (512 MiB, h5.DefaultMaxReadBytes), HDF5's copy of it
+// while converting types, and about 1 GiB the runtimes reserve: 6 GiB of
+// address space leaves room for both and for several threads' arenas.
+// 10 minutes is far above what a well-formed file of a few GB takes.
 const (
 	defaultWorkerMemoryMiB = 6 << 10
 	defaultWorkerTime      = 10 * time.Minute
