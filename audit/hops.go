@@ -288,20 +288,30 @@ func (a *auditor) hops(*derived) (Check, string) {
 			}
 			fmt.Fprintf(&b, "%d %s", why[r], undecidableWhy[r])
 		}
-		tail = fmt.Sprintf("; %d hops cannot be judged: %s", undecidable, b.String())
+		tail = fmt.Sprintf("; %s cannot be judged: %s", hopCount(undecidable, ""), b.String())
 	}
 	if len(bad) > 0 || len(groups) > 0 {
 		msg := head
 		if badAcc > 0 {
-			msg += fmt.Sprintf("; %d accepted hops (%.0f %%) change the total energy beyond the ordinary steps around them", badAcc, 100*badFrac)
+			verb := "change"
+			if badAcc == 1 {
+				verb = "changes"
+			}
+			msg += fmt.Sprintf("; %s (%.0f %%) %s the total energy beyond the ordinary steps around them", hopCount(badAcc, "accepted"), 100*badFrac, verb)
 			if matchGap > 0 {
 				msg += fmt.Sprintf(", %d of them by the gap (velocities not rescaled)", matchGap)
 			}
 		}
 		if badFr > 0 {
-			msg += fmt.Sprintf("; %d frustrated hops were downhill", badFr)
+			verb := "were"
+			if badFr == 1 {
+				verb = "was"
+			}
+			msg += fmt.Sprintf("; %s %s downhill", hopCount(badFr, "frustrated"), verb)
 		}
-		if len(bad) > 0 {
+		if len(bad) == 1 {
+			msg += ", at step " + stepList(bad)
+		} else if len(bad) > 1 {
 			msg += ", at steps " + stepList(bad)
 		}
 		if len(groups) > 0 {
@@ -395,4 +405,16 @@ func stepList(s []int64) string {
 		fmt.Fprint(&b, x)
 	}
 	return b.String()
+}
+
+// hopCount is "1 accepted hop" or "3 accepted hops" (kind may be empty).
+func hopCount(n int, kind string) string {
+	w := "hops"
+	if n == 1 {
+		w = "hop"
+	}
+	if kind != "" {
+		return fmt.Sprintf("%d %s %s", n, kind, w)
+	}
+	return fmt.Sprintf("%d %s", n, w)
 }
