@@ -31,8 +31,8 @@ mkdir "$work/run"
 echo "bench: ase: generating $FRAMES frames with python3-ase" >&2
 "$PY" bench/ase_run.py "$work/run" "$FRAMES" "$SHELLS"
 atoms=$(head -n 1 "$work/run/traj.xyz" | tr -d ' ')
-# The momentum unit, as scan suggests it by name.
-pu=$("$BIN" scan "$work/run" 2>&1 | grep -o "\-\-unit momentum='[^']*'" | sed "s/^--unit momentum='//; s/'\$//" || true)
+# The momentum unit, as scan suggests it by name (from --json: text output wraps at 80 columns).
+pu=$("$BIN" scan --json "$work/run" 2>/dev/null | grep -o "\-\-unit momentum='[^']*'" | sed "s/^--unit momentum='//; s/'\$//" || true)
 [ -n "$pu" ] || { echo "bench: ase: scan suggested no momentum unit" >&2; exit 1; }
 "$BIN" convert "$work/run" -o "$work/run.h5" --unit position=angstrom --unit 'force=eV angstrom-1' --unit "momentum=$pu" >/dev/null
 "$BIN" validate "$work/run.h5" >/dev/null

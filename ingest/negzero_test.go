@@ -119,6 +119,20 @@ func TestNegativeZeroRoundTrip(t *testing.T) {
 				t.Errorf("%s selection value %d: printed %q, text %q", c.el, i, got, wantSel[i])
 			}
 		}
+		// Block reads (as a long run is streamed) give every value's
+		// sign exactly as the whole read does.
+		for start := 0; start < r.T; start += 7 {
+			n := min(7, r.T-start)
+			b, err := r.Raw(e, start, n)
+			if err != nil {
+				t.Fatal(err)
+			}
+			for k, x := range b {
+				if y := v[start*e.Width()+k]; x != y || math.Signbit(x) != math.Signbit(y) {
+					t.Fatalf("%s block at frame %d, value %d: %v, whole read %v", c.el, start, k, x, y)
+				}
+			}
+		}
 		// A window in the middle starts its indices at the window.
 		w, _ := r.Raw(e, 10, 1)
 		if i := 10 * e.Width(); !math.Signbit(w[0]) && strings.HasPrefix(c.want[i], "-0.") && c.want[i] != "-0.000000" {

@@ -48,12 +48,16 @@ type Reader struct {
 }
 
 // negativeZeros is the NegativeZerosAttr list of the dataset at path
-// (nil when it has none), read once.
+// (nil when it has none), read once and sorted: block reads of a long
+// run look up their span by binary search instead of walking the list
+// once per block (the writer lists up to MaxNegativeZeros, a foreign or
+// edited file any number within the read budget, in any order).
 func (r *Reader) negativeZeros(path string) []int64 {
 	idx, ok := r.negZeros[path]
 	if !ok {
 		if a, err := r.f.Attr(path, NegativeZerosAttr); err == nil {
-			idx = a.Ints
+			idx = slices.Clone(a.Ints)
+			slices.Sort(idx)
 		}
 		if r.negZeros == nil {
 			r.negZeros = map[string][]int64{}
@@ -70,9 +74,14 @@ func (r *Reader) negativeZeros(path string) []int64 {
 // or edited file) is left as stored.
 func (r *Reader) signZeros(path string, v []float64, first int64) {
 	idx := r.negativeZeros(path)
+	lo, _ := slices.BinarySearch(idx, first)
 	negZero := math.Copysign(0, -1)
-	for _, i := range idx {
-		if j := i - first; j >= 0 && j < int64(len(v)) && v[j] == 0 {
+	for _, i := range idx[lo:] {
+		j := i - first
+		if j >= int64(len(v)) {
+			break
+		}
+		if v[j] == 0 {
 			v[j] = negZero
 		}
 	}
