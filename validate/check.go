@@ -75,7 +75,7 @@ func init() {
 		"V42", "V43", "V44", "X1", "X2", "X3"} {
 		RuleProfiles[c] = ProfileH5MD
 	}
-	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39", "V41",
+	for _, c := range []string{"V20", "V25", "V26", "V27", "V34", "V39", "V41", "V45",
 		"E1", "E2", "E3", "E4", "E5", "E6", "E7", "E8", "E9", "E10", "E11",
 		"R1", "R2", "R3", "R4", "R5", "R6", "R7"} {
 		RuleProfiles[c] = ProfileTrajvault
@@ -422,10 +422,12 @@ func (c *checker) dataset(path string) {
 			c.errorf("V29", path, "trajvault_tolerance must be one float, the absolute bound of the lossy storage")
 		}
 	}
+	negZeros := c.negativeZeros(path, info)
 	if info.Type.Class != h5.ClassFloat || !physical(path) || info.Shape.Len() == 0 || c.unwritten(path, info) {
 		return
 	}
 	bad, first := 0, -1
+	notZero, firstNZ, nz := 0, int64(-1), 0
 	err = c.scan(path, info, func(block []float64, row0, rowLen int) {
 		for i, x := range block {
 			if math.IsNaN(x) || math.IsInf(x, 0) {
@@ -435,7 +437,20 @@ func (c *checker) dataset(path string) {
 				bad++
 			}
 		}
+		// The listed negative zeros of this block must be zeros.
+		base, end := int64(row0)*int64(rowLen), int64(row0)*int64(rowLen)+int64(len(block))
+		for ; nz < len(negZeros) && negZeros[nz] < end; nz++ {
+			if j := negZeros[nz] - base; j >= 0 && block[j] != 0 {
+				if notZero == 0 {
+					firstNZ = negZeros[nz]
+				}
+				notZero++
+			}
+		}
 	})
+	if notZero > 0 {
+		c.errorf("V45", path, "%s lists %d values that are not zero (first at flat index %d); the list or the data was changed after writing: rewrite the file from its source", trajfile.NegativeZerosAttr, notZero, firstNZ)
+	}
 	if err != nil && foreign != "" {
 		c.errorf("V28", path, "cannot decode the data: %s is not available to this HDF5 library; repack the dataset with stock filters", foreign)
 		return
@@ -447,6 +462,29 @@ func (c *checker) dataset(path string) {
 	if bad > 0 {
 		c.errorf("V26", path, "%d non-finite values (NaN or Inf), first in row %d; the run diverged or the log was cut: trim the frames or mark the trajectory as failed", bad, first)
 	}
+}
+
+// negativeZeros checks the list of printed negative zeros of a
+// scale-offset dataset (trajfile.NegativeZerosAttr, V45: integer flat
+// indices within the dataset, strictly increasing) and returns it, or
+// nil when it is absent or unusable.
+func (c *checker) negativeZeros(path string, info h5.DatasetInfo) []int64 {
+	if !c.f.HasAttr(path, trajfile.NegativeZerosAttr) {
+		return nil
+	}
+	a, err := c.f.Attr(path, trajfile.NegativeZerosAttr)
+	if err != nil || a.Type.Class != h5.ClassInt || a.Shape.Rank > 1 {
+		c.errorf("V45", path, "%s must be a list of integers (flat indices of the values printed as -0); rewrite the file from its source", trajfile.NegativeZerosAttr)
+		return nil
+	}
+	n := int64(info.Shape.Len())
+	for i, k := range a.Ints {
+		if k < 0 || k >= n || (i > 0 && k <= a.Ints[i-1]) {
+			c.errorf("V45", path, "%s entry %d is %d: indices must increase and lie within the dataset's %d values; rewrite the file from its source", trajfile.NegativeZerosAttr, i, k, n)
+			return nil
+		}
+	}
+	return a.Ints
 }
 
 // scan streams a dataset in blocks of whole rows along dimension 0, so

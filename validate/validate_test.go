@@ -341,6 +341,15 @@ func TestRules(t *testing.T) {
 		{"V29", finding.Warning, "lossy storage stated", func(t *testing.T, f *h5.File) {
 			mustDo(t, f.SetFloats(pg+"/velocity/value", "trajvault_tolerance", []float64{5e-7}, true))
 		}, nil},
+		{"V45", finding.Error, "negative-zero list points outside the data", func(t *testing.T, f *h5.File) {
+			mustDo(t, f.SetInt64s(pg+"/position/value", "trajvault_negative_zeros", []int64{3, 1 << 40}, false))
+		}, nil},
+		{"V45", finding.Error, "negative-zero list names a value that is not zero", func(t *testing.T, f *h5.File) {
+			v, _, err := f.ReadFloat64(pg + "/position/value")
+			mustDo(t, err)
+			k := slices.IndexFunc(v, func(x float64) bool { return x != 0 })
+			mustDo(t, f.SetInt64s(pg+"/position/value", "trajvault_negative_zeros", []int64{int64(k)}, false))
+		}, nil},
 		{"V30", finding.Warning, "dangling soft link", func(t *testing.T, f *h5.File) {
 			mustDo(t, f.SoftLink("/observables/nowhere", obs+"/dangling"))
 		}, nil},
