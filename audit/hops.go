@@ -343,23 +343,14 @@ var undecidableWhy = map[string]string{
 // groupList prints the first hopSteps groups of steps as "a+b" and how
 // many more.
 func groupList(g [][]int64) string {
-	var b strings.Builder
-	for i, x := range g {
-		if i == hopSteps {
-			fmt.Fprintf(&b, " and %d more", len(g)-hopSteps)
-			break
-		}
-		if i > 0 {
-			b.WriteString(", ")
-		}
-		for j, s := range x {
+	return firstOf(len(g), func(b *strings.Builder, i int) {
+		for j, s := range g[i] {
 			if j > 0 {
 				b.WriteString("+")
 			}
-			fmt.Fprint(&b, s)
+			fmt.Fprint(b, s)
 		}
-	}
-	return b.String()
+	})
 }
 
 // stepFrames returns a function from an integration step to the first
@@ -393,16 +384,22 @@ func stepFrames(steps []int64) func(int64) int {
 
 // stepList prints the first hopSteps steps and how many more.
 func stepList(s []int64) string {
+	return firstOf(len(s), func(b *strings.Builder, i int) { fmt.Fprint(b, s[i]) })
+}
+
+// firstOf prints the first hopSteps of n items, comma-separated, and
+// how many more there are.
+func firstOf(n int, item func(b *strings.Builder, i int)) string {
 	var b strings.Builder
-	for i, x := range s {
+	for i := range n {
 		if i == hopSteps {
-			fmt.Fprintf(&b, " and %d more", len(s)-hopSteps)
+			fmt.Fprintf(&b, " and %d more", n-hopSteps)
 			break
 		}
 		if i > 0 {
 			b.WriteString(", ")
 		}
-		fmt.Fprint(&b, x)
+		item(&b, i)
 	}
 	return b.String()
 }

@@ -24,6 +24,21 @@ func demoRun(t *testing.T, seed uint64, steps int, f demo.Faults) string {
 	return p
 }
 
+// auditedHops writes the demo run o and returns its hops check and its
+// number of stored frames.
+func auditedHops(t *testing.T, o demo.Options) (Check, int) {
+	t.Helper()
+	p := filepath.Join(t.TempDir(), "d.h5")
+	if err := demo.WriteH5(p, o); err != nil {
+		t.Fatal(err)
+	}
+	res, err := File(context.Background(), p, DefaultSettings)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return check(t, res, "hops"), res.Frames
+}
+
 // planted counts the faults the generator injected at hops.
 func planted(seed uint64, steps int, f demo.Faults) int {
 	m := demo.Tarnol()
@@ -263,17 +278,9 @@ func TestUnrescaledHopsDense(t *testing.T) {
 	for seed := uint64(21); seed <= 26; seed++ {
 		want, acc := unrescaledStepsDt(seed, steps, dtFs, f)
 		for _, faults := range []demo.Faults{f, hopDense} {
-			p := filepath.Join(t.TempDir(), "d.h5")
 			o := demo.DefaultOptions
 			o.Seed, o.Steps, o.Faults, o.DtFs = seed, steps, faults, dtFs
-			if err := demo.WriteH5(p, o); err != nil {
-				t.Fatal(err)
-			}
-			res, err := File(context.Background(), p, DefaultSettings)
-			if err != nil {
-				t.Fatal(err)
-			}
-			h := check(t, res, "hops")
+			h, n := auditedHops(t, o)
 			if faults.NoRescaleEvery == 0 {
 				if h.Verdict == Fail {
 					t.Errorf("seed %d: rescaled run failed: %s", seed, h.Summary)
@@ -285,7 +292,7 @@ func TestUnrescaledHopsDense(t *testing.T) {
 			}
 			planted += len(want)
 			flagged += len(h.Steps)
-			frames += res.Frames
+			frames += n
 		}
 	}
 	share := float64(planted) / float64(frames)
@@ -347,17 +354,9 @@ func TestUnrescaledHopsStrided(t *testing.T) {
 				perInterval[(s+int64(stride)-1)/int64(stride)]++
 			}
 			for _, faults := range []demo.Faults{f, {CouplingScale: f.CouplingScale}} {
-				p := filepath.Join(t.TempDir(), "s.h5")
 				o := demo.DefaultOptions
 				o.Seed, o.Steps, o.Faults, o.Stride = seed, steps, faults, stride
-				if err := demo.WriteH5(p, o); err != nil {
-					t.Fatal(err)
-				}
-				res, err := File(context.Background(), p, DefaultSettings)
-				if err != nil {
-					t.Fatal(err)
-				}
-				h := check(t, res, "hops")
+				h, n := auditedHops(t, o)
 				if faults.NoRescaleEvery == 0 {
 					if h.Verdict == Fail {
 						t.Errorf("stride %d seed %d: rescaled run failed: %s", stride, seed, h.Summary)
@@ -393,7 +392,7 @@ func TestUnrescaledHopsStrided(t *testing.T) {
 				}
 				flagged += len(h.Steps)
 				planted += len(want)
-				frames += res.Frames
+				frames += n
 				inGroups += int(h.Values["hops_in_violating_intervals"])
 			}
 		}

@@ -48,18 +48,10 @@ read -r ndiff nzero nnum <<<"$differ"
 [ "$ndiff" -eq 0 ] || { echo "bench: ase: $ndiff numbers of the export differ from the text" >&2; exit 1; }
 [ "$nnum" -gt 0 ] || { echo "bench: ase: no numbers compared" >&2; exit 1; }
 
-# The stored columns only (tags and per-atom energies, which trajvault
-# lists as not stored, removed), for a like-for-like comparison.
-mkdir "$work/stored"
-awk 'NF == 12 && $1 ~ /^[A-Z][a-z]?$/ { print $1, $2, $3, $4, $6, $7, $8, $9, $10, $11; next } { print }' \
-	"$work/run/traj.xyz" >"$work/stored/traj.xyz"
-cp "$work/run/energies.dat" "$work/stored/"
 text=$(du -sb "$work/run" | cut -f1)
-stext=$(du -sb "$work/stored" | cut -f1)
 h5=$(stat -c %s "$work/run.h5")
 xz=$(tar -C "$work" -cf - run | xz -9 -T1 | wc -c)
 zst=$(tar -C "$work" -cf - run | zstd -q -19 | wc -c)
-sxz=$(tar -C "$work" -cf - stored | xz -9 -T1 | wc -c)
 ratio() { awk -v a="$1" -v b="$2" 'BEGIN { printf "%.3f", a / b }'; }
 
 section=$(
@@ -77,7 +69,6 @@ section=$(
 	echo "| text as written | $text | $(ratio "$h5" "$text") |"
 	echo "| tar \\| zstd -19 of the text | $zst | $(ratio "$h5" "$zst") |"
 	echo "| tar \\| xz -9 of the text | $xz | $(ratio "$h5" "$xz") |"
-	echo "| tar \\| xz -9 of the stored columns only (no tags, no per-atom energies) | $sxz | $(ratio "$h5" "$sxz") |"
 	echo "| trajvault file | $h5 | 1.000 |"
 	if [ "$nzero" -gt 0 ]; then
 		echo
