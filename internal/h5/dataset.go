@@ -122,7 +122,10 @@ type Writer struct {
 	id    C.hid_t
 	dtype DType
 	row   int // elements per row along dimension 0
+	rows  int // size of dimension 0
 	err   error
+	// direct, when set, stores whole chunks encoded in Go (direct.go).
+	direct *direct
 }
 
 // CreateDataset creates a dataset and returns a Writer for it. Missing
@@ -186,7 +189,14 @@ func (f *File) CreateDataset(path string, spec DatasetSpec) (*Writer, error) {
 	if id < 0 {
 		return nil, f.fail("create dataset", path, "", C.int(max(id, -100)))
 	}
-	return &Writer{f: f, path: path, id: id, dtype: spec.Type, row: row}, nil
+	w := &Writer{f: f, path: path, id: id, dtype: spec.Type, row: row}
+	if rank > 0 {
+		w.rows = spec.Dims[0]
+	}
+	if !f.libraryChunks {
+		w.direct = newDirect(id, spec)
+	}
+	return w, nil
 }
 
 // CreateStrings writes a 1-D fixed-length string dataset.
@@ -268,12 +278,39 @@ func (w *Writer) Append(data any) error {
 		w.err = &Error{File: w.f.path, Op: fmt.Sprintf("append %d values (rows of %d) to", n, w.row), Path: w.path, Err: ErrSizeMismatch}
 		return w.err
 	}
+	if w.direct != nil {
+		var done bool
+		switch d := data.(type) {
+		case []float64:
+			if w.dtype == Float64 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		case []int64:
+			if w.dtype == Int64 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		case []int32:
+			if w.dtype == Int32 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		}
+		if err != nil {
+			w.err = err
+			return err
+		}
+		if done {
+			w.rows += n / w.row
+			return nil
+		}
+	}
 	lock()
 	defer unlock()
 	if rc := C.tv_dset_append(w.id, code, C.hsize_t(n/w.row), ptr, C.size_t(n*size)); rc < 0 {
 		w.err = w.f.fail("append to", w.path, "", rc)
+		return w.err
 	}
-	return w.err
+	w.rows += n / w.row
+	return nil
 }
 
 // Write writes the whole dataset at its current size.
