@@ -35,6 +35,7 @@ type direct struct {
 	raw, a, b []byte
 	wide      []int64
 	arena     []byte
+	stored    int // chunks stored by this path (for tests)
 }
 
 type stageKind int
@@ -251,7 +252,7 @@ func gather[T any](dst, src []T, dims, chunk, origin []int) []T {
 	strides := make([]int, rank)
 	strides[rank-1] = 1
 	for i := rank - 2; i >= 0; i-- {
-		strides[i] = strides[i+1] * dims[i]
+		strides[i] = strides[i+1] * dims[i+1]
 	}
 	idx := make([]int, rank)
 	last := chunk[rank-1]
@@ -375,6 +376,7 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 		if rc := C.tv_dset_write_chunk(w.id, &p.offset[0], unsafe.Pointer(&enc[0]), C.size_t(len(enc))); rc < 0 {
 			return true, w.f.fail("write chunk of", w.path, "", rc)
 		}
+		d.stored++
 	}
 	if err := rows(b, end); err != nil {
 		return true, err
