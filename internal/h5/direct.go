@@ -236,6 +236,11 @@ func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
 	return append(dst, cur...), true, nil
 }
 
+// directBatch bounds the encoded bytes an append holds before storing
+// them: memory stays small when one append spans many chunks (per-atom
+// time series of a large system). A variable for tests.
+var directBatch = 4 << 20
+
 // piece is one chunk of an append: encoded bytes arena[lo:hi], or, when
 // the library must encode it, its values.
 type piece struct {
@@ -289,9 +294,6 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 	if a >= b {
 		return false, nil
 	}
-	// Encode outside the lock.
-	d.arena = d.arena[:0]
-	var pieces []piece
 	rank := len(d.chunk)
 	dims := append([]int{k}, d.dims...)
 	tiles := make([]int, rank) // chunk counts per dimension beyond the first
@@ -300,6 +302,63 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 		tiles[i] = d.dims[i-1] / d.chunk[i]
 		ntiles *= tiles[i]
 	}
+	ct := make([]C.hsize_t, rank)
+	for i := range ct {
+		ct[i] = C.hsize_t(d.chunk[i])
+	}
+	// rows writes rows [lo, hi) through the library (lock held).
+	rows := func(lo, hi int) error {
+		if lo >= hi {
+			return nil
+		}
+		st := make([]C.hsize_t, rank)
+		cnt := make([]C.hsize_t, rank)
+		st[0], cnt[0] = C.hsize_t(lo), C.hsize_t(hi-lo)
+		for i := 1; i < rank; i++ {
+			cnt[i] = C.hsize_t(d.dims[i-1])
+		}
+		blk := data[(lo-start)*w.row : (hi-start)*w.row]
+		if rc := C.tv_dset_write_box(w.id, code, C.int(rank), &st[0], &cnt[0], unsafe.Pointer(&blk[0]), C.size_t(len(blk)*size)); rc < 0 {
+			return w.f.fail("append to", w.path, "", rc)
+		}
+		return nil
+	}
+	// store writes the encoded pieces, after extending the dataset and
+	// writing the rows before the first whole chunk on the first call.
+	var pieces []piece
+	extended := false
+	store := func() error {
+		lock()
+		defer unlock()
+		if !extended {
+			if rc := C.tv_dset_set_rows(w.id, C.hsize_t(end)); rc < 0 {
+				return w.f.fail("extend", w.path, "", rc)
+			}
+			extended = true
+			if err := rows(start, a); err != nil {
+				return err
+			}
+		}
+		for _, p := range pieces {
+			if p.vals != nil {
+				v := p.vals.([]T)
+				if rc := C.tv_dset_write_box(w.id, code, C.int(rank), &p.offset[0], &ct[0], unsafe.Pointer(&v[0]), C.size_t(len(v)*size)); rc < 0 {
+					return w.f.fail("append to", w.path, "", rc)
+				}
+				continue
+			}
+			enc := d.arena[p.lo:p.hi]
+			if rc := C.tv_dset_write_chunk(w.id, &p.offset[0], unsafe.Pointer(&enc[0]), C.size_t(len(enc))); rc < 0 {
+				return w.f.fail("write chunk of", w.path, "", rc)
+			}
+			d.stored++
+		}
+		pieces = pieces[:0]
+		d.arena = d.arena[:0]
+		return nil
+	}
+	// Encode outside the lock, storing about every directBatch bytes.
+	d.arena = d.arena[:0]
 	var buf []T
 	for t0 := a; t0 < b; t0 += c0 {
 		for t := 0; t < ntiles; t++ {
@@ -334,54 +393,19 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 				p.vals = any(append([]T(nil), vals...))
 			}
 			pieces = append(pieces, p)
+			if len(d.arena) >= directBatch {
+				if err := store(); err != nil {
+					return true, err
+				}
+			}
 		}
+	}
+	if err := store(); err != nil {
+		return true, err
 	}
 	lock()
 	defer unlock()
-	if rc := C.tv_dset_set_rows(w.id, C.hsize_t(end)); rc < 0 {
-		return true, w.f.fail("extend", w.path, "", rc)
-	}
-	rows := func(lo, hi int) error {
-		if lo >= hi {
-			return nil
-		}
-		st := make([]C.hsize_t, rank)
-		ct := make([]C.hsize_t, rank)
-		st[0], ct[0] = C.hsize_t(lo), C.hsize_t(hi-lo)
-		for i := 1; i < rank; i++ {
-			ct[i] = C.hsize_t(d.dims[i-1])
-		}
-		blk := data[(lo-start)*w.row : (hi-start)*w.row]
-		if rc := C.tv_dset_write_box(w.id, code, C.int(rank), &st[0], &ct[0], unsafe.Pointer(&blk[0]), C.size_t(len(blk)*size)); rc < 0 {
-			return w.f.fail("append to", w.path, "", rc)
-		}
-		return nil
-	}
-	if err := rows(start, a); err != nil {
-		return true, err
-	}
-	ct := make([]C.hsize_t, rank)
-	for i := range ct {
-		ct[i] = C.hsize_t(d.chunk[i])
-	}
-	for _, p := range pieces {
-		if p.vals != nil {
-			v := p.vals.([]T)
-			if rc := C.tv_dset_write_box(w.id, code, C.int(rank), &p.offset[0], &ct[0], unsafe.Pointer(&v[0]), C.size_t(len(v)*size)); rc < 0 {
-				return true, w.f.fail("append to", w.path, "", rc)
-			}
-			continue
-		}
-		enc := d.arena[p.lo:p.hi]
-		if rc := C.tv_dset_write_chunk(w.id, &p.offset[0], unsafe.Pointer(&enc[0]), C.size_t(len(enc))); rc < 0 {
-			return true, w.f.fail("write chunk of", w.path, "", rc)
-		}
-		d.stored++
-	}
-	if err := rows(b, end); err != nil {
-		return true, err
-	}
-	return true, nil
+	return true, rows(b, end)
 }
 
 // RawChunk reads the chunk of the dataset at path whose first element is

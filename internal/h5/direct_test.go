@@ -81,6 +81,9 @@ type directCase struct {
 	parts []int // rows per Append
 	// wantDirect: chunks the direct path must have stored itself
 	wantDirect bool
+	batch      int  // directBatch for the run; 0 = default
+	format     Format
+	ownFormat  bool // format given; else Format110
 }
 
 // printed returns values as a log prints them with d decimals and
@@ -127,6 +130,12 @@ func directCases() []directCase {
 		v[i] = float64(i%15) + rng.NormFloat64()*0.01
 	}
 	cs = append(cs, directCase{name: "series chunks", spec: spec3(so(6), []int{32, 1, 1}), f64: printed(v, 6), parts: parts, wantDirect: true})
+	// Stored in batches of a few chunks, in each file format (chunk
+	// indexes: version 1 B-tree, and for HDF5 1.10 an extensible array).
+	for _, fm := range []Format{FormatEarliest, Format18, Format110} {
+		cs = append(cs, directCase{name: fmt.Sprintf("batches format %d", fm), spec: spec3(so(6), []int{32, 1, 1}), f64: printed(v, 6),
+			parts: []int{203}, wantDirect: true, batch: 200, format: fm, ownFormat: true})
+	}
 	// Chunks of 2 x 3 tiles in the fixed dimensions.
 	cs = append(cs, directCase{name: "tiled chunks", spec: DatasetSpec{Type: Float64, Dims: []int{0, 4, 6}, MaxDims: []int{Unlimited, 4, 6}, Chunk: []int{16, 2, 3}, Filters: so(5)},
 		f64: printed(v[:rows/5*24], 5), parts: []int{40}, wantDirect: true})
@@ -194,7 +203,15 @@ func directCases() []directCase {
 // writeCase writes c to path through the direct path or the library's.
 func writeCase(t *testing.T, path string, c directCase, library bool) int {
 	t.Helper()
-	f, err := CreateWith(path, CreateOptions{Format: Format110, LibraryChunks: library})
+	fm := Format110
+	if c.ownFormat {
+		fm = c.format
+	}
+	if c.batch > 0 {
+		defer func(b int) { directBatch = b }(directBatch)
+		directBatch = c.batch
+	}
+	f, err := CreateWith(path, CreateOptions{Format: fm, LibraryChunks: library})
 	if err != nil {
 		t.Fatal(err)
 	}
