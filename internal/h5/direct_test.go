@@ -81,7 +81,7 @@ type directCase struct {
 	parts []int // rows per Append
 	// wantDirect: chunks the direct path must have stored itself
 	wantDirect bool
-	batch      int  // directBatch for the run; 0 = default
+	batch      int // directBatch for the run; 0 = default
 	format     Format
 	ownFormat  bool // format given; else Format110
 }
