@@ -115,7 +115,9 @@ func (f *File) SoftLink(target, dst string) error {
 }
 
 // Writer writes one dataset. Like archive/tar's Writer it keeps the first
-// error: every later call returns it, and calls after Close fail.
+// error: every later call returns it, and calls after Close fail. A
+// Writer is used by one goroutine at a time (its chunk buffers are its
+// own); different Writers may append concurrently.
 type Writer struct {
 	f     *File
 	path  string
@@ -262,6 +264,9 @@ func memBuf0(data any) (C.int, unsafe.Pointer, int, error) {
 
 // Append adds rows along dimension 0; len(data) must be a whole number of
 // rows. data is a []float64, []float32, []int64, []int32 or []uint8.
+// Whole chunks of a float64, int64 or int32 dataset are encoded here and
+// stored directly (direct.go) unless the file was created with
+// CreateOptions.LibraryChunks; the values read back are the same.
 func (w *Writer) Append(data any) error {
 	if w.err != nil {
 		return w.err
