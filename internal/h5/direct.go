@@ -332,7 +332,7 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 		defer unlock()
 		if !extended {
 			if rc := C.tv_dset_set_rows(w.id, C.hsize_t(end)); rc < 0 {
-				return w.f.fail("extend", w.path, "", rc)
+				return w.f.fail("append to", w.path, "", rc)
 			}
 			extended = true
 			if err := rows(start, a); err != nil {
@@ -349,7 +349,7 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 			}
 			enc := d.arena[p.lo:p.hi]
 			if rc := C.tv_dset_write_chunk(w.id, &p.offset[0], unsafe.Pointer(&enc[0]), C.size_t(len(enc))); rc < 0 {
-				return w.f.fail("write chunk of", w.path, "", rc)
+				return w.f.fail("append to", w.path, "", rc)
 			}
 			d.stored++
 		}
