@@ -7,6 +7,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"sync"
 	"unsafe"
 )
 
@@ -31,12 +32,21 @@ type direct struct {
 	whole  bool
 	so     *scaleOffset
 	stages []stage
-	// scratch buffers reused from chunk to chunk
+	stored int // chunks stored by this path (for tests)
+}
+
+// encoder holds the buffers and compressors one append uses; they are
+// pooled across datasets, so that memory follows the appends running at
+// once rather than the number of datasets (a zlib writer alone holds
+// several hundred KiB).
+type encoder struct {
 	raw, a, b []byte
 	wide      []int64
 	arena     []byte
-	stored    int // chunks stored by this path (for tests)
+	def       [10]*deflater // by level
 }
+
+var encoders = sync.Pool{New: func() any { return new(encoder) }}
 
 type stageKind int
 
@@ -48,8 +58,7 @@ const (
 
 type stage struct {
 	kind stageKind
-	size int // shuffle: element size
-	def  *deflater
+	size int // shuffle: element size; deflate: level
 }
 
 // pipelineFilter is one filter of a created dataset's pipeline.
@@ -102,7 +111,7 @@ func newDirect(id C.hid_t, spec DatasetSpec) *direct {
 		case f.id == FilterShuffle && len(f.cd) == 1 && f.cd[0] > 0:
 			d.stages = append(d.stages, stage{kind: stageShuffle, size: int(f.cd[0])})
 		case f.id == FilterDeflate && len(f.cd) == 1 && f.cd[0] <= 9:
-			d.stages = append(d.stages, stage{kind: stageDeflate, def: &deflater{level: int(f.cd[0])}})
+			d.stages = append(d.stages, stage{kind: stageDeflate, size: int(f.cd[0])})
 		case f.id == FilterFletcher32:
 			d.stages = append(d.stages, stage{kind: stageFletcher})
 		default:
@@ -166,8 +175,8 @@ func pow10(d int) (float64, float64) {
 
 // encode runs one chunk's values (in the chunk's row-major order) through
 // the pipeline. ok is false when the library must encode the chunk.
-func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
-	cur := d.raw[:0]
+func (d *direct) encode(e *encoder, dst []byte, vals any) ([]byte, bool, error) {
+	cur := e.raw[:0]
 	switch v := vals.(type) {
 	case []float64:
 		if d.so != nil {
@@ -193,12 +202,12 @@ func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
 		}
 	case []int32:
 		if d.so != nil {
-			d.wide = d.wide[:0]
+			e.wide = e.wide[:0]
 			for _, x := range v {
-				d.wide = append(d.wide, int64(x))
+				e.wide = append(e.wide, int64(x))
 			}
 			var ok bool
-			if cur, ok = d.so.soInt(cur, d.wide); !ok {
+			if cur, ok = d.so.soInt(cur, e.wide); !ok {
 				return dst, false, nil
 			}
 		} else {
@@ -209,8 +218,8 @@ func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
 	default:
 		panic(fmt.Sprintf("h5: direct chunk of %T", vals))
 	}
-	d.raw = cur
-	next := &d.a
+	e.raw = cur
+	next := &e.a
 	for _, s := range d.stages {
 		out := (*next)[:0]
 		switch s.kind {
@@ -218,7 +227,10 @@ func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
 			out = shuffleBytes(out, cur, s.size)
 		case stageDeflate:
 			var err error
-			if out, err = s.def.deflate(out, cur); err != nil {
+			if e.def[s.size] == nil {
+				e.def[s.size] = &deflater{level: s.size}
+			}
+			if out, err = e.def[s.size].deflate(out, cur); err != nil {
 				return dst, false, err
 			}
 		case stageFletcher:
@@ -227,10 +239,10 @@ func (d *direct) encode(dst []byte, vals any) ([]byte, bool, error) {
 		}
 		*next = out
 		cur = out
-		if next == &d.a {
-			next = &d.b
+		if next == &e.a {
+			next = &e.b
 		} else {
-			next = &d.a
+			next = &e.a
 		}
 	}
 	return append(dst, cur...), true, nil
@@ -259,6 +271,17 @@ func gather[T any](dst, src []T, dims, chunk, origin []int) []T {
 	for i := rank - 2; i >= 0; i-- {
 		strides[i] = strides[i+1] * dims[i+1]
 	}
+	if single(chunk[1:]) { // one element per row: a strided run
+		off := 0
+		for i := 0; i < rank; i++ {
+			off += origin[i] * strides[i]
+		}
+		for r := 0; r < chunk[0]; r++ {
+			dst = append(dst, src[off])
+			off += strides[0]
+		}
+		return dst
+	}
 	idx := make([]int, rank)
 	last := chunk[rank-1]
 	for {
@@ -281,6 +304,16 @@ func gather[T any](dst, src []T, dims, chunk, origin []int) []T {
 	}
 }
 
+// single reports whether every extent in c is 1.
+func single(c []int) bool {
+	for _, n := range c {
+		if n != 1 {
+			return false
+		}
+	}
+	return true
+}
+
 // appendDirect is Append for a dataset with a direct path: rows
 // [w.rows, w.rows+k) of data, k = len(data)/w.row. It returns false,
 // having done nothing, when no whole chunk lies in the range.
@@ -294,6 +327,8 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 	if a >= b {
 		return false, nil
 	}
+	e := encoders.Get().(*encoder)
+	defer encoders.Put(e)
 	rank := len(d.chunk)
 	dims := append([]int{k}, d.dims...)
 	tiles := make([]int, rank) // chunk counts per dimension beyond the first
@@ -347,18 +382,18 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 				}
 				continue
 			}
-			enc := d.arena[p.lo:p.hi]
+			enc := e.arena[p.lo:p.hi]
 			if rc := C.tv_dset_write_chunk(w.id, &p.offset[0], unsafe.Pointer(&enc[0]), C.size_t(len(enc))); rc < 0 {
 				return w.f.fail("append to", w.path, "", rc)
 			}
 			d.stored++
 		}
 		pieces = pieces[:0]
-		d.arena = d.arena[:0]
+		e.arena = e.arena[:0]
 		return nil
 	}
 	// Encode outside the lock, storing about every directBatch bytes.
-	d.arena = d.arena[:0]
+	e.arena = e.arena[:0]
 	var buf []T
 	for t0 := a; t0 < b; t0 += c0 {
 		for t := 0; t < ntiles; t++ {
@@ -381,19 +416,19 @@ func appendDirect[T float64 | int64 | int32](w *Writer, data []T, code C.int, si
 			for i := 1; i < rank; i++ {
 				off[i] = C.hsize_t(origin[i])
 			}
-			lo := len(d.arena)
+			lo := len(e.arena)
 			var ok bool
 			var err error
-			d.arena, ok, err = d.encode(d.arena, any(vals))
+			e.arena, ok, err = d.encode(e, e.arena, any(vals))
 			if err != nil {
 				return true, err
 			}
-			p := piece{offset: off, lo: lo, hi: len(d.arena)}
+			p := piece{offset: off, lo: lo, hi: len(e.arena)}
 			if !ok {
 				p.vals = any(append([]T(nil), vals...))
 			}
 			pieces = append(pieces, p)
-			if len(d.arena) >= directBatch {
+			if len(e.arena) >= directBatch {
 				if err := store(); err != nil {
 					return true, err
 				}
