@@ -71,6 +71,32 @@ func TestCeilLog2(t *testing.T) {
 	}
 }
 
+// TestScaleOffsetWorkedExample encodes two small chunks worked by hand
+// from H5Zscaleoffset.c (precompress with the fill value 0 defined, the
+// 21-byte header, codes packed most significant bit first).
+func TestScaleOffsetWorkedExample(t *testing.T) {
+	// Floats, D = 2: the fill value 0 is left out of min and max: min
+	// -0.5, max 2.0, span round(200 + 50) + 1 = 251, minbits
+	// ceil(log2 252) = 8; codes 1.25 -> 125 + 50 = 175, -0.5 -> 0,
+	// 0 -> 255 (all ones), 2.0 -> 250; 4 x 8 / 8 + 1 = 5 packed bytes.
+	so := scaleOffset{float: true, size: 8, p10: 100, p10neg: 0.01}
+	got, ok := so.soFloat(nil, []float64{1.25, -0.5, 0, 2.0})
+	want := []byte{8, 0, 0, 0, 8, 0, 0, 0, 0, 0, 0, 0xe0, 0xbf, 0, 0, 0, 0, 0, 0, 0, 0,
+		0xaf, 0x00, 0xff, 0xfa, 0x00}
+	if !ok || !bytes.Equal(got, want) {
+		t.Errorf("float chunk:\n got %x\nwant %x", got, want)
+	}
+	// Integers: min 5, max 7, span 3, minbits ceil(log2 4) = 2; codes 0,
+	// 2, 3 (the fill value), 1 -> bits 00 10 11 01 = 0x2d; 4 x 2 / 8 + 1
+	// = 2 packed bytes.
+	so = scaleOffset{size: 4}
+	got, ok = so.soInt(nil, []int64{5, 7, 0, 6})
+	want = []byte{2, 0, 0, 0, 8, 5, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0x2d, 0x00}
+	if !ok || !bytes.Equal(got, want) {
+		t.Errorf("int chunk:\n got %x\nwant %x", got, want)
+	}
+}
+
 // directCase is one dataset written by both paths.
 type directCase struct {
 	name  string
