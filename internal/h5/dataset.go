@@ -264,9 +264,10 @@ func memBuf0(data any) (C.int, unsafe.Pointer, int, error) {
 
 // Append adds rows along dimension 0; len(data) must be a whole number of
 // rows. data is a []float64, []float32, []int64, []int32 or []uint8.
-// Whole chunks of a float64, int64 or int32 dataset are encoded here and
-// stored directly (direct.go) unless the file was created with
-// CreateOptions.LibraryChunks; the values read back are the same.
+// Whole chunks of a float64, int64 or int32 dataset with the
+// scale-offset filter are encoded here and stored directly (direct.go)
+// unless the file was created with CreateOptions.LibraryChunks; the
+// values read back are the same.
 func (w *Writer) Append(data any) error {
 	if w.err != nil {
 		return w.err

@@ -70,9 +70,10 @@ type pipelineFilter struct {
 }
 
 // newDirect builds the direct path of a new dataset from its pipeline
-// as HDF5 stored it, or returns nil when the pipeline has a filter or
-// variant the encoders do not produce, or chunks that do not tile the
-// fixed dimensions (caller holds the lock).
+// as HDF5 stored it: scale-offset first, then any of shuffle, deflate
+// and Fletcher-32. It returns nil when the pipeline has another filter
+// or variant, no scale-offset, or chunks that do not tile the fixed
+// dimensions (caller holds the lock).
 func newDirect(id C.hid_t, spec DatasetSpec) *direct {
 	rank := len(spec.Dims)
 	if rank == 0 || spec.Chunk == nil || len(spec.Chunk) != rank {
@@ -119,6 +120,13 @@ func newDirect(id C.hid_t, spec DatasetSpec) *direct {
 		default:
 			return nil
 		}
+	}
+	if d.so == nil {
+		// Without scale-offset the chunk is shuffled float64 bytes, which
+		// klauspost/compress at the same level stores about 7 % larger
+		// than zlib (measured: convert --bit-exact of the demo log, 36.5
+		// MB -> 39.2 MB); the library keeps those.
+		return nil
 	}
 	return d
 }

@@ -192,8 +192,11 @@ func directCases() []directCase {
 	nan[40*15+2] = math.NaN()
 	cs = append(cs, directCase{name: "NaN chunk", spec: spec3(so(3), []int{32, 5, 3}), f64: nan, parts: []int{96}, wantDirect: true})
 	// Lossless float64: shuffle, deflate, Fletcher-32 (DefaultFilters).
-	cs = append(cs, directCase{name: "shuffle deflate", spec: spec3(Filters{Shuffle: true, Deflate: 4, Fletcher32: true}, []int{32, 5, 3}), f64: v, parts: parts, wantDirect: true})
-	cs = append(cs, directCase{name: "deflate 9 only", spec: spec3(Filters{Deflate: 9}, []int{32, 5, 3}), f64: v, parts: parts, wantDirect: true})
+	// Lossless float64 (DefaultFilters) stays with the library.
+	cs = append(cs, directCase{name: "shuffle deflate", spec: spec3(Filters{Shuffle: true, Deflate: 4, Fletcher32: true}, []int{32, 5, 3}), f64: v, parts: parts})
+	// Scale-offset at deflate level 9, and without deflate.
+	cs = append(cs, directCase{name: "deflate 9", spec: spec3(Filters{ScaleOffsetFloat: true, ScaleOffsetDigits: 6, Deflate: 9, Fletcher32: true}, []int{32, 5, 3}), f64: printed(v, 6), parts: parts, wantDirect: true})
+	cs = append(cs, directCase{name: "no deflate", spec: spec3(Filters{ScaleOffsetFloat: true, ScaleOffsetDigits: 6, Fletcher32: true}, []int{32, 5, 3}), f64: printed(v, 6), parts: parts, wantDirect: true})
 	// Integers: scale-offset (minbits computed), deflate, Fletcher-32.
 	ifl := Filters{ScaleOffsetInt: true, Deflate: 4, Fletcher32: true}
 	steps := make([]int64, 5000)

@@ -129,10 +129,11 @@ func TestFullDisk(t *testing.T) {
 
 // fillDisk writes 15 MiB into a file in mnt, a 5 MiB file system:
 // unfiltered through the library, then as whole chunks encoded in Go and
-// stored directly (random values, which deflate does not shrink).
+// stored directly (random values at 15 decimals, about 53 bits each,
+// which deflate does not shrink).
 func fillDisk(t *testing.T, mnt string) {
 	rng := rand.New(rand.NewPCG(1, 2))
-	for i, fl := range []Filters{{}, {Shuffle: true, Deflate: 1, Fletcher32: true}} {
+	for i, fl := range []Filters{{}, {ScaleOffsetFloat: true, ScaleOffsetDigits: 15, Deflate: 1, Fletcher32: true}} {
 		out := filepath.Join(mnt, fmt.Sprintf("out%d.h5", i))
 		f, err := Create(out)
 		if err != nil {

@@ -13,10 +13,10 @@
 //
 // The serial HDF5 library is not thread-safe. Every exported function and
 // method takes the package mutex, so callers may use the package from any
-// goroutine; HDF5 work is serialised here and nowhere else. Appends
-// encode whole chunks in Go before taking it (direct.go): the filters
-// trajvault uses are reproduced byte for byte up to deflate, and the
-// chunks stored with H5Dwrite_chunk.
+// goroutine; HDF5 work is serialised here and nowhere else. Appends to
+// scale-offset datasets encode whole chunks in Go before taking it
+// (direct.go): the filters are reproduced byte for byte up to deflate,
+// and the chunks stored with H5Dwrite_chunk.
 //
 // No C type escapes this package. Paths are absolute HDF5 paths such as
 // "/particles/all/position/value".
