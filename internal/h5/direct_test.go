@@ -487,3 +487,25 @@ func firstDiff(a, b []byte) int {
 	}
 	return min(len(a), len(b))
 }
+
+// BenchmarkEncodeChunk encodes one chunk of 1024 frames x 30 atoms x 3 at
+// 8 decimals with scale-offset, deflate 4 and Fletcher-32, the pipeline
+// convert gives positions.
+func BenchmarkEncodeChunk(b *testing.B) {
+	rng := rand.New(rand.NewPCG(1, 1))
+	v := make([]float64, 1024*90)
+	for i := range v {
+		v[i] = math.Round((rng.Float64()*20-10)*1e8) / 1e8
+	}
+	up, down := pow10(8)
+	d := &direct{so: &scaleOffset{float: true, size: 8, p10: up, p10neg: down},
+		stages: []stage{{kind: stageDeflate, size: 4}, {kind: stageFletcher}}}
+	e := new(encoder)
+	b.SetBytes(int64(len(v) * 8))
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, ok, err := d.encode(e, nil, v); !ok || err != nil {
+			b.Fatal(ok, err)
+		}
+	}
+}
