@@ -115,14 +115,19 @@ func (f *File) SoftLink(target, dst string) error {
 }
 
 // Writer writes one dataset. Like archive/tar's Writer it keeps the first
-// error: every later call returns it, and calls after Close fail.
+// error: every later call returns it, and calls after Close fail. A
+// Writer is used by one goroutine at a time (its chunk buffers are its
+// own); different Writers may append concurrently.
 type Writer struct {
 	f     *File
 	path  string
 	id    C.hid_t
 	dtype DType
 	row   int // elements per row along dimension 0
+	rows  int // size of dimension 0
 	err   error
+	// direct, when set, stores whole chunks encoded in Go (direct.go).
+	direct *direct
 }
 
 // CreateDataset creates a dataset and returns a Writer for it. Missing
@@ -186,7 +191,14 @@ func (f *File) CreateDataset(path string, spec DatasetSpec) (*Writer, error) {
 	if id < 0 {
 		return nil, f.fail("create dataset", path, "", C.int(max(id, -100)))
 	}
-	return &Writer{f: f, path: path, id: id, dtype: spec.Type, row: row}, nil
+	w := &Writer{f: f, path: path, id: id, dtype: spec.Type, row: row}
+	if rank > 0 {
+		w.rows = spec.Dims[0]
+	}
+	if !f.libraryChunks {
+		w.direct = newDirect(id, spec)
+	}
+	return w, nil
 }
 
 // CreateStrings writes a 1-D fixed-length string dataset.
@@ -252,6 +264,10 @@ func memBuf0(data any) (C.int, unsafe.Pointer, int, error) {
 
 // Append adds rows along dimension 0; len(data) must be a whole number of
 // rows. data is a []float64, []float32, []int64, []int32 or []uint8.
+// Whole chunks of a float64, int64 or int32 dataset with the
+// scale-offset filter are encoded here and stored directly (direct.go)
+// unless the file was created with CreateOptions.LibraryChunks; the
+// values read back are the same.
 func (w *Writer) Append(data any) error {
 	if w.err != nil {
 		return w.err
@@ -268,12 +284,39 @@ func (w *Writer) Append(data any) error {
 		w.err = &Error{File: w.f.path, Op: fmt.Sprintf("append %d values (rows of %d) to", n, w.row), Path: w.path, Err: ErrSizeMismatch}
 		return w.err
 	}
+	if w.direct != nil {
+		var done bool
+		switch d := data.(type) {
+		case []float64:
+			if w.dtype == Float64 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		case []int64:
+			if w.dtype == Int64 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		case []int32:
+			if w.dtype == Int32 {
+				done, err = appendDirect(w, d, code, size)
+			}
+		}
+		if err != nil {
+			w.err = err
+			return err
+		}
+		if done {
+			w.rows += n / w.row
+			return nil
+		}
+	}
 	lock()
 	defer unlock()
 	if rc := C.tv_dset_append(w.id, code, C.hsize_t(n/w.row), ptr, C.size_t(n*size)); rc < 0 {
 		w.err = w.f.fail("append to", w.path, "", rc)
+		return w.err
 	}
-	return w.err
+	w.rows += n / w.row
+	return nil
 }
 
 // Write writes the whole dataset at its current size.

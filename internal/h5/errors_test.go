@@ -3,6 +3,8 @@ package h5
 import (
 	"bytes"
 	"errors"
+	"fmt"
+	"math/rand/v2"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -125,33 +127,46 @@ func TestFullDisk(t *testing.T) {
 	t.Logf("in a user namespace:\n%s", out)
 }
 
-// fillDisk writes 15 MiB into a file in mnt, a 5 MiB file system.
+// fillDisk writes 15 MiB into a file in mnt, a 5 MiB file system:
+// unfiltered through the library, then as whole chunks encoded in Go and
+// stored directly (random values at 15 decimals, about 53 bits each,
+// which deflate does not shrink).
 func fillDisk(t *testing.T, mnt string) {
-	out := filepath.Join(mnt, "out.h5")
-	f, err := Create(out)
-	if err != nil {
-		t.Fatal(err)
+	rng := rand.New(rand.NewPCG(1, 2))
+	for i, fl := range []Filters{{}, {ScaleOffsetFloat: true, ScaleOffsetDigits: 15, Deflate: 1, Fletcher32: true}} {
+		out := filepath.Join(mnt, fmt.Sprintf("out%d.h5", i))
+		f, err := Create(out)
+		if err != nil {
+			t.Fatal(err)
+		}
+		w, err := f.CreateDataset("/particles/all/position/value", DatasetSpec{Type: Float64, Dims: []int{0, 3},
+			MaxDims: []int{Unlimited, 3}, Chunk: []int{4096, 3}, Filters: fl})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if (w.direct != nil) != (i == 1) {
+			t.Fatalf("filters %+v: direct path %v", fl, w.direct != nil)
+		}
+		block := make([]float64, 3*65536) // 1.5 MiB per append
+		for i := range block {
+			block[i] = rng.NormFloat64()
+		}
+		for i := 0; i < 10 && err == nil; i++ {
+			err = w.Append(block)
+		}
+		if cerr := w.Close(); err == nil {
+			err = cerr
+		}
+		if cerr := f.Close(); err == nil {
+			err = cerr
+		}
+		if !errors.Is(err, syscall.ENOSPC) {
+			t.Fatalf("15 MiB into 5 MiB, filters %+v: %v, want ENOSPC", fl, err)
+		}
+		if msg := err.Error(); !strings.Contains(msg, out) || !strings.Contains(msg, "no space left on device") {
+			t.Errorf("message %q lacks the file or the cause", msg)
+		}
+		t.Log(err)
+		os.Remove(out)
 	}
-	w, err := f.CreateDataset("/particles/all/position/value", DatasetSpec{Type: Float64, Dims: []int{0, 3},
-		MaxDims: []int{Unlimited, 3}, Chunk: []int{4096, 3}})
-	if err != nil {
-		t.Fatal(err)
-	}
-	block := make([]float64, 3*65536) // 1.5 MiB per append
-	for i := 0; i < 10 && err == nil; i++ {
-		err = w.Append(block)
-	}
-	if cerr := w.Close(); err == nil {
-		err = cerr
-	}
-	if cerr := f.Close(); err == nil {
-		err = cerr
-	}
-	if !errors.Is(err, syscall.ENOSPC) {
-		t.Fatalf("15 MiB into 5 MiB: %v, want ENOSPC", err)
-	}
-	if msg := err.Error(); !strings.Contains(msg, out) || !strings.Contains(msg, "no space left on device") {
-		t.Errorf("message %q lacks the file or the cause", msg)
-	}
-	t.Log(err)
 }

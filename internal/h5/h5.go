@@ -13,13 +13,17 @@
 //
 // The serial HDF5 library is not thread-safe. Every exported function and
 // method takes the package mutex, so callers may use the package from any
-// goroutine; HDF5 work is serialised here and nowhere else.
+// goroutine; HDF5 work is serialised here and nowhere else. Appends to
+// scale-offset datasets encode whole chunks in Go before taking it
+// (direct.go): the filters are reproduced byte for byte up to deflate,
+// and the chunks stored with H5Dwrite_chunk.
 //
 // No C type escapes this package. Paths are absolute HDF5 paths such as
 // "/particles/all/position/value".
 package h5
 
 // #cgo !hdf5static pkg-config: hdf5
+// #cgo LDFLAGS: -lm
 // #include "shim.h"
 import "C"
 
@@ -321,6 +325,8 @@ type File struct {
 	path     string
 	writable bool
 	budget   int64
+	// libraryChunks: CreateOptions.LibraryChunks
+	libraryChunks bool
 }
 
 // signature is the HDF5 format signature; the superblock may sit at byte 0,
@@ -499,6 +505,10 @@ type CreateOptions struct {
 	// IstoreK is the half-rank of chunk B-tree nodes (0 = library
 	// default, 32); small values save space in files with few chunks.
 	IstoreK int
+	// LibraryChunks stores every chunk through the HDF5 library's own
+	// filter pipeline instead of encoding whole chunks in Go (direct.go):
+	// slower, same values; for comparisons.
+	LibraryChunks bool
 }
 
 // CreateWith makes a new file with the given options; it fails if path
@@ -521,7 +531,7 @@ func CreateWith(path string, o CreateOptions) (*File, error) {
 		C.tv_ctx_free(ctx)
 		return nil, &OpenError{File: path, Err: &Error{File: path, Op: "create file", Path: "/", Stack: st, Errno: stackErrno(st)}}
 	}
-	return &File{raw: id, ctx: ctx, path: path, writable: true, open: true, budget: DefaultMaxReadBytes}, nil
+	return &File{raw: id, ctx: ctx, path: path, writable: true, open: true, budget: DefaultMaxReadBytes, libraryChunks: o.LibraryChunks}, nil
 }
 
 // Create makes a new file in the library's default (earliest) format; it

@@ -2,6 +2,7 @@ package h5
 
 import (
 	"errors"
+	"math"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -210,6 +211,9 @@ func TestNoLeaks(t *testing.T) {
 	f.AttrNames("/a/missing")
 	f.Links("/a/missing")
 	f.ObjectID("/a/missing")
+	f.RawChunk("/a/b/x", []int{0, 0})
+	f.RawChunk("/a/b/x", []int{1, 0}) // not a chunk's origin
+	f.RawChunk("/a/missing", []int{0})
 	if n := OpenObjects(); n != base+1 { // the file itself
 		t.Errorf("while open: %d identifiers, want %d", n, base+1)
 	}
@@ -217,6 +221,28 @@ func TestNoLeaks(t *testing.T) {
 	f.Close()
 	if n := OpenObjects(); n != base {
 		t.Errorf("after close: %d open identifiers, want %d", n, base)
+	}
+	// The direct chunk path, a chunk the encoders decline (NaN) included.
+	dpath := filepath.Join(t.TempDir(), "direct.h5")
+	df, err := Create(dpath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	dw, err := df.CreateDataset("/d", DatasetSpec{Type: Float64, Dims: []int{0}, MaxDims: []int{Unlimited}, Chunk: []int{4},
+		Filters: Filters{ScaleOffsetFloat: true, ScaleOffsetDigits: 2, Deflate: 1, Fletcher32: true}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := dw.Append([]float64{1, 2, 3, 4, 5, math.NaN(), 7, 8, 9, 10}); err != nil || dw.direct == nil {
+		t.Fatalf("direct append: %v (direct path %v)", err, dw.direct != nil)
+	}
+	if dw.direct.stored != 1 {
+		t.Fatalf("%d chunks stored directly, want 1 (the second has a NaN)", dw.direct.stored)
+	}
+	dw.Close()
+	df.Close()
+	if n := OpenObjects(); n != base {
+		t.Fatalf("after direct chunks: %d open identifiers, want %d", n, base)
 	}
 	raw, _ := os.ReadFile(path)
 	img, err := OpenImageWith("leak.h5", raw, OpenOptions{AllowExternalDir: filepath.Dir(path), MaxReadBytes: 1 << 10})

@@ -5,6 +5,7 @@
 #include <errno.h>
 #include <limits.h>
 #include <malloc.h>
+#include <math.h>
 #include <stdint.h>
 #include <string.h>
 #include <sys/stat.h>
@@ -1059,4 +1060,94 @@ char *tv_dset_read_strings(tv_ctx *c, hid_t loc, const char *path, size_t cap, s
 	H5Pclose(pl);
 	H5Dclose(d);
 	return out;
+}
+
+// ---- direct chunk writes ---------------------------------------------
+
+// tv_dset_pipeline_filter reads filter idx of an open dataset's pipeline
+// with its client data as the library stored it at creation (the "set
+// local" callbacks fill in, e.g., scale-offset's element count, type and
+// fill value; HDF5 1.10 reference manual, H5Pget_filter2). Returns the
+// number of filters, or -1.
+int tv_dset_pipeline_filter(hid_t d, int idx, unsigned *id, unsigned *flags, unsigned *cd, size_t *ncd) {
+	hid_t pl = H5Dget_create_plist(d);
+	if (pl < 0) { keep_err(); return -1; }
+	int n = H5Pget_nfilters(pl);
+	if (n >= 0 && idx >= 0 && idx < n) {
+		unsigned conf = 0;
+		char name[8];
+		H5Z_filter_t f = H5Pget_filter2(pl, (unsigned)idx, flags, ncd, cd, sizeof name, name, &conf);
+		if (f < 0) n = -1; else *id = (unsigned)f;
+	}
+	if (n < 0) keep_err();
+	H5Pclose(pl);
+	return n;
+}
+
+// tv_pow10 gives pow(10, d) and pow(10, -d) from the C library's pow, the
+// function HDF5's scale-offset filter calls (H5Zscaleoffset.c), so that Go
+// code scaling by them rounds exactly as the filter does.
+void tv_pow10(int d, double *up, double *down) {
+	*up = pow(10.0, (double)d);
+	*down = pow(10.0, -(double)d);
+}
+
+// tv_dset_set_rows sets the size of dimension 0 (the others are kept).
+int tv_dset_set_rows(hid_t d, hsize_t rows) {
+	hid_t fs = H5Dget_space(d);
+	if (fs < 0) { keep_err(); return -1; }
+	hsize_t dims[TV_MAXRANK];
+	int rank = H5Sget_simple_extent_ndims(fs);
+	int rc = -1;
+	if (rank >= 1 && rank <= TV_MAXRANK && H5Sget_simple_extent_dims(fs, dims, NULL) >= 0) {
+		dims[0] = rows;
+		rc = H5Dset_extent(d, dims) < 0 ? -1 : 0;
+	}
+	if (rc < 0) keep_err();
+	H5Sclose(fs);
+	return rc;
+}
+
+// tv_dset_write_box writes the hyperslab start/count from buf (the box's
+// elements in row-major order) through the library's filter pipeline.
+int tv_dset_write_box(hid_t d, int memcode, int rank, const hsize_t *start, const hsize_t *count,
+                      const void *buf, size_t buflen) {
+	hid_t fs = H5Dget_space(d), ms = -1;
+	int rc = -1;
+	if (fs < 0) goto done;
+	if (H5Sget_simple_extent_ndims(fs) != rank) { rc = TV_E_SIZE; goto done; }
+	if (H5Sselect_hyperslab(fs, H5S_SELECT_SET, start, NULL, count, NULL) < 0) goto done;
+	if (H5Sselect_valid(fs) <= 0) { rc = TV_E_SIZE; goto done; }
+	ms = H5Screate_simple(rank, count, NULL);
+	if (ms < 0) goto done;
+	if (!fits(ms, memcode, buflen)) { rc = TV_E_SIZE; goto done; }
+	rc = H5Dwrite(d, tv_memtype(memcode), ms, fs, H5P_DEFAULT, buf) < 0 ? -1 : 0;
+done:
+	if (rc == -1) keep_err();
+	if (ms >= 0) H5Sclose(ms);
+	if (fs >= 0) H5Sclose(fs);
+	return rc;
+}
+
+// tv_dset_write_chunk stores one chunk already encoded by the caller with
+// every filter of the pipeline applied (filter mask 0), bypassing the
+// library's filters (HDF5 1.10.3+, H5Dwrite_chunk).
+int tv_dset_write_chunk(hid_t d, const hsize_t *offset, const void *buf, size_t len) {
+	int rc = H5Dwrite_chunk(d, H5P_DEFAULT, 0, offset, len, buf) < 0 ? -1 : 0;
+	if (rc < 0) keep_err();
+	return rc;
+}
+
+// tv_dset_read_chunk reads one stored chunk as it is in the file (filters
+// not undone) into buf of cap bytes: its size in *len and filter mask in
+// *mask. TV_E_SIZE when cap is too small (*len says how much is needed).
+int tv_dset_read_chunk(hid_t d, const hsize_t *offset, unsigned *mask, void *buf, size_t cap, size_t *len) {
+	hsize_t n = 0;
+	if (H5Dget_chunk_storage_size(d, offset, &n) < 0) { keep_err(); return -1; }
+	*len = (size_t)n;
+	if (n > cap) return TV_E_SIZE;
+	uint32_t m = 0;
+	if (H5Dread_chunk(d, H5P_DEFAULT, offset, &m, buf) < 0) { keep_err(); return -1; }
+	*mask = m;
+	return 0;
 }

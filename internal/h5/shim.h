@@ -112,6 +112,14 @@ int tv_dset_read_block(hid_t d, int memcode, int rank, const hsize_t *start, con
                        void *buf, size_t buflen);
 char *tv_dset_read_strings(tv_ctx *c, hid_t loc, const char *path, size_t cap, size_t *total, int *rc);
 
+int tv_dset_pipeline_filter(hid_t d, int idx, unsigned *id, unsigned *flags, unsigned *cd, size_t *ncd);
+void tv_pow10(int d, double *up, double *down);
+int tv_dset_set_rows(hid_t d, hsize_t rows);
+int tv_dset_write_box(hid_t d, int memcode, int rank, const hsize_t *start, const hsize_t *count,
+                      const void *buf, size_t buflen);
+int tv_dset_write_chunk(hid_t d, const hsize_t *offset, const void *buf, size_t len);
+int tv_dset_read_chunk(hid_t d, const hsize_t *offset, unsigned *mask, void *buf, size_t cap, size_t *len);
+
 int tv_delete_link(tv_ctx *c, hid_t loc, const char *path);
 int tv_delete_attr(tv_ctx *c, hid_t loc, const char *path, const char *name);
 
