@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"io"
+	"unsafe"
 )
 
 // lineReader yields lines without their terminator (LF or CRLF), drops a
@@ -66,8 +67,23 @@ type field struct {
 // one allocation per line instead of one per field (text parsing was the
 // larger part of convert's CPU).
 func splitFields(b []byte, sep byte, out []field) []field {
+	return splitLine(b, string(b), sep, out)
+}
+
+// splitView is splitFields whose fields are views into b itself, valid
+// only until b changes (the next line): no allocation per line. A caller
+// that keeps a field's text beyond that copies it (strings.Clone);
+// parsing and error messages use it at once.
+func splitView(b []byte, sep byte, out []field) []field {
+	if len(b) == 0 {
+		return out[:0]
+	}
+	return splitLine(b, unsafe.String(&b[0], len(b)), sep, out)
+}
+
+// splitLine splits b, whose text is line, for splitFields and splitView.
+func splitLine(b []byte, line string, sep byte, out []field) []field {
 	out = out[:0]
-	line := string(b)
 	if sep != 0 {
 		start := 0
 		for i := 0; i <= len(b); i++ {

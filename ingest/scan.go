@@ -308,17 +308,13 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 				}
 			}
 			for _, c := range rec.atoms {
-				for _, v := range c.values {
-					fr.note(c.quantity, v)
-				}
+				fr.noteAll(c.quantity, c.values)
 			}
 			for _, c := range rec.extras {
 				if _, ok := rep.extraWidth[c.quantity]; !ok && len(rec.symbols) > 0 {
 					rep.extraWidth[c.quantity] = len(c.values) / len(rec.symbols)
 				}
-				for _, v := range c.values {
-					fr.note(ExtraPrefix+c.quantity, v)
-				}
+				fr.noteAll(ExtraPrefix+c.quantity, c.values)
 			}
 		}
 		for i, ok := range rec.hasScalar {
@@ -433,6 +429,27 @@ func (fr *FileReport) note(q string, v float64) {
 	fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(v))
 	if v == 0 && math.Signbit(v) {
 		fr.negZeros[q]++
+	}
+}
+
+// noteAll is note for every value of vs, with one map access per
+// quantity instead of one per value (a NaN sticks, as with math.Max).
+func (fr *FileReport) noteAll(q string, vs []float64) {
+	if len(vs) == 0 {
+		return
+	}
+	m, neg := fr.maxAbs[q], 0
+	for _, v := range vs {
+		if a := math.Abs(v); a > m || a != a {
+			m = a
+		}
+		if v == 0 && math.Signbit(v) {
+			neg++
+		}
+	}
+	fr.maxAbs[q] = m
+	if neg > 0 {
+		fr.negZeros[q] += neg
 	}
 }
 

@@ -21,6 +21,7 @@ type TableColumn struct {
 	State    int    // state index for per-state quantities, else -1
 	Format   textnum.Format
 	seen     bool
+	raw      textnum.Format // the last value's format (Column.mergeRaw)
 }
 
 // TableReader reads a column table one row at a time: whitespace-, comma-
@@ -152,7 +153,8 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			break
 		}
 	}
-	t.fields = splitFields(b, t.sep, t.fields)
+	// Views into the line: each field is parsed at once, none is kept.
+	t.fields = splitView(b, t.sep, t.fields)
 	if len(t.fields) != len(t.Columns) {
 		col := len(b) + 1
 		if len(t.fields) > len(t.Columns) {
@@ -173,10 +175,11 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			return line, &ParseError{File: t.file, Line: line, Column: f.col, Err: detail(cause, "column %s: expected a number, found %q", t.Columns[i].Name, f.text)}
 		}
 		dst[i] = v
-		if !c.seen {
-			c.Format, c.seen = fm, true
-		} else {
-			c.Format = c.Format.Merge(fm)
+		switch {
+		case !c.seen:
+			c.Format, c.raw, c.seen = fm, fm, true
+		case fm != c.raw: // else Merge would change nothing (Column.mergeRaw)
+			c.Format, c.raw = c.Format.Merge(fm), fm
 		}
 	}
 	t.rows++
