@@ -7,6 +7,8 @@ import (
 	"io"
 	"maps"
 	"math"
+	"os"
+	"path/filepath"
 	"slices"
 	"sort"
 	"strconv"
@@ -108,6 +110,7 @@ const maxExactScaled = 1 << 50
 // layout. When ctx is cancelled it stops promptly and returns ctx.Err();
 // as on any error, nothing is left under out.
 func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
+	defer rep.Discard() // the spool serves one conversion, done or failed
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
@@ -132,7 +135,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if err != nil {
 		return nil, err
 	}
-	srcs, err := openSources(rep.traj, opt.Options)
+	srcs, err := convertSources(rep, opt.Options)
 	if err != nil {
 		return nil, err
 	}
@@ -225,6 +228,33 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 		return nil, err
 	}
 	return res, nil
+}
+
+// convertSources are the sources of the conversion pass: the records
+// the scan spooled, else the files read again.
+func convertSources(rep *TrajReport, opt Options) ([]source, error) {
+	sf := rep.spool
+	if sf == nil {
+		return openSources(rep.traj, opt)
+	}
+	if len(sf.sections) != len(rep.Files) {
+		return nil, fmt.Errorf("%s: %w (%d sections for %d files)", sf.path, errSpool, len(sf.sections), len(rep.Files))
+	}
+	f, err := os.Open(sf.path)
+	if err != nil {
+		return nil, fmt.Errorf("reading the spool of %s: %w", rep.Name, err)
+	}
+	srcs := make([]source, len(rep.Files))
+	for i, fr := range rep.Files {
+		s := newSpoolSource(f, sf.sections[i], fr)
+		if i == 0 {
+			// The sources share f, closed with the first when the
+			// conversion ends (all are closed together).
+			s.f = f
+		}
+		srcs[i] = s
+	}
+	return srcs, nil
 }
 
 type hashResult struct {
@@ -761,11 +791,18 @@ func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOp
 	if err != nil {
 		return nil, nil, err
 	}
-	rep, err := Scan(ctx, t, opt.Options)
+	sopt := opt.Options
+	if st, err := os.Stat(filepath.Dir(out)); sopt.SpoolDir == "" && err == nil && st.IsDir() {
+		// One parse: the conversion replays what the scan read. (A
+		// missing folder is left to the writer's error, as before.)
+		sopt.SpoolDir = filepath.Dir(out)
+	}
+	rep, err := Scan(ctx, t, sopt)
 	if err != nil {
 		return nil, nil, err
 	}
 	if rep.Refusal(opt.DropPartial) != nil {
+		rep.Discard()
 		return rep, nil, fmt.Errorf("%s: %w", t.Name, ErrRefused)
 	}
 	res, err := Convert(ctx, rep, out, opt)

@@ -127,6 +127,8 @@ type TrajReport struct {
 	ke       []*keFrame
 	keByKey  map[int64]*keFrame
 	geoSteps bool
+	// spool holds the records the scan read, for Convert (nil: none).
+	spool *spoolFile
 }
 
 // Options control reading; zero values are the defaults.
@@ -150,6 +152,14 @@ type Options struct {
 	// error into a warning, so that convert goes ahead; the accepted
 	// findings are recorded in the provenance.
 	AcceptMismatch bool
+	// SpoolDir, when set, makes Scan keep every record it parsed in a
+	// temporary file (the spool, spool.go) in that folder, so that
+	// Convert replays the records instead of parsing the text again.
+	// Give the output's folder (not /tmp: the spool holds about 8 bytes
+	// per number). Convert removes the spool; a caller that scans with a
+	// SpoolDir and does not convert calls TrajReport.Discard. Empty (the
+	// default, and for scan alone): no spool, Convert reads the text.
+	SpoolDir string
 }
 
 func (t *TrajReport) add(code string, sev finding.Severity, file string, line int, format string, args ...any) {
@@ -238,23 +248,58 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 			s.close()
 		}
 	}()
-	for i, s := range srcs {
-		fr, err := scanSource(ctx, rep, s, t.Inputs[i].reader)
-		if err != nil {
+	var sw *spoolWriter
+	if opt.SpoolDir != "" {
+		if sw, err = newSpool(opt.SpoolDir, t.Name); err != nil {
 			return nil, err
+		}
+	}
+	for i, s := range srcs {
+		if sw != nil {
+			sw.begin()
+		}
+		fr, err := scanSource(ctx, rep, s, t.Inputs[i].reader, sw)
+		if err != nil {
+			if sw != nil {
+				sw.abort()
+			}
+			return nil, err
+		}
+		if sw != nil {
+			sw.end()
 		}
 		rep.Files = append(rep.Files, fr)
 	}
+	if sw != nil {
+		if rep.spool, err = sw.finish(); err != nil {
+			return nil, err
+		}
+	}
 	if err := rep.checkGivenUnits(opt); err != nil {
+		rep.Discard()
 		return nil, err
 	}
 	rep.combine(opt)
 	rep.checkRecipeRules(srcs)
 	rep.checkHopEvents()
+	if rep.Refusal(opt.DropPartial) != nil {
+		rep.Discard() // not converted as scanned: no need to keep it
+	}
 	return rep, nil
 }
 
-func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*FileReport, error) {
+// Discard removes the spool of t (Options.SpoolDir), if any: for callers
+// that scanned with a spool and do not convert t. Convert calls it
+// itself; later calls do nothing.
+func (t *TrajReport) Discard() {
+	if t != nil {
+		t.spool.remove()
+	}
+}
+
+// scanSource reads s to its end or first error; every record read goes
+// to sw too, when not nil.
+func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader, sw *spoolWriter) (*FileReport, error) {
 	// The report keeps no reference to s: a closed source still holds its
 	// line buffer (1 MiB), and an ensemble's reports live until the
 	// conversion ends.
@@ -296,6 +341,11 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			rep.Problems = append(rep.Problems, p)
 			fr.failed = code != PTruncated
 			break
+		}
+		if sw != nil {
+			if err := sw.write(rec); err != nil {
+				return nil, sw.failure()
+			}
 		}
 		if rec.symbols != nil {
 			if atoms == 0 {
