@@ -77,8 +77,11 @@ func (f Format) MayBeShortest() bool { return f.cand != 0 }
 // Readers call it while the column's format MayBeShortest, and Parse
 // after that (the test costs a float formatting).
 func ParseShort(s string, check bool) (float64, Format, error) {
+	if !check {
+		return Parse(s)
+	}
 	v, f, err := Parse(s)
-	if err != nil || !check {
+	if err != nil {
 		return v, f, err
 	}
 	if s == repr(v) {
@@ -123,68 +126,55 @@ var ErrSyntax = errors.New("not a number")
 // number written (strconv.ParseFloat after normalising the exponent).
 func Parse(s string) (float64, Format, error) {
 	var f Format
-	if s == "" {
+	n := len(s)
+	if n == 0 {
 		return 0, f, ErrSyntax
 	}
 	i := 0
 	if s[0] == '+' || s[0] == '-' {
 		i++
 	}
-	digits, lead, dot, dec := 0, true, false, 0
-	sig := 0
-	var m uint64 // the digits as an integer while sig <= 19
 	start := i
-	for ; i < len(s); i++ {
-		c := s[i]
-		switch {
-		case c >= '0' && c <= '9':
-			digits++
-			if c != '0' {
-				lead = false
+	// Digits before and after the point in two tight loops (this is the
+	// hottest code of convert): sig counts digits from the first nonzero
+	// one, m holds them as an integer while sig <= 19.
+	sig, dec := 0, 0
+	var m uint64
+	for ; i < n; i++ {
+		c := s[i] - '0'
+		if c > 9 {
+			break
+		}
+		if sig > 0 || c != 0 {
+			sig++
+			if sig <= 19 {
+				m = m*10 + uint64(c)
 			}
-			if !lead {
-				sig++
-				if sig <= 19 {
-					m = m*10 + uint64(c-'0')
-				}
-			}
-			if dot {
-				dec++
-			}
-		case c == '.' && !dot:
-			dot = true
-		default:
-			goto mantissaDone
 		}
 	}
-mantissaDone:
+	digits := i - start
+	if i < n && s[i] == '.' {
+		i++
+		for ; i < n; i++ {
+			c := s[i] - '0'
+			if c > 9 {
+				break
+			}
+			dec++
+			if sig > 0 || c != 0 {
+				sig++
+				if sig <= 19 {
+					m = m*10 + uint64(c)
+				}
+			}
+		}
+		digits += dec
+	}
 	if digits == 0 {
 		return 0, f, ErrSyntax
 	}
-	mant := s[:i]
-	exp := ""
-	if i < len(s) {
-		c := s[i]
-		switch {
-		case c == 'E' || c == 'e' || c == 'D' || c == 'd':
-			f.ExpChar = c
-			exp = s[i+1:]
-		case (c == '+' || c == '-') && i > start:
-			exp = s[i:] // Fortran drops the letter for 3-digit exponents
-		default:
-			return 0, f, ErrSyntax
-		}
-		if !validExp(exp) {
-			return 0, f, ErrSyntax
-		}
-		f.Exp = true
-		if sig == 0 {
-			sig = 1
-		}
-		f.Sig = sig
-		f.Decimals = dec
-	} else {
-		f.Decimals = dec
+	f.Decimals = dec
+	if i == n {
 		// Fast path for fixed notation (Clinger's exact case, common
 		// practice in float parsers): with at most 15 significant digits
 		// m < 10^15 < 2^53 and 10^dec (dec <= 22) are both exact float64
@@ -198,20 +188,46 @@ mantissaDone:
 			}
 			return v, f, nil
 		}
+		v, err := parseFloat(s, s, "")
+		return v, f, err
 	}
+	mant := s[:i]
+	c := s[i]
+	var exp string
+	switch {
+	case c == 'E' || c == 'e' || c == 'D' || c == 'd':
+		f.ExpChar = c
+		exp = s[i+1:]
+	case (c == '+' || c == '-') && i > start:
+		exp = s[i:] // Fortran drops the letter for 3-digit exponents
+	default:
+		return 0, f, ErrSyntax
+	}
+	if !validExp(exp) {
+		return 0, f, ErrSyntax
+	}
+	f.Exp = true
+	f.Sig = max(sig, 1)
+	v, err := parseFloat(s, mant, exp)
+	return v, f, err
+}
+
+// parseFloat is strconv.ParseFloat of mant with exponent exp ("" for
+// none); s, the whole field, is for the range error.
+func parseFloat(s, mant, exp string) (float64, error) {
 	norm := mant
-	if f.Exp {
+	if exp != "" {
 		norm = mant + "e" + exp
 	}
 	v, err := strconv.ParseFloat(norm, 64)
 	if err != nil {
 		var ne *strconv.NumError
 		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
-			return v, f, fmt.Errorf("%w: %s is out of the float64 range", ErrSyntax, s)
+			return v, fmt.Errorf("%w: %s is out of the float64 range", ErrSyntax, s)
 		}
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
-	return v, f, nil
+	return v, nil
 }
 
 // pow10 holds the powers of ten that are exact in float64 (10^22 is the
