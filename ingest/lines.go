@@ -19,12 +19,16 @@ func newLineReader(r io.Reader) *lineReader {
 	return &lineReader{br: bufio.NewReaderSize(r, 1<<20)}
 }
 
-// next returns the next line; the slice is valid until the next call.
-// io.EOF means no more lines.
+// next returns the next line; the slice is valid until the next call of
+// next or atEOF. io.EOF means no more lines.
 func (l *lineReader) next() ([]byte, error) {
 	l.buf = l.buf[:0]
 	for {
 		chunk, err := l.br.ReadSlice('\n')
+		if err == nil && len(l.buf) == 0 {
+			// The whole line is in bufio's buffer: use it there, uncopied.
+			return l.trim(chunk), nil
+		}
 		l.buf = append(l.buf, chunk...)
 		if err == bufio.ErrBufferFull {
 			continue
@@ -37,13 +41,19 @@ func (l *lineReader) next() ([]byte, error) {
 		}
 		break
 	}
+	return l.trim(l.buf), nil
+}
+
+// trim counts line b and drops its terminator, and the byte-order mark of
+// the first line.
+func (l *lineReader) trim(b []byte) []byte {
 	l.line++
-	b := bytes.TrimSuffix(l.buf, []byte("\n"))
+	b = bytes.TrimSuffix(b, []byte("\n"))
 	b = bytes.TrimSuffix(b, []byte("\r"))
 	if l.line == 1 {
 		b = bytes.TrimPrefix(b, []byte("\xef\xbb\xbf"))
 	}
-	return b, nil
+	return b
 }
 
 // atEOF reports whether no bytes are left.

@@ -435,6 +435,9 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader, sw *s
 		if rec.hasTime {
 			prevTime, prevStep, havePrev = rec.time, rec.step, true
 		}
+		if rc, ok := s.(recycler); ok {
+			rc.recycle() // nothing of rec is kept (copies only)
+		}
 	}
 	fr.Records = idx
 	fr.Kept = fr.keys.n

@@ -216,6 +216,14 @@ type source interface {
 	close()
 }
 
+// recycler is implemented by sources that can reuse the buffers of the
+// record they returned last. Scan calls recycle when it is done with a
+// record (it keeps nothing of it); the conversion pass, which hands
+// records on, never does.
+type recycler interface {
+	recycle()
+}
+
 // reporter is implemented by sources that say, after a pass, what they
 // read but do not store and which names they took by convention. It is
 // optional so that the shared source interface stays as it is.

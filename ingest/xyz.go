@@ -95,7 +95,14 @@ type XYZReader struct {
 	// symbols are the previous frame's symbols: a symbol equal to the
 	// one of the same atom before shares its string.
 	symbols []string
+	// spare are the columns of a frame handed back (reuse), whose value
+	// buffers the next frame fills.
+	spare []*Column
 }
+
+// reuse hands fr back: the caller keeps nothing of it, so that the next
+// frame may write its values into fr's buffers.
+func (x *XYZReader) reuse(fr *Frame) { x.spare = fr.Columns }
 
 // NewXYZReader reads from r; file names the input in errors.
 func NewXYZReader(r io.Reader, file string) *XYZReader {
@@ -150,12 +157,19 @@ func (x *XYZReader) Next() (*Frame, error) {
 	check := make([]bool, 0, len(props))
 	for _, p := range props {
 		if p.kind == 'R' || p.kind == 'I' {
-			c := &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, capN*min(p.count, 16))}
+			var c *Column
+			if k := len(cols); k < len(x.spare) && x.spare[k].Name == p.name {
+				c = x.spare[k]
+				*c = Column{Name: p.name, Width: p.count, Values: c.Values[:0]}
+			} else {
+				c = &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, capN*min(p.count, 16))}
+			}
 			cols = append(cols, c)
 			check = append(check, !x.notShort[p.name])
 		}
 	}
 	fr.Columns = cols
+	x.spare = nil
 	for _, p := range props {
 		if p.kind != 'R' && p.kind != 'I' && p.name != "species" {
 			fr.Other = append(fr.Other, p.name)
@@ -378,6 +392,7 @@ type xyzSource struct {
 	path    string
 	f       *os.File
 	r       *XYZReader
+	last    *Frame // the frame of the last record (recycle)
 	recipe  *Recipe
 	fmts    formatSet
 	columns map[string]string
@@ -450,11 +465,20 @@ func (s *xyzSource) columnQuantity(name string) string {
 	return quantity.Property(name)
 }
 
+// recycle lets the next frame reuse the buffers of the last one.
+func (s *xyzSource) recycle() {
+	if s.last != nil {
+		s.r.reuse(s.last)
+		s.last = nil
+	}
+}
+
 func (s *xyzSource) next() (*record, error) {
 	fr, err := s.r.Next()
 	if err != nil {
 		return nil, err
 	}
+	s.last = fr
 	rec := &record{line: fr.Line, symbols: fr.Symbols}
 	for _, c := range fr.Columns {
 		q := s.columnQuantity(c.Name)
