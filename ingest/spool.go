@@ -42,7 +42,8 @@ import (
 //	                        reference (the quantity) and uvarint n + 1
 //	                        (0: nil) followed by n f64 values
 //
-// A string reference is uvarint k+1 for the k-th string of the section,
+// A field whose flag is clear is zero, as every source leaves it. A
+// string reference is uvarint k+1 for the k-th string of the section,
 // or 0 followed by uvarint length and the bytes of a new string.
 const (
 	spoolStep uint64 = 1 << iota
@@ -290,7 +291,7 @@ func (s *spoolSource) corrupt(what string, err error) error {
 	if err == io.EOF {
 		err = io.ErrUnexpectedEOF
 	}
-	return fmt.Errorf("%s: %w (%s: %v)", s.fr.File, errSpool, what, err)
+	return fmt.Errorf("%s: %w (%s: %w)", s.fr.File, errSpool, what, err)
 }
 
 func (s *spoolSource) uvarint(what string) (uint64, error) {

@@ -92,6 +92,8 @@ type XYZReader struct {
 	// format, the merge of all frames, is the same, as Merge only ever
 	// clears candidate bits.
 	notShort map[string]bool
+	// infoNotShort is notShort for the numeric comment keys.
+	infoNotShort map[string]bool
 	// symbols are the previous frame's symbols: a symbol equal to the
 	// one of the same atom before shares its string.
 	symbols []string
@@ -106,7 +108,7 @@ func (x *XYZReader) reuse(fr *Frame) { x.spare = fr.Columns }
 
 // NewXYZReader reads from r; file names the input in errors.
 func NewXYZReader(r io.Reader, file string) *XYZReader {
-	return &XYZReader{file: file, lr: newLineReader(r), notShort: map[string]bool{}}
+	return &XYZReader{file: file, lr: newLineReader(r), notShort: map[string]bool{}, infoNotShort: map[string]bool{}}
 }
 
 func (x *XYZReader) errAt(line, col int, err error) error {
@@ -274,8 +276,14 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	for _, p := range kv {
 		fr.Info[p[0]] = p[1]
 		if v := p[1]; v != "" {
-			if _, fm, err := textnum.ParseShort(v, true); err == nil {
+			// The shortest test as for columns: once per key until a
+			// value rules the class out (notShort).
+			check := !x.infoNotShort[p[0]]
+			if _, fm, err := textnum.ParseShort(v, check); err == nil {
 				fr.InfoFormats[p[0]] = fm
+				if check && !fm.MayBeShortest() {
+					x.infoNotShort[p[0]] = true
+				}
 			}
 		}
 	}
@@ -400,6 +408,9 @@ type xyzSource struct {
 	unit map[string]string
 	// unitAt says where each unit of unit is written (unitWhere).
 	unitAt map[string]string
+	// keyNotShort holds the comment keys ruled out of the shortest
+	// round-trip class (XYZReader.notShort).
+	keyNotShort map[string]bool
 	notes
 }
 
@@ -439,7 +450,7 @@ func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
 	if err != nil {
 		return nil, err
 	}
-	s := &xyzSource{path: path, f: f, r: NewXYZReader(f, path), recipe: rc, fmts: formatSet{}, columns: map[string]string{}}
+	s := &xyzSource{path: path, f: f, r: NewXYZReader(f, path), recipe: rc, fmts: formatSet{}, columns: map[string]string{}, keyNotShort: map[string]bool{}}
 	if rc != nil && rc.Geometry != nil {
 		for k, v := range rc.Geometry.Columns {
 			s.columns[k] = v
@@ -548,7 +559,14 @@ func (s *xyzSource) next() (*record, error) {
 				msg: fmt.Sprintf("%s= read as %s (the extended XYZ convention); as a %s it would mean %s. If it is not the %s, say which it is in a recipe: geometry: columns: {%s: %s}",
 					key, q, a[0].Source, a[0].Quantity, q, key, a[0].Quantity)})
 		}
-		v, fm, err := textnum.ParseShort(val, true)
+		// The shortest test until a value of key rules the class out
+		// (the merged format is the same, see XYZReader.notShort); the
+		// step's format is not kept.
+		check := q != quantity.Step && !s.keyNotShort[key]
+		v, fm, err := textnum.ParseShort(val, check)
+		if check && err == nil && !fm.MayBeShortest() {
+			s.keyNotShort[key] = true
+		}
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(val) {
