@@ -792,10 +792,9 @@ func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOp
 		return nil, nil, err
 	}
 	sopt := opt.Options
-	if st, err := os.Stat(filepath.Dir(out)); sopt.SpoolDir == "" && err == nil && st.IsDir() {
-		// One parse: the conversion replays what the scan read. (A
-		// missing folder is left to the writer's error, as before.)
-		sopt.SpoolDir = filepath.Dir(out)
+	if sopt.SpoolDir == "" {
+		// One parse: the conversion replays what the scan read.
+		sopt.SpoolDir = SpoolDirFor(out)
 	}
 	rep, err := Scan(ctx, t, sopt)
 	if err != nil {
@@ -807,6 +806,18 @@ func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOp
 	}
 	res, err := Convert(ctx, rep, out, opt)
 	return rep, res, err
+}
+
+// SpoolDirFor is the folder for the spool (Options.SpoolDir) of a
+// conversion into out: out's folder, on the output's file system, when
+// it exists; else "" (no spool: a missing folder is left to the
+// writer's error or to the caller that makes it, as without a spool).
+func SpoolDirFor(out string) string {
+	d := filepath.Dir(filepath.Clean(out))
+	if st, err := os.Stat(d); err == nil && st.IsDir() {
+		return d
+	}
+	return ""
 }
 
 // readerKinds pairs unit kinds with the unit trajfile.ReaderUnits stores
