@@ -54,7 +54,8 @@ const (
 	ShortRepr byte = 'r'
 	// ShortG is Go's strconv.FormatFloat(x, 'g', -1, 64): no ".0" on
 	// integers ("0", "12"), exponent notation when the decimal exponent
-	// is below -4 or at least 21.
+	// is below -4 or at least 6 ("1.234567e+06"; fmt's %v, unlike it,
+	// switches at 21).
 	ShortG byte = 'g'
 )
 
@@ -84,6 +85,10 @@ func ParseShort(s string, check bool) (float64, Format, error) {
 	if err != nil {
 		return v, f, err
 	}
+	if c, ok := intCand(s); ok {
+		f.cand = c
+		return v, f, nil
+	}
 	if s == repr(v) {
 		f.cand |= candRepr
 	}
@@ -91,6 +96,34 @@ func ParseShort(s string, check bool) (float64, Format, error) {
 		f.cand |= candG
 	}
 	return v, f, nil
+}
+
+// intCand is ParseShort's test for an integer written without point or
+// exponent, whose columns (steps, states) would otherwise be formatted
+// on every row, as they never leave the 'g' class: ok is false for other
+// fields. repr always writes a point or an exponent ("12.0", "1e+16"),
+// so an integer is never ShortRepr. With at most 6 digits its value is
+// exact and below 10^6, which 'g' writes in fixed notation without
+// leading zeros or a plus sign ("-0" for negative zero), so the field is
+// ShortG exactly when it is written that way; longer integers take the
+// general test (TestIntCand compares both on random integers).
+func intCand(s string) (uint8, bool) {
+	d := s
+	if d != "" && d[0] == '-' {
+		d = d[1:]
+	}
+	if d == "" || len(d) > 6 {
+		return 0, false
+	}
+	for i := 0; i < len(d); i++ {
+		if d[i] < '0' || d[i] > '9' {
+			return 0, false
+		}
+	}
+	if len(d) > 1 && d[0] == '0' {
+		return 0, true // leading zero: neither style writes it
+	}
+	return candG, true
 }
 
 // repr is Python's repr of a float64 (float_repr_style "short", Python

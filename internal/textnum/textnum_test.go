@@ -299,3 +299,43 @@ func TestMergeIdempotent(t *testing.T) {
 		}
 	}
 }
+
+// TestIntCand: the shortcut for integers gives the same class as the
+// general test (formatting with repr and strconv 'g', -1) on random
+// integers with signs, leading zeros and up to 8 digits.
+func TestIntCand(t *testing.T) {
+	rng := rand.New(rand.NewSource(6))
+	for i := 0; i < 50000; i++ {
+		s := strconv.FormatInt(rng.Int63n(int64(math.Pow10(rng.Intn(8)+1))), 10)
+		if rng.Intn(5) == 0 {
+			s = strings.Repeat("0", rng.Intn(3)+1) + s
+		}
+		switch rng.Intn(4) {
+		case 0:
+			s = "-" + s
+		case 1:
+			s = "+" + s
+		}
+		v, f, err := ParseShort(s, true)
+		if err != nil {
+			t.Fatal(s, err)
+		}
+		var want uint8
+		if s == repr(v) {
+			want |= candRepr
+		}
+		if s == strconv.FormatFloat(v, 'g', -1, 64) {
+			want |= candG
+		}
+		if f.cand != want {
+			t.Fatalf("%q: cand %b, general test %b", s, f.cand, want)
+		}
+	}
+	for _, s := range []string{"0", "-0", "00", "123456", "1234567", "-000001"} {
+		v, f, _ := ParseShort(s, true)
+		want := s == strconv.FormatFloat(v, 'g', -1, 64)
+		if (f.cand&candG != 0) != want {
+			t.Errorf("%q: 'g' class %v, want %v", s, f.cand&candG != 0, want)
+		}
+	}
+}
