@@ -164,9 +164,10 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 		}
 		return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrFieldCount, "expected %d fields (%s), found %d; a short last line usually means the file was cut", len(t.Columns), t.names(), len(t.fields))}
 	}
+	var fm textnum.Format
 	for i, f := range t.fields {
 		c := t.Columns[i]
-		v, fm, err := textnum.ParseShort(f.text, !c.seen || c.Format.MayBeShortest())
+		v, err := textnum.ParseShortTo(f.text, !c.seen || c.Format.MayBeShortest(), &fm)
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(f.text) {

@@ -181,6 +181,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 	for _, p := range props {
 		width += p.count
 	}
+	var fm textnum.Format
 	for i := 0; i < n; i++ {
 		b, err := x.lr.next()
 		if err == io.EOF {
@@ -221,7 +222,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 			ci++
 			for j := 0; j < p.count; j++ {
 				f := x.fields[k]
-				v, fm, err := textnum.ParseShort(f.text, chk && (len(c.Values) == 0 || c.Format.MayBeShortest()))
+				v, err := textnum.ParseShortTo(f.text, chk && (len(c.Values) == 0 || c.Format.MayBeShortest()), &fm)
 				if err != nil {
 					cause := ErrNumber
 					if nonFinite(f.text) {

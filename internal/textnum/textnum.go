@@ -78,16 +78,22 @@ func (f Format) MayBeShortest() bool { return f.cand != 0 }
 // Readers call it while the column's format MayBeShortest, and Parse
 // after that (the test costs a float formatting).
 func ParseShort(s string, check bool) (float64, Format, error) {
-	if !check {
-		return Parse(s)
-	}
-	v, f, err := Parse(s)
-	if err != nil {
-		return v, f, err
+	var f Format
+	v, err := ParseShortTo(s, check, &f)
+	return v, f, err
+}
+
+// ParseShortTo is ParseShort storing the format in *f: readers call it
+// for every number, and a Format returned by value is copied through
+// memory twice per call (a tenth of the parsing time, measured).
+func ParseShortTo(s string, check bool, f *Format) (float64, error) {
+	v, err := parseTo(s, f)
+	if err != nil || !check {
+		return v, err
 	}
 	if c, ok := intCand(s); ok {
 		f.cand = c
-		return v, f, nil
+		return v, nil
 	}
 	if s == repr(v) {
 		f.cand |= candRepr
@@ -95,7 +101,7 @@ func ParseShort(s string, check bool) (float64, Format, error) {
 	if s == strconv.FormatFloat(v, 'g', -1, 64) {
 		f.cand |= candG
 	}
-	return v, f, nil
+	return v, nil
 }
 
 // intCand is ParseShort's test for an integer written without point or
@@ -159,9 +165,16 @@ var ErrSyntax = errors.New("not a number")
 // number written (strconv.ParseFloat after normalising the exponent).
 func Parse(s string) (float64, Format, error) {
 	var f Format
+	v, err := parseTo(s, &f)
+	return v, f, err
+}
+
+// parseTo is Parse storing the format in *f.
+func parseTo(s string, f *Format) (float64, error) {
+	*f = Format{}
 	n := len(s)
 	if n == 0 {
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
 	i := 0
 	if s[0] == '+' || s[0] == '-' {
@@ -204,7 +217,7 @@ func Parse(s string) (float64, Format, error) {
 		digits += dec
 	}
 	if digits == 0 {
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
 	f.Decimals = dec
 	if i == n {
@@ -219,10 +232,9 @@ func Parse(s string) (float64, Format, error) {
 			if s[0] == '-' {
 				v = -v
 			}
-			return v, f, nil
+			return v, nil
 		}
-		v, err := parseFloat(s, s, "")
-		return v, f, err
+		return parseFloat(s, s, "")
 	}
 	mant := s[:i]
 	c := s[i]
@@ -234,15 +246,14 @@ func Parse(s string) (float64, Format, error) {
 	case (c == '+' || c == '-') && i > start:
 		exp = s[i:] // Fortran drops the letter for 3-digit exponents
 	default:
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
 	if !validExp(exp) {
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
 	f.Exp = true
 	f.Sig = max(sig, 1)
-	v, err := parseFloat(s, mant, exp)
-	return v, f, err
+	return parseFloat(s, mant, exp)
 }
 
 // parseFloat is strconv.ParseFloat of mant with exponent exp ("" for
