@@ -263,11 +263,18 @@ type hashResult struct {
 }
 
 // hashSources computes the SHA-256 of every source file (and the recipe)
-// in a goroutine, while the conversion runs.
+// in a goroutine, while the conversion runs; a file the scan hashed as
+// it read it (FileReport.digest) is not read again.
 func hashSources(ctx context.Context, rep *TrajReport, opt ConvertOptions) <-chan hashResult {
 	ch := make(chan hashResult, 1)
 	var files [][2]string
-	for _, f := range rep.Files {
+	done := map[int]provenance.Source{}
+	for i, f := range rep.Files {
+		if f.digest != nil {
+			s := *f.digest
+			s.Role = f.reader.ProvenanceRole
+			done[i] = s
+		}
 		files = append(files, [2]string{f.File, f.reader.ProvenanceRole})
 	}
 	if opt.Recipe != nil && opt.Recipe.Path != "" {
@@ -275,10 +282,14 @@ func hashSources(ctx context.Context, rep *TrajReport, opt ConvertOptions) <-cha
 	}
 	go func() {
 		var out hashResult
-		for _, f := range files {
+		for i, f := range files {
 			if err := ctx.Err(); err != nil {
 				out.err = err
 				break
+			}
+			if s, ok := done[i]; ok {
+				out.sources = append(out.sources, s)
+				continue
 			}
 			s, err := provenance.HashFile(f[0])
 			if err != nil {

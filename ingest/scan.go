@@ -15,6 +15,7 @@ import (
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
+	"trajvault/provenance"
 )
 
 // Problem codes of scan (README, "Problems scan reports"): one code per
@@ -79,6 +80,9 @@ type FileReport struct {
 	hasTime             bool
 	timeFirst, timeLast float64
 	activity            activeTrack // changes of the active state (P20, matches.go)
+	// digest is the file's SHA-256 as the scan read it to its end (nil:
+	// not read to the end, or by a reader that does not hash).
+	digest *provenance.Source
 }
 
 // TrajReport is the result of scanning one trajectory.
@@ -460,6 +464,11 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader, sw *s
 	}
 	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
+	}
+	if d, ok := s.(digester); ok {
+		if src, ok := d.digest(); ok {
+			fr.digest = &src
+		}
 	}
 	fr.hopEvents = s.hops()
 	fr.Hops = len(fr.hopEvents)

@@ -497,3 +497,32 @@ func TestShortestAcrossFrames(t *testing.T) {
 		t.Errorf("ruled out: %v, want tags alone", s.r.notShort)
 	}
 }
+
+// TestHashedFile: an input hashed as it is read gives the SHA-256 of the
+// whole file once read to its end, and nothing before. Known answer: the
+// FIPS 180-2 example, SHA-256("abc") = ba7816bf...f20015ad (Appendix B.1).
+func TestHashedFile(t *testing.T) {
+	p := filepath.Join(t.TempDir(), "abc.txt")
+	if err := os.WriteFile(p, []byte("abc"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	h, err := openHashed(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer h.Close()
+	var b [2]byte
+	if _, err := io.ReadFull(h, b[:]); err != nil {
+		t.Fatal(err)
+	}
+	if _, ok := h.sum(p); ok {
+		t.Error("a digest after reading part of the file")
+	}
+	if _, err := io.ReadAll(h); err != nil {
+		t.Fatal(err)
+	}
+	s, ok := h.sum(p)
+	if !ok || s.Bytes != 3 || s.SHA256 != "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad" {
+		t.Errorf("digest %+v %v", s, ok)
+	}
+}

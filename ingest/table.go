@@ -11,6 +11,7 @@ import (
 	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
+	"trajvault/provenance"
 )
 
 // TableColumn describes one column of a table.
@@ -217,7 +218,7 @@ var tableFormat = Reader{
 
 type tableSource struct {
 	path  string
-	f     *os.File
+	f     *hashedFile // hashed as read (digest)
 	t     *TableReader
 	row   []float64
 	quant []string
@@ -229,7 +230,7 @@ type tableSource struct {
 }
 
 func openTable(path string, spec *TableSpec) (*tableSource, error) {
-	f, err := os.Open(path)
+	f, err := openHashed(path)
 	if err != nil {
 		return nil, err
 	}
@@ -280,11 +281,12 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 	return s, nil
 }
 
-func (s *tableSource) file() string                 { return s.path }
-func (s *tableSource) units() map[string]string     { return s.unit }
-func (s *tableSource) unitWhere(kind string) string { return s.unitAt[kind] }
-func (s *tableSource) hops() []hop                  { return nil }
-func (s *tableSource) close()                       { s.f.Close() }
+func (s *tableSource) file() string                      { return s.path }
+func (s *tableSource) units() map[string]string          { return s.unit }
+func (s *tableSource) unitWhere(kind string) string      { return s.unitAt[kind] }
+func (s *tableSource) hops() []hop                       { return nil }
+func (s *tableSource) close()                            { s.f.Close() }
+func (s *tableSource) digest() (provenance.Source, bool) { return s.f.sum(s.path) }
 
 func (s *tableSource) timeFormat() textnum.Format {
 	var f textnum.Format

@@ -3,7 +3,6 @@ package ingest
 import (
 	"fmt"
 	"io"
-	"os"
 	"sort"
 	"strconv"
 	"strings"
@@ -12,6 +11,7 @@ import (
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
+	"trajvault/provenance"
 )
 
 // Column is one per-atom property of a frame, flattened row-major (N x
@@ -399,7 +399,7 @@ var xyzFormat = Reader{
 
 type xyzSource struct {
 	path    string
-	f       *os.File
+	f       *hashedFile // hashed as read (digest)
 	r       *XYZReader
 	last    *Frame // the frame of the last record (recycle)
 	recipe  *Recipe
@@ -447,7 +447,7 @@ func (s *xyzSource) unitKey(fr *Frame, key, val string, col int) (bool, error) {
 }
 
 func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
-	f, err := os.Open(path)
+	f, err := openHashed(path)
 	if err != nil {
 		return nil, err
 	}
@@ -467,6 +467,7 @@ func (s *xyzSource) units() map[string]string            { return s.unit }
 func (s *xyzSource) unitWhere(kind string) string        { return s.unitAt[kind] }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
+func (s *xyzSource) digest() (provenance.Source, bool)   { return s.f.sum(s.path) }
 
 // columnQuantity maps an extended XYZ property name to a quantity: the
 // recipe's geometry columns, then the vocabulary.
