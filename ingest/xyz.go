@@ -97,6 +97,10 @@ type XYZReader struct {
 	// symbols are the previous frame's symbols: a symbol equal to the
 	// one of the same atom before shares its string.
 	symbols []string
+	// propSpec and props are the last Properties= value and what it
+	// says (parsed once while it does not change).
+	propSpec string
+	props    []property
 	// spare are the columns of a frame handed back (reuse), whose value
 	// buffers the next frame fills.
 	spare []*Column
@@ -272,8 +276,8 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	}
 	// A plain comment such as "t = 5 fs" is not extended XYZ: require
 	// Properties= or at least every token to be key=value.
-	fr.Info = map[string]string{}
-	fr.InfoFormats = map[string]textnum.Format{}
+	fr.Info = make(map[string]string, len(kv))
+	fr.InfoFormats = make(map[string]textnum.Format, len(kv))
 	for _, p := range kv {
 		fr.Info[p[0]] = p[1]
 		if v := p[1]; v != "" {
@@ -292,6 +296,9 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	spec, ok := fr.Info["Properties"]
 	if !ok {
 		return plainXYZ, nil
+	}
+	if spec == x.propSpec && x.props != nil {
+		return x.props, nil // as the frame before (props are never changed)
 	}
 	parts := strings.Split(spec, ":")
 	if len(parts)%3 != 0 {
@@ -324,6 +331,7 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	if !hasPos {
 		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties has no pos:R:3 column"))
 	}
+	x.propSpec, x.props = spec, props
 	return props, nil
 }
 
@@ -412,6 +420,8 @@ type xyzSource struct {
 	// keyNotShort holds the comment keys ruled out of the shortest
 	// round-trip class (XYZReader.notShort).
 	keyNotShort map[string]bool
+	colQ        map[string]string      // columnQuantity, by name
+	keys        map[string]*commentKey // keyInfo, by key
 	notes
 }
 
@@ -470,12 +480,45 @@ func (s *xyzSource) close()                              { s.f.Close() }
 func (s *xyzSource) digest() (provenance.Source, bool)   { return s.f.sum(s.path) }
 
 // columnQuantity maps an extended XYZ property name to a quantity: the
-// recipe's geometry columns, then the vocabulary.
+// recipe's geometry columns, then the vocabulary (remembered per name:
+// it is asked for every column of every frame).
 func (s *xyzSource) columnQuantity(name string) string {
-	if q, ok := s.columns[name]; ok {
+	if q, ok := s.colQ[name]; ok {
 		return q
 	}
-	return quantity.Property(name)
+	q, ok := s.columns[name]
+	if !ok {
+		q = quantity.Property(name)
+	}
+	if s.colQ == nil {
+		s.colQ = map[string]string{}
+	}
+	s.colQ[name] = q
+	return q
+}
+
+// commentKey is what a comment key means, worked out once per key (it
+// is met on every frame).
+type commentKey struct {
+	q, m   string // quantity; the recipe's mapping, if mapped
+	mapped bool
+	amb    []quantity.Meaning // quantity.Ambiguous
+	noted  bool               // its note is made
+}
+
+func (s *xyzSource) keyInfo(key string) *commentKey {
+	if ki, ok := s.keys[key]; ok {
+		return ki
+	}
+	ki := &commentKey{q: quantity.CommentKey(key), amb: quantity.Ambiguous(key)}
+	if m, ok := s.columns[key]; ok {
+		ki.q, ki.m, ki.mapped = m, m, true
+	}
+	if s.keys == nil {
+		s.keys = map[string]*commentKey{}
+	}
+	s.keys[key] = ki
+	return ki
 }
 
 // recycle lets the next frame reuse the buffers of the last one.
@@ -538,12 +581,13 @@ func (s *xyzSource) next() (*record, error) {
 		if done, err := s.unitKey(fr, key, val, col); done || err != nil {
 			return err
 		}
-		q := quantity.CommentKey(key)
-		m, mapped := s.columns[key]
-		if mapped {
-			q = m
-		}
+		ki := s.keyInfo(key)
+		q, m, mapped := ki.q, ki.m, ki.mapped
 		if q == quantity.Ignore || (q == "" && !mapped) || (mapped && !perFrame(q)) {
+			if ki.noted {
+				return nil // said once, at its first line
+			}
+			ki.noted = true
 			why := "not a quantity trajvault knows (" + quantity.Names() + ")"
 			switch {
 			case q == quantity.Ignore:
@@ -556,7 +600,8 @@ func (s *xyzSource) next() (*record, error) {
 				notStored: fmt.Sprintf("comment key %s: %s", key, why)})
 			return nil
 		}
-		if a := quantity.Ambiguous(key); a != nil && !mapped {
+		if a := ki.amb; a != nil && !mapped && !ki.noted {
+			ki.noted = true
 			s.add("ambiguous:"+key, sourceNote{code: PAmbiguous, sev: finding.Note, line: fr.Line + 1, col: col, quantity: q,
 				msg: fmt.Sprintf("%s= read as %s (the extended XYZ convention); as a %s it would mean %s. If it is not the %s, say which it is in a recipe: geometry: columns: {%s: %s}",
 					key, q, a[0].Source, a[0].Quantity, q, key, a[0].Quantity)})
