@@ -39,8 +39,11 @@ import (
 //	symbols                 if spoolSymbols and not spoolSameSymbols:
 //	                        uvarint n, n string references
 //	columns atoms, extras   uvarint count, then per column a string
-//	                        reference (the quantity) and uvarint n + 1
-//	                        (0: nil) followed by n f64 values
+//	                        reference (the quantity), uvarint n + 1 (0:
+//	                        nil) and, unless nil, a byte: 0 for n f64
+//	                        values, else D + 1 for decimals D, a uvarint
+//	                        byte count and n varints m, the values
+//	                        m / 10^D (spoolWriter.scaled)
 //
 // A field whose flag is clear is zero, as every source leaves it. A
 // string reference is uvarint k+1 for the k-th string of the section,
@@ -89,7 +92,10 @@ type spoolWriter struct {
 	start int64 // offset of the current section
 	strs  map[string]uint64
 	syms  []string // the previous record's symbols
-	err   error    // the first write error (sticky)
+	// decimals are the decimals of each quantity's last scaled block.
+	decimals map[string]int
+	tmp      []byte
+	err      error // the first write error (sticky)
 }
 
 // newSpool creates the spool of trajectory name in dir.
@@ -112,6 +118,7 @@ func (w *spoolWriter) begin() {
 	w.start = w.off
 	w.strs = map[string]uint64{}
 	w.syms = nil
+	w.decimals = map[string]int{}
 }
 
 // end closes the current section.
@@ -177,7 +184,85 @@ func (w *spoolWriter) columns(cs []atomColumn) {
 	w.uvarint(uint64(len(cs)))
 	for _, c := range cs {
 		w.str(c.quantity)
-		w.floats(c.values)
+		w.scaled(c.quantity, c.values)
+	}
+}
+
+// exact10 are the powers of ten that are exact in float64 (5^22 < 2^53).
+var exact10 = [23]float64{1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9,
+	1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16, 1e17, 1e18, 1e19, 1e20, 1e21, 1e22}
+
+// scaledInt returns m with float64(m) / p == x bit for bit (p an exact
+// power of ten), when there is one below 2^53: x printed with at most
+// as many decimals as p has zeros. Then m and the decimals give x back
+// exactly, as the division is correctly rounded (IEEE 754) and its
+// operands are exact. Negative zero, NaN and infinities have none.
+func scaledInt(x, p float64) (int64, bool) {
+	y := x * p
+	if !(math.Abs(y) < 1<<53) {
+		return 0, false
+	}
+	// y is within an ulp of the integer when there is one: rounding half
+	// away from zero finds it (a wrong m fails the check below).
+	m := int64(y + math.Copysign(0.5, y))
+	if float64(m)/p != x || (x == 0 && math.Signbit(x)) {
+		return 0, false
+	}
+	return m, true
+}
+
+// decimalsFor is the fewest decimals d >= from with a scaledInt for x,
+// or false.
+func decimalsFor(x float64, from int) (int, bool) {
+	for d := from; d < len(exact10); d++ {
+		if _, ok := scaledInt(x, exact10[d]); ok {
+			return d, true
+		}
+	}
+	return 0, false
+}
+
+// scaled writes the per-atom values v of quantity q. Numbers printed
+// with D decimals are written as varints of x 10^D (about 3-5 bytes
+// instead of 8: the spool of a long run is large), checked value by
+// value to read back bit for bit (scaledInt); a column where some value
+// has no such form (exponent notation with many digits, -0) is written
+// as raw IEEE bits. D is remembered per quantity and only grows within a
+// block.
+func (w *spoolWriter) scaled(q string, v []float64) {
+	if v == nil {
+		w.uvarint(0)
+		return
+	}
+	w.uvarint(uint64(len(v)) + 1)
+	d := w.decimals[q]
+	for {
+		p := exact10[d]
+		w.tmp = w.tmp[:0]
+		i := 0
+		for ; i < len(v); i++ {
+			m, ok := scaledInt(v[i], p)
+			if !ok {
+				break
+			}
+			w.tmp = binary.AppendVarint(w.tmp, m)
+		}
+		if i == len(v) {
+			w.decimals[q] = d
+			w.buf = append(w.buf, byte(d+1))
+			w.uvarint(uint64(len(w.tmp)))
+			w.buf = append(w.buf, w.tmp...)
+			return
+		}
+		nd, ok := decimalsFor(v[i], d+1)
+		if !ok {
+			break
+		}
+		d = nd
+	}
+	w.buf = append(w.buf, 0)
+	for _, x := range v {
+		w.f64(x)
 	}
 }
 
@@ -324,7 +409,11 @@ func (s *spoolSource) floats(what string) ([]float64, error) {
 	if err != nil || n == 0 {
 		return nil, err
 	}
-	n--
+	return s.raw(what, n-1)
+}
+
+// raw reads n values as IEEE bits.
+func (s *spoolSource) raw(what string, n int) ([]float64, error) {
 	need := 8 * n
 	if cap(s.buf) < need {
 		s.buf = make([]byte, need)
@@ -336,6 +425,51 @@ func (s *spoolSource) floats(what string) ([]float64, error) {
 	v := make([]float64, n)
 	for i := range v {
 		v[i] = math.Float64frombits(binary.LittleEndian.Uint64(b[8*i:]))
+	}
+	return v, nil
+}
+
+// scaled reads the values of a per-atom column (spoolWriter.scaled).
+func (s *spoolSource) scaled(what string) ([]float64, error) {
+	n, err := s.length(what)
+	if err != nil || n == 0 {
+		return nil, err
+	}
+	n--
+	enc, err := s.br.ReadByte()
+	if err != nil {
+		return nil, s.corrupt(what, err)
+	}
+	if enc == 0 {
+		return s.raw(what, n)
+	}
+	d := int(enc) - 1
+	if d >= len(exact10) {
+		return nil, s.corrupt(what, fmt.Errorf("%d decimals", d))
+	}
+	size, err := s.length(what)
+	if err != nil {
+		return nil, err
+	}
+	if cap(s.buf) < size {
+		s.buf = make([]byte, size)
+	}
+	b := s.buf[:size]
+	if _, err := io.ReadFull(s.br, b); err != nil {
+		return nil, s.corrupt(what, err)
+	}
+	p := exact10[d]
+	v := make([]float64, n)
+	for i := range v {
+		m, k := binary.Varint(b)
+		if k <= 0 {
+			return nil, s.corrupt(what, fmt.Errorf("value %d of %d", i+1, n))
+		}
+		v[i] = float64(m) / p
+		b = b[k:]
+	}
+	if len(b) != 0 {
+		return nil, s.corrupt(what, fmt.Errorf("%d bytes after %d values", len(b), n))
 	}
 	return v, nil
 }
@@ -373,7 +507,7 @@ func (s *spoolSource) columns(what string) ([]atomColumn, error) {
 		if cs[i].quantity, err = s.str(what); err != nil {
 			return nil, err
 		}
-		if cs[i].values, err = s.floats(what); err != nil {
+		if cs[i].values, err = s.scaled(what); err != nil {
 			return nil, err
 		}
 	}

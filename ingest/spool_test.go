@@ -1,6 +1,8 @@
 package ingest
 
 import (
+	"bufio"
+	"bytes"
 	"context"
 	"errors"
 	"fmt"
@@ -44,8 +46,16 @@ func randomRecord(rng *rand.Rand, prevSyms []string) *record {
 			return []float64{}
 		}
 		v := make([]float64, rng.IntN(9))
+		mode, d := rng.IntN(3), rng.IntN(16)
 		for i := range v {
-			v[i] = f()
+			switch mode {
+			case 0:
+				v[i] = f()
+			case 1: // printed with d decimals: written scaled
+				v[i] = float64(rng.Int64N(2e9)-1e9) / exact10[d]
+			default: // decimals differ within the column
+				v[i] = float64(rng.Int64N(2e12)-1e12) / exact10[rng.IntN(16)]
+			}
 		}
 		return v
 	}
@@ -524,5 +534,41 @@ func TestHashedFile(t *testing.T) {
 	s, ok := h.sum(p)
 	if !ok || s.Bytes != 3 || s.SHA256 != "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad" {
 		t.Errorf("digest %+v %v", s, ok)
+	}
+}
+
+// TestSpoolScaled: per-atom values printed with D decimals are written as
+// scaled integers (fewer bytes than IEEE bits) and still read back bit
+// for bit; a column with a negative zero or a value with no short
+// decimal form (0.1 + 0.2, the classic, is 0.30000000000000004) falls
+// back to IEEE bits for that column.
+func TestSpoolScaled(t *testing.T) {
+	cases := []struct {
+		name   string
+		v      []float64
+		scaled bool
+	}{
+		{"8 decimals", []float64{-0.00814041, 0.75970671, 12.5, 0}, true},
+		{"growing decimals", []float64{1, 0.5, 0.25, 0.125, 1e-10}, true},
+		{"negative zero", []float64{1.5, math.Copysign(0, -1)}, false},
+		{"no short form", []float64{0.1 + 0.2, 1e300}, false},
+	}
+	for _, c := range cases {
+		w := &spoolWriter{}
+		w.begin()
+		w.scaled("position", c.v)
+		// w.buf: uvarint n+1 (one byte here), then 0 for raw bits or
+		// decimals + 1.
+		if got := w.buf[1] != 0; got != c.scaled {
+			t.Errorf("%s: scaled %v, want %v (%d bytes)", c.name, got, c.scaled, len(w.buf))
+		}
+		if c.scaled && len(w.buf) >= 8*len(c.v) {
+			t.Errorf("%s: %d bytes for %d values", c.name, len(w.buf), len(c.v))
+		}
+		src := &spoolSource{fr: &FileReport{File: c.name}, br: bufio.NewReader(bytes.NewReader(w.buf))}
+		got, err := src.scaled("values")
+		if err != nil || !sameBits(got, c.v) {
+			t.Errorf("%s: read %v (%v), wrote %v", c.name, got, err, c.v)
+		}
 	}
 }
