@@ -159,8 +159,9 @@ type Options struct {
 	// SpoolDir, when set, makes Scan keep every record it parsed in a
 	// temporary file (the spool, spool.go) in that folder, so that
 	// Convert replays the records instead of parsing the text again.
-	// Give the output's folder (not /tmp: the spool holds about 8 bytes
-	// per number). Convert removes the spool; a caller that scans with a
+	// Give the output's folder (not /tmp: the spool holds 3 to 8 bytes
+	// per number, about a third of the text for numbers printed in
+	// decimals). Convert removes the spool; a caller that scans with a
 	// SpoolDir and does not convert calls TrajReport.Discard. Empty (the
 	// default, and for scan alone): no spool, Convert reads the text.
 	SpoolDir string
