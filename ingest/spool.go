@@ -144,7 +144,7 @@ func (w *spoolWriter) finish() (*spoolFile, error) {
 func (w *spoolWriter) failure() error {
 	w.f.Close()
 	w.sf.remove()
-	return fmt.Errorf("writing %s (the values scan parsed, kept for the conversion in the output's folder: about a third of the text's size): %w", w.sf.path, w.err)
+	return fmt.Errorf("writing %s, the numbers the scan parsed, kept in the output's folder for the conversion (about a third of the logs' size; make room there or write the output elsewhere): %w", w.sf.path, w.err)
 }
 
 // abort closes and removes the spool.
