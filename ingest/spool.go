@@ -92,8 +92,9 @@ type spoolWriter struct {
 	start int64 // offset of the current section
 	strs  map[string]uint64
 	syms  []string // the previous record's symbols
-	// decimals are the decimals of each quantity's last scaled block.
-	decimals map[string]int
+	// decimals are the decimals of each quantity's last scaled block,
+	// by the quantity's string number (str).
+	decimals []int
 	tmp      []byte
 	err      error // the first write error (sticky)
 }
@@ -118,7 +119,7 @@ func (w *spoolWriter) begin() {
 	w.start = w.off
 	w.strs = map[string]uint64{}
 	w.syms = nil
-	w.decimals = map[string]int{}
+	w.decimals = w.decimals[:0]
 }
 
 // end closes the current section.
@@ -158,15 +159,19 @@ func (w *spoolWriter) f64(v float64) {
 	w.buf = binary.LittleEndian.AppendUint64(w.buf, math.Float64bits(v))
 }
 
-func (w *spoolWriter) str(s string) {
+// str writes a string reference and returns the string's number in the
+// section.
+func (w *spoolWriter) str(s string) uint64 {
 	if k, ok := w.strs[s]; ok {
 		w.uvarint(k + 1)
-		return
+		return k
 	}
-	w.strs[s] = uint64(len(w.strs))
+	k := uint64(len(w.strs))
+	w.strs[s] = k
 	w.uvarint(0)
 	w.uvarint(uint64(len(s)))
 	w.buf = append(w.buf, s...)
+	return k
 }
 
 func (w *spoolWriter) floats(v []float64) {
@@ -183,8 +188,7 @@ func (w *spoolWriter) floats(v []float64) {
 func (w *spoolWriter) columns(cs []atomColumn) {
 	w.uvarint(uint64(len(cs)))
 	for _, c := range cs {
-		w.str(c.quantity)
-		w.scaled(c.quantity, c.values)
+		w.scaled(w.str(c.quantity), c.values)
 	}
 }
 
@@ -222,19 +226,22 @@ func decimalsFor(x float64, from int) (int, bool) {
 	return 0, false
 }
 
-// scaled writes the per-atom values v of quantity q. Numbers printed
-// with D decimals are written as varints of x 10^D (about 3-5 bytes
-// instead of 8: the spool of a long run is large), checked value by
-// value to read back bit for bit (scaledInt); a column where some value
-// has no such form (exponent notation with many digits, -0) is written
-// as raw IEEE bits. D is remembered per quantity and only grows within a
-// block.
-func (w *spoolWriter) scaled(q string, v []float64) {
+// scaled writes the per-atom values v of quantity number q (str).
+// Numbers printed with D decimals are written as varints of x 10^D
+// (about 3-5 bytes instead of 8: the spool of a long run is large),
+// checked value by value to read back bit for bit (scaledInt); a column
+// where some value has no such form (exponent notation with many
+// digits, -0) is written as raw IEEE bits. D is remembered per quantity
+// and only grows within a block.
+func (w *spoolWriter) scaled(q uint64, v []float64) {
 	if v == nil {
 		w.uvarint(0)
 		return
 	}
 	w.uvarint(uint64(len(v)) + 1)
+	for uint64(len(w.decimals)) <= q {
+		w.decimals = append(w.decimals, 0)
+	}
 	d := w.decimals[q]
 	for {
 		p := exact10[d]

@@ -556,7 +556,7 @@ func TestSpoolScaled(t *testing.T) {
 	for _, c := range cases {
 		w := &spoolWriter{}
 		w.begin()
-		w.scaled("position", c.v)
+		w.scaled(0, c.v)
 		// w.buf: uvarint n+1 (one byte here), then 0 for raw bits or
 		// decimals + 1.
 		if got := w.buf[1] != 0; got != c.scaled {
