@@ -171,6 +171,10 @@ func (r *record) extra(name string) []float64 {
 type atomColumn struct {
 	quantity string
 	values   []float64
+	// dec is D+1 when the reader saw every value printed in fixed
+	// notation with at most D decimals, else 0 (the spool writes such
+	// columns without a check per value, spoolWriter.scaled).
+	dec int
 }
 
 // atom returns the values of per-atom quantity q, or nil.

@@ -188,7 +188,11 @@ func (w *spoolWriter) floats(v []float64) {
 func (w *spoolWriter) columns(cs []atomColumn) {
 	w.uvarint(uint64(len(cs)))
 	for _, c := range cs {
-		w.scaled(w.str(c.quantity), c.values)
+		k := w.str(c.quantity)
+		if c.values != nil && c.dec > 0 && w.fixed(c.values, c.dec-1) {
+			continue
+		}
+		w.scaled(k, c.values)
 	}
 }
 
@@ -224,6 +228,39 @@ func decimalsFor(x float64, from int) (int, bool) {
 		}
 	}
 	return 0, false
+}
+
+// fixed writes values v printed in fixed notation with at most d
+// decimals (the reader's format says so) as scaled integers without the
+// division per value of scaled, and reports whether it could.
+//
+// Why no check is needed: a value printed as the integer m over 10^e
+// (e <= d) was read as x = RN(m / 10^e), RN the round to nearest of
+// IEEE 754 (the fast path of textnum.Parse and strconv.ParseFloat are
+// both correctly rounded). With M = m 10^(d-e) and p = 10^d exact,
+// fl(x p) = M (1 + a)(1 + b), |a|, |b| <= 2^-53, so |fl(x p) - M| <
+// |M| 2^-51.9 < 1/4 while |M| < 2^50: rounding fl(x p) gives M. The
+// reader's float64(M) / p = RN(M / 10^d) = RN(m / 10^e) = x, M and p
+// exact. Negative zero (M = 0 gives +0) and larger magnitudes are left
+// to scaled. TestSpoolFixedBits checks it against strconv.ParseFloat.
+func (w *spoolWriter) fixed(v []float64, d int) bool {
+	if d >= len(exact10) {
+		return false
+	}
+	p := exact10[d]
+	w.tmp = w.tmp[:0]
+	for _, x := range v {
+		y := x * p
+		if !(math.Abs(y) < 1<<50) || (x == 0 && math.Signbit(x)) {
+			return false
+		}
+		w.tmp = binary.AppendVarint(w.tmp, int64(y+math.Copysign(0.5, y)))
+	}
+	w.uvarint(uint64(len(v)) + 1)
+	w.buf = append(w.buf, byte(d+1))
+	w.uvarint(uint64(len(w.tmp)))
+	w.buf = append(w.buf, w.tmp...)
+	return true
 }
 
 // scaled writes the per-atom values v of quantity number q (str).
@@ -468,12 +505,22 @@ func (s *spoolSource) scaled(what string) ([]float64, error) {
 	p := exact10[d]
 	v := make([]float64, n)
 	for i := range v {
-		m, k := binary.Varint(b)
-		if k <= 0 {
-			return nil, s.corrupt(what, fmt.Errorf("value %d of %d", i+1, n))
+		// binary.Varint, inlined: this loop runs for every number.
+		var u uint64
+		var shift uint
+		for {
+			if len(b) == 0 || shift > 63 {
+				return nil, s.corrupt(what, fmt.Errorf("value %d of %d", i+1, n))
+			}
+			c := b[0]
+			b = b[1:]
+			u |= uint64(c&0x7f) << shift
+			if c < 0x80 {
+				break
+			}
+			shift += 7
 		}
-		v[i] = float64(m) / p
-		b = b[k:]
+		v[i] = float64(int64(u>>1)^-int64(u&1)) / p
 	}
 	if len(b) != 0 {
 		return nil, s.corrupt(what, fmt.Errorf("%d bytes after %d values", len(b), n))

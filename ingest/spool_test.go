@@ -12,6 +12,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"syscall"
 	"testing"
@@ -38,27 +39,34 @@ func randomRecord(rng *rand.Rand, prevSyms []string) *record {
 		}
 		return math.Float64frombits(rng.Uint64())
 	}
-	fs := func() []float64 {
+	// fsDec draws values and the atomColumn.dec a reader would give
+	// them: D+1 (D at least their decimals) for values read from fixed
+	// notation, else 0.
+	fsDec := func() ([]float64, int) {
 		switch rng.IntN(4) {
 		case 0:
-			return nil
+			return nil, 0
 		case 1:
-			return []float64{}
+			return []float64{}, rng.IntN(3)
 		}
 		v := make([]float64, rng.IntN(9))
 		mode, d := rng.IntN(3), rng.IntN(16)
+		dec := 0
 		for i := range v {
 			switch mode {
 			case 0:
 				v[i] = f()
 			case 1: // printed with d decimals: written scaled
 				v[i] = float64(rng.Int64N(2e9)-1e9) / exact10[d]
+				dec = d + 1 + rng.IntN(3)
 			default: // decimals differ within the column
 				v[i] = float64(rng.Int64N(2e12)-1e12) / exact10[rng.IntN(16)]
+				dec = 16
 			}
 		}
-		return v
+		return v, dec
 	}
+	fs := func() []float64 { v, _ := fsDec(); return v }
 	r := &record{line: rng.IntN(1 << 40), step: rng.Int64() - math.MaxInt64/2, hasStep: rng.IntN(2) == 0,
 		time: f(), hasTime: rng.IntN(2) == 0, active: rng.IntN(200) - 100, hasActive: rng.IntN(2) == 0,
 		stateE: fs(), pop: fs()}
@@ -98,7 +106,8 @@ func randomRecord(rng *rand.Rand, prevSyms []string) *record {
 		var cs []atomColumn
 		for _, n := range names {
 			if rng.IntN(3) > 0 {
-				cs = append(cs, atomColumn{n, fs()})
+				v, dec := fsDec()
+				cs = append(cs, atomColumn{quantity: n, values: v, dec: dec})
 			}
 		}
 		return cs
@@ -228,7 +237,7 @@ func TestSpoolCutIsAnError(t *testing.T) {
 	}
 	defer w.sf.remove()
 	w.begin()
-	r := &record{line: 3, symbols: []string{"H"}, atoms: []atomColumn{{"position", []float64{1, 2, 3}}}}
+	r := &record{line: 3, symbols: []string{"H"}, atoms: []atomColumn{{quantity: "position", values: []float64{1, 2, 3}}}}
 	if err := w.write(r); err != nil {
 		t.Fatal(err)
 	}
@@ -442,7 +451,7 @@ func TestSpoolWriteFails(t *testing.T) {
 	w.f = full
 	w.bw.Reset(full)
 	w.begin()
-	big := &record{atoms: []atomColumn{{"position", make([]float64, 1<<16)}}}
+	big := &record{atoms: []atomColumn{{quantity: "position", values: make([]float64, 1<<16)}}}
 	var werr error
 	for i := 0; i < 8 && werr == nil; i++ {
 		werr = w.write(big)
@@ -570,5 +579,50 @@ func TestSpoolScaled(t *testing.T) {
 		if err != nil || !sameBits(got, c.v) {
 			t.Errorf("%s: read %v (%v), wrote %v", c.name, got, err, c.v)
 		}
+	}
+}
+
+// TestSpoolFixedBits: numbers read from fixed notation (random digit
+// strings of up to 16 significant digits and 0 to 17 decimals) written
+// through the spool's fast path for columns of known decimals read back
+// bit for bit as strconv.ParseFloat (correctly rounded, IEEE 754) reads
+// the text; the path declines what it cannot write exactly.
+func TestSpoolFixedBits(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 8))
+	written := 0
+	for i := 0; i < 20000; i++ {
+		d := rng.IntN(18)
+		v := make([]float64, 1+rng.IntN(6))
+		for j := range v {
+			digits := 1 + rng.IntN(16)
+			s := strconv.FormatUint(rng.Uint64N(uint64(math.Pow10(digits))), 10)
+			for len(s) <= d {
+				s = "0" + s
+			}
+			e := rng.IntN(d + 1) // this value's decimals, at most d
+			s = s[:len(s)-e] + "." + s[len(s)-e:]
+			if rng.IntN(2) == 0 {
+				s = "-" + s
+			}
+			x, err := strconv.ParseFloat(s, 64)
+			if err != nil {
+				t.Fatal(s, err)
+			}
+			v[j] = x
+		}
+		w := &spoolWriter{}
+		w.begin()
+		if !w.fixed(v, d) {
+			continue // declined (a magnitude beyond 2^50, or -0): scaled writes it
+		}
+		src := &spoolSource{fr: &FileReport{File: "fixed"}, br: bufio.NewReader(bytes.NewReader(w.buf))}
+		got, err := src.scaled("values")
+		if err != nil || !sameBits(got, v) {
+			t.Fatalf("%d decimals: wrote %v, read %v (%v)", d, v, got, err)
+		}
+		written++
+	}
+	if written < 5000 {
+		t.Errorf("the fast path took %d of 20000 columns", written)
 	}
 }

@@ -544,7 +544,7 @@ func (s *xyzSource) next() (*record, error) {
 			why := trajfile.ExtraNameProblem(c.Name)
 			if why == "" {
 				s.fmts.merge(ExtraPrefix+c.Name, c.Format)
-				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values})
+				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values, fixedDec(c.Format)})
 				continue
 			}
 			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
@@ -560,7 +560,7 @@ func (s *xyzSource) next() (*record, error) {
 			continue
 		}
 		s.fmts.merge(q, c.Format)
-		rec.atoms = append(rec.atoms, atomColumn{q, c.Values})
+		rec.atoms = append(rec.atoms, atomColumn{q, c.Values, fixedDec(c.Format)})
 	}
 	for _, name := range fr.Other {
 		s.add("col:"+name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
@@ -660,6 +660,14 @@ func (s *xyzSource) next() (*record, error) {
 		}
 	}
 	return rec, nil
+}
+
+// fixedDec is atomColumn.dec for a column of format f.
+func fixedDec(f textnum.Format) int {
+	if f.Fixed() {
+		return f.Decimals + 1
+	}
+	return 0
 }
 
 // perFrame reports whether q is a per-frame quantity a comment line can
