@@ -29,6 +29,9 @@ func ScanAll(ctx context.Context, trajs []*Trajectory, opt Options, jobs int, do
 		})
 	}
 	if err := g.Wait(); err != nil {
+		for _, r := range reps {
+			r.Discard() // spools (Options.SpoolDir) of scans that ended
+		}
 		return nil, err
 	}
 	return reps, nil
@@ -45,6 +48,13 @@ func ConvertAll(ctx context.Context, reps []*TrajReport, dir string, opt Convert
 	done = progress.Or(done)
 	done.SetTotal(int64(len(reps)))
 	results := make([]*Result, len(reps))
+	// Spools of trajectories not converted (an error stopped the run)
+	// go too; Convert removes its own.
+	defer func() {
+		for _, r := range reps {
+			r.Discard()
+		}
+	}()
 	g, gctx := errgroup.WithContext(ctx)
 	g.SetLimit(max(jobs, 1))
 	for i, r := range reps {

@@ -7,6 +7,8 @@ import (
 	"io"
 	"maps"
 	"math"
+	"os"
+	"path/filepath"
 	"slices"
 	"sort"
 	"strconv"
@@ -108,6 +110,7 @@ const maxExactScaled = 1 << 50
 // layout. When ctx is cancelled it stops promptly and returns ctx.Err();
 // as on any error, nothing is left under out.
 func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOptions) (*Result, error) {
+	defer rep.Discard() // the spool serves one conversion, done or failed
 	if p := rep.Refusal(opt.DropPartial); p != nil {
 		return nil, fmt.Errorf("%s: %s %s (%s); fix the logs or the recipe, then convert again", rep.Name, p.Code, p.Message, where(*p))
 	}
@@ -132,7 +135,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	if err != nil {
 		return nil, err
 	}
-	srcs, err := openSources(rep.traj, opt.Options)
+	srcs, err := convertSources(rep, opt.Options)
 	if err != nil {
 		return nil, err
 	}
@@ -227,17 +230,51 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 	return res, nil
 }
 
+// convertSources are the sources of the conversion pass: the records
+// the scan spooled, else the files read again.
+func convertSources(rep *TrajReport, opt Options) ([]source, error) {
+	sf := rep.spool
+	if sf == nil {
+		return openSources(rep.traj, opt)
+	}
+	if len(sf.sections) != len(rep.Files) {
+		return nil, fmt.Errorf("%s: %w (%d sections for %d files)", sf.path, errSpool, len(sf.sections), len(rep.Files))
+	}
+	f, err := os.Open(sf.path)
+	if err != nil {
+		return nil, fmt.Errorf("reading the spool of %s: %w", rep.Name, err)
+	}
+	srcs := make([]source, len(rep.Files))
+	for i, fr := range rep.Files {
+		s := newSpoolSource(f, sf.sections[i], fr)
+		if i == 0 {
+			// The sources share f, closed with the first when the
+			// conversion ends (all are closed together).
+			s.f = f
+		}
+		srcs[i] = s
+	}
+	return srcs, nil
+}
+
 type hashResult struct {
 	sources []provenance.Source
 	err     error
 }
 
 // hashSources computes the SHA-256 of every source file (and the recipe)
-// in a goroutine, while the conversion runs.
+// in a goroutine, while the conversion runs; a file the scan hashed as
+// it read it (FileReport.digest) is not read again.
 func hashSources(ctx context.Context, rep *TrajReport, opt ConvertOptions) <-chan hashResult {
 	ch := make(chan hashResult, 1)
 	var files [][2]string
-	for _, f := range rep.Files {
+	done := map[int]provenance.Source{}
+	for i, f := range rep.Files {
+		if f.digest != nil {
+			s := *f.digest
+			s.Role = f.reader.ProvenanceRole
+			done[i] = s
+		}
 		files = append(files, [2]string{f.File, f.reader.ProvenanceRole})
 	}
 	if opt.Recipe != nil && opt.Recipe.Path != "" {
@@ -245,10 +282,14 @@ func hashSources(ctx context.Context, rep *TrajReport, opt ConvertOptions) <-cha
 	}
 	go func() {
 		var out hashResult
-		for _, f := range files {
+		for i, f := range files {
 			if err := ctx.Err(); err != nil {
 				out.err = err
 				break
+			}
+			if s, ok := done[i]; ok {
+				out.sources = append(out.sources, s)
+				continue
 			}
 			s, err := provenance.HashFile(f[0])
 			if err != nil {
@@ -761,15 +802,33 @@ func ConvertFiles(ctx context.Context, paths []string, out string, opt ConvertOp
 	if err != nil {
 		return nil, nil, err
 	}
-	rep, err := Scan(ctx, t, opt.Options)
+	sopt := opt.Options
+	if sopt.SpoolDir == "" {
+		// One parse: the conversion replays what the scan read.
+		sopt.SpoolDir = SpoolDirFor(out)
+	}
+	rep, err := Scan(ctx, t, sopt)
 	if err != nil {
 		return nil, nil, err
 	}
 	if rep.Refusal(opt.DropPartial) != nil {
+		rep.Discard()
 		return rep, nil, fmt.Errorf("%s: %w", t.Name, ErrRefused)
 	}
 	res, err := Convert(ctx, rep, out, opt)
 	return rep, res, err
+}
+
+// SpoolDirFor is the folder for the spool (Options.SpoolDir) of a
+// conversion into out: out's folder, on the output's file system, when
+// it exists; else "" (no spool: a missing folder is left to the
+// writer's error or to the caller that makes it, as without a spool).
+func SpoolDirFor(out string) string {
+	d := filepath.Dir(filepath.Clean(out))
+	if st, err := os.Stat(d); err == nil && st.IsDir() {
+		return d
+	}
+	return ""
 }
 
 // readerKinds pairs unit kinds with the unit trajfile.ReaderUnits stores

@@ -7,7 +7,8 @@
 // restarts and problems (finding.Finding, codes P1..P14);
 // TrajReport.Refusal, the one rule that decides whether a scanned
 // trajectory may be converted; and Convert, a second pass that
-// writes numbers exactly at their printed precision. ScanAll and
+// writes numbers exactly at their printed precision, replaying the
+// records the scan spooled (Options.SpoolDir) instead of parsing again. ScanAll and
 // ConvertAll run many trajectories under one context, a limited number at
 // once, the first error cancelling the rest. Names of quantities and
 // unit kinds come from internal/quantity.

@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"io"
+	"unsafe"
 )
 
 // lineReader yields lines without their terminator (LF or CRLF), drops a
@@ -18,12 +19,16 @@ func newLineReader(r io.Reader) *lineReader {
 	return &lineReader{br: bufio.NewReaderSize(r, 1<<20)}
 }
 
-// next returns the next line; the slice is valid until the next call.
-// io.EOF means no more lines.
+// next returns the next line; the slice is valid until the next call of
+// next or atEOF. io.EOF means no more lines.
 func (l *lineReader) next() ([]byte, error) {
 	l.buf = l.buf[:0]
 	for {
 		chunk, err := l.br.ReadSlice('\n')
+		if err == nil && len(l.buf) == 0 {
+			// The whole line is in bufio's buffer: use it there, uncopied.
+			return l.trim(chunk), nil
+		}
 		l.buf = append(l.buf, chunk...)
 		if err == bufio.ErrBufferFull {
 			continue
@@ -36,13 +41,19 @@ func (l *lineReader) next() ([]byte, error) {
 		}
 		break
 	}
+	return l.trim(l.buf), nil
+}
+
+// trim counts line b and drops its terminator, and the byte-order mark of
+// the first line.
+func (l *lineReader) trim(b []byte) []byte {
 	l.line++
-	b := bytes.TrimSuffix(l.buf, []byte("\n"))
+	b = bytes.TrimSuffix(b, []byte("\n"))
 	b = bytes.TrimSuffix(b, []byte("\r"))
 	if l.line == 1 {
 		b = bytes.TrimPrefix(b, []byte("\xef\xbb\xbf"))
 	}
-	return b, nil
+	return b
 }
 
 // atEOF reports whether no bytes are left.
@@ -66,8 +77,23 @@ type field struct {
 // one allocation per line instead of one per field (text parsing was the
 // larger part of convert's CPU).
 func splitFields(b []byte, sep byte, out []field) []field {
+	return splitLine(b, string(b), sep, out)
+}
+
+// splitView is splitFields whose fields are views into b itself, valid
+// only until b changes (the next line): no allocation per line. A caller
+// that keeps a field's text beyond that copies it (strings.Clone);
+// parsing and error messages use it at once.
+func splitView(b []byte, sep byte, out []field) []field {
+	if len(b) == 0 {
+		return out[:0]
+	}
+	return splitLine(b, unsafe.String(&b[0], len(b)), sep, out)
+}
+
+// splitLine splits b, whose text is line, for splitFields and splitView.
+func splitLine(b []byte, line string, sep byte, out []field) []field {
 	out = out[:0]
-	line := string(b)
 	if sep != 0 {
 		start := 0
 		for i := 0; i <= len(b); i++ {

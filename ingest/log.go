@@ -3,12 +3,12 @@ package ingest
 import (
 	"fmt"
 	"io"
-	"os"
 	"strconv"
 	"strings"
 
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
+	"trajvault/provenance"
 )
 
 // logFormat reads line-oriented logs with a recipe's regular expressions;
@@ -26,7 +26,7 @@ var logFormat = Reader{
 
 type logSource struct {
 	path  string
-	f     *os.File
+	f     *hashedFile // hashed as read (digest)
 	lr    *lineReader
 	spec  *LogSpec
 	cur   *record
@@ -38,7 +38,7 @@ type logSource struct {
 }
 
 func openLog(path string, spec *LogSpec) (*logSource, error) {
-	f, err := os.Open(path)
+	f, err := openHashed(path)
 	if err != nil {
 		return nil, err
 	}
@@ -51,6 +51,7 @@ func (s *logSource) timeFormat() textnum.Format          { return s.fmts[quantit
 func (s *logSource) units() map[string]string            { return nil }
 func (s *logSource) hops() []hop                         { return s.hopsL }
 func (s *logSource) close()                              { s.f.Close() }
+func (s *logSource) digest() (provenance.Source, bool)   { return s.f.sum(s.path) }
 
 func (s *logSource) merge(q string, f textnum.Format) { s.fmts.merge(q, f) }
 

@@ -66,7 +66,7 @@ func (s *toySource) next() (*record, error) {
 				pos = append(pos, v)
 			}
 		}
-		rec.atoms = []atomColumn{{"position", pos}}
+		rec.atoms = []atomColumn{{quantity: "position", values: pos}}
 		return rec, nil
 	}
 	if err := s.sc.Err(); err != nil {

@@ -15,6 +15,7 @@ import (
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
 	"trajvault/internal/units"
+	"trajvault/provenance"
 )
 
 // Problem codes of scan (README, "Problems scan reports"): one code per
@@ -79,6 +80,9 @@ type FileReport struct {
 	hasTime             bool
 	timeFirst, timeLast float64
 	activity            activeTrack // changes of the active state (P20, matches.go)
+	// digest is the file's SHA-256 as the scan read it to its end (nil:
+	// not read to the end, or by a reader that does not hash).
+	digest *provenance.Source
 }
 
 // TrajReport is the result of scanning one trajectory.
@@ -127,6 +131,8 @@ type TrajReport struct {
 	ke       []*keFrame
 	keByKey  map[int64]*keFrame
 	geoSteps bool
+	// spool holds the records the scan read, for Convert (nil: none).
+	spool *spoolFile
 }
 
 // Options control reading; zero values are the defaults.
@@ -150,6 +156,15 @@ type Options struct {
 	// error into a warning, so that convert goes ahead; the accepted
 	// findings are recorded in the provenance.
 	AcceptMismatch bool
+	// SpoolDir, when set, makes Scan keep every record it parsed in a
+	// temporary file (the spool, spool.go) in that folder, so that
+	// Convert replays the records instead of parsing the text again.
+	// Give the output's folder (not /tmp: the spool holds 3 to 8 bytes
+	// per number, about a third of the text for numbers printed in
+	// decimals). Convert removes the spool; a caller that scans with a
+	// SpoolDir and does not convert calls TrajReport.Discard. Empty (the
+	// default, and for scan alone): no spool, Convert reads the text.
+	SpoolDir string
 }
 
 func (t *TrajReport) add(code string, sev finding.Severity, file string, line int, format string, args ...any) {
@@ -238,23 +253,58 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 			s.close()
 		}
 	}()
-	for i, s := range srcs {
-		fr, err := scanSource(ctx, rep, s, t.Inputs[i].reader)
-		if err != nil {
+	var sw *spoolWriter
+	if opt.SpoolDir != "" {
+		if sw, err = newSpool(opt.SpoolDir, t.Name); err != nil {
 			return nil, err
+		}
+	}
+	for i, s := range srcs {
+		if sw != nil {
+			sw.begin()
+		}
+		fr, err := scanSource(ctx, rep, s, t.Inputs[i].reader, sw)
+		if err != nil {
+			if sw != nil {
+				sw.abort()
+			}
+			return nil, err
+		}
+		if sw != nil {
+			sw.end()
 		}
 		rep.Files = append(rep.Files, fr)
 	}
+	if sw != nil {
+		if rep.spool, err = sw.finish(); err != nil {
+			return nil, err
+		}
+	}
 	if err := rep.checkGivenUnits(opt); err != nil {
+		rep.Discard()
 		return nil, err
 	}
 	rep.combine(opt)
 	rep.checkRecipeRules(srcs)
 	rep.checkHopEvents()
+	if rep.Refusal(opt.DropPartial) != nil {
+		rep.Discard() // not converted as scanned: no need to keep it
+	}
 	return rep, nil
 }
 
-func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*FileReport, error) {
+// Discard removes the spool of t (Options.SpoolDir), if any: for callers
+// that scanned with a spool and do not convert t. Convert calls it
+// itself; later calls do nothing.
+func (t *TrajReport) Discard() {
+	if t != nil {
+		t.spool.remove()
+	}
+}
+
+// scanSource reads s to its end or first error; every record read goes
+// to sw too, when not nil.
+func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader, sw *spoolWriter) (*FileReport, error) {
 	// The report keeps no reference to s: a closed source still holds its
 	// line buffer (1 MiB), and an ensemble's reports live until the
 	// conversion ends.
@@ -297,6 +347,11 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 			fr.failed = code != PTruncated
 			break
 		}
+		if sw != nil {
+			if err := sw.write(rec); err != nil {
+				return nil, sw.failure()
+			}
+		}
 		if rec.symbols != nil {
 			if atoms == 0 {
 				atoms = len(rec.symbols)
@@ -308,17 +363,13 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 				}
 			}
 			for _, c := range rec.atoms {
-				for _, v := range c.values {
-					fr.note(c.quantity, v)
-				}
+				fr.noteAll(c.quantity, c.values)
 			}
 			for _, c := range rec.extras {
 				if _, ok := rep.extraWidth[c.quantity]; !ok && len(rec.symbols) > 0 {
 					rep.extraWidth[c.quantity] = len(c.values) / len(rec.symbols)
 				}
-				for _, v := range c.values {
-					fr.note(ExtraPrefix+c.quantity, v)
-				}
+				fr.noteAll(ExtraPrefix+c.quantity, c.values)
 			}
 		}
 		for i, ok := range rec.hasScalar {
@@ -389,6 +440,9 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 		if rec.hasTime {
 			prevTime, prevStep, havePrev = rec.time, rec.step, true
 		}
+		if rc, ok := s.(recycler); ok {
+			rc.recycle() // nothing of rec is kept (copies only)
+		}
 	}
 	fr.Records = idx
 	fr.Kept = fr.keys.n
@@ -412,6 +466,11 @@ func scanSource(ctx context.Context, rep *TrajReport, s source, r *Reader) (*Fil
 	if r.Role == RoleGeometry {
 		rep.Atoms = atoms
 	}
+	if d, ok := s.(digester); ok {
+		if src, ok := d.digest(); ok {
+			fr.digest = &src
+		}
+	}
 	fr.hopEvents = s.hops()
 	fr.Hops = len(fr.hopEvents)
 	rep.Hops += fr.Hops
@@ -433,6 +492,27 @@ func (fr *FileReport) note(q string, v float64) {
 	fr.maxAbs[q] = math.Max(fr.maxAbs[q], math.Abs(v))
 	if v == 0 && math.Signbit(v) {
 		fr.negZeros[q]++
+	}
+}
+
+// noteAll is note for every value of vs, with one map access per
+// quantity instead of one per value (a NaN sticks, as with math.Max).
+func (fr *FileReport) noteAll(q string, vs []float64) {
+	if len(vs) == 0 {
+		return
+	}
+	m, neg := fr.maxAbs[q], 0
+	for _, v := range vs {
+		if a := math.Abs(v); a > m || a != a {
+			m = a
+		}
+		if v == 0 && math.Signbit(v) {
+			neg++
+		}
+	}
+	fr.maxAbs[q] = m
+	if neg > 0 {
+		fr.negZeros[q] += neg
 	}
 }
 

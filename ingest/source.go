@@ -171,6 +171,10 @@ func (r *record) extra(name string) []float64 {
 type atomColumn struct {
 	quantity string
 	values   []float64
+	// dec is D+1 when the reader saw every value printed in fixed
+	// notation with at most D decimals, else 0 (the spool writes such
+	// columns without a check per value, spoolWriter.scaled).
+	dec int
 }
 
 // atom returns the values of per-atom quantity q, or nil.
@@ -214,6 +218,14 @@ type source interface {
 	units() map[string]string
 	hops() []hop
 	close()
+}
+
+// recycler is implemented by sources that can reuse the buffers of the
+// record they returned last. Scan calls recycle when it is done with a
+// record (it keeps nothing of it); the conversion pass, which hands
+// records on, never does.
+type recycler interface {
+	recycle()
 }
 
 // reporter is implemented by sources that say, after a pass, what they

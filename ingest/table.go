@@ -11,6 +11,7 @@ import (
 	"trajvault/internal/finding"
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
+	"trajvault/provenance"
 )
 
 // TableColumn describes one column of a table.
@@ -21,6 +22,7 @@ type TableColumn struct {
 	State    int    // state index for per-state quantities, else -1
 	Format   textnum.Format
 	seen     bool
+	raw      textnum.Format // the last value's format (Column.mergeRaw)
 }
 
 // TableReader reads a column table one row at a time: whitespace-, comma-
@@ -152,7 +154,8 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			break
 		}
 	}
-	t.fields = splitFields(b, t.sep, t.fields)
+	// Views into the line: each field is parsed at once, none is kept.
+	t.fields = splitView(b, t.sep, t.fields)
 	if len(t.fields) != len(t.Columns) {
 		col := len(b) + 1
 		if len(t.fields) > len(t.Columns) {
@@ -162,9 +165,10 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 		}
 		return line, &ParseError{File: t.file, Line: line, Column: col, Err: detail(ErrFieldCount, "expected %d fields (%s), found %d; a short last line usually means the file was cut", len(t.Columns), t.names(), len(t.fields))}
 	}
+	var fm textnum.Format
 	for i, f := range t.fields {
 		c := t.Columns[i]
-		v, fm, err := textnum.ParseShort(f.text, !c.seen || c.Format.MayBeShortest())
+		v, err := textnum.ParseShortTo(f.text, !c.seen || c.Format.MayBeShortest(), &fm)
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(f.text) {
@@ -173,10 +177,11 @@ func (t *TableReader) Next(dst []float64) (int, error) {
 			return line, &ParseError{File: t.file, Line: line, Column: f.col, Err: detail(cause, "column %s: expected a number, found %q", t.Columns[i].Name, f.text)}
 		}
 		dst[i] = v
-		if !c.seen {
-			c.Format, c.seen = fm, true
-		} else {
-			c.Format = c.Format.Merge(fm)
+		switch {
+		case !c.seen:
+			c.Format, c.raw, c.seen = fm, fm, true
+		case fm != c.raw: // else Merge would change nothing (Column.mergeRaw)
+			c.Format, c.raw = c.Format.Merge(fm), fm
 		}
 	}
 	t.rows++
@@ -213,7 +218,7 @@ var tableFormat = Reader{
 
 type tableSource struct {
 	path  string
-	f     *os.File
+	f     *hashedFile // hashed as read (digest)
 	t     *TableReader
 	row   []float64
 	quant []string
@@ -225,7 +230,7 @@ type tableSource struct {
 }
 
 func openTable(path string, spec *TableSpec) (*tableSource, error) {
-	f, err := os.Open(path)
+	f, err := openHashed(path)
 	if err != nil {
 		return nil, err
 	}
@@ -276,11 +281,12 @@ func openTable(path string, spec *TableSpec) (*tableSource, error) {
 	return s, nil
 }
 
-func (s *tableSource) file() string                 { return s.path }
-func (s *tableSource) units() map[string]string     { return s.unit }
-func (s *tableSource) unitWhere(kind string) string { return s.unitAt[kind] }
-func (s *tableSource) hops() []hop                  { return nil }
-func (s *tableSource) close()                       { s.f.Close() }
+func (s *tableSource) file() string                      { return s.path }
+func (s *tableSource) units() map[string]string          { return s.unit }
+func (s *tableSource) unitWhere(kind string) string      { return s.unitAt[kind] }
+func (s *tableSource) hops() []hop                       { return nil }
+func (s *tableSource) close()                            { s.f.Close() }
+func (s *tableSource) digest() (provenance.Source, bool) { return s.f.sum(s.path) }
 
 func (s *tableSource) timeFormat() textnum.Format {
 	var f textnum.Format

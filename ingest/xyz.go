@@ -3,7 +3,6 @@ package ingest
 import (
 	"fmt"
 	"io"
-	"os"
 	"sort"
 	"strconv"
 	"strings"
@@ -12,6 +11,7 @@ import (
 	"trajvault/internal/quantity"
 	"trajvault/internal/textnum"
 	"trajvault/internal/trajfile"
+	"trajvault/provenance"
 )
 
 // Column is one per-atom property of a frame, flattened row-major (N x
@@ -21,6 +21,25 @@ type Column struct {
 	Width  int
 	Values []float64
 	Format textnum.Format
+	// raw is the format of the last value merged: a value printed like
+	// it changes nothing (mergeRaw).
+	raw textnum.Format
+}
+
+// mergeRaw widens c.Format by fm, the format of one more value. Merge
+// is skipped when fm equals the previous value's format: with f' =
+// f.Merge(g), f'.Merge(g) == f' (every field of Merge is a max, an AND
+// or an OR of the same operand, and Shortest is a function of mixed and
+// cand; TestMergeIdempotent checks it), and g.Merge(g) == g for a parsed
+// g, so the result is the same as merging every value (Merge was 5 %
+// of convert's CPU, one call per number).
+func (c *Column) mergeRaw(fm textnum.Format, first bool) {
+	switch {
+	case first:
+		c.Format, c.raw = fm, fm
+	case fm != c.raw:
+		c.Format, c.raw = c.Format.Merge(fm), fm
+	}
 }
 
 // Frame is one frame of an XYZ or extended XYZ file.
@@ -66,11 +85,34 @@ type XYZReader struct {
 	fields []field
 	frames int
 	lastN  int
+	// notShort holds the columns (by name) some earlier frame has ruled
+	// out of the shortest round-trip class: their values are not tested
+	// again (the test formats every value). A frame's format of such a
+	// column then says "not shortest" from its first value; the file's
+	// format, the merge of all frames, is the same, as Merge only ever
+	// clears candidate bits.
+	notShort map[string]bool
+	// infoNotShort is notShort for the numeric comment keys.
+	infoNotShort map[string]bool
+	// symbols are the previous frame's symbols: a symbol equal to the
+	// one of the same atom before shares its string.
+	symbols []string
+	// propSpec and props are the last Properties= value and what it
+	// says (parsed once while it does not change).
+	propSpec string
+	props    []property
+	// spare are the columns of a frame handed back (reuse), whose value
+	// buffers the next frame fills.
+	spare []*Column
 }
+
+// reuse hands fr back: the caller keeps nothing of it, so that the next
+// frame may write its values into fr's buffers.
+func (x *XYZReader) reuse(fr *Frame) { x.spare = fr.Columns }
 
 // NewXYZReader reads from r; file names the input in errors.
 func NewXYZReader(r io.Reader, file string) *XYZReader {
-	return &XYZReader{file: file, lr: newLineReader(r)}
+	return &XYZReader{file: file, lr: newLineReader(r), notShort: map[string]bool{}, infoNotShort: map[string]bool{}}
 }
 
 func (x *XYZReader) errAt(line, col int, err error) error {
@@ -118,13 +160,22 @@ func (x *XYZReader) Next() (*Frame, error) {
 		return nil, err
 	}
 	cols := make([]*Column, 0, len(props))
+	check := make([]bool, 0, len(props))
 	for _, p := range props {
 		if p.kind == 'R' || p.kind == 'I' {
-			c := &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, capN*min(p.count, 16))}
+			var c *Column
+			if k := len(cols); k < len(x.spare) && x.spare[k].Name == p.name {
+				c = x.spare[k]
+				*c = Column{Name: p.name, Width: p.count, Values: c.Values[:0]}
+			} else {
+				c = &Column{Name: p.name, Width: p.count, Values: make([]float64, 0, capN*min(p.count, 16))}
+			}
 			cols = append(cols, c)
+			check = append(check, !x.notShort[p.name])
 		}
 	}
 	fr.Columns = cols
+	x.spare = nil
 	for _, p := range props {
 		if p.kind != 'R' && p.kind != 'I' && p.name != "species" {
 			fr.Other = append(fr.Other, p.name)
@@ -134,6 +185,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 	for _, p := range props {
 		width += p.count
 	}
+	var fm textnum.Format
 	for i := 0; i < n; i++ {
 		b, err := x.lr.next()
 		if err == io.EOF {
@@ -141,7 +193,7 @@ func (x *XYZReader) Next() (*Frame, error) {
 		} else if err != nil {
 			return nil, err
 		}
-		x.fields = splitFields(b, 0, x.fields)
+		x.fields = splitView(b, 0, x.fields)
 		if len(x.fields) < width {
 			col := len(b) + 1
 			if x.lr.atEOF() {
@@ -156,16 +208,25 @@ func (x *XYZReader) Next() (*Frame, error) {
 		for _, p := range props {
 			if p.kind != 'R' && p.kind != 'I' {
 				if p.name == "species" {
-					fr.Symbols = append(fr.Symbols, x.fields[k].text)
+					// Fields are views into the line buffer: the symbol
+					// is copied, once per file when the atoms keep
+					// their symbols.
+					sym := x.fields[k].text
+					if i < len(x.symbols) && x.symbols[i] == sym {
+						sym = x.symbols[i]
+					} else {
+						sym = strings.Clone(sym)
+					}
+					fr.Symbols = append(fr.Symbols, sym)
 				}
 				k += p.count
 				continue
 			}
-			c := cols[ci]
+			c, chk := cols[ci], check[ci]
 			ci++
 			for j := 0; j < p.count; j++ {
 				f := x.fields[k]
-				v, fm, err := textnum.ParseShort(f.text, len(c.Values) == 0 || c.Format.MayBeShortest())
+				v, err := textnum.ParseShortTo(f.text, chk && (len(c.Values) == 0 || c.Format.MayBeShortest()), &fm)
 				if err != nil {
 					cause := ErrNumber
 					if nonFinite(f.text) {
@@ -174,15 +235,17 @@ func (x *XYZReader) Next() (*Frame, error) {
 					return nil, x.errAt(x.lr.line, f.col, detail(cause, "%s component %d of atom %d: expected a number, found %q", p.name, j+1, i+1, f.text))
 				}
 				c.Values = append(c.Values, v)
-				if len(c.Values) == 1 {
-					c.Format = fm
-				} else {
-					c.Format = c.Format.Merge(fm)
-				}
+				c.mergeRaw(fm, len(c.Values) == 1)
 				k++
 			}
 		}
 	}
+	for _, c := range cols {
+		if !c.Format.MayBeShortest() {
+			x.notShort[c.Name] = true
+		}
+	}
+	x.symbols = fr.Symbols
 	x.frames++
 	x.lastN = n
 	return fr, nil
@@ -213,13 +276,19 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	}
 	// A plain comment such as "t = 5 fs" is not extended XYZ: require
 	// Properties= or at least every token to be key=value.
-	fr.Info = map[string]string{}
-	fr.InfoFormats = map[string]textnum.Format{}
+	fr.Info = make(map[string]string, len(kv))
+	fr.InfoFormats = make(map[string]textnum.Format, len(kv))
 	for _, p := range kv {
 		fr.Info[p[0]] = p[1]
 		if v := p[1]; v != "" {
-			if _, fm, err := textnum.ParseShort(v, true); err == nil {
+			// The shortest test as for columns: once per key until a
+			// value rules the class out (notShort).
+			check := !x.infoNotShort[p[0]]
+			if _, fm, err := textnum.ParseShort(v, check); err == nil {
 				fr.InfoFormats[p[0]] = fm
+				if check && !fm.MayBeShortest() {
+					x.infoNotShort[p[0]] = true
+				}
 			}
 		}
 	}
@@ -227,6 +296,9 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	spec, ok := fr.Info["Properties"]
 	if !ok {
 		return plainXYZ, nil
+	}
+	if spec == x.propSpec && x.props != nil {
+		return x.props, nil // as the frame before (props are never changed)
 	}
 	parts := strings.Split(spec, ":")
 	if len(parts)%3 != 0 {
@@ -259,6 +331,7 @@ func (x *XYZReader) parseComment(fr *Frame) ([]property, error) {
 	if !hasPos {
 		return nil, x.errAt(x.lr.line, strings.Index(fr.Comment, "Properties=")+1, detail(ErrHeader, "Properties has no pos:R:3 column"))
 	}
+	x.propSpec, x.props = spec, props
 	return props, nil
 }
 
@@ -334,8 +407,9 @@ var xyzFormat = Reader{
 
 type xyzSource struct {
 	path    string
-	f       *os.File
+	f       *hashedFile // hashed as read (digest)
 	r       *XYZReader
+	last    *Frame // the frame of the last record (recycle)
 	recipe  *Recipe
 	fmts    formatSet
 	columns map[string]string
@@ -343,6 +417,11 @@ type xyzSource struct {
 	unit map[string]string
 	// unitAt says where each unit of unit is written (unitWhere).
 	unitAt map[string]string
+	// keyNotShort holds the comment keys ruled out of the shortest
+	// round-trip class (XYZReader.notShort).
+	keyNotShort map[string]bool
+	colQ        map[string]string      // columnQuantity, by name
+	keys        map[string]*commentKey // keyInfo, by key
 	notes
 }
 
@@ -378,11 +457,11 @@ func (s *xyzSource) unitKey(fr *Frame, key, val string, col int) (bool, error) {
 }
 
 func openXYZ(path string, rc *Recipe) (*xyzSource, error) {
-	f, err := os.Open(path)
+	f, err := openHashed(path)
 	if err != nil {
 		return nil, err
 	}
-	s := &xyzSource{path: path, f: f, r: NewXYZReader(f, path), recipe: rc, fmts: formatSet{}, columns: map[string]string{}}
+	s := &xyzSource{path: path, f: f, r: NewXYZReader(f, path), recipe: rc, fmts: formatSet{}, columns: map[string]string{}, keyNotShort: map[string]bool{}}
 	if rc != nil && rc.Geometry != nil {
 		for k, v := range rc.Geometry.Columns {
 			s.columns[k] = v
@@ -398,14 +477,56 @@ func (s *xyzSource) units() map[string]string            { return s.unit }
 func (s *xyzSource) unitWhere(kind string) string        { return s.unitAt[kind] }
 func (s *xyzSource) hops() []hop                         { return nil }
 func (s *xyzSource) close()                              { s.f.Close() }
+func (s *xyzSource) digest() (provenance.Source, bool)   { return s.f.sum(s.path) }
 
 // columnQuantity maps an extended XYZ property name to a quantity: the
-// recipe's geometry columns, then the vocabulary.
+// recipe's geometry columns, then the vocabulary (remembered per name:
+// it is asked for every column of every frame).
 func (s *xyzSource) columnQuantity(name string) string {
-	if q, ok := s.columns[name]; ok {
+	if q, ok := s.colQ[name]; ok {
 		return q
 	}
-	return quantity.Property(name)
+	q, ok := s.columns[name]
+	if !ok {
+		q = quantity.Property(name)
+	}
+	if s.colQ == nil {
+		s.colQ = map[string]string{}
+	}
+	s.colQ[name] = q
+	return q
+}
+
+// commentKey is what a comment key means, worked out once per key (it
+// is met on every frame).
+type commentKey struct {
+	q, m   string // quantity; the recipe's mapping, if mapped
+	mapped bool
+	amb    []quantity.Meaning // quantity.Ambiguous
+	noted  bool               // its note is made
+}
+
+func (s *xyzSource) keyInfo(key string) *commentKey {
+	if ki, ok := s.keys[key]; ok {
+		return ki
+	}
+	ki := &commentKey{q: quantity.CommentKey(key), amb: quantity.Ambiguous(key)}
+	if m, ok := s.columns[key]; ok {
+		ki.q, ki.m, ki.mapped = m, m, true
+	}
+	if s.keys == nil {
+		s.keys = map[string]*commentKey{}
+	}
+	s.keys[key] = ki
+	return ki
+}
+
+// recycle lets the next frame reuse the buffers of the last one.
+func (s *xyzSource) recycle() {
+	if s.last != nil {
+		s.r.reuse(s.last)
+		s.last = nil
+	}
 }
 
 func (s *xyzSource) next() (*record, error) {
@@ -413,6 +534,7 @@ func (s *xyzSource) next() (*record, error) {
 	if err != nil {
 		return nil, err
 	}
+	s.last = fr
 	rec := &record{line: fr.Line, symbols: fr.Symbols}
 	for _, c := range fr.Columns {
 		q := s.columnQuantity(c.Name)
@@ -422,7 +544,7 @@ func (s *xyzSource) next() (*record, error) {
 			why := trajfile.ExtraNameProblem(c.Name)
 			if why == "" {
 				s.fmts.merge(ExtraPrefix+c.Name, c.Format)
-				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values})
+				rec.extras = append(rec.extras, atomColumn{c.Name, c.Values, fixedDec(c.Format)})
 				continue
 			}
 			s.add("col:"+c.Name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
@@ -438,7 +560,7 @@ func (s *xyzSource) next() (*record, error) {
 			continue
 		}
 		s.fmts.merge(q, c.Format)
-		rec.atoms = append(rec.atoms, atomColumn{q, c.Values})
+		rec.atoms = append(rec.atoms, atomColumn{q, c.Values, fixedDec(c.Format)})
 	}
 	for _, name := range fr.Other {
 		s.add("col:"+name, sourceNote{code: PNotStored, sev: finding.Note, line: fr.Line + 1,
@@ -459,12 +581,13 @@ func (s *xyzSource) next() (*record, error) {
 		if done, err := s.unitKey(fr, key, val, col); done || err != nil {
 			return err
 		}
-		q := quantity.CommentKey(key)
-		m, mapped := s.columns[key]
-		if mapped {
-			q = m
-		}
+		ki := s.keyInfo(key)
+		q, m, mapped := ki.q, ki.m, ki.mapped
 		if q == quantity.Ignore || (q == "" && !mapped) || (mapped && !perFrame(q)) {
+			if ki.noted {
+				return nil // said once, at its first line
+			}
+			ki.noted = true
 			why := "not a quantity trajvault knows (" + quantity.Names() + ")"
 			switch {
 			case q == quantity.Ignore:
@@ -477,12 +600,20 @@ func (s *xyzSource) next() (*record, error) {
 				notStored: fmt.Sprintf("comment key %s: %s", key, why)})
 			return nil
 		}
-		if a := quantity.Ambiguous(key); a != nil && !mapped {
+		if a := ki.amb; a != nil && !mapped && !ki.noted {
+			ki.noted = true
 			s.add("ambiguous:"+key, sourceNote{code: PAmbiguous, sev: finding.Note, line: fr.Line + 1, col: col, quantity: q,
 				msg: fmt.Sprintf("%s= read as %s (the extended XYZ convention); as a %s it would mean %s. If it is not the %s, say which it is in a recipe: geometry: columns: {%s: %s}",
 					key, q, a[0].Source, a[0].Quantity, q, key, a[0].Quantity)})
 		}
-		v, fm, err := textnum.ParseShort(val, true)
+		// The shortest test until a value of key rules the class out
+		// (the merged format is the same, see XYZReader.notShort); the
+		// step's format is not kept.
+		check := q != quantity.Step && !s.keyNotShort[key]
+		v, fm, err := textnum.ParseShort(val, check)
+		if check && err == nil && !fm.MayBeShortest() {
+			s.keyNotShort[key] = true
+		}
 		if err != nil {
 			cause := ErrNumber
 			if nonFinite(val) {
@@ -529,6 +660,14 @@ func (s *xyzSource) next() (*record, error) {
 		}
 	}
 	return rec, nil
+}
+
+// fixedDec is atomColumn.dec for a column of format f.
+func fixedDec(f textnum.Format) int {
+	if f.Fixed() {
+		return f.Decimals + 1
+	}
+	return 0
 }
 
 // perFrame reports whether q is a per-frame quantity a comment line can

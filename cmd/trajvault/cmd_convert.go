@@ -227,12 +227,16 @@ func (o *conversionFlags) packOptions(opt ingest.Options, tol map[string]float64
 // written into a hidden folder renamed into place only when every
 // conversion succeeded.
 func convertEnsemble(ctx context.Context, g *globals, o convertOptions, opt ingest.Options, tol map[string]float64, trajs []*ingest.Trajectory) error {
+	opt.SpoolDir = ingest.SpoolDirFor(o.out) // one parse: ConvertAll replays the scan
 	reps, err := scanEnsemble(ctx, g, "convert", trajs, opt, o.jobs, o.dropPartial, o.json)
 	if err != nil {
 		return err
 	}
 	tmp, err := outdir.Temp(o.out)
 	if err != nil {
+		for _, r := range reps {
+			r.Discard()
+		}
 		return &exitError{exitUsage, err}
 	}
 	converting := newBar(g, "convert", "trajectories")
@@ -308,6 +312,7 @@ type convertResult struct {
 // With jsonOut the problems are printed as the command's envelope.
 func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.Trajectory, opt ingest.Options, jobs int, dropPartial, jsonOut bool) ([]*ingest.TrajReport, error) {
 	scanning := newBar(g, "scan", "trajectories")
+	opt.DropPartial = dropPartial // a spool is kept only for what converts
 	reps, err := ingest.ScanAll(ctx, trajs, opt, jobs, scanning)
 	scanning.Finish()
 	if err != nil {
@@ -320,6 +325,9 @@ func scanEnsemble(ctx context.Context, g *globals, verb string, trajs []*ingest.
 		}
 	}
 	if len(bad) > 0 {
+		for _, r := range reps {
+			r.Discard() // nothing is converted
+		}
 		if jsonOut {
 			printEnvelopeOK(g, verb, false, scanFindings(bad), nil) // nothing was made
 		} else {

@@ -303,12 +303,16 @@ func packConvert(ctx context.Context, g *globals, o packOptions, dir string, tra
 	var reps []*ingest.TrajReport
 	if o.jobs <= 1 || len(trajs) <= 1 {
 		var err error
+		opt.SpoolDir = ingest.SpoolDirFor(filepath.Clean(o.out)) // one parse: ConvertAll replays the scan
 		if reps, err = scanEnsemble(ctx, g, "pack", trajs, opt, o.jobs, o.dropPartial, o.json); err != nil {
 			return "", nil, err
 		}
 	}
 	tmp, err := pack.NewStaging(filepath.Clean(o.out)) // a fresh hidden name; nothing of the user's is removed
 	if err != nil {
+		for _, r := range reps {
+			r.Discard()
+		}
 		return "", nil, &exitError{exitUsage, fmt.Errorf("pack: %w", err)}
 	}
 	trajDir := filepath.Join(tmp, filepath.FromSlash(schema.TrajectoriesDir))

@@ -151,11 +151,14 @@ func runShard(ctx context.Context, g *globals, r shardRun) error {
 			skipped++
 			continue
 		}
-		rep, err := ingest.Scan(ctx, t, r.opt)
+		opt := r.opt
+		opt.SpoolDir, opt.DropPartial = r.out, r.dropPartial // one parse: Convert replays the scan
+		rep, err := ingest.Scan(ctx, t, opt)
 		if err != nil {
 			return &exitError{exitUsage, fmt.Errorf("%s: %s: %w", r.verb, t.Name, err)}
 		}
 		if rep.Refusal(r.dropPartial) != nil {
+			rep.Discard()
 			printScan(g, rep)
 			bad++
 			continue
@@ -166,9 +169,11 @@ func runShard(ctx context.Context, g *globals, r shardRun) error {
 			// bytes changed since is ours to replace (it has a ledger
 			// entry); anything else is not.
 			if _, err := os.Stat(filepath.Join(r.out, shardDir, t.Name+".json")); err != nil {
+				rep.Discard()
 				return &exitError{exitUsage, fmt.Errorf("%s: %s exists and no shard wrote it; trajvault never overwrites outputs", r.verb, dst)}
 			}
 			if err := os.Remove(dst); err != nil {
+				rep.Discard()
 				return &exitError{exitUsage, err}
 			}
 		}

@@ -353,12 +353,17 @@ func convertOne(ctx context.Context, t *ingest.Trajectory, job convertJob, opt i
 		r.Error = "not found in the ensemble folder by the worker"
 		return r
 	}
+	if !job.ScanOnly {
+		opt.SpoolDir = ingest.SpoolDirFor(job.Out) // one parse: Convert replays the scan
+		opt.DropPartial = dropPartial
+	}
 	rep, err := ingest.Scan(ctx, t, opt)
 	if err != nil {
 		var uc *ingest.UnitConflictError
 		r.Error, r.Usage = err.Error(), errors.As(err, &uc)
 		return r
 	}
+	defer rep.Discard() // when not converted (Convert removes its own)
 	r.Report = rep
 	if rep.Refusal(dropPartial) != nil {
 		var b bytes.Buffer

@@ -54,7 +54,8 @@ const (
 	ShortRepr byte = 'r'
 	// ShortG is Go's strconv.FormatFloat(x, 'g', -1, 64): no ".0" on
 	// integers ("0", "12"), exponent notation when the decimal exponent
-	// is below -4 or at least 21.
+	// is below -4 or at least 6 ("1.234567e+06"; fmt's %v, unlike it,
+	// switches at 21).
 	ShortG byte = 'g'
 )
 
@@ -77,9 +78,22 @@ func (f Format) MayBeShortest() bool { return f.cand != 0 }
 // Readers call it while the column's format MayBeShortest, and Parse
 // after that (the test costs a float formatting).
 func ParseShort(s string, check bool) (float64, Format, error) {
-	v, f, err := Parse(s)
+	var f Format
+	v, err := ParseShortTo(s, check, &f)
+	return v, f, err
+}
+
+// ParseShortTo is ParseShort storing the format in *f: readers call it
+// for every number, and a Format returned by value is copied through
+// memory twice per call (a tenth of the parsing time, measured).
+func ParseShortTo(s string, check bool, f *Format) (float64, error) {
+	v, err := parseTo(s, f)
 	if err != nil || !check {
-		return v, f, err
+		return v, err
+	}
+	if c, ok := intCand(s); ok {
+		f.cand = c
+		return v, nil
 	}
 	if s == repr(v) {
 		f.cand |= candRepr
@@ -87,7 +101,35 @@ func ParseShort(s string, check bool) (float64, Format, error) {
 	if s == strconv.FormatFloat(v, 'g', -1, 64) {
 		f.cand |= candG
 	}
-	return v, f, nil
+	return v, nil
+}
+
+// intCand is ParseShort's test for an integer written without point or
+// exponent, whose columns (steps, states) would otherwise be formatted
+// on every row, as they never leave the 'g' class: ok is false for other
+// fields. repr always writes a point or an exponent ("12.0", "1e+16"),
+// so an integer is never ShortRepr. With at most 6 digits its value is
+// exact and below 10^6, which 'g' writes in fixed notation without
+// leading zeros or a plus sign ("-0" for negative zero), so the field is
+// ShortG exactly when it is written that way; longer integers take the
+// general test (TestIntCand compares both on random integers).
+func intCand(s string) (uint8, bool) {
+	d := s
+	if d != "" && d[0] == '-' {
+		d = d[1:]
+	}
+	if d == "" || len(d) > 6 {
+		return 0, false
+	}
+	for i := 0; i < len(d); i++ {
+		if d[i] < '0' || d[i] > '9' {
+			return 0, false
+		}
+	}
+	if len(d) > 1 && d[0] == '0' {
+		return 0, true // leading zero: neither style writes it
+	}
+	return candG, true
 }
 
 // repr is Python's repr of a float64 (float_repr_style "short", Python
@@ -123,68 +165,62 @@ var ErrSyntax = errors.New("not a number")
 // number written (strconv.ParseFloat after normalising the exponent).
 func Parse(s string) (float64, Format, error) {
 	var f Format
-	if s == "" {
-		return 0, f, ErrSyntax
+	v, err := parseTo(s, &f)
+	return v, f, err
+}
+
+// parseTo is Parse storing the format in *f.
+func parseTo(s string, f *Format) (float64, error) {
+	*f = Format{}
+	n := len(s)
+	if n == 0 {
+		return 0, ErrSyntax
 	}
 	i := 0
 	if s[0] == '+' || s[0] == '-' {
 		i++
 	}
-	digits, lead, dot, dec := 0, true, false, 0
-	sig := 0
-	var m uint64 // the digits as an integer while sig <= 19
 	start := i
-	for ; i < len(s); i++ {
-		c := s[i]
-		switch {
-		case c >= '0' && c <= '9':
-			digits++
-			if c != '0' {
-				lead = false
+	// Digits before and after the point in two tight loops (this is the
+	// hottest code of convert): sig counts digits from the first nonzero
+	// one, m holds them as an integer while sig <= 19.
+	sig, dec := 0, 0
+	var m uint64
+	for ; i < n; i++ {
+		c := s[i] - '0'
+		if c > 9 {
+			break
+		}
+		if sig > 0 || c != 0 {
+			sig++
+			if sig <= 19 {
+				m = m*10 + uint64(c)
 			}
-			if !lead {
+		}
+	}
+	digits := i - start
+	if i < n && s[i] == '.' {
+		i++
+		for ; i < n; i++ {
+			c := s[i] - '0'
+			if c > 9 {
+				break
+			}
+			dec++
+			if sig > 0 || c != 0 {
 				sig++
 				if sig <= 19 {
-					m = m*10 + uint64(c-'0')
+					m = m*10 + uint64(c)
 				}
 			}
-			if dot {
-				dec++
-			}
-		case c == '.' && !dot:
-			dot = true
-		default:
-			goto mantissaDone
 		}
+		digits += dec
 	}
-mantissaDone:
 	if digits == 0 {
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
-	mant := s[:i]
-	exp := ""
-	if i < len(s) {
-		c := s[i]
-		switch {
-		case c == 'E' || c == 'e' || c == 'D' || c == 'd':
-			f.ExpChar = c
-			exp = s[i+1:]
-		case (c == '+' || c == '-') && i > start:
-			exp = s[i:] // Fortran drops the letter for 3-digit exponents
-		default:
-			return 0, f, ErrSyntax
-		}
-		if !validExp(exp) {
-			return 0, f, ErrSyntax
-		}
-		f.Exp = true
-		if sig == 0 {
-			sig = 1
-		}
-		f.Sig = sig
-		f.Decimals = dec
-	} else {
-		f.Decimals = dec
+	f.Decimals = dec
+	if i == n {
 		// Fast path for fixed notation (Clinger's exact case, common
 		// practice in float parsers): with at most 15 significant digits
 		// m < 10^15 < 2^53 and 10^dec (dec <= 22) are both exact float64
@@ -196,22 +232,46 @@ mantissaDone:
 			if s[0] == '-' {
 				v = -v
 			}
-			return v, f, nil
+			return v, nil
 		}
+		return parseFloat(s, s, "")
 	}
+	mant := s[:i]
+	c := s[i]
+	var exp string
+	switch {
+	case c == 'E' || c == 'e' || c == 'D' || c == 'd':
+		f.ExpChar = c
+		exp = s[i+1:]
+	case (c == '+' || c == '-') && i > start:
+		exp = s[i:] // Fortran drops the letter for 3-digit exponents
+	default:
+		return 0, ErrSyntax
+	}
+	if !validExp(exp) {
+		return 0, ErrSyntax
+	}
+	f.Exp = true
+	f.Sig = max(sig, 1)
+	return parseFloat(s, mant, exp)
+}
+
+// parseFloat is strconv.ParseFloat of mant with exponent exp ("" for
+// none); s, the whole field, is for the range error.
+func parseFloat(s, mant, exp string) (float64, error) {
 	norm := mant
-	if f.Exp {
+	if exp != "" {
 		norm = mant + "e" + exp
 	}
 	v, err := strconv.ParseFloat(norm, 64)
 	if err != nil {
 		var ne *strconv.NumError
 		if errors.As(err, &ne) && ne.Err == strconv.ErrRange {
-			return v, f, fmt.Errorf("%w: %s is out of the float64 range", ErrSyntax, s)
+			return v, fmt.Errorf("%w: %s is out of the float64 range", ErrSyntax, s)
 		}
-		return 0, f, ErrSyntax
+		return 0, ErrSyntax
 	}
-	return v, f, nil
+	return v, nil
 }
 
 // pow10 holds the powers of ten that are exact in float64 (10^22 is the

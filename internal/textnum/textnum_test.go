@@ -248,3 +248,94 @@ func BenchmarkParseFixed(b *testing.B) {
 		}
 	}
 }
+
+// TestMergeIdempotent checks what readers rely on to skip Merge for a
+// value printed like the one before: f.Merge(g).Merge(g) == f.Merge(g)
+// for every reachable f, and g.Merge(g) == g for a parsed g. Formats
+// come from parsing random fields of every notation (fixed, E/D/dropped
+// exponent letters, shortest forms) and merging random runs of them,
+// with and without the shortest test. The algebraic argument (Merge is
+// a max, AND or OR per field, Shortest a function of mixed and cand) is
+// in ingest's Column.mergeRaw; this test would catch a field added to
+// Format that breaks it.
+func TestMergeIdempotent(t *testing.T) {
+	rng := rand.New(rand.NewSource(14))
+	fields := func() string {
+		v := (rng.Float64() - 0.5) * math.Pow10(rng.Intn(12)-6)
+		switch rng.Intn(6) {
+		case 0:
+			return strconv.FormatFloat(v, 'f', rng.Intn(10), 64)
+		case 1:
+			return strconv.FormatFloat(v, 'E', rng.Intn(10), 64)
+		case 2:
+			return strings.Replace(strconv.FormatFloat(v, 'e', rng.Intn(10), 64), "e", "D", 1)
+		case 3:
+			return repr(v)
+		case 4:
+			return strconv.FormatFloat(v, 'g', -1, 64)
+		}
+		return "1.5-100" // Fortran, letter dropped
+	}
+	parsed := func() Format {
+		s := fields()
+		_, f, err := ParseShort(s, rng.Intn(2) == 0)
+		if err != nil {
+			t.Fatalf("ParseShort(%q): %v", s, err)
+		}
+		return f
+	}
+	for i := 0; i < 20000; i++ {
+		g := parsed()
+		if m := g.Merge(g); m != g {
+			t.Fatalf("g.Merge(g) = %+v, want g = %+v", m, g)
+		}
+		f := parsed()
+		for n := rng.Intn(5); n > 0; n-- {
+			f = f.Merge(parsed())
+		}
+		once := f.Merge(g)
+		if twice := once.Merge(g); twice != once {
+			t.Fatalf("f=%+v g=%+v: f.Merge(g) = %+v, merged again %+v", f, g, once, twice)
+		}
+	}
+}
+
+// TestIntCand: the shortcut for integers gives the same class as the
+// general test (formatting with repr and strconv 'g', -1) on random
+// integers with signs, leading zeros and up to 8 digits.
+func TestIntCand(t *testing.T) {
+	rng := rand.New(rand.NewSource(6))
+	for i := 0; i < 50000; i++ {
+		s := strconv.FormatInt(rng.Int63n(int64(math.Pow10(rng.Intn(8)+1))), 10)
+		if rng.Intn(5) == 0 {
+			s = strings.Repeat("0", rng.Intn(3)+1) + s
+		}
+		switch rng.Intn(4) {
+		case 0:
+			s = "-" + s
+		case 1:
+			s = "+" + s
+		}
+		v, f, err := ParseShort(s, true)
+		if err != nil {
+			t.Fatal(s, err)
+		}
+		var want uint8
+		if s == repr(v) {
+			want |= candRepr
+		}
+		if s == strconv.FormatFloat(v, 'g', -1, 64) {
+			want |= candG
+		}
+		if f.cand != want {
+			t.Fatalf("%q: cand %b, general test %b", s, f.cand, want)
+		}
+	}
+	for _, s := range []string{"0", "-0", "00", "123456", "1234567", "-000001"} {
+		v, f, _ := ParseShort(s, true)
+		want := s == strconv.FormatFloat(v, 'g', -1, 64)
+		if (f.cand&candG != 0) != want {
+			t.Errorf("%q: 'g' class %v, want %v", s, f.cand&candG != 0, want)
+		}
+	}
+}
