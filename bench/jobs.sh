@@ -37,7 +37,7 @@ run() { # NAME OUT ARGS...
 	rm -rf "$out"
 	/usr/bin/time -f "%e %U %S %M" -o "$work/time" "$@" >/dev/null
 	read -r wall u s rss <"$work/time"
-	rows+=("$name;$wall;$(awk -v u="$u" -v s="$s" 'BEGIN { printf "%.1f", u + s }');$((rss / 1024))")
+	rows+=("$name;$wall;$(awk -v u="$u" -v s="$s" 'BEGIN { printf "%.2f", u + s }');$((rss / 1024));$(du -sb "${in:-$work/logs}" | cut -f1)")
 	echo "bench: jobs: $name: ${wall}s wall" >&2
 }
 run "convert --jobs 1, $TRAJ trajectories" "$work/o1" "$BIN" convert --jobs 1 --recipe "$RECIPE" "$work/logs" -o "$work/o1"
@@ -47,6 +47,7 @@ for f in "$work"/o1/*.h5; do
 	out=$(h5diff "$f" "$work/o2/$(basename "$f")" | grep -v -e 'trajvault_provenance' -e 'differences\? found' || true)
 	[ -z "$out" ] || { echo "bench: jobs: $(basename "$f") differs: $out" >&2; exit 1; }
 done
+in=$work/many
 run "convert --jobs 1, $BIG trajectories x 1001 frames" "$work/m1" "$BIN" convert --jobs 1 --recipe "$RECIPE" "$work/many" -o "$work/m1"
 run "convert --jobs $(nproc), $BIG trajectories x 1001 frames" "$work/m2" "$BIN" convert --jobs "$(nproc)" --recipe "$RECIPE" "$work/many" -o "$work/m2"
 
@@ -55,19 +56,20 @@ section=$(
 	echo
 	echo "Made by bench/jobs.sh (part of \`make bench\`) on $(date -u +%Y-%m-%d), $(nproc) cores; load average at the end: $(cut -d' ' -f1-3 /proc/loadavg)."
 	echo "Inputs: $TRAJ invented demo trajectories x $STEPS steps x $((3 * MOLECULES)) atoms ($text bytes of text); $BIG trajectories x 1000 steps x 3 atoms."
-	echo "Warm page cache. CPU is user + sys of the run and its workers; peak RSS is the largest single process (MiB)."
+	echo "Warm page cache. CPU is user + sys of the run and its workers; MB per CPU-s is MB of text per CPU second (speed on"
+	echo "equal CPU work: at --jobs 1 the single-core throughput); peak RSS is the largest single process (MiB)."
 	echo
-	echo "| run | wall s | CPU s | peak RSS MiB | speed-up |"
-	echo "|---|---:|---:|---:|---:|"
+	echo "| run | wall s | CPU s | MB per CPU-s | peak RSS MiB | speed-up |"
+	echo "|---|---:|---:|---:|---:|---:|"
 	base=""
 	for r in "${rows[@]}"; do
-		IFS=';' read -r name wall cpu rss <<<"$r"
+		IFS=';' read -r name wall cpu rss bytes <<<"$r"
 		up="-"
 		case $name in
 		"convert --jobs 1,"*) base=$wall ;;
 		*) up=$(awk -v a="$base" -v w="$wall" 'BEGIN { if (w > 0) printf "%.2fx", a / w; else print "-" }') ;;
 		esac
-		echo "| $name | $wall | $cpu | $rss | $up |"
+		echo "| $name | $wall | $cpu | $(awk -v b="$bytes" -v c="$cpu" 'BEGIN { printf "%.1f", b / 1e6 / (c > 0 ? c : 0.01) }') | $rss | $up |"
 	done
 )
 replace_section "## Jobs: " "$section"
