@@ -1016,6 +1016,21 @@ static hid_t xfer_for(size_t buflen) {
 	return x;
 }
 
+// select_box selects the hyperslab start/count of the file space fs
+// and creates the matching memory space *ms for a buffer of buflen bytes
+// of memcode: 0, -1 (library error) or TV_E_SIZE (rank, bounds or buffer
+// do not match).
+static int select_box(hid_t fs, int rank, const hsize_t *start, const hsize_t *count,
+                      int memcode, size_t buflen, hid_t *ms) {
+	if (H5Sget_simple_extent_ndims(fs) != rank) return TV_E_SIZE;
+	if (H5Sselect_hyperslab(fs, H5S_SELECT_SET, start, NULL, count, NULL) < 0) return -1;
+	if (H5Sselect_valid(fs) <= 0) return TV_E_SIZE;
+	*ms = H5Screate_simple(rank, count, NULL);
+	if (*ms < 0) return -1;
+	if (!fits(*ms, memcode, buflen)) return TV_E_SIZE;
+	return 0;
+}
+
 // tv_dset_read_block reads the hyperslab start/count (whole dataset when
 // start is NULL) into buf of buflen bytes, after checking it fits.
 int tv_dset_read_block(hid_t d, int memcode, int rank, const hsize_t *start, const hsize_t *count,
@@ -1029,12 +1044,7 @@ int tv_dset_read_block(hid_t d, int memcode, int rank, const hsize_t *start, con
 		rc = H5Dread(d, tv_memtype(memcode), H5S_ALL, H5S_ALL, xfer, buf) < 0 ? -1 : 0;
 		goto done;
 	}
-	if (H5Sget_simple_extent_ndims(fs) != rank) { rc = TV_E_SIZE; goto done; }
-	if (H5Sselect_hyperslab(fs, H5S_SELECT_SET, start, NULL, count, NULL) < 0) goto done;
-	if (H5Sselect_valid(fs) <= 0) { rc = TV_E_SIZE; goto done; }
-	ms = H5Screate_simple(rank, count, NULL);
-	if (ms < 0) goto done;
-	if (!fits(ms, memcode, buflen)) { rc = TV_E_SIZE; goto done; }
+	if ((rc = select_box(fs, rank, start, count, memcode, buflen, &ms)) != 0) goto done;
 	rc = H5Dread(d, tv_memtype(memcode), ms, fs, xfer, buf) < 0 ? -1 : 0;
 done:
 	if (rc == -1) keep_err();
@@ -1115,12 +1125,7 @@ int tv_dset_write_box(hid_t d, int memcode, int rank, const hsize_t *start, cons
 	hid_t fs = H5Dget_space(d), ms = -1;
 	int rc = -1;
 	if (fs < 0) goto done;
-	if (H5Sget_simple_extent_ndims(fs) != rank) { rc = TV_E_SIZE; goto done; }
-	if (H5Sselect_hyperslab(fs, H5S_SELECT_SET, start, NULL, count, NULL) < 0) goto done;
-	if (H5Sselect_valid(fs) <= 0) { rc = TV_E_SIZE; goto done; }
-	ms = H5Screate_simple(rank, count, NULL);
-	if (ms < 0) goto done;
-	if (!fits(ms, memcode, buflen)) { rc = TV_E_SIZE; goto done; }
+	if ((rc = select_box(fs, rank, start, count, memcode, buflen, &ms)) != 0) goto done;
 	rc = H5Dwrite(d, tv_memtype(memcode), ms, fs, H5P_DEFAULT, buf) < 0 ? -1 : 0;
 done:
 	if (rc == -1) keep_err();
