@@ -9,6 +9,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"sync"
 
 	"trajvault/internal/outdir"
@@ -310,18 +311,6 @@ func (w *spoolWriter) scaled(q uint64, v []float64) {
 	}
 }
 
-func sameStrings(a, b []string) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
-}
-
 // write appends one record.
 func (w *spoolWriter) write(r *record) error {
 	if w.err != nil {
@@ -346,7 +335,7 @@ func (w *spoolWriter) write(r *record) error {
 	same := false
 	if r.symbols != nil {
 		flags |= spoolSymbols
-		if w.syms != nil && sameStrings(r.symbols, w.syms) {
+		if w.syms != nil && slices.Equal(r.symbols, w.syms) {
 			flags |= spoolSameSymbols
 			same = true
 		}

@@ -12,6 +12,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"syscall"
@@ -142,7 +143,7 @@ func sameRecord(a, b *record) string {
 		return "energies"
 	case !sameBits(a.stateE, b.stateE) || !sameBits(a.pop, b.pop):
 		return "states"
-	case (a.symbols == nil) != (b.symbols == nil) || !sameStrings(a.symbols, b.symbols):
+	case (a.symbols == nil) != (b.symbols == nil) || !slices.Equal(a.symbols, b.symbols):
 		return "symbols"
 	case len(a.atoms) != len(b.atoms) || len(a.extras) != len(b.extras) || (a.atoms == nil) != (b.atoms == nil) || (a.extras == nil) != (b.extras == nil):
 		return "columns"

@@ -433,24 +433,12 @@ func (r *Reader) states() error {
 			return err
 		}
 		want := append([]int{r.T}, e.tail...)
-		if !sameDims(info.Shape.Dims, want) {
+		if !slices.Equal(info.Shape.Dims, want) {
 			return fmt.Errorf("%s%s: shape %v, want %v for %s = %d over %d frames", e.el, Value, info.Shape.Dims, want, NStates, S, r.T)
 		}
 	}
 	r.States = S
 	return nil
-}
-
-func sameDims(a, b []int) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // Clock is an element's steps and times, per frame, as stored.
