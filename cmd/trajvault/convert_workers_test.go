@@ -4,6 +4,9 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"runtime"
+	"slices"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -115,5 +118,32 @@ func TestPackTakesConversionFlags(t *testing.T) {
 	}
 	if code, _, errs := runCLI("pack", logs, "-o", bag, "--deposit", deposit, "--hdf5-compat", "1.6"); code != 2 || !strings.Contains(errs, "--hdf5-compat") {
 		t.Errorf("--hdf5-compat 1.6: exit %d %s", code, errs)
+	}
+}
+
+// TestWorkerEnvSharesCores: N workers get GOMAXPROCS = cores / N (at
+// least 1); a GOMAXPROCS the user set is passed on unchanged.
+func TestWorkerEnvSharesCores(t *testing.T) {
+	t.Setenv("GOMAXPROCS", "")
+	os.Unsetenv("GOMAXPROCS")
+	want := "GOMAXPROCS=" + strconv.Itoa(max(1, runtime.NumCPU()/2))
+	if env := workerEnv(2); env[len(env)-1] != want {
+		t.Errorf("workerEnv(2) ends with %q, want %q", env[len(env)-1], want)
+	}
+	if env := workerEnv(1); slices.ContainsFunc(env, func(s string) bool { return strings.HasPrefix(s, "GOMAXPROCS=") }) {
+		t.Errorf("workerEnv(1) sets GOMAXPROCS: one worker may use every core")
+	}
+	t.Setenv("GOMAXPROCS", "3")
+	n := 0
+	for _, s := range workerEnv(4) {
+		if strings.HasPrefix(s, "GOMAXPROCS=") {
+			n++
+			if s != "GOMAXPROCS=3" {
+				t.Errorf("user's GOMAXPROCS replaced by %q", s)
+			}
+		}
+	}
+	if n != 1 {
+		t.Errorf("%d GOMAXPROCS entries, want the user's one", n)
 	}
 }
