@@ -234,7 +234,7 @@ func Convert(ctx context.Context, rep *TrajReport, out string, opt ConvertOption
 // the scan spooled, else the files read again.
 func convertSources(rep *TrajReport, opt Options) ([]source, error) {
 	sf := rep.spool
-	if sf == nil {
+	if sf == nil || sf.removed {
 		return openSources(rep.traj, opt)
 	}
 	if len(sf.sections) != len(rep.Files) {

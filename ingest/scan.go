@@ -298,7 +298,7 @@ func Scan(ctx context.Context, t *Trajectory, opt Options) (*TrajReport, error) 
 // itself; later calls do nothing.
 func (t *TrajReport) Discard() {
 	if t != nil {
-		t.spool.remove()
+		t.spool.remove() // Convert then reads the text again
 	}
 }
 

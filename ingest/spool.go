@@ -60,8 +60,10 @@ const (
 	spoolSameSymbols
 )
 
-// maxSpoolLen bounds a length read back from a spool: it was written by
-// this process, but a length is never trusted to allocate.
+// maxSpoolLen bounds a length read back from a spool. A length is also
+// never larger than the bytes left in its section (every element takes
+// at least one byte), so a damaged spool cannot make the reader allocate
+// more than the spool's own size.
 const maxSpoolLen = 1 << 31
 
 // spoolFile is the spool of one trajectory: one section per source, in
@@ -70,6 +72,7 @@ type spoolFile struct {
 	path     string
 	sections [][2]int64 // offset, length
 	once     sync.Once
+	removed  bool // by remove: the conversion reads the text again
 }
 
 // remove deletes the spool and its owner marker; safe to call twice.
@@ -80,6 +83,7 @@ func (sf *spoolFile) remove() {
 	sf.once.Do(func() {
 		os.Remove(sf.path)
 		outdir.Unmark(sf.path)
+		sf.removed = true
 	})
 }
 
@@ -385,14 +389,37 @@ type spoolSource struct {
 	f    *os.File // closed by close (one of the sources sharing it)
 	fr   *FileReport
 	br   *bufio.Reader
+	sec  *countingReader // under br: bytes taken from the section
+	size int64           // the section's length
 	strs []string
 	syms []string
 	buf  []byte
 }
 
 func newSpoolSource(f *os.File, sec [2]int64, fr *FileReport) *spoolSource {
-	return &spoolSource{fr: fr, br: bufio.NewReaderSize(io.NewSectionReader(f, sec[0], sec[1]), 256<<10)}
+	return spoolReader(io.NewSectionReader(f, sec[0], sec[1]), sec[1], fr)
 }
+
+// spoolReader reads records from r, a section of size bytes.
+func spoolReader(r io.Reader, size int64, fr *FileReport) *spoolSource {
+	cr := &countingReader{r: r}
+	return &spoolSource{fr: fr, br: bufio.NewReaderSize(cr, 256<<10), sec: cr, size: size}
+}
+
+// countingReader counts the bytes read through it.
+type countingReader struct {
+	r io.Reader
+	n int64
+}
+
+func (c *countingReader) Read(p []byte) (int, error) {
+	n, err := c.r.Read(p)
+	c.n += int64(n)
+	return n, err
+}
+
+// left is the number of bytes of the section not yet consumed.
+func (s *spoolSource) left() int64 { return s.size - s.sec.n + int64(s.br.Buffered()) }
 
 func (s *spoolSource) file() string                        { return s.fr.File }
 func (s *spoolSource) provides() map[string]textnum.Format { return s.fr.fmts }
@@ -422,8 +449,9 @@ func (s *spoolSource) uvarint(what string) (uint64, error) {
 
 func (s *spoolSource) length(what string) (int, error) {
 	x, err := s.uvarint(what)
-	if err == nil && x > maxSpoolLen {
-		err = s.corrupt(what, fmt.Errorf("length %d", x))
+	if err == nil && (x > maxSpoolLen || int64(x) > s.left()+1) {
+		// +1: floats and scaled store n+1, so that nil and empty differ.
+		err = s.corrupt(what, fmt.Errorf("length %d with %d bytes left", x, s.left()))
 	}
 	return int(x), err
 }
@@ -448,6 +476,9 @@ func (s *spoolSource) floats(what string) ([]float64, error) {
 // raw reads n values as IEEE bits.
 func (s *spoolSource) raw(what string, n int) ([]float64, error) {
 	need := 8 * n
+	if int64(need) > s.left() {
+		return nil, s.corrupt(what, fmt.Errorf("%d values with %d bytes left", n, s.left()))
+	}
 	if cap(s.buf) < need {
 		s.buf = make([]byte, need)
 	}
@@ -483,6 +514,9 @@ func (s *spoolSource) scaled(what string) ([]float64, error) {
 	size, err := s.length(what)
 	if err != nil {
 		return nil, err
+	}
+	if n > size { // every value takes at least one byte
+		return nil, s.corrupt(what, fmt.Errorf("%d values in %d bytes", n, size))
 	}
 	if cap(s.buf) < size {
 		s.buf = make([]byte, size)

@@ -1,9 +1,9 @@
 package ingest
 
 import (
-	"bufio"
 	"bytes"
 	"context"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -12,6 +12,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
@@ -252,8 +253,66 @@ func TestSpoolCutIsAnError(t *testing.T) {
 	sec := sf.sections[0]
 	sec[1] -= 5
 	_, err = newSpoolSource(f, sec, &FileReport{File: "geom.xyz"}).next()
-	if !errors.Is(err, errSpool) || !errors.Is(err, io.ErrUnexpectedEOF) {
-		t.Errorf("cut spool: %v, want errSpool wrapping io.ErrUnexpectedEOF", err)
+	if !errors.Is(err, errSpool) {
+		t.Errorf("cut spool: %v, want errSpool", err)
+	}
+}
+
+// TestSpoolDamagedLengths: a spool whose lengths claim more than its
+// section holds is an error before anything is allocated by them (a
+// 2^31-value claim in 16 bytes must not ask for 16 GiB).
+func TestSpoolDamagedLengths(t *testing.T) {
+	for _, c := range []struct {
+		name string
+		body []byte
+	}{
+		// flags 0, line 1, then state energies claiming 2^31 values.
+		{"state energies", append([]byte{0, 1}, binary.AppendUvarint(nil, 1<<31)...)},
+		// flags 0, line 1, no energies, no populations, 2^24 columns.
+		{"columns", append([]byte{0, 1, 0, 0}, binary.AppendUvarint(nil, 1<<24)...)},
+	} {
+		p := filepath.Join(t.TempDir(), "spool")
+		body := append(c.body, make([]byte, 8)...)
+		os.WriteFile(p, body, 0o600)
+		f, _ := os.Open(p)
+		var before, after runtime.MemStats
+		runtime.ReadMemStats(&before)
+		_, err := newSpoolSource(f, [2]int64{0, int64(len(body))}, &FileReport{File: "geom.xyz"}).next()
+		runtime.ReadMemStats(&after)
+		f.Close()
+		if !errors.Is(err, errSpool) {
+			t.Errorf("%s: %v, want errSpool", c.name, err)
+		}
+		if grew := after.TotalAlloc - before.TotalAlloc; grew > 1<<20 {
+			t.Errorf("%s: %d bytes allocated reading a %d-byte spool", c.name, grew, len(body))
+		}
+	}
+}
+
+// TestDiscardThenConvert: a report whose spool was discarded (a scan
+// refused without --drop-partial) converts from the text when the
+// conversion drops the cut frame, instead of opening the removed spool.
+func TestDiscardThenConvert(t *testing.T) {
+	dir := t.TempDir()
+	tr, err := TrajectoryFrom([]string{filepath.Join("..", "testdata", "ensembles", "problems", "p1-truncated-frame")}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	opt := Options{Units: map[string]string{"position": "angstrom"}, SpoolDir: dir}
+	rep, err := Scan(context.Background(), tr, opt)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Refusal(false) == nil {
+		t.Fatal("p1-truncated-frame not refused without --drop-partial")
+	}
+	copt := ConvertOptions{Options: opt}
+	copt.DropPartial = true
+	if _, err := Convert(context.Background(), rep, filepath.Join(dir, "o.h5"), copt); err != nil {
+		t.Errorf("convert after the spool was discarded: %v", err)
+	}
+	if left := spoolFiles(dir); len(left) > 0 {
+		t.Errorf("left behind: %v", left)
 	}
 }
 
@@ -575,7 +634,7 @@ func TestSpoolScaled(t *testing.T) {
 		if c.scaled && len(w.buf) >= 8*len(c.v) {
 			t.Errorf("%s: %d bytes for %d values", c.name, len(w.buf), len(c.v))
 		}
-		src := &spoolSource{fr: &FileReport{File: c.name}, br: bufio.NewReader(bytes.NewReader(w.buf))}
+		src := spoolReader(bytes.NewReader(w.buf), int64(len(w.buf)), &FileReport{File: c.name})
 		got, err := src.scaled("values")
 		if err != nil || !sameBits(got, c.v) {
 			t.Errorf("%s: read %v (%v), wrote %v", c.name, got, err, c.v)
@@ -616,7 +675,7 @@ func TestSpoolFixedBits(t *testing.T) {
 		if !w.fixed(v, d) {
 			continue // declined (a magnitude beyond 2^50, or -0): scaled writes it
 		}
-		src := &spoolSource{fr: &FileReport{File: "fixed"}, br: bufio.NewReader(bytes.NewReader(w.buf))}
+		src := spoolReader(bytes.NewReader(w.buf), int64(len(w.buf)), &FileReport{File: "fixed"})
 		got, err := src.scaled("values")
 		if err != nil || !sameBits(got, v) {
 			t.Fatalf("%d decimals: wrote %v, read %v (%v)", d, v, got, err)
