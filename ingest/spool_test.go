@@ -10,7 +10,6 @@ import (
 	"math"
 	"math/rand/v2"
 	"os"
-	"os/exec"
 	"path/filepath"
 	"runtime"
 	"slices"
@@ -21,6 +20,7 @@ import (
 
 	"trajvault/internal/demo"
 	"trajvault/internal/outdir"
+	"trajvault/internal/testenv"
 )
 
 // randomRecord draws a record with every field the spool carries: NaN
@@ -316,28 +316,6 @@ func TestDiscardThenConvert(t *testing.T) {
 	}
 }
 
-// h5diffData compares two trajectory files with h5diff (Debian's
-// hdf5-tools, an independent reader): every dataset and attribute equal
-// except the provenance record (times and the command differ).
-func h5diffData(t *testing.T, a, b string) {
-	t.Helper()
-	if _, err := exec.LookPath("h5diff"); err != nil {
-		t.Skip("h5diff (Debian hdf5-tools) not installed")
-	}
-	out, err := exec.Command("h5diff", a, b).CombinedOutput()
-	if err == nil {
-		return
-	}
-	for _, l := range strings.Split(strings.TrimSpace(string(out)), "\n") {
-		switch {
-		case strings.HasPrefix(l, "attribute: <trajvault_provenance of </parameters>>"):
-		case strings.HasSuffix(l, "differences found") || strings.HasSuffix(l, "difference found"):
-		default:
-			t.Errorf("%s vs %s: h5diff: %s", a, b, l)
-		}
-	}
-}
-
 // spoolFiles lists the spools and owner markers left in dir.
 func spoolFiles(dir string) []string {
 	var left []string
@@ -420,7 +398,7 @@ func TestSpoolSameFiles(t *testing.T) {
 			if rep2.spool == nil {
 				t.Error("ConvertFiles did not spool")
 			}
-			h5diffData(t, a, b)
+			testenv.H5DiffData(t, a, b)
 			if left := spoolFiles(out); len(left) > 0 {
 				t.Errorf("left behind: %v", left)
 			}

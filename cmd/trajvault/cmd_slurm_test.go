@@ -46,7 +46,7 @@ func TestSlurmConvert(t *testing.T) {
 		t.Fatalf("gather job: %s", state)
 	}
 	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5", "traj-004.h5"} {
-		h5diffSameData(t, filepath.Join(local, n), filepath.Join(out, n))
+		testenv.H5DiffData(t, filepath.Join(local, n), filepath.Join(out, n))
 	}
 	if state := testenv.WaitSlurmJob(t, submit(), 3*time.Minute); state != "COMPLETED" {
 		t.Fatalf("second gather job: %s", state)

@@ -9,6 +9,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"trajvault/internal/testenv"
 )
 
 // TestConvertWorkers: --jobs 2 converts an ensemble in worker processes
@@ -32,7 +34,7 @@ func TestConvertWorkers(t *testing.T) {
 		t.Fatalf("jobs 2: exit %d %s %s", code, out, errs)
 	}
 	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5"} {
-		h5diffSameData(t, filepath.Join(one, n), filepath.Join(two, n))
+		testenv.H5DiffData(t, filepath.Join(one, n), filepath.Join(two, n))
 	}
 
 	t.Setenv("TRAJVAULT_TEST_FAULT", "kill:traj-002")
@@ -52,25 +54,6 @@ func TestConvertWorkers(t *testing.T) {
 	}
 }
 
-// h5diffSameData compares two trajectory files with h5diff (Debian's
-// hdf5-tools, an independent reader): every dataset and attribute must be
-// equal except the provenance record.
-func h5diffSameData(t *testing.T, a, b string) {
-	t.Helper()
-	out, err := exec.Command("h5diff", a, b).CombinedOutput()
-	if err == nil {
-		return
-	}
-	for _, l := range strings.Split(strings.TrimSpace(string(out)), "\n") {
-		switch {
-		case strings.HasPrefix(l, "attribute: <trajvault_provenance of </parameters>>"):
-		case strings.HasSuffix(l, "differences found") || strings.HasSuffix(l, "difference found"):
-		default:
-			t.Errorf("%s vs %s: h5diff: %s", filepath.Base(a), filepath.Base(b), l)
-		}
-	}
-}
-
 // TestPackWorkers: pack with worker processes writes trajectory files
 // with the same data as pack --jobs 1 (h5diff, Debian's hdf5-tools).
 func TestPackWorkers(t *testing.T) {
@@ -83,7 +66,7 @@ func TestPackWorkers(t *testing.T) {
 		}
 	}
 	for _, n := range []string{"traj-001.h5", "traj-002.h5", "traj-003.h5"} {
-		h5diffSameData(t, filepath.Join(dir, "bag1", "data", "trajectories", n), filepath.Join(dir, "bag2", "data", "trajectories", n))
+		testenv.H5DiffData(t, filepath.Join(dir, "bag1", "data", "trajectories", n), filepath.Join(dir, "bag2", "data", "trajectories", n))
 	}
 }
 
